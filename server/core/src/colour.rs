@@ -1,0 +1,289 @@
+//! Colour: decoding photos once into typed sRGB, conversion to CIELAB (D65) and colour
+//! differences.
+//!
+//! Which difference is used where:
+//! - **ΔE\*ab** (Euclidean distance in CIELAB) inside the per-pixel order search: it is a true
+//!   metric, costs three multiplications, and the search compares many table entries per pixel.
+//! - **CIEDE2000** (palette's standard `Ciede2000`, not the "improved" variant) wherever a number
+//!   is reported to a person: calibration residuals, exposure-fit quality, calibration
+//!   comparisons. It follows perceived difference more closely than ΔE\*ab, and is evaluated
+//!   only a few thousand times per request.
+
+use std::io::Cursor;
+use std::sync::OnceLock;
+
+use image::{DynamicImage, ImageReader};
+use palette::color_difference::Ciede2000;
+use palette::{FromColor, LinSrgb, Srgb};
+use rayon::prelude::*;
+
+use crate::error::{CoreError, CoreResult};
+
+/// CIELAB with the D65 white point, `f32` components (L\* 0–100, a\*, b\* unbounded).
+pub type Lab = palette::Lab<palette::white_point::D65, f32>;
+
+/// Limits checked on the header, before any pixel buffer is allocated.
+#[derive(Debug, Clone, Copy)]
+pub struct DecodeLimits {
+    /// Largest accepted width or height, pixels.
+    pub max_side: u32,
+    /// Largest accepted width × height, pixels.
+    pub max_pixels: u64,
+    /// Largest allocation the decoder may make, bytes.
+    pub max_alloc_bytes: u64,
+}
+
+impl Default for DecodeLimits {
+    fn default() -> Self {
+        DecodeLimits {
+            max_side: 30_000,
+            max_pixels: 100_000_000,
+            max_alloc_bytes: 1 << 30,
+        }
+    }
+}
+
+/// Decodes any supported image (PNG, JPEG, TIFF) after checking its header against `limits`.
+/// `what` names the input in error messages ("photo", "mask").
+pub(crate) fn decode_dynamic(
+    bytes: &[u8],
+    limits: &DecodeLimits,
+    what: &str,
+) -> CoreResult<DynamicImage> {
+    if bytes.is_empty() {
+        return Err(CoreError::Decode(format!("the {what} is empty (0 bytes)")));
+    }
+    let reader = || {
+        ImageReader::new(Cursor::new(bytes))
+            .with_guessed_format()
+            .map_err(|e| CoreError::Decode(format!("{what}: {e}")))
+    };
+    let probe = reader()?;
+    if probe.format().is_none() {
+        return Err(CoreError::Decode(format!(
+            "the {what} is not a PNG, JPEG or TIFF file"
+        )));
+    }
+    let (width, height) = probe
+        .into_dimensions()
+        .map_err(|e| CoreError::Decode(format!("{what}: {e}")))?;
+    if width == 0 || height == 0 {
+        return Err(CoreError::Decode(format!("the {what} has no pixels")));
+    }
+    if width > limits.max_side
+        || height > limits.max_side
+        || u64::from(width) * u64::from(height) > limits.max_pixels
+    {
+        return Err(CoreError::TooLarge(format!(
+            "the {what} is {width}×{height} pixels; the limit is {} pixels a side and {} pixels in all",
+            limits.max_side, limits.max_pixels
+        )));
+    }
+    let mut decoder = reader()?;
+    let mut image_limits = image::Limits::default();
+    image_limits.max_image_width = Some(limits.max_side);
+    image_limits.max_image_height = Some(limits.max_side);
+    image_limits.max_alloc = Some(limits.max_alloc_bytes);
+    decoder.limits(image_limits);
+    decoder.decode().map_err(|e| match e {
+        image::ImageError::Limits(l) => CoreError::TooLarge(format!("{what}: {l}")),
+        other => CoreError::Decode(format!("{what}: {other}")),
+    })
+}
+
+/// Pixel storage of a [`Photo`]: sRGB-encoded, as the camera wrote it.
+#[derive(Debug, Clone)]
+enum SrgbPixels {
+    Eight(Vec<Srgb<u8>>),
+    Sixteen(Vec<Srgb<u16>>),
+}
+
+/// A colour photo as decoded from its file: sRGB-encoded samples (8 or 16 bit), row-major,
+/// pixel (x, y) at index `y * width + x`. Alpha is dropped; grey images become neutral colour.
+#[derive(Debug, Clone)]
+pub struct Photo {
+    width: u32,
+    height: u32,
+    pixels: SrgbPixels,
+}
+
+fn lut8() -> &'static [f32; 256] {
+    static LUT: OnceLock<[f32; 256]> = OnceLock::new();
+    LUT.get_or_init(|| {
+        std::array::from_fn(|i| Srgb::new(i as u8, 0, 0).into_format::<f32>().into_linear().red)
+    })
+}
+
+fn lut16() -> &'static [f32] {
+    static LUT: OnceLock<Vec<f32>> = OnceLock::new();
+    LUT.get_or_init(|| {
+        (0..=u16::MAX)
+            .map(|i| Srgb::new(i, 0, 0).into_format::<f32>().into_linear().red)
+            .collect()
+    })
+}
+
+impl Photo {
+    /// Decodes PNG, JPEG or TIFF bytes (8 or 16 bit per channel) after checking the header
+    /// against `limits`.
+    pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> CoreResult<Photo> {
+        Ok(Photo::from_dynamic(decode_dynamic(bytes, limits, "photo")?))
+    }
+
+    /// Wraps an already decoded image, keeping 16-bit depth where the image has it.
+    pub fn from_dynamic(image: DynamicImage) -> Photo {
+        let (width, height) = (image.width(), image.height());
+        let sixteen = matches!(
+            image,
+            DynamicImage::ImageLuma16(_)
+                | DynamicImage::ImageLumaA16(_)
+                | DynamicImage::ImageRgb16(_)
+                | DynamicImage::ImageRgba16(_)
+                | DynamicImage::ImageRgb32F(_)
+                | DynamicImage::ImageRgba32F(_)
+        );
+        let pixels = if sixteen {
+            let raw = image.into_rgb16().into_raw();
+            SrgbPixels::Sixteen(raw.chunks_exact(3).map(|c| Srgb::new(c[0], c[1], c[2])).collect())
+        } else {
+            let raw = image.into_rgb8().into_raw();
+            SrgbPixels::Eight(raw.chunks_exact(3).map(|c| Srgb::new(c[0], c[1], c[2])).collect())
+        };
+        Photo {
+            width,
+            height,
+            pixels,
+        }
+    }
+
+    /// An 8-bit photo from row-major sRGB pixels. Fails if the length is not width × height.
+    pub fn from_srgb8(width: u32, height: u32, pixels: Vec<Srgb<u8>>) -> CoreResult<Photo> {
+        if pixels.len() as u64 != u64::from(width) * u64::from(height) || width == 0 || height == 0
+        {
+            return Err(CoreError::invalid(
+                "photo",
+                format!("{} pixels for a {width}×{height} image", pixels.len()),
+            ));
+        }
+        Ok(Photo {
+            width,
+            height,
+            pixels: SrgbPixels::Eight(pixels),
+        })
+    }
+
+    /// Width in pixels.
+    pub fn width(&self) -> u32 {
+        self.width
+    }
+
+    /// Height in pixels.
+    pub fn height(&self) -> u32 {
+        self.height
+    }
+
+    /// Bits per channel of the source file (8 or 16).
+    pub fn bit_depth(&self) -> u8 {
+        match self.pixels {
+            SrgbPixels::Eight(_) => 8,
+            SrgbPixels::Sixteen(_) => 16,
+        }
+    }
+
+    /// Linear-light sRGB of pixel index `i` (row-major), components 0–1.
+    pub fn linear(&self, i: usize) -> LinSrgb<f32> {
+        match &self.pixels {
+            SrgbPixels::Eight(p) => {
+                let (lut, c) = (lut8(), p[i]);
+                LinSrgb::new(
+                    lut[c.red as usize],
+                    lut[c.green as usize],
+                    lut[c.blue as usize],
+                )
+            }
+            SrgbPixels::Sixteen(p) => {
+                let (lut, c) = (lut16(), p[i]);
+                LinSrgb::new(
+                    lut[c.red as usize],
+                    lut[c.green as usize],
+                    lut[c.blue as usize],
+                )
+            }
+        }
+    }
+
+    /// CIELAB (D65) of every pixel after multiplying linear light by `gain(x, y)` (see
+    /// [`crate::exposure::ExposureCorrection`]). Runs in parallel over rows.
+    pub fn to_lab(&self, correction: &crate::exposure::ExposureCorrection) -> LabImage {
+        let w = self.width as usize;
+        let mut data = vec![Lab::new(0.0, 0.0, 0.0); w * self.height as usize];
+        data.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
+            for (x, out) in row.iter_mut().enumerate() {
+                let lin = correction.apply(self.linear(y * w + x), x, y, self.width, self.height);
+                *out = Lab::from_color(lin);
+            }
+        });
+        LabImage {
+            width: self.width,
+            height: self.height,
+            data,
+        }
+    }
+}
+
+/// A CIELAB (D65) image, row-major, pixel (x, y) at index `y * width + x`.
+#[derive(Debug, Clone)]
+pub struct LabImage {
+    /// Width in pixels.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+    /// Row-major pixels.
+    pub data: Vec<Lab>,
+}
+
+/// CIELAB (D65) of a linear-light sRGB colour.
+pub fn lab_from_linear(c: LinSrgb<f32>) -> Lab {
+    Lab::from_color(c)
+}
+
+/// Linear-light sRGB of a CIELAB (D65) colour (may leave 0–1 for out-of-gamut colours).
+pub fn linear_from_lab(c: Lab) -> LinSrgb<f32> {
+    LinSrgb::from_color(c)
+}
+
+/// 8-bit sRGB encoding of a CIELAB (D65) colour, clipped to the gamut.
+pub fn srgb8_from_lab(c: Lab) -> Srgb<u8> {
+    let lin = linear_from_lab(c);
+    let clipped = LinSrgb::new(
+        lin.red.clamp(0.0, 1.0),
+        lin.green.clamp(0.0, 1.0),
+        lin.blue.clamp(0.0, 1.0),
+    );
+    Srgb::<f32>::from_linear(clipped).into_format::<u8>()
+}
+
+/// ΔE\*ab: Euclidean distance in CIELAB.
+pub fn delta_e_ab(a: Lab, b: Lab) -> f32 {
+    let (dl, da, db) = (a.l - b.l, a.a - b.a, a.b - b.b);
+    (dl * dl + da * da + db * db).sqrt()
+}
+
+/// CIEDE2000 colour difference (palette's standard formula, kL = kC = kH = 1).
+pub fn ciede2000(a: Lab, b: Lab) -> f32 {
+    a.difference(b)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn eight_and_sixteen_bit_linear_tables_agree_at_shared_codes() {
+        for v in [0u8, 1, 10, 128, 200, 255] {
+            let a = lut8()[v as usize];
+            let b = lut16()[v as usize * 257];
+            assert!((a - b).abs() < 1e-6, "{v}: {a} vs {b}");
+        }
+    }
+}

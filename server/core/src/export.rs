@@ -1,0 +1,297 @@
+//! Output formats of an order map: NPY, 16-bit PNG, false-colour preview PNG, CSV.
+
+use std::io::Write;
+
+use image::{ImageEncoder, Rgb, RgbImage};
+
+use crate::error::{CoreError, CoreResult};
+use crate::order_map::{OrderMap, PixelFlags};
+
+/// Scale of the 16-bit PNG: grey value = round(order × 1000); N = value / 1000.
+pub const PNG16_SCALE: f32 = 1000.0;
+/// Grey value of the 16-bit PNG that means "no value".
+pub const PNG16_NO_VALUE: u16 = u16::MAX;
+
+/// Output formats, chosen by file extension or by the `format` query parameter.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum OutputFormat {
+    /// `.npy`: little-endian float32, shape (height, width), C order, NaN = no value.
+    Npy,
+    /// 16-bit grey PNG, value = round(N × 1000), 65535 = no value.
+    Png16,
+    /// False-colour PNG with a colour bar (for people, not for measurement).
+    Preview,
+    /// CSV with header `x,y,order,residual,flags`, one line per pixel, empty order = no value.
+    Csv,
+}
+
+impl OutputFormat {
+    /// Picks a format from a path's extension: `.npy`, `.csv`, `.png` (16-bit) or
+    /// `.preview.png` / `-preview.png` (false colour).
+    pub fn from_path(path: &str) -> CoreResult<Self> {
+        let lower = path.to_ascii_lowercase();
+        if lower.ends_with(".npy") {
+            Ok(OutputFormat::Npy)
+        } else if lower.ends_with(".csv") {
+            Ok(OutputFormat::Csv)
+        } else if lower.ends_with("preview.png") {
+            Ok(OutputFormat::Preview)
+        } else if lower.ends_with(".png") {
+            Ok(OutputFormat::Png16)
+        } else {
+            Err(CoreError::invalid(
+                "out",
+                format!("{path:?}: use .npy, .png (16-bit), .preview.png (false colour) or .csv"),
+            ))
+        }
+    }
+
+    /// Parses the API's `format` names: `npy`, `png16`, `preview`, `csv`.
+    pub fn from_name(name: &str) -> CoreResult<Self> {
+        match name {
+            "npy" => Ok(OutputFormat::Npy),
+            "png16" => Ok(OutputFormat::Png16),
+            "preview" => Ok(OutputFormat::Preview),
+            "csv" => Ok(OutputFormat::Csv),
+            other => Err(CoreError::invalid(
+                "format",
+                format!("{other:?} is not one of npy, png16, preview, csv"),
+            )),
+        }
+    }
+
+    /// The API name of the format.
+    pub fn name(self) -> &'static str {
+        match self {
+            OutputFormat::Npy => "npy",
+            OutputFormat::Png16 => "png16",
+            OutputFormat::Preview => "preview",
+            OutputFormat::Csv => "csv",
+        }
+    }
+
+    /// MIME type of the encoded bytes.
+    pub fn content_type(self) -> &'static str {
+        match self {
+            OutputFormat::Npy => "application/octet-stream",
+            OutputFormat::Png16 | OutputFormat::Preview => "image/png",
+            OutputFormat::Csv => "text/csv; charset=utf-8",
+        }
+    }
+
+    /// Conventional file extension.
+    pub fn extension(self) -> &'static str {
+        match self {
+            OutputFormat::Npy => "npy",
+            OutputFormat::Png16 => "png",
+            OutputFormat::Preview => "preview.png",
+            OutputFormat::Csv => "csv",
+        }
+    }
+}
+
+/// Encodes `map` in `format`.
+pub fn encode(map: &OrderMap, format: OutputFormat) -> CoreResult<Vec<u8>> {
+    match format {
+        OutputFormat::Npy => Ok(npy_f32(&map.order, map.height as usize, map.width as usize)),
+        OutputFormat::Png16 => png16(map),
+        OutputFormat::Preview => preview(map),
+        OutputFormat::Csv => Ok(csv(map)),
+    }
+}
+
+/// NPY version 1.0 bytes of a little-endian float32 array of shape (rows, cols), C order.
+pub fn npy_f32(values: &[f32], rows: usize, cols: usize) -> Vec<u8> {
+    let dict = format!("{{'descr': '<f4', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
+    // Magic (6) + version (2) + header length (2) + dict + padding + '\n' is a multiple of 64.
+    let unpadded = 10 + dict.len() + 1;
+    let padding = (64 - unpadded % 64) % 64;
+    let header_len = dict.len() + padding + 1;
+    let mut out = Vec::with_capacity(10 + header_len + values.len() * 4);
+    out.extend_from_slice(b"\x93NUMPY\x01\x00");
+    out.extend_from_slice(&(header_len as u16).to_le_bytes());
+    out.extend_from_slice(dict.as_bytes());
+    out.extend(std::iter::repeat_n(b' ', padding));
+    out.push(b'\n');
+    for v in values {
+        out.extend_from_slice(&v.to_le_bytes());
+    }
+    out
+}
+
+/// Reads NPY bytes written as little-endian float32, 2-D, C order; returns (rows, cols, values).
+pub fn read_npy_f32(bytes: &[u8]) -> CoreResult<(usize, usize, Vec<f32>)> {
+    let bad = |m: &str| CoreError::Decode(format!("npy: {m}"));
+    if bytes.len() < 10 || &bytes[..6] != b"\x93NUMPY" {
+        return Err(bad("missing magic"));
+    }
+    let (header_len, start) = match bytes[6] {
+        1 => (u16::from_le_bytes([bytes[8], bytes[9]]) as usize, 10),
+        2 | 3 if bytes.len() >= 12 => (
+            u32::from_le_bytes([bytes[8], bytes[9], bytes[10], bytes[11]]) as usize,
+            12,
+        ),
+        _ => return Err(bad("unsupported version")),
+    };
+    let header = bytes
+        .get(start..start + header_len)
+        .and_then(|h| std::str::from_utf8(h).ok())
+        .ok_or_else(|| bad("truncated header"))?;
+    if !header.contains("'descr': '<f4'") || !header.contains("'fortran_order': False") {
+        return Err(bad("expected little-endian float32 in C order"));
+    }
+    let shape = header
+        .split("'shape': (")
+        .nth(1)
+        .and_then(|s| s.split(')').next())
+        .ok_or_else(|| bad("no shape"))?;
+    let dims: Vec<usize> = shape
+        .split(',')
+        .map(str::trim)
+        .filter(|s| !s.is_empty())
+        .map(|s| s.parse().map_err(|_| bad("bad shape")))
+        .collect::<CoreResult<_>>()?;
+    let [rows, cols] = dims[..] else {
+        return Err(bad("expected a 2-D array"));
+    };
+    let data = &bytes[start + header_len..];
+    if data.len() != rows * cols * 4 {
+        return Err(bad("data length does not match the shape"));
+    }
+    let values = data
+        .chunks_exact(4)
+        .map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]]))
+        .collect();
+    Ok((rows, cols, values))
+}
+
+fn png16(map: &OrderMap) -> CoreResult<Vec<u8>> {
+    let mut raw = Vec::with_capacity(map.order.len() * 2);
+    for v in &map.order {
+        let grey = if v.is_finite() {
+            (v * PNG16_SCALE).round().clamp(0.0, f32::from(PNG16_NO_VALUE - 1)) as u16
+        } else {
+            PNG16_NO_VALUE
+        };
+        // PNG stores 16-bit samples big-endian.
+        raw.extend_from_slice(&grey.to_be_bytes());
+    }
+    let mut out = Vec::new();
+    image::codecs::png::PngEncoder::new(&mut out)
+        .write_image(&raw, map.width, map.height, image::ExtendedColorType::L16)
+        .map_err(|e| CoreError::Encode(e.to_string()))?;
+    Ok(out)
+}
+
+/// Colour of a flagged pixel in the preview: outside mask dark grey, beyond range white,
+/// unreliable magenta.
+pub fn preview_flag_colour(flags: PixelFlags) -> Option<[u8; 3]> {
+    if flags.has(PixelFlags::OUTSIDE_MASK) {
+        Some([40, 40, 40])
+    } else if flags.has(PixelFlags::BEYOND_RANGE) {
+        Some([255, 255, 255])
+    } else if flags.has(PixelFlags::UNRELIABLE) {
+        Some([230, 0, 200])
+    } else {
+        None
+    }
+}
+
+/// The colour scale of the preview (perceptually uniform, from the `colorous` crate).
+fn scale_colour(t: f64) -> [u8; 3] {
+    colorous::CIVIDIS.eval_continuous(t.clamp(0.0, 1.0)).as_array()
+}
+
+fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
+    let (w, h) = (map.width, map.height);
+    let bar_w = (w / 12).clamp(24, 120);
+    let gap = bar_w / 3;
+    let top = map.statistics.max_order.max(0.0);
+    let top = if top.is_finite() && top > 0.0 { top.ceil() } else { 1.0 };
+    let mut img = RgbImage::from_pixel(w + gap + bar_w, h, Rgb([255, 255, 255]));
+    for y in 0..h {
+        for x in 0..w {
+            let i = (y * w + x) as usize;
+            let c = preview_flag_colour(map.flags[i]).unwrap_or_else(|| {
+                if map.order[i].is_finite() {
+                    scale_colour(f64::from(map.order[i]) / top)
+                } else {
+                    [230, 0, 200]
+                }
+            });
+            img.put_pixel(x, y, Rgb(c));
+        }
+        let t = 1.0 - f64::from(y) / f64::from(h.max(2) - 1);
+        let bar = scale_colour(t);
+        // Whole orders are marked by a black tick across the bar.
+        let order_here = t * top;
+        let tick = ((order_here - order_here.round()).abs() * f64::from(h) / top) < 0.5;
+        for x in w + gap..w + gap + bar_w {
+            let c = if tick && x < w + gap + bar_w / 2 { [0, 0, 0] } else { bar };
+            img.put_pixel(x, y, Rgb(c));
+        }
+    }
+    let mut out = Vec::new();
+    image::codecs::png::PngEncoder::new(&mut out)
+        .write_image(img.as_raw(), img.width(), img.height(), image::ExtendedColorType::Rgb8)
+        .map_err(|e| CoreError::Encode(e.to_string()))?;
+    Ok(out)
+}
+
+fn csv(map: &OrderMap) -> Vec<u8> {
+    let mut out = Vec::with_capacity(map.order.len() * 24);
+    out.extend_from_slice(b"x,y,order,residual,flags\n");
+    let w = map.width as usize;
+    for (i, (o, r)) in map.order.iter().zip(&map.residual).enumerate() {
+        let (x, y) = (i % w, i / w);
+        if o.is_finite() {
+            let _ = writeln!(out, "{x},{y},{o:.4},{r:.2},{}", map.flags[i].0);
+        } else {
+            let _ = writeln!(out, "{x},{y},,,{}", map.flags[i].0);
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn npy_header_is_padded_to_64_bytes_and_round_trips() {
+        let v = [0.0, 1.5, f32::NAN, 4.25, -1.0, 2.0];
+        let bytes = npy_f32(&v, 2, 3);
+        let header_len = u16::from_le_bytes([bytes[8], bytes[9]]) as usize;
+        // source: NumPy NEP 1 / numpy.lib.format documentation — total header is a multiple of 64
+        assert_eq!((10 + header_len) % 64, 0);
+        let (r, c, back) = read_npy_f32(&bytes).unwrap();
+        assert_eq!((r, c), (2, 3));
+        assert_eq!(back[1], 1.5);
+        assert!(back[2].is_nan());
+    }
+
+    #[test]
+    fn formats_are_chosen_by_extension() {
+        assert_eq!(OutputFormat::from_path("a/b.NPY").unwrap(), OutputFormat::Npy);
+        assert_eq!(OutputFormat::from_path("m.preview.png").unwrap(), OutputFormat::Preview);
+        assert_eq!(OutputFormat::from_path("m.png").unwrap(), OutputFormat::Png16);
+        assert!(OutputFormat::from_path("m.jpg").is_err());
+    }
+}
+
+/// NPY version 1.0 bytes of an unsigned 8-bit array of shape (rows, cols), C order — used for
+/// the per-pixel [`PixelFlags`] bits.
+pub fn npy_u8(values: &[u8], rows: usize, cols: usize) -> Vec<u8> {
+    let dict = format!("{{'descr': '|u1', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
+    let unpadded = 10 + dict.len() + 1;
+    let padding = (64 - unpadded % 64) % 64;
+    let header_len = dict.len() + padding + 1;
+    let mut out = Vec::with_capacity(10 + header_len + values.len());
+    out.extend_from_slice(b"\x93NUMPY\x01\x00");
+    out.extend_from_slice(&(header_len as u16).to_le_bytes());
+    out.extend_from_slice(dict.as_bytes());
+    out.extend(std::iter::repeat_n(b' ', padding));
+    out.push(b'\n');
+    out.extend_from_slice(values);
+    out
+}

@@ -1,0 +1,159 @@
+//! Fringe-order maps: every specimen pixel's colour matched to a calibration table under a
+//! continuity constraint.
+
+use serde::{Deserialize, Serialize};
+
+use crate::calibration::CalibrationTable;
+use crate::colour::Photo;
+use crate::error::{CoreError, CoreResult};
+use crate::exposure::ExposureCorrection;
+use crate::geometry::{Mask, PixelPoint};
+
+/// Per-pixel flags of an [`OrderMap`] (bit set; 0 = a good value).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+pub struct PixelFlags(pub u8);
+
+impl PixelFlags {
+    /// Not part of the specimen (mask is zero there).
+    pub const OUTSIDE_MASK: u8 = 1;
+    /// The order exceeds the calibration table's range (e.g. near contact points).
+    pub const BEYOND_RANGE: u8 = 2;
+    /// Too steep or too washed out to be sure; no value is given.
+    pub const UNRELIABLE: u8 = 4;
+
+    /// Whether any of `bits` is set.
+    pub fn has(self, bits: u8) -> bool {
+        self.0 & bits != 0
+    }
+}
+
+/// A point of known fringe order supplied by the user (pixel-edge coordinates).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct OrderHint {
+    /// Where, in pixel-edge coordinates.
+    #[serde(flatten)]
+    pub at: PixelPoint,
+    /// Known fringe order there.
+    pub order: f64,
+}
+
+/// Options of [`map_orders`].
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct MapOptions {
+    /// Fit and apply an exposure / white-balance / vignetting correction (on by default).
+    pub exposure_compensation: bool,
+    /// Largest order to consider, fringes; `None` = the table's maximum.
+    pub max_order: Option<f64>,
+    /// Largest plausible change of order between neighbouring pixels, fringes per pixel.
+    pub max_gradient: f64,
+    /// Points of known order.
+    pub hints: Vec<OrderHint>,
+}
+
+impl Default for MapOptions {
+    fn default() -> Self {
+        MapOptions {
+            exposure_compensation: true,
+            max_order: None,
+            max_gradient: 0.2,
+            hints: Vec::new(),
+        }
+    }
+}
+
+impl MapOptions {
+    /// Checks ranges and finiteness; messages name the field.
+    pub fn validate(&self, width: u32, height: u32) -> CoreResult<()> {
+        if let Some(m) = self.max_order {
+            if !(m.is_finite() && m > 0.0) {
+                return Err(CoreError::invalid("max_order", format!("must be a positive number, got {m}")));
+            }
+        }
+        if !(self.max_gradient.is_finite() && self.max_gradient > 0.0 && self.max_gradient <= 1.0) {
+            return Err(CoreError::invalid(
+                "max_gradient",
+                format!("must lie in (0, 1] fringe per pixel, got {}", self.max_gradient),
+            ));
+        }
+        for (i, h) in self.hints.iter().enumerate() {
+            if !(h.order.is_finite() && h.order >= 0.0) {
+                return Err(CoreError::invalid("hints", format!("hint {i} has order {}", h.order)));
+            }
+            if h.at.pixel(width, height).is_none() {
+                return Err(CoreError::invalid(
+                    "hints",
+                    format!("hint {i} at ({}, {}) lies outside the {width}×{height} photo", h.at.x, h.at.y),
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Summary figures of an [`OrderMap`].
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct MapStatistics {
+    /// Pixels inside the mask.
+    pub specimen_pixels: u64,
+    /// Pixels inside the mask with a value.
+    pub valued_pixels: u64,
+    /// Share of specimen pixels flagged beyond range.
+    pub beyond_range_share: f64,
+    /// Share of specimen pixels flagged unreliable.
+    pub unreliable_share: f64,
+    /// Smallest, largest and mean order over valued pixels (NaN if none).
+    pub min_order: f64,
+    /// See `min_order`.
+    pub max_order: f64,
+    /// See `min_order`.
+    pub mean_order: f64,
+    /// Mean ΔE\*ab between valued pixels and their matched table colour.
+    pub mean_residual: f64,
+}
+
+/// Result of [`map_orders`]: row-major per-pixel arrays, pixel (x, y) at `y * width + x`.
+#[derive(Debug, Clone)]
+pub struct OrderMap {
+    /// Width in pixels.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+    /// Fringe order; NaN where there is no value (outside the mask, beyond range, unreliable).
+    pub order: Vec<f32>,
+    /// ΔE\*ab between the (corrected) pixel colour and the table colour at its order.
+    pub residual: Vec<f32>,
+    /// Ambiguity margin: how much worse (ΔE\*ab) the best match more than half a fringe away is.
+    pub margin: Vec<f32>,
+    /// Flags per pixel.
+    pub flags: Vec<PixelFlags>,
+    /// The exposure correction that was applied.
+    pub exposure: ExposureCorrection,
+    /// Summary figures.
+    pub statistics: MapStatistics,
+}
+
+/// Maps every specimen pixel of `photo` to a fringe order using `table`.
+pub fn map_orders(
+    photo: &Photo,
+    table: &CalibrationTable,
+    mask: Option<&Mask>,
+    options: &MapOptions,
+) -> CoreResult<OrderMap> {
+    options.validate(photo.width(), photo.height())?;
+    if let Some(m) = mask {
+        if m.width() != photo.width() || m.height() != photo.height() {
+            return Err(CoreError::invalid(
+                "mask",
+                format!(
+                    "mask is {}×{} but the photo is {}×{}",
+                    m.width(),
+                    m.height(),
+                    photo.width(),
+                    photo.height()
+                ),
+            ));
+        }
+    }
+    crate::matcher::solve(photo, table, mask, options)
+}

@@ -1,0 +1,1 @@
+//! Spectral renderer (helper builds this).
