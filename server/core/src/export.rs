@@ -100,19 +100,25 @@ pub fn encode(map: &OrderMap, format: OutputFormat) -> CoreResult<Vec<u8>> {
     }
 }
 
-/// NPY version 1.0 bytes of a little-endian float32 array of shape (rows, cols), C order.
-pub fn npy_f32(values: &[f32], rows: usize, cols: usize) -> Vec<u8> {
-    let dict = format!("{{'descr': '<f4', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
-    // Magic (6) + version (2) + header length (2) + dict + padding + '\n' is a multiple of 64.
+/// NPY version 1.0 header for a 2-D C-order array of `descr` (e.g. `<f4`), padded so that
+/// magic, version, length and dictionary together fill a multiple of 64 bytes.
+fn npy_header(descr: &str, rows: usize, cols: usize, payload: usize) -> Vec<u8> {
+    let dict = format!("{{'descr': '{descr}', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
     let unpadded = 10 + dict.len() + 1;
     let padding = (64 - unpadded % 64) % 64;
     let header_len = dict.len() + padding + 1;
-    let mut out = Vec::with_capacity(10 + header_len + values.len() * 4);
+    let mut out = Vec::with_capacity(10 + header_len + payload);
     out.extend_from_slice(b"\x93NUMPY\x01\x00");
     out.extend_from_slice(&(header_len as u16).to_le_bytes());
     out.extend_from_slice(dict.as_bytes());
     out.extend(std::iter::repeat_n(b' ', padding));
     out.push(b'\n');
+    out
+}
+
+/// NPY version 1.0 bytes of a little-endian float32 array of shape (rows, cols), C order.
+pub fn npy_f32(values: &[f32], rows: usize, cols: usize) -> Vec<u8> {
+    let mut out = npy_header("<f4", rows, cols, values.len() * 4);
     for v in values {
         out.extend_from_slice(&v.to_le_bytes());
     }
@@ -282,16 +288,7 @@ mod tests {
 /// NPY version 1.0 bytes of an unsigned 8-bit array of shape (rows, cols), C order — used for
 /// the per-pixel [`PixelFlags`] bits.
 pub fn npy_u8(values: &[u8], rows: usize, cols: usize) -> Vec<u8> {
-    let dict = format!("{{'descr': '|u1', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
-    let unpadded = 10 + dict.len() + 1;
-    let padding = (64 - unpadded % 64) % 64;
-    let header_len = dict.len() + padding + 1;
-    let mut out = Vec::with_capacity(10 + header_len + values.len());
-    out.extend_from_slice(b"\x93NUMPY\x01\x00");
-    out.extend_from_slice(&(header_len as u16).to_le_bytes());
-    out.extend_from_slice(dict.as_bytes());
-    out.extend(std::iter::repeat_n(b' ', padding));
-    out.push(b'\n');
+    let mut out = npy_header("|u1", rows, cols, values.len());
     out.extend_from_slice(values);
     out
 }
