@@ -5,8 +5,12 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::calibration::{CalibrationMetadata, CalibrationTable};
+use crate::calibration::{
+    CalibrationMetadata, CalibrationTable, TableEntry, TableSource, MAX_TABLE_ORDER,
+    ORDER_STEP_RANGE,
+};
 use crate::colour::Photo;
+use crate::colour::{ciede2000, lab_from_linear, Lab};
 use crate::error::{CoreError, CoreResult};
 use crate::geometry::PixelRect;
 
@@ -53,7 +57,10 @@ fn positive(field: &'static str, v: f64) -> CoreResult<f64> {
     if v.is_finite() && v > 0.0 {
         Ok(v)
     } else {
-        Err(CoreError::invalid(field, format!("must be a positive number, got {v}")))
+        Err(CoreError::invalid(
+            field,
+            format!("must be a positive number, got {v}"),
+        ))
     }
 }
 
@@ -61,7 +68,12 @@ impl EdgeLoad {
     /// Parses the caller's fields: an edge order, or moment + depth + fringe value, or an edge
     /// order with moment + depth (then the fringe value is reported).
     pub fn from_fields(f: EdgeLoadFields) -> CoreResult<EdgeLoad> {
-        match (f.edge_order, f.moment_n_mm, f.depth_mm, f.fringe_value_n_per_mm) {
+        match (
+            f.edge_order,
+            f.moment_n_mm,
+            f.depth_mm,
+            f.fringe_value_n_per_mm,
+        ) {
             (Some(n), None, None, None) => Ok(EdgeLoad::EdgeOrder(positive("edge_order", n)?)),
             (None, Some(m), Some(d), Some(fs)) => Ok(EdgeLoad::Load {
                 moment_n_mm: positive("moment_n_mm", m)?,
@@ -89,7 +101,9 @@ impl EdgeLoad {
                 moment_n_mm,
                 depth_mm,
                 fringe_value_n_per_mm,
-            } => crate::stress::pure_bending_edge_order(moment_n_mm, depth_mm, fringe_value_n_per_mm),
+            } => {
+                crate::stress::pure_bending_edge_order(moment_n_mm, depth_mm, fringe_value_n_per_mm)
+            }
         }
     }
 
@@ -165,8 +179,364 @@ pub struct BeamCalibration {
     pub report: BeamReport,
 }
 
+/// Rows whose centre lies closer than this to a beam edge are skipped (blurred edge rows), px.
+pub const EDGE_SKIP_PX: f64 = 2.0;
+
+/// How far from the given edge the refinement looks for the real one, px.
+pub const EDGE_SEARCH_PX: f64 = 6.0;
+
+/// One row of the constant-moment zone, averaged along the beam axis.
+#[derive(Debug, Clone, Copy)]
+struct RowSample {
+    /// Fringe order at the row centre.
+    order: f64,
+    /// Robust mean colour (CIELAB D65).
+    mean: [f64; 3],
+    /// Standard deviation of the kept pixels per channel.
+    spread: [f64; 3],
+    /// Pixels kept.
+    kept: u32,
+}
+
 /// Builds a calibration table from a beam photo.
+///
+/// Rows of the constant-moment zone are averaged along the beam axis with outlier rejection,
+/// the two halves are folded (tension and compression give the same colours), rows within
+/// [`EDGE_SKIP_PX`] of an edge are skipped, outlier rows are dropped, and the colours are
+/// smoothed onto the order grid by a local linear fit.
 pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibration> {
     spec.region.check_inside(photo.width(), photo.height())?;
-    Err(CoreError::invalid("beam", "not built yet"))
+    let (lo, hi) = ORDER_STEP_RANGE;
+    if !(spec.order_step.is_finite() && spec.order_step >= lo && spec.order_step <= hi) {
+        return Err(CoreError::invalid(
+            "order_step",
+            format!("must lie in [{lo}, {hi}] fringes, got {}", spec.order_step),
+        ));
+    }
+    let edge_order = spec.load.edge_order();
+    if !(edge_order.is_finite() && edge_order > 0.0 && edge_order <= MAX_TABLE_ORDER) {
+        return Err(CoreError::invalid(
+            "edge_order",
+            format!("the edge order works out at {edge_order:.3}; it must lie in (0, {MAX_TABLE_ORDER}]"),
+        ));
+    }
+    let mut region = spec.region;
+    let edge_shift = if spec.refine_edges {
+        let top = find_edge(photo, &region, Edge::Top)?;
+        let bottom = find_edge(photo, &region, Edge::Bottom)?;
+        let shift = EdgeShift {
+            top_px: top - region.top,
+            bottom_px: bottom - region.bottom,
+        };
+        region = PixelRect::new(region.left, top, region.right, bottom)?;
+        Some(shift)
+    } else {
+        None
+    };
+    if region.height() < 4.0 * EDGE_SKIP_PX + 4.0 || region.column_range().len() < 3 {
+        return Err(CoreError::invalid(
+            "region",
+            format!(
+                "{:.1}×{:.1} px is too small for a calibration: it needs at least 3 columns and {} rows",
+                region.width(),
+                region.height(),
+                4.0 * EDGE_SKIP_PX + 4.0
+            ),
+        ));
+    }
+
+    let mid = 0.5 * (region.top + region.bottom);
+    let half_depth = 0.5 * region.height();
+    let mut rows = Vec::new();
+    let (mut edge_rows_skipped, mut pixels_seen, mut pixels_kept) = (0u32, 0u64, 0u64);
+    for y in region.row_range() {
+        let centre = f64::from(y) + 0.5;
+        if centre - region.top < EDGE_SKIP_PX || region.bottom - centre < EDGE_SKIP_PX {
+            edge_rows_skipped += 1;
+            continue;
+        }
+        let labs: Vec<[f64; 3]> = region
+            .column_range()
+            .map(|x| {
+                let c = lab_from_linear(photo.linear((y * photo.width() + x) as usize));
+                [f64::from(c.l), f64::from(c.a), f64::from(c.b)]
+            })
+            .collect();
+        pixels_seen += labs.len() as u64;
+        let row = robust_row_mean(&labs, edge_order * (centre - mid).abs() / half_depth);
+        pixels_kept += u64::from(row.kept);
+        rows.push(row);
+    }
+
+    let max_order = rows.iter().map(|r| r.order).fold(0.0, f64::max);
+    let steps = (max_order / spec.order_step + 1e-9).floor() as usize;
+    // Row spacing in orders; the smoothing bandwidth spans about two rows of each half.
+    let row_step = edge_order / half_depth;
+    let bandwidth = row_step.max(2.0 * spec.order_step);
+
+    let mut used = vec![true; rows.len()];
+    let mut outlier_rows = 0u32;
+    for _ in 0..2 {
+        let residuals: Vec<f64> = rows
+            .iter()
+            .map(|r| lab_distance(&r.mean, &local_linear(&rows, &used, r.order, bandwidth).0))
+            .collect();
+        let mut kept: Vec<f64> = residuals
+            .iter()
+            .zip(&used)
+            .filter(|(_, u)| **u)
+            .map(|(r, _)| *r)
+            .collect();
+        let limit = (4.0 * 1.4826 * median(&mut kept)).max(3.0);
+        for (u, r) in used.iter_mut().zip(&residuals) {
+            if *u && *r > limit {
+                *u = false;
+                outlier_rows += 1;
+            }
+        }
+    }
+    if used.iter().filter(|u| **u).count() < 6 {
+        return Err(CoreError::invalid(
+            "region",
+            "fewer than 6 usable rows in the region",
+        ));
+    }
+
+    let entries: Vec<TableEntry> = (0..=steps)
+        .map(|k| {
+            let order = k as f64 * spec.order_step;
+            let (lab, spread, samples) = local_linear(&rows, &used, order, bandwidth);
+            TableEntry {
+                order,
+                lab: [
+                    lab[0].clamp(0.0, 100.0) as f32,
+                    lab[1] as f32,
+                    lab[2] as f32,
+                ],
+                spread: spread.map(|s| s as f32),
+                samples,
+            }
+        })
+        .collect();
+
+    let mut table = CalibrationTable::new(
+        spec.metadata.clone(),
+        spec.order_step,
+        TableSource::BeamPhoto {
+            photo_width: photo.width(),
+            photo_height: photo.height(),
+            region,
+            edge_order,
+            residual_de2000: 0.0,
+        },
+        entries,
+    )?;
+    let mut residuals: Vec<f64> = rows
+        .iter()
+        .zip(&used)
+        .filter(|(_, u)| **u)
+        .map(|(row, _)| {
+            let measured = Lab::new(row.mean[0] as f32, row.mean[1] as f32, row.mean[2] as f32);
+            f64::from(ciede2000(measured, table.colour_at(row.order)))
+        })
+        .collect();
+    let residual_mean = residuals.iter().sum::<f64>() / residuals.len() as f64;
+    let residual_p95 = percentile(&mut residuals, 0.95);
+    if let TableSource::BeamPhoto {
+        residual_de2000, ..
+    } = &mut table.source
+    {
+        *residual_de2000 = residual_mean;
+    }
+    let report = BeamReport {
+        edge_order,
+        max_order: table.max_order(),
+        residual_mean_de2000: residual_mean,
+        residual_p95_de2000: residual_p95,
+        rows_used: used.iter().filter(|u| **u).count() as u32,
+        edge_rows_skipped,
+        outlier_rows,
+        outlier_pixel_share: 1.0 - pixels_kept as f64 / pixels_seen.max(1) as f64,
+        edge_shift,
+        fringe_value_n_per_mm: spec.load.implied_fringe_value(),
+    };
+    Ok(BeamCalibration { table, report })
+}
+
+/// ΔE*ab between two CIELAB triples.
+fn lab_distance(a: &[f64; 3], b: &[f64; 3]) -> f64 {
+    ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2) + (a[2] - b[2]).powi(2)).sqrt()
+}
+
+/// Median of a slice (reorders it); 0 for an empty slice.
+fn median(v: &mut [f64]) -> f64 {
+    percentile(v, 0.5)
+}
+
+/// Nearest-rank percentile `q` in [0, 1] (reorders the slice); 0 for an empty slice.
+fn percentile(v: &mut [f64], q: f64) -> f64 {
+    if v.is_empty() {
+        return 0.0;
+    }
+    let k = ((v.len() - 1) as f64 * q).round() as usize;
+    *v.select_nth_unstable_by(k, f64::total_cmp).1
+}
+
+/// Mean and spread of one row's pixels after dropping those far from the row's median colour.
+fn robust_row_mean(labs: &[[f64; 3]], order: f64) -> RowSample {
+    let mut centre = [0.0; 3];
+    for (c, slot) in centre.iter_mut().enumerate() {
+        let mut channel: Vec<f64> = labs.iter().map(|l| l[c]).collect();
+        *slot = median(&mut channel);
+    }
+    let distances: Vec<f64> = labs.iter().map(|l| lab_distance(l, &centre)).collect();
+    let limit = (3.0 * 1.4826 * median(&mut distances.clone())).max(2.0);
+    let kept: Vec<&[f64; 3]> = labs
+        .iter()
+        .zip(&distances)
+        .filter(|(_, d)| **d <= limit)
+        .map(|(l, _)| l)
+        .collect();
+    let n = kept.len().max(1) as f64;
+    let mut mean = [0.0; 3];
+    for l in &kept {
+        for c in 0..3 {
+            mean[c] += l[c] / n;
+        }
+    }
+    let mut spread = [0.0; 3];
+    for l in &kept {
+        for c in 0..3 {
+            spread[c] += (l[c] - mean[c]).powi(2) / n;
+        }
+    }
+    RowSample {
+        order,
+        mean,
+        spread: spread.map(f64::sqrt),
+        kept: kept.len() as u32,
+    }
+}
+
+/// Gaussian-weighted local linear fit of the row colours at `order` (bandwidth in fringes):
+/// returns the fitted colour, the weighted mean spread and the pixels within two bandwidths.
+fn local_linear(
+    rows: &[RowSample],
+    used: &[bool],
+    order: f64,
+    bandwidth: f64,
+) -> ([f64; 3], [f64; 3], u32) {
+    let (mut sw, mut swx, mut swxx) = (0.0, 0.0, 0.0);
+    let (mut swy, mut swxy, mut sws) = ([0.0; 3], [0.0; 3], [0.0; 3]);
+    let mut samples = 0u32;
+    for (r, _) in rows.iter().zip(used).filter(|(_, u)| **u) {
+        let dx = r.order - order;
+        if dx.abs() > 3.0 * bandwidth {
+            continue;
+        }
+        if dx.abs() <= 2.0 * bandwidth {
+            samples += r.kept;
+        }
+        let w = (-0.5 * (dx / bandwidth).powi(2)).exp() * f64::from(r.kept.max(1));
+        sw += w;
+        swx += w * dx;
+        swxx += w * dx * dx;
+        for c in 0..3 {
+            swy[c] += w * r.mean[c];
+            swxy[c] += w * dx * r.mean[c];
+            sws[c] += w * r.spread[c];
+        }
+    }
+    if sw == 0.0 {
+        // No row within reach: fall back to the nearest used row.
+        let nearest = rows
+            .iter()
+            .zip(used)
+            .filter(|(_, u)| **u)
+            .min_by(|a, b| {
+                (a.0.order - order)
+                    .abs()
+                    .total_cmp(&(b.0.order - order).abs())
+            })
+            .map(|(r, _)| *r)
+            .expect("at least one used row");
+        return (nearest.mean, nearest.spread, 0);
+    }
+    let det = sw * swxx - swx * swx;
+    let mut fit = [0.0; 3];
+    for c in 0..3 {
+        fit[c] = if det.abs() > 1e-12 * sw * sw {
+            (swxx * swy[c] - swx * swxy[c]) / det
+        } else {
+            swy[c] / sw
+        };
+    }
+    (fit, sws.map(|s| s / sw), samples)
+}
+
+/// Which beam edge to look for.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Edge {
+    Top,
+    Bottom,
+}
+
+/// Finds a beam edge to sub-pixel precision: the row position where the column-averaged
+/// luminance crosses halfway between the dark background outside and the beam inside.
+fn find_edge(photo: &Photo, region: &PixelRect, edge: Edge) -> CoreResult<f64> {
+    let (given, name) = match edge {
+        Edge::Top => (region.top, "top"),
+        Edge::Bottom => (region.bottom, "bottom"),
+    };
+    let columns = region.column_range();
+    let luminance = |y: i64| -> Option<(f64, f64)> {
+        if y < 0 || y >= i64::from(photo.height()) {
+            return None;
+        }
+        let sum: f64 = columns
+            .clone()
+            .map(|x| {
+                let c = photo.linear((y as u32 * photo.width() + x) as usize);
+                f64::from(0.2126 * c.red + 0.7152 * c.green + 0.0722 * c.blue)
+            })
+            .sum();
+        Some((y as f64 + 0.5, sum / columns.len().max(1) as f64))
+    };
+    let reach = EDGE_SEARCH_PX as i64 + 3;
+    let base = given.round() as i64;
+    // Row centres and mean linear luminance, from outside (background) to inside (beam).
+    let ordered: Vec<(f64, f64)> = match edge {
+        Edge::Top => (base - reach..base + reach).filter_map(luminance).collect(),
+        Edge::Bottom => (base - reach..base + reach)
+            .rev()
+            .filter_map(luminance)
+            .collect(),
+    };
+    let not_found = || {
+        CoreError::invalid(
+            "region",
+            format!("the {name} edge was not found within ±{EDGE_SEARCH_PX} px of {given}: no dark background next to the beam"),
+        )
+    };
+    if ordered.len() < 8 {
+        return Err(not_found());
+    }
+    let outside = ordered[..3].iter().map(|p| p.1).sum::<f64>() / 3.0;
+    let inside = ordered[ordered.len() - 3..]
+        .iter()
+        .map(|p| p.1)
+        .sum::<f64>()
+        / 3.0;
+    if inside - outside < 0.02 {
+        return Err(not_found());
+    }
+    let half = 0.5 * (outside + inside);
+    let found = ordered.windows(2).find_map(|w| {
+        let ((y0, l0), (y1, l1)) = (w[0], w[1]);
+        (l0 < half && l1 >= half).then(|| y0 + (half - l0) / (l1 - l0) * (y1 - y0))
+    });
+    match found {
+        Some(y) if (y - given).abs() <= EDGE_SEARCH_PX => Ok(y),
+        _ => Err(not_found()),
+    }
 }

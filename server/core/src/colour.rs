@@ -110,7 +110,12 @@ pub struct Photo {
 fn lut8() -> &'static [f32; 256] {
     static LUT: OnceLock<[f32; 256]> = OnceLock::new();
     LUT.get_or_init(|| {
-        std::array::from_fn(|i| Srgb::new(i as u8, 0, 0).into_format::<f32>().into_linear().red)
+        std::array::from_fn(|i| {
+            Srgb::new(i as u8, 0, 0)
+                .into_format::<f32>()
+                .into_linear()
+                .red
+        })
     })
 }
 
@@ -144,10 +149,18 @@ impl Photo {
         );
         let pixels = if sixteen {
             let raw = image.into_rgb16().into_raw();
-            SrgbPixels::Sixteen(raw.chunks_exact(3).map(|c| Srgb::new(c[0], c[1], c[2])).collect())
+            SrgbPixels::Sixteen(
+                raw.chunks_exact(3)
+                    .map(|c| Srgb::new(c[0], c[1], c[2]))
+                    .collect(),
+            )
         } else {
             let raw = image.into_rgb8().into_raw();
-            SrgbPixels::Eight(raw.chunks_exact(3).map(|c| Srgb::new(c[0], c[1], c[2])).collect())
+            SrgbPixels::Eight(
+                raw.chunks_exact(3)
+                    .map(|c| Srgb::new(c[0], c[1], c[2]))
+                    .collect(),
+            )
         };
         Photo {
             width,

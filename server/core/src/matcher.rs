@@ -1,10 +1,683 @@
-//! Temporary nearest-colour matcher (to be replaced).
-use crate::calibration::CalibrationTable;
-use crate::colour::Photo;
-use crate::error::CoreResult;
-use crate::geometry::Mask;
-use crate::order_map::{MapOptions, OrderMap};
+//! The solver behind [`crate::order_map::map_orders`].
+//!
+//! 1. **Candidates.** Each specimen pixel's CIELAB colour is compared with the table on a
+//!    0.02-fringe grid; the local minima of that distance curve are the pixel's candidate
+//!    orders (colours repeat, so there are several), each refined to sub-step precision.
+//!    One extra label, *beyond range*, stands for orders past the end of the table.
+//! 2. **Semi-global aggregation over candidates.** Costs are aggregated along eight scan
+//!    directions, as in semi-global matching, but over each pixel's few candidates rather
+//!    than a dense label range, and with a transition cost built for smooth ramps: a change of
+//!    order up to the maximum gradient per pixel is free, up to twice that costs a little, and
+//!    anything larger is a jump. Evidence from far away (unambiguous low orders, the dark
+//!    zero-order regions inside the specimen, hints) travels along every path, so no single
+//!    seed decides a region.
+//! 3. **Local refinement** of the winning candidate on the table's own grid, then flags:
+//!    poor colour match, too steep a field, isolated jumps, or too small an ambiguity margin
+//!    make a pixel *unreliable*; the winning label *beyond range* flags it as such.
+//! 4. **Exposure compensation** (optional): a per-channel gain and a radial vignetting term on
+//!    linear light are fitted on confident pixels of a first pass, and the pass is repeated.
+//!
+//! Distances inside the search are ΔE\*ab with the lightness difference weighted by
+//! [`LIGHTNESS_WEIGHT`] (exposure drift moves L\* most); reported residuals are plain ΔE\*ab.
 
-pub(crate) fn solve(_photo: &Photo, _table: &CalibrationTable, _mask: Option<&Mask>, _options: &MapOptions) -> CoreResult<OrderMap> {
-    Err(crate::error::CoreError::invalid("matcher", "not built yet"))
+use palette::LinSrgb;
+use rayon::prelude::*;
+
+use crate::calibration::CalibrationTable;
+use crate::colour::{delta_e_ab, linear_from_lab, Lab, LabImage, Photo};
+use crate::error::{CoreError, CoreResult};
+use crate::exposure::{radius_sq, ExposureCorrection};
+use crate::geometry::Mask;
+use crate::order_map::{MapOptions, MapStatistics, OrderMap, PixelFlags};
+
+/// Colour candidates kept per pixel.
+const CANDIDATES: usize = 4;
+/// Labels per pixel: the candidates plus *beyond range*.
+const LABELS: usize = CANDIDATES + 1;
+/// Index of the *beyond range* label.
+const BEYOND: usize = CANDIDATES;
+/// Order spacing of the candidate search, fringes.
+const SEARCH_STEP: f64 = 0.02;
+/// Weight of ΔL\* in the search distance (a\* and b\* have weight 1).
+pub(crate) const LIGHTNESS_WEIGHT: f32 = 0.6;
+/// Data costs are capped here (ΔE units) so that one bad pixel cannot dominate a path.
+const COST_CAP: f32 = 25.0;
+/// Data cost of the *beyond range* label (ΔE units).
+const BEYOND_COST: f32 = 14.0;
+/// Cost of a change of order between one and two maximum gradients.
+const SLOPE_PENALTY: f32 = 3.0;
+/// Cost of a larger change of order (a jump between candidate chains).
+const JUMP_PENALTY: f32 = 24.0;
+/// Extra cost of a label that disagrees with a hint by more than [`HINT_TOLERANCE`] fringes.
+const HINT_PENALTY: f32 = 400.0;
+/// How far a label may lie from a hint's order without penalty, fringes.
+const HINT_TOLERANCE: f64 = 0.2;
+/// The eight scan directions of the aggregation.
+const DIRECTIONS: [(i32, i32); 8] = [
+    (1, 0),
+    (-1, 0),
+    (0, 1),
+    (0, -1),
+    (1, 1),
+    (-1, -1),
+    (1, -1),
+    (-1, 1),
+];
+/// A pixel whose best colour match is worse than this (ΔE\*ab) is unreliable.
+const RESIDUAL_LIMIT: f32 = 12.0;
+/// Aggregated ambiguity margin (ΔE units per direction) below which a pixel is unreliable.
+const MARGIN_LIMIT: f32 = 0.35;
+
+/// The table flattened for fast search: CIELAB components in separate arrays.
+struct SearchTable {
+    step: f64,
+    l: Vec<f32>,
+    a: Vec<f32>,
+    b: Vec<f32>,
+}
+
+impl SearchTable {
+    /// Samples `table` every `step` fringes up to `max_order`.
+    fn new(table: &CalibrationTable, step: f64, max_order: f64) -> Self {
+        let n = (max_order / step + 1e-9).floor() as usize + 1;
+        let mut t = SearchTable {
+            step,
+            l: Vec::with_capacity(n),
+            a: Vec::with_capacity(n),
+            b: Vec::with_capacity(n),
+        };
+        for i in 0..n {
+            let c = table.colour_at(i as f64 * step);
+            t.l.push(c.l);
+            t.a.push(c.a);
+            t.b.push(c.b);
+        }
+        t
+    }
+
+    fn len(&self) -> usize {
+        self.l.len()
+    }
+
+    fn max_order(&self) -> f64 {
+        (self.len() - 1) as f64 * self.step
+    }
+
+    /// Search distance between `c` and entry `i`.
+    #[inline]
+    fn distance(&self, c: Lab, i: usize) -> f32 {
+        let dl = LIGHTNESS_WEIGHT * (c.l - self.l[i]);
+        let (da, db) = (c.a - self.a[i], c.b - self.b[i]);
+        (dl * dl + da * da + db * db).sqrt()
+    }
+
+    /// Best order in entries `lo..=hi` with a parabolic sub-step fit: (order, distance).
+    fn best_in(&self, c: Lab, lo: usize, hi: usize) -> (f64, f32) {
+        let hi = hi.min(self.len() - 1);
+        let (mut best, mut best_d) = (lo, f32::INFINITY);
+        for i in lo..=hi {
+            let d = self.distance(c, i);
+            if d < best_d {
+                best = i;
+                best_d = d;
+            }
+        }
+        self.parabolic(c, best, best_d)
+    }
+
+    /// Refines a discrete minimum at entry `i` with a parabola through its neighbours.
+    fn parabolic(&self, c: Lab, i: usize, d: f32) -> (f64, f32) {
+        if i == 0 || i + 1 >= self.len() {
+            return (i as f64 * self.step, d);
+        }
+        let (dm, dp) = (self.distance(c, i - 1), self.distance(c, i + 1));
+        let denom = dm - 2.0 * d + dp;
+        if denom <= 1e-6 {
+            return (i as f64 * self.step, d);
+        }
+        let shift = (0.5 * (dm - dp) / denom).clamp(-0.5, 0.5);
+        let value = d - 0.25 * (dm - dp) * shift;
+        ((i as f64 + f64::from(shift)) * self.step, value.max(0.0))
+    }
+}
+
+/// Per-pixel labels: candidate orders (the last slot is *beyond range*) and their data costs.
+#[derive(Clone, Copy)]
+struct Labels {
+    order: [f32; LABELS],
+    cost: [f32; LABELS],
+}
+
+const NO_LABELS: Labels = Labels {
+    order: [f32::NAN; LABELS],
+    cost: [f32::INFINITY; LABELS],
+};
+
+/// Candidate orders of one colour: the local minima of its distance curve.
+fn candidates(search: &SearchTable, c: Lab, beyond_order: f32) -> Labels {
+    let n = search.len();
+    let mut d = vec![0f32; n];
+    for (i, slot) in d.iter_mut().enumerate() {
+        *slot = search.distance(c, i);
+    }
+    let mut best: [(f32, usize); CANDIDATES] = [(f32::INFINITY, usize::MAX); CANDIDATES];
+    for i in 0..n {
+        let left = if i == 0 { f32::INFINITY } else { d[i - 1] };
+        let right = if i + 1 == n { f32::INFINITY } else { d[i + 1] };
+        if d[i] <= left && d[i] < right && d[i] < best[CANDIDATES - 1].0 {
+            best[CANDIDATES - 1] = (d[i], i);
+            best.sort_by(|x, y| x.0.total_cmp(&y.0));
+        }
+    }
+    let mut labels = NO_LABELS;
+    for (slot, (dist, i)) in best.iter().enumerate() {
+        if *i != usize::MAX {
+            let (order, value) = search.parabolic(c, *i, *dist);
+            labels.order[slot] = order as f32;
+            labels.cost[slot] = value.min(COST_CAP);
+        }
+    }
+    labels.order[BEYOND] = beyond_order;
+    labels.cost[BEYOND] = BEYOND_COST;
+    labels
+}
+
+/// Transition cost between label orders `a` and `b` of neighbouring pixels.
+#[inline]
+fn transition(a: f32, b: f32, step_gradient: f32, top: f32) -> f32 {
+    if a.is_nan() || b.is_nan() {
+        return f32::INFINITY;
+    }
+    // Orders at the top of the table may continue into *beyond range* (and back) freely.
+    let (a, b) = (a.min(top + step_gradient), b.min(top + step_gradient));
+    let change = (a - b).abs();
+    if change <= step_gradient {
+        0.0
+    } else if change <= 2.0 * step_gradient {
+        SLOPE_PENALTY
+    } else {
+        JUMP_PENALTY
+    }
+}
+
+/// Sums, for every pixel and label, the path costs along the eight scan directions.
+fn aggregate(
+    labels: &[Labels],
+    inside: &[bool],
+    width: usize,
+    height: usize,
+    gradient: f32,
+    top: f32,
+) -> Vec<[f32; LABELS]> {
+    let mut total = vec![[0f32; LABELS]; labels.len()];
+    for (dx, dy) in DIRECTIONS {
+        let diagonal = dx != 0 && dy != 0;
+        let step_gradient = if diagonal {
+            gradient * std::f32::consts::SQRT_2
+        } else {
+            gradient
+        };
+        let starts: Vec<(i32, i32)> = border_starts(width as i32, height as i32, dx, dy);
+        let paths: Vec<Vec<(u32, [f32; LABELS])>> = starts
+            .par_iter()
+            .map(|&(sx, sy)| {
+                let mut out = Vec::new();
+                let (mut x, mut y) = (sx, sy);
+                let mut prev: Option<[f32; LABELS]> = None;
+                let mut prev_labels = NO_LABELS;
+                while x >= 0 && y >= 0 && (x as usize) < width && (y as usize) < height {
+                    let p = y as usize * width + x as usize;
+                    if !inside[p] {
+                        prev = None;
+                    } else {
+                        let here = labels[p];
+                        let mut path = here.cost;
+                        if let Some(lp) = prev {
+                            let floor = lp.iter().copied().fold(f32::INFINITY, f32::min);
+                            for (k, slot) in path.iter_mut().enumerate() {
+                                let mut best = f32::INFINITY;
+                                for (j, lpj) in lp.iter().enumerate() {
+                                    let v = lpj
+                                        + transition(
+                                            here.order[k],
+                                            prev_labels.order[j],
+                                            step_gradient,
+                                            top,
+                                        );
+                                    best = best.min(v);
+                                }
+                                *slot += best.min(floor + JUMP_PENALTY) - floor;
+                            }
+                        }
+                        out.push((p as u32, path));
+                        prev = Some(path);
+                        prev_labels = here;
+                    }
+                    x += dx;
+                    y += dy;
+                }
+                out
+            })
+            .collect();
+        for path in paths {
+            for (p, costs) in path {
+                let slot = &mut total[p as usize];
+                for k in 0..LABELS {
+                    slot[k] += costs[k];
+                }
+            }
+        }
+    }
+    total
+}
+
+/// Pixels whose predecessor along (dx, dy) lies outside the image: where scan paths begin.
+fn border_starts(width: i32, height: i32, dx: i32, dy: i32) -> Vec<(i32, i32)> {
+    let outside = |x: i32, y: i32| x < 0 || y < 0 || x >= width || y >= height;
+    let mut starts = Vec::new();
+    for y in 0..height {
+        for x in [0, width - 1] {
+            if outside(x - dx, y - dy) && !starts.contains(&(x, y)) {
+                starts.push((x, y));
+            }
+        }
+    }
+    for x in 1..width - 1 {
+        for y in [0, height - 1] {
+            if outside(x - dx, y - dy) && !starts.contains(&(x, y)) {
+                starts.push((x, y));
+            }
+        }
+    }
+    starts
+}
+
+/// One solver pass on a CIELAB image.
+struct Pass {
+    order: Vec<f32>,
+    residual: Vec<f32>,
+    margin: Vec<f32>,
+    flags: Vec<PixelFlags>,
+}
+
+fn solve_pass(
+    lab: &LabImage,
+    inside: &[bool],
+    table: &CalibrationTable,
+    max_order: f64,
+    options: &MapOptions,
+) -> Pass {
+    let (width, height) = (lab.width as usize, lab.height as usize);
+    let search = SearchTable::new(table, SEARCH_STEP, max_order);
+    let fine = SearchTable::new(table, table.order_step, max_order);
+    let top = search.max_order() as f32;
+    let gradient = options.max_gradient as f32;
+    let beyond_order = top + 2.0 * gradient;
+
+    let mut labels: Vec<Labels> = lab
+        .data
+        .par_iter()
+        .zip(inside.par_iter())
+        .map(|(c, &ins)| {
+            if ins {
+                candidates(&search, *c, beyond_order)
+            } else {
+                NO_LABELS
+            }
+        })
+        .collect();
+    for hint in &options.hints {
+        if let Some((x, y)) = hint.at.pixel(lab.width, lab.height) {
+            let p = y as usize * width + x as usize;
+            if !inside[p] {
+                continue;
+            }
+            let l = &mut labels[p];
+            // Make sure the hinted order is a candidate, then penalise every label far from it.
+            let (hint_order, hint_cost) = {
+                let centre = (hint.order / search.step).round() as usize;
+                let reach = (HINT_TOLERANCE / search.step).ceil() as usize;
+                search.best_in(lab.data[p], centre.saturating_sub(reach), centre + reach)
+            };
+            if hint.order <= search.max_order() {
+                l.order[CANDIDATES - 1] = hint_order as f32;
+                l.cost[CANDIDATES - 1] = hint_cost.min(COST_CAP);
+            }
+            for k in 0..LABELS {
+                if (f64::from(l.order[k].min(beyond_order)) - hint.order).abs() > HINT_TOLERANCE {
+                    l.cost[k] += HINT_PENALTY;
+                }
+            }
+        }
+    }
+
+    let total = aggregate(&labels, inside, width, height, gradient, top);
+
+    let n = lab.data.len();
+    let mut pass = Pass {
+        order: vec![f32::NAN; n],
+        residual: vec![f32::NAN; n],
+        margin: vec![f32::NAN; n],
+        flags: vec![PixelFlags::default(); n],
+    };
+    let fine_reach = (2.0 * SEARCH_STEP / fine.step).ceil() as usize;
+    let directions = DIRECTIONS.len() as f32;
+    pass.order
+        .par_iter_mut()
+        .zip(pass.residual.par_iter_mut())
+        .zip(pass.margin.par_iter_mut())
+        .zip(pass.flags.par_iter_mut())
+        .enumerate()
+        .for_each(|(p, (((order, residual), margin), flags))| {
+            if !inside[p] {
+                flags.0 |= PixelFlags::OUTSIDE_MASK;
+                return;
+            }
+            let s = &total[p];
+            let l = &labels[p];
+            let best = (0..LABELS)
+                .filter(|k| s[*k].is_finite())
+                .min_by(|a, b| s[*a].total_cmp(&s[*b]))
+                .unwrap_or(BEYOND);
+            let chosen = l.order[best];
+            let rival = (0..LABELS)
+                .filter(|k| {
+                    s[*k].is_finite()
+                        && (l.order[*k].min(beyond_order) - chosen.min(beyond_order)).abs() > 0.5
+                })
+                .map(|k| s[k])
+                .fold(f32::INFINITY, f32::min);
+            *margin = ((rival - s[best]) / directions).min(COST_CAP);
+            if best == BEYOND {
+                flags.0 |= PixelFlags::BEYOND_RANGE;
+                return;
+            }
+            let centre = (f64::from(chosen) / fine.step).round() as usize;
+            let (refined, _) = fine.best_in(
+                lab.data[p],
+                centre.saturating_sub(fine_reach),
+                centre + fine_reach,
+            );
+            *order = refined as f32;
+            *residual = delta_e_ab(lab.data[p], table.colour_at(refined));
+            if *residual > RESIDUAL_LIMIT || *margin < MARGIN_LIMIT {
+                flags.0 |= PixelFlags::UNRELIABLE;
+            }
+        });
+    flag_steep_and_isolated(&mut pass, width, height, gradient);
+    smooth(&mut pass, width, height, gradient);
+    for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
+        if f.0 != 0 {
+            *o = f32::NAN;
+        }
+    }
+    pass
+}
+
+/// Flags pixels where the field is steeper than the maximum gradient, and pixels that jump
+/// away from most of their neighbours.
+fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
+    let order = &pass.order;
+    let valued = |p: usize, f: &[PixelFlags]| f[p].0 == 0 && order[p].is_finite();
+    let flags_before = pass.flags.clone();
+    pass.flags
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(y, row)| {
+            for x in 0..width {
+                let p = y * width + x;
+                if !valued(p, &flags_before) {
+                    continue;
+                }
+                let mut neighbours = 0;
+                let mut jumps = 0;
+                let mut steepest = 0f32;
+                for (nx, ny) in [
+                    (x.wrapping_sub(1), y),
+                    (x + 1, y),
+                    (x, y.wrapping_sub(1)),
+                    (x, y + 1),
+                ] {
+                    if nx >= width || ny >= height {
+                        continue;
+                    }
+                    let q = ny * width + nx;
+                    if !valued(q, &flags_before) {
+                        continue;
+                    }
+                    neighbours += 1;
+                    let change = (order[q] - order[p]).abs();
+                    steepest = steepest.max(change);
+                    if change > 2.5 * gradient {
+                        jumps += 1;
+                    }
+                }
+                if (neighbours > 0 && jumps * 2 > neighbours)
+                    || (steepest > 1.5 * gradient && jumps == 0)
+                {
+                    row[x].0 |= PixelFlags::UNRELIABLE;
+                }
+            }
+        });
+}
+
+/// Averages each valued pixel with its 3×3 neighbourhood where all nine are valued and lie
+/// within a few gradients of each other (a symmetric mean keeps linear ramps exact).
+fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
+    let order = pass.order.clone();
+    let flags = &pass.flags;
+    pass.order
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(y, row)| {
+            if y == 0 || y + 1 >= height {
+                return;
+            }
+            for x in 1..width.saturating_sub(1) {
+                let p = y * width + x;
+                if flags[p].0 != 0 {
+                    continue;
+                }
+                let mut sum = 0.0;
+                let mut ok = true;
+                for ny in y - 1..=y + 1 {
+                    for nx in x - 1..=x + 1 {
+                        let q = ny * width + nx;
+                        if flags[q].0 != 0
+                            || !order[q].is_finite()
+                            || (order[q] - order[p]).abs() > 3.0 * gradient
+                        {
+                            ok = false;
+                        }
+                        sum += order[q];
+                    }
+                }
+                if ok {
+                    row[x] = sum / 9.0;
+                }
+            }
+        });
+}
+
+/// Fits the exposure correction on confident pixels of a first pass.
+fn fit_exposure(
+    photo: &Photo,
+    table: &CalibrationTable,
+    pass: &Pass,
+) -> Option<ExposureCorrection> {
+    let (w, h) = (photo.width(), photo.height());
+    let confident: Vec<usize> = (0..pass.order.len())
+        .filter(|&p| {
+            pass.flags[p].0 == 0 && pass.margin[p] > 2.0 * MARGIN_LIMIT && pass.order[p] > 0.15
+        })
+        .collect();
+    if confident.len() < 200 {
+        return None;
+    }
+    let stride = (confident.len() / 40_000).max(1);
+    let samples: Vec<(LinSrgb<f32>, LinSrgb<f32>, f32)> = confident
+        .iter()
+        .step_by(stride)
+        .map(|&p| {
+            let observed = photo.linear(p);
+            let expected = linear_from_lab(table.colour_at(f64::from(pass.order[p])));
+            (
+                observed,
+                expected,
+                radius_sq(p % w as usize, p / w as usize, w, h),
+            )
+        })
+        .filter(|(o, e, _)| {
+            let (so, se) = (o.red + o.green + o.blue, e.red + e.green + e.blue);
+            so > 0.03 && se > 0.03
+        })
+        .collect();
+    if samples.len() < 100 {
+        return None;
+    }
+    // Radial term: least squares of the brightness ratio against ρ², t = a + b·ρ².
+    let ratios: Vec<(f32, f32)> = samples
+        .iter()
+        .map(|(o, e, r2)| ((e.red + e.green + e.blue) / (o.red + o.green + o.blue), *r2))
+        .collect();
+    let mut ratio_values: Vec<f32> = ratios.iter().map(|r| r.0).collect();
+    let centre = median_f32(&mut ratio_values);
+    let inliers: Vec<&(f32, f32)> = ratios
+        .iter()
+        .filter(|r| (r.0 / centre - 1.0).abs() < 0.25)
+        .collect();
+    let n = inliers.len() as f32;
+    let (sx, sy) = inliers
+        .iter()
+        .fold((0.0, 0.0), |acc, r| (acc.0 + r.1, acc.1 + r.0));
+    let (mx, my) = (sx / n, sy / n);
+    let (sxx, sxy) = inliers.iter().fold((0.0, 0.0), |acc, r| {
+        (acc.0 + (r.1 - mx).powi(2), acc.1 + (r.1 - mx) * (r.0 - my))
+    });
+    let slope = if sxx > 1e-4 * n { sxy / sxx } else { 0.0 };
+    let intercept = my - slope * mx;
+    let vignetting = if intercept > 0.0 {
+        (slope / intercept).clamp(-0.5, 1.0)
+    } else {
+        0.0
+    };
+    // Channel gains: median ratio per channel after removing the radial term.
+    let mut gain = [1f32; 3];
+    for (c, g) in gain.iter_mut().enumerate() {
+        let mut values: Vec<f32> = samples
+            .iter()
+            .filter_map(|(o, e, r2)| {
+                let (ov, ev) = ([o.red, o.green, o.blue][c], [e.red, e.green, e.blue][c]);
+                (ov > 0.01 && ev > 0.01).then(|| ev / ov / (1.0 + vignetting * r2))
+            })
+            .collect();
+        if values.len() < 50 {
+            return None;
+        }
+        *g = median_f32(&mut values).clamp(0.5, 2.0);
+    }
+    Some(ExposureCorrection { gain, vignetting })
+}
+
+fn median_f32(v: &mut [f32]) -> f32 {
+    let k = v.len() / 2;
+    *v.select_nth_unstable_by(k, f32::total_cmp).1
+}
+
+/// Summary figures of a finished pass.
+fn statistics(pass: &Pass) -> MapStatistics {
+    let specimen = pass
+        .flags
+        .iter()
+        .filter(|f| !f.has(PixelFlags::OUTSIDE_MASK))
+        .count() as u64;
+    let beyond = pass
+        .flags
+        .iter()
+        .filter(|f| f.has(PixelFlags::BEYOND_RANGE))
+        .count() as f64;
+    let unreliable = pass
+        .flags
+        .iter()
+        .filter(|f| f.has(PixelFlags::UNRELIABLE))
+        .count() as f64;
+    let (mut count, mut sum, mut min, mut max, mut res) =
+        (0u64, 0f64, f64::INFINITY, f64::NEG_INFINITY, 0f64);
+    for (o, r) in pass.order.iter().zip(&pass.residual) {
+        if o.is_finite() {
+            let v = f64::from(*o);
+            count += 1;
+            sum += v;
+            min = min.min(v);
+            max = max.max(v);
+            res += f64::from(*r);
+        }
+    }
+    let share = |v: f64| {
+        if specimen == 0 {
+            0.0
+        } else {
+            v / specimen as f64
+        }
+    };
+    MapStatistics {
+        specimen_pixels: specimen,
+        valued_pixels: count,
+        beyond_range_share: share(beyond),
+        unreliable_share: share(unreliable),
+        min_order: if count > 0 { min } else { f64::NAN },
+        max_order: if count > 0 { max } else { f64::NAN },
+        mean_order: if count > 0 {
+            sum / count as f64
+        } else {
+            f64::NAN
+        },
+        mean_residual: if count > 0 {
+            res / count as f64
+        } else {
+            f64::NAN
+        },
+    }
+}
+
+/// Runs the whole solver; see the module documentation.
+pub(crate) fn solve(
+    photo: &Photo,
+    table: &CalibrationTable,
+    mask: Option<&Mask>,
+    options: &MapOptions,
+) -> CoreResult<OrderMap> {
+    let max_order = options
+        .max_order
+        .map_or(table.max_order(), |m| m.min(table.max_order()));
+    if max_order < 4.0 * SEARCH_STEP {
+        return Err(CoreError::invalid(
+            "max_order",
+            format!("{max_order} leaves too little of the table to match against"),
+        ));
+    }
+    let (width, height) = (photo.width(), photo.height());
+    let inside: Vec<bool> = match mask {
+        Some(m) => m.as_slice().to_vec(),
+        None => vec![true; width as usize * height as usize],
+    };
+    let mut exposure = ExposureCorrection::NONE;
+    let mut pass = solve_pass(&photo.to_lab(&exposure), &inside, table, max_order, options);
+    if options.exposure_compensation {
+        if let Some(fit) = fit_exposure(photo, table, &pass) {
+            exposure = fit;
+            pass = solve_pass(&photo.to_lab(&exposure), &inside, table, max_order, options);
+        }
+    }
+    let statistics = statistics(&pass);
+    Ok(OrderMap {
+        width,
+        height,
+        order: pass.order,
+        residual: pass.residual,
+        margin: pass.margin,
+        flags: pass.flags,
+        exposure,
+        statistics,
+    })
 }
