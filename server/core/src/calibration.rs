@@ -172,7 +172,10 @@ impl CalibrationTable {
     pub fn validate(&self) -> CoreResult<()> {
         let fail = |m: String| Err(CoreError::Table(m));
         if self.format != FORMAT_TAG {
-            return fail(format!("format must be {FORMAT_TAG:?}, got {:?}", self.format));
+            return fail(format!(
+                "format must be {FORMAT_TAG:?}, got {:?}",
+                self.format
+            ));
         }
         if self.format_version != FORMAT_VERSION {
             return fail(format!(
@@ -212,7 +215,10 @@ impl CalibrationTable {
             ));
         }
         if self.entries.len() < 3 {
-            return fail(format!("needs at least 3 entries, has {}", self.entries.len()));
+            return fail(format!(
+                "needs at least 3 entries, has {}",
+                self.entries.len()
+            ));
         }
         for (i, e) in self.entries.iter().enumerate() {
             let expected = i as f64 * self.order_step;
@@ -225,7 +231,10 @@ impl CalibrationTable {
                 ));
             }
             if e.lab.iter().chain(&e.spread).any(|v| !v.is_finite()) {
-                return fail(format!("entry {i} (order {:.3}) has a non-finite value", e.order));
+                return fail(format!(
+                    "entry {i} (order {:.3}) has a non-finite value",
+                    e.order
+                ));
             }
             if !(0.0..=100.0).contains(&e.lab[0]) {
                 return fail(format!("entry {i} has L* = {} outside 0–100", e.lab[0]));
@@ -250,7 +259,9 @@ impl CalibrationTable {
             ..
         } = &self.source
         {
-            region.validate().map_err(|e| CoreError::Table(format!("source.{e}")))?;
+            region
+                .validate()
+                .map_err(|e| CoreError::Table(format!("source.{e}")))?;
             if !(edge_order.is_finite() && *edge_order > 0.0) || !residual_de2000.is_finite() {
                 return fail("source.edge_order and source.residual_de2000 must be finite, edge_order positive".into());
             }
@@ -307,7 +318,11 @@ mod tests {
     fn an_unknown_version_is_refused() {
         let mut t = sample();
         t.format_version = 99;
-        assert!(t.validate().unwrap_err().to_string().contains("format_version 99"));
+        assert!(t
+            .validate()
+            .unwrap_err()
+            .to_string()
+            .contains("format_version 99"));
     }
 
     #[test]

@@ -103,7 +103,8 @@ pub fn encode(map: &OrderMap, format: OutputFormat) -> CoreResult<Vec<u8>> {
 /// NPY version 1.0 header for a 2-D C-order array of `descr` (e.g. `<f4`), padded so that
 /// magic, version, length and dictionary together fill a multiple of 64 bytes.
 fn npy_header(descr: &str, rows: usize, cols: usize, payload: usize) -> Vec<u8> {
-    let dict = format!("{{'descr': '{descr}', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
+    let dict =
+        format!("{{'descr': '{descr}', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
     let unpadded = 10 + dict.len() + 1;
     let padding = (64 - unpadded % 64) % 64;
     let header_len = dict.len() + padding + 1;
@@ -175,7 +176,9 @@ fn png16(map: &OrderMap) -> CoreResult<Vec<u8>> {
     let mut raw = Vec::with_capacity(map.order.len() * 2);
     for v in &map.order {
         let grey = if v.is_finite() {
-            (v * PNG16_SCALE).round().clamp(0.0, f32::from(PNG16_NO_VALUE - 1)) as u16
+            (v * PNG16_SCALE)
+                .round()
+                .clamp(0.0, f32::from(PNG16_NO_VALUE - 1)) as u16
         } else {
             PNG16_NO_VALUE
         };
@@ -205,7 +208,9 @@ pub fn preview_flag_colour(flags: PixelFlags) -> Option<[u8; 3]> {
 
 /// The colour scale of the preview (perceptually uniform, from the `colorous` crate).
 fn scale_colour(t: f64) -> [u8; 3] {
-    colorous::CIVIDIS.eval_continuous(t.clamp(0.0, 1.0)).as_array()
+    colorous::CIVIDIS
+        .eval_continuous(t.clamp(0.0, 1.0))
+        .as_array()
 }
 
 fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
@@ -213,7 +218,11 @@ fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
     let bar_w = (w / 12).clamp(24, 120);
     let gap = bar_w / 3;
     let top = map.statistics.max_order.max(0.0);
-    let top = if top.is_finite() && top > 0.0 { top.ceil() } else { 1.0 };
+    let top = if top.is_finite() && top > 0.0 {
+        top.ceil()
+    } else {
+        1.0
+    };
     let mut img = RgbImage::from_pixel(w + gap + bar_w, h, Rgb([255, 255, 255]));
     for y in 0..h {
         for x in 0..w {
@@ -233,13 +242,22 @@ fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
         let order_here = t * top;
         let tick = ((order_here - order_here.round()).abs() * f64::from(h) / top) < 0.5;
         for x in w + gap..w + gap + bar_w {
-            let c = if tick && x < w + gap + bar_w / 2 { [0, 0, 0] } else { bar };
+            let c = if tick && x < w + gap + bar_w / 2 {
+                [0, 0, 0]
+            } else {
+                bar
+            };
             img.put_pixel(x, y, Rgb(c));
         }
     }
     let mut out = Vec::new();
     image::codecs::png::PngEncoder::new(&mut out)
-        .write_image(img.as_raw(), img.width(), img.height(), image::ExtendedColorType::Rgb8)
+        .write_image(
+            img.as_raw(),
+            img.width(),
+            img.height(),
+            image::ExtendedColorType::Rgb8,
+        )
         .map_err(|e| CoreError::Encode(e.to_string()))?;
     Ok(out)
 }
@@ -278,9 +296,18 @@ mod tests {
 
     #[test]
     fn formats_are_chosen_by_extension() {
-        assert_eq!(OutputFormat::from_path("a/b.NPY").unwrap(), OutputFormat::Npy);
-        assert_eq!(OutputFormat::from_path("m.preview.png").unwrap(), OutputFormat::Preview);
-        assert_eq!(OutputFormat::from_path("m.png").unwrap(), OutputFormat::Png16);
+        assert_eq!(
+            OutputFormat::from_path("a/b.NPY").unwrap(),
+            OutputFormat::Npy
+        );
+        assert_eq!(
+            OutputFormat::from_path("m.preview.png").unwrap(),
+            OutputFormat::Preview
+        );
+        assert_eq!(
+            OutputFormat::from_path("m.png").unwrap(),
+            OutputFormat::Png16
+        );
         assert!(OutputFormat::from_path("m.jpg").is_err());
     }
 }

@@ -27,7 +27,14 @@ impl ExposureCorrection {
 
     /// Applies the correction to the linear colour of pixel (x, y) in a `width` × `height` image.
     #[inline]
-    pub fn apply(&self, c: LinSrgb<f32>, x: usize, y: usize, width: u32, height: u32) -> LinSrgb<f32> {
+    pub fn apply(
+        &self,
+        c: LinSrgb<f32>,
+        x: usize,
+        y: usize,
+        width: u32,
+        height: u32,
+    ) -> LinSrgb<f32> {
         let radial = if self.vignetting == 0.0 {
             1.0
         } else {

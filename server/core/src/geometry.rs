@@ -45,9 +45,9 @@ impl PixelRect {
         }
         let mut v = [0.0; 4];
         for (slot, part) in v.iter_mut().zip(&parts) {
-            *slot = part.parse::<f64>().map_err(|_| {
-                CoreError::invalid("region", format!("{part:?} is not a number"))
-            })?;
+            *slot = part
+                .parse::<f64>()
+                .map_err(|_| CoreError::invalid("region", format!("{part:?} is not a number")))?;
         }
         PixelRect::new(v[0], v[1], v[2], v[3])
     }

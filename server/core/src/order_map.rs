@@ -67,23 +67,35 @@ impl MapOptions {
     pub fn validate(&self, width: u32, height: u32) -> CoreResult<()> {
         if let Some(m) = self.max_order {
             if !(m.is_finite() && m > 0.0) {
-                return Err(CoreError::invalid("max_order", format!("must be a positive number, got {m}")));
+                return Err(CoreError::invalid(
+                    "max_order",
+                    format!("must be a positive number, got {m}"),
+                ));
             }
         }
         if !(self.max_gradient.is_finite() && self.max_gradient > 0.0 && self.max_gradient <= 1.0) {
             return Err(CoreError::invalid(
                 "max_gradient",
-                format!("must lie in (0, 1] fringe per pixel, got {}", self.max_gradient),
+                format!(
+                    "must lie in (0, 1] fringe per pixel, got {}",
+                    self.max_gradient
+                ),
             ));
         }
         for (i, h) in self.hints.iter().enumerate() {
             if !(h.order.is_finite() && h.order >= 0.0) {
-                return Err(CoreError::invalid("hints", format!("hint {i} has order {}", h.order)));
+                return Err(CoreError::invalid(
+                    "hints",
+                    format!("hint {i} has order {}", h.order),
+                ));
             }
             if h.at.pixel(width, height).is_none() {
                 return Err(CoreError::invalid(
                     "hints",
-                    format!("hint {i} at ({}, {}) lies outside the {width}×{height} photo", h.at.x, h.at.y),
+                    format!(
+                        "hint {i} at ({}, {}) lies outside the {width}×{height} photo",
+                        h.at.x, h.at.y
+                    ),
                 ));
             }
         }
