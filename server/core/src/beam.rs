@@ -522,19 +522,37 @@ fn find_edge(photo: &Photo, region: &PixelRect, edge: Edge) -> CoreResult<f64> {
         return Err(not_found());
     }
     let outside = ordered[..3].iter().map(|p| p.1).sum::<f64>() / 3.0;
-    let inside = ordered[ordered.len() - 3..]
-        .iter()
-        .map(|p| p.1)
-        .sum::<f64>()
-        / 3.0;
+    // First estimate against the brightest row of the inner half, then again against the
+    // rows just inside that estimate (the beam's own brightness next to its edge).
+    let inner = &ordered[ordered.len() / 2..];
+    let mut inside = inner.iter().map(|p| p.1).fold(f64::NEG_INFINITY, f64::max);
+    let crossing = |inside: f64| {
+        let half = 0.5 * (outside + inside);
+        ordered.windows(2).find_map(|w| {
+            let ((y0, l0), (y1, l1)) = (w[0], w[1]);
+            (l0 < half && l1 >= half).then(|| y0 + (half - l0) / (l1 - l0) * (y1 - y0))
+        })
+    };
     if inside - outside < 0.02 {
         return Err(not_found());
     }
-    let half = 0.5 * (outside + inside);
-    let found = ordered.windows(2).find_map(|w| {
-        let ((y0, l0), (y1, l1)) = (w[0], w[1]);
-        (l0 < half && l1 >= half).then(|| y0 + (half - l0) / (l1 - l0) * (y1 - y0))
-    });
+    let mut found = crossing(inside);
+    if let Some(first) = found {
+        let near: Vec<f64> = ordered
+            .iter()
+            .filter(|(y, _)| {
+                let depth = (y - first).abs();
+                depth > 1.0
+                    && depth < 4.0
+                    && (y - first).signum() == (ordered[ordered.len() - 1].0 - first).signum()
+            })
+            .map(|p| p.1)
+            .collect();
+        if !near.is_empty() {
+            inside = near.iter().sum::<f64>() / near.len() as f64;
+            found = crossing(inside).or(found);
+        }
+    }
     match found {
         Some(y) if (y - given).abs() <= EDGE_SEARCH_PX => Ok(y),
         _ => Err(not_found()),
