@@ -1,0 +1,403 @@
+// The Calibrations page: the lab's list with search, a detail view with the table's colour strip,
+// and a form that makes a new calibration from a beam photo.
+
+import { api } from './api.js';
+import { $, showError, fillDl, numberIn, requiredNumber, progress, when } from './dom.js';
+import { TableStrip, fmt } from './plot.js';
+import { labToRgb, css } from './colour.js';
+import { ImageView, TwoPointGesture, decodeImage, strokeBoth } from './view.js';
+
+// Tells the rest of the page that the list of calibrations has changed.
+export const CHANGED = 'isotint:calibrations-changed';
+
+const describeSource = (source) =>
+  ({ beam_photo: 'beam photo', rendered: 'rendered from light source and camera data' })[source?.kind] || source?.kind;
+
+function summaryPairs(c) {
+  return [
+    ['Material', c.material],
+    ['Thickness', c.thickness_mm != null ? `${fmt(c.thickness_mm, 2)} mm` : ''],
+    ['Light source', c.light_source],
+    ['Camera', c.camera],
+    ['Made', when(c.created_at)],
+    ['Source', describeSource(c.table?.source)],
+    ['Calibrated up to', `fringe order ${fmt(c.max_order)}`],
+    ['Order step', fmt(c.order_step, 3)],
+    ['Fit residual', c.residual_de2000 != null ? `${fmt(c.residual_de2000)} ΔE00 (mean)` : ''],
+    ['Replaces', c.supersedes],
+    ['Notes', c.notes],
+  ];
+}
+
+export class CalibrationsPage {
+  constructor() {
+    this.list = $('cal-list');
+    this.listStatus = $('cal-list-status');
+    this.search = $('cal-search');
+    this.strip = new TableStrip($('cal-strip'), $('cal-strip-readout'));
+    this.current = null;
+    this.searchTimer = 0;
+    this.listRequest = 0;
+    this.search.addEventListener('input', () => {
+      clearTimeout(this.searchTimer);
+      this.searchTimer = setTimeout(() => this.refresh(), 250);
+    });
+    $('cal-archive').addEventListener('click', () => this.archive());
+    document.addEventListener(CHANGED, () => this.refresh());
+    this.form = new NewCalibrationForm();
+  }
+
+  // Shows the page for a route: '' (list only), 'new' or a calibration id.
+  async show(target) {
+    $('cal-empty').hidden = target !== '';
+    $('cal-detail').hidden = true;
+    $('cal-form').hidden = target !== 'new';
+    if (target === 'new') this.form.open();
+    this.selected = target;
+    this.markSelected();
+    if (!this.loaded) {
+      this.loaded = true;
+      await this.refresh();
+    }
+    if (target !== '' && target !== 'new') await this.detail(target);
+  }
+
+  async refresh() {
+    const request = ++this.listRequest;
+    const q = this.search.value.trim();
+    this.listStatus.textContent = 'Loading…';
+    try {
+      const { calibrations } = await api.calibrations(q);
+      if (request !== this.listRequest) return;
+      this.render(calibrations);
+      const n = calibrations.length;
+      this.listStatus.textContent =
+        n === 0 ? (q ? `No calibration matches “${q}”.` : 'No calibrations yet.') : `${n} calibration${n === 1 ? '' : 's'}`;
+    } catch (error) {
+      if (request === this.listRequest) this.listStatus.textContent = error.message;
+    }
+  }
+
+  render(calibrations) {
+    this.list.replaceChildren(
+      ...calibrations.map((c) => {
+        const li = document.createElement('li');
+        const a = document.createElement('a');
+        a.href = `#/calibrations/${encodeURIComponent(c.id)}`;
+        a.dataset.id = c.id;
+        const name = document.createElement('span');
+        name.className = 'cal-name';
+        name.textContent = c.name;
+        const sub = document.createElement('span');
+        sub.className = 'cal-sub';
+        sub.textContent = [c.material, c.light_source, `to N = ${fmt(c.max_order, 1)}`].filter(Boolean).join(' · ');
+        a.append(name, sub);
+        if (c.archived) {
+          const badge = document.createElement('span');
+          badge.className = 'badge';
+          badge.textContent = 'archived';
+          a.append(badge);
+        }
+        li.append(a);
+        return li;
+      }),
+    );
+    this.markSelected();
+  }
+
+  markSelected() {
+    for (const a of this.list.querySelectorAll('a')) {
+      if (a.dataset.id === this.selected) a.setAttribute('aria-current', 'true');
+      else a.removeAttribute('aria-current');
+    }
+  }
+
+  async detail(id) {
+    const error = $('cal-detail-error');
+    showError(error, null);
+    try {
+      const c = await api.calibration(id);
+      if (this.selected !== id) return;
+      this.current = c;
+      $('cal-detail').hidden = false;
+      $('cal-detail-name').textContent = c.name;
+      $('cal-detail-archived').hidden = !c.archived;
+      $('cal-archive').hidden = Boolean(c.archived);
+      fillDl($('cal-detail-meta'), summaryPairs(c));
+      this.strip.show(c.table);
+      fillValues($('cal-values').tBodies[0], c.table.entries);
+      const exportLink = $('cal-export');
+      exportLink.href = api.exportUrl(c.id);
+      exportLink.download = `${c.name.replace(/[^\w.-]+/g, '_') || 'calibration'}.json`;
+      $('cal-use').href = `#/analyse?calibration=${encodeURIComponent(c.id)}`;
+    } catch (e) {
+      $('cal-empty').hidden = true;
+      $('cal-detail').hidden = false;
+      $('cal-detail-name').textContent = 'Calibration not available';
+      fillDl($('cal-detail-meta'), []);
+      showError(error, e);
+    }
+  }
+
+  async archive() {
+    const c = this.current;
+    if (!c) return;
+    if (!window.confirm(`Archive “${c.name}”? It stays readable but is no longer offered for new analyses.`)) return;
+    try {
+      await api.archive(c.id);
+      document.dispatchEvent(new CustomEvent(CHANGED));
+      await this.detail(c.id);
+    } catch (e) {
+      showError($('cal-detail-error'), e);
+    }
+  }
+}
+
+// Rows of the "Table values" table: about 50 evenly spaced entries.
+function fillValues(tbody, entries) {
+  const every = Math.max(1, Math.round(entries.length / 50));
+  tbody.replaceChildren(
+    ...entries
+      .filter((_, i) => i % every === 0 || i === entries.length - 1)
+      .map((e) => {
+        const tr = document.createElement('tr');
+        const swatch = document.createElement('span');
+        swatch.className = 'swatch';
+        swatch.style.background = css(labToRgb(e.lab));
+        const cells = [fmt(e.order, 2), swatch, fmt(e.lab[0], 1), fmt(e.lab[1], 1), fmt(e.lab[2], 1),
+          fmt(Math.hypot(...e.spread), 1), String(e.samples)];
+        for (const value of cells) {
+          const td = document.createElement('td');
+          td.append(value);
+          tr.append(td);
+        }
+        return tr;
+      }),
+  );
+}
+
+// The "new calibration" form: photo, constant-moment zone, edge order or load, description, a
+// dry run that shows the fit, then saving.
+class NewCalibrationForm {
+  constructor() {
+    this.el = $('cal-form');
+    this.view = new ImageView($('cf-view'), { maxHeight: () => Math.max(240, window.innerHeight * 0.5) });
+    this.readout = $('cf-view-readout');
+    this.fields = ['left', 'top', 'right', 'bottom'].map((k) => [k, $(`cf-${k}`)]); // [key, input]
+    this.strip = new TableStrip($('cf-strip'), $('cf-strip-readout'));
+    this.progress = progress($('cf-progress'), $('cf-progress-text'), 'Measuring the beam…');
+    this.photo = null;
+    this.region = null;
+    this.checked = false; // whether the fit shown matches the inputs as they are
+    this.edits = 0; // counts changes to the inputs
+
+    const gesture = new TwoPointGesture((a, b) => this.setRegion(a, b));
+    this.view.setTool({
+      press: (p) => gesture.press(p),
+      drag: (p) => {
+        gesture.drag(p);
+        this.point(p);
+      },
+      release: (p) => gesture.release(p),
+      hover: (p) => {
+        gesture.hover(p);
+        this.point(p);
+      },
+      cancel: () => gesture.cancel(),
+    });
+    this.view.overlay = (ctx, toScreen) => {
+      if (!this.region) return;
+      const { left, top, right, bottom } = this.region;
+      const a = toScreen({ x: left, y: top });
+      const b = toScreen({ x: right, y: bottom });
+      ctx.beginPath();
+      ctx.rect(a.x, a.y, b.x - a.x, b.y - a.y);
+      strokeBoth(ctx);
+      // Mid-line of the beam, where the order is zero.
+      ctx.beginPath();
+      ctx.setLineDash([6, 4]);
+      ctx.moveTo(a.x, (a.y + b.y) / 2);
+      ctx.lineTo(b.x, (a.y + b.y) / 2);
+      strokeBoth(ctx, 1);
+      ctx.setLineDash([]);
+    };
+
+    $('cf-photo').addEventListener('change', () => this.loadPhoto());
+    for (const [, input] of this.fields) input.addEventListener('input', () => this.regionFromFields());
+    for (const radio of this.el.querySelectorAll('input[name="cf-load"]')) {
+      radio.addEventListener('change', () => this.showLoadFields());
+    }
+    this.el.addEventListener('input', () => this.invalidate());
+    this.el.addEventListener('change', () => this.invalidate());
+    this.el.addEventListener('submit', (e) => {
+      e.preventDefault();
+      this.run(true);
+    });
+    $('cf-save').addEventListener('click', () => this.run(false));
+  }
+
+  open() {
+    this.view.fit();
+    this.strip.draw();
+  }
+
+  point(p) {
+    const r = this.region;
+    this.readout.textContent =
+      `Cursor at x ${fmt(p.x, 1)}, y ${fmt(p.y, 1)} px` +
+      (r ? `. Zone ${fmt(r.right - r.left, 0)} × ${fmt(r.bottom - r.top, 0)} px.` : '. Drag to draw the zone.');
+  }
+
+  async loadPhoto() {
+    const file = $('cf-photo').files[0];
+    showError($('cf-error'), null);
+    this.photo = null;
+    this.view.setSource(null);
+    if (!file) return;
+    try {
+      const { bitmap, width, height } = await decodeImage(file);
+      this.photo = { width, height };
+      this.view.setSource(bitmap, width, height);
+      this.readout.textContent = `Photo ${width} × ${height} px. Drag over the constant-moment zone, or type its edges.`;
+      for (const [k, input] of this.fields) input.max = String(k === 'left' || k === 'right' ? width : height);
+    } catch (e) {
+      this.readout.textContent = 'The photo cannot be shown here; type the zone’s edges in pixels.';
+      showError($('cf-error'), e);
+    }
+  }
+
+  // Sets the zone from two corners (image coordinates, snapped to whole pixel edges).
+  setRegion(a, b) {
+    const snap = Math.round;
+    this.region = {
+      left: snap(Math.min(a.x, b.x)),
+      top: snap(Math.min(a.y, b.y)),
+      right: snap(Math.max(a.x, b.x)),
+      bottom: snap(Math.max(a.y, b.y)),
+    };
+    for (const [k, input] of this.fields) input.value = String(this.region[k]);
+    this.invalidate();
+  }
+
+  regionFromFields() {
+    const values = Object.fromEntries(this.fields.map(([k, input]) => [k, Number(input.value)]));
+    const complete = this.fields.every(([, input]) => input.value.trim() !== '');
+    this.region = complete && Object.values(values).every(Number.isFinite) ? values : null;
+    this.view.draw();
+  }
+
+  showLoadFields() {
+    const byLoad = this.el.querySelector('input[name="cf-load"]:checked').value === 'load';
+    $('cf-edge-fields').hidden = byLoad;
+    $('cf-load-fields').hidden = !byLoad;
+  }
+
+  // Any change after a dry run means the fit shown no longer matches: saving needs a new check.
+  invalidate() {
+    this.edits += 1;
+    if (!this.checked) return;
+    this.checked = false;
+    $('cf-save').disabled = true;
+    $('cf-report-heading').textContent = 'Fit of the last check (the inputs have changed since: check again before saving)';
+  }
+
+  spec(dryRun) {
+    const name = $('cf-name').value.trim();
+    const region = Object.fromEntries(this.fields.map(([k, input]) => [k, requiredNumber(input)]));
+    if (region.right <= region.left || region.bottom <= region.top) {
+      $('cf-right').focus();
+      throw new Error('The zone needs right > left and bottom > top: drag a rectangle on the photo.');
+    }
+    const spec = { name, region, refine_edges: $('cf-refine').checked, dry_run: dryRun };
+    if (this.el.querySelector('input[name="cf-load"]:checked').value === 'load') {
+      spec.moment_n_mm = requiredNumber($('cf-moment'), { positive: true });
+      spec.depth_mm = requiredNumber($('cf-depth'), { positive: true });
+      spec.fringe_value_n_per_mm = requiredNumber($('cf-fringe-value'), { positive: true });
+    } else {
+      spec.edge_order = requiredNumber($('cf-edge-order'), { positive: true });
+    }
+    const thickness = numberIn($('cf-thickness'), { positive: true });
+    if (thickness !== null) spec.thickness_mm = thickness;
+    for (const [key, id] of [['material', 'cf-material'], ['light_source', 'cf-light'], ['camera', 'cf-camera'], ['notes', 'cf-notes']]) {
+      const text = $(id).value.trim();
+      if (text) spec[key] = text;
+    }
+    if (!name) {
+      $('cf-name').focus();
+      throw new Error('Name: give the calibration a name.');
+    }
+    return spec;
+  }
+
+  async run(dryRun) {
+    const error = $('cf-error');
+    showError(error, null);
+    const file = $('cf-photo').files[0];
+    let spec;
+    try {
+      if (!file) {
+        $('cf-photo').focus();
+        throw new Error('Choose the beam photo first.');
+      }
+      spec = this.spec(dryRun);
+    } catch (e) {
+      showError(error, e);
+      return;
+    }
+    const form = new FormData();
+    form.append('photo', file, file.name);
+    form.append('spec', JSON.stringify(spec));
+    $('cf-check').disabled = true;
+    $('cf-save').disabled = true;
+    const edits = this.edits;
+    try {
+      const answer = await api.createCalibration(form, (f) => this.progress.report(f));
+      if (dryRun) {
+        this.progress.done('Checked. Nothing has been saved yet.');
+        this.showReport(answer.report, answer.table);
+        this.checked = edits === this.edits;
+      } else {
+        this.progress.done('Saved.');
+        this.reset();
+        document.dispatchEvent(new CustomEvent(CHANGED));
+        window.location.hash = `#/calibrations/${encodeURIComponent(answer.id)}`;
+      }
+    } catch (e) {
+      this.progress.done();
+      showError(error, e);
+    } finally {
+      $('cf-check').disabled = false;
+      $('cf-save').disabled = !this.checked;
+    }
+    if (dryRun && this.checked) $('cf-save').focus();
+  }
+
+  showReport(report, table) {
+    $('cf-report').hidden = false;
+    $('cf-report-heading').textContent = 'Fit of the new calibration (not saved yet)';
+    const shift = report.edge_shift;
+    fillDl($('cf-report-values'), [
+      ['Mean residual', `${fmt(report.residual_mean_de2000)} ΔE00`],
+      ['95th percentile', `${fmt(report.residual_p95_de2000)} ΔE00`],
+      ['Edge fringe order', fmt(report.edge_order, 3)],
+      ['Calibrated up to', `fringe order ${fmt(report.max_order)}`],
+      ['Rows used', report.rows_used],
+      ['Edge rows skipped', report.edge_rows_skipped],
+      ['Outlier rows', report.outlier_rows],
+      ['Edges moved by', shift ? `top ${fmt(shift.top_px, 1)} px, bottom ${fmt(shift.bottom_px, 1)} px` : ''],
+      ['Implied material fringe value', report.fringe_value_n_per_mm != null ? `${fmt(report.fringe_value_n_per_mm, 2)} N/mm per fringe` : ''],
+    ]);
+    this.strip.show(table);
+  }
+
+  reset() {
+    this.el.reset();
+    this.checked = false;
+    this.region = null;
+    this.photo = null;
+    this.view.setSource(null);
+    $('cf-report').hidden = true;
+    this.showLoadFields();
+    this.readout.textContent = 'No photo loaded.';
+  }
+}

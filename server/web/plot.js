@@ -1,0 +1,282 @@
+// Charts drawn on canvases: a calibration table's colour strip, the false-colour bar of an order
+// map and a profile of fringe order along a line.
+
+import { labToRgb, css, cividis } from './colour.js';
+
+const INK = '#1d2430';
+const MUTED = '#5a6472';
+const GRID = '#d5dae1';
+const FONT = '12px system-ui, sans-serif';
+
+// Number formatting with a real minus sign.
+export function fmt(value, digits = 2) {
+  if (!Number.isFinite(value)) return '–';
+  return value.toFixed(digits).replace('-', '−');
+}
+
+// Evenly spaced "nice" tick values (1, 2 or 5 × 10^k apart) covering [min, max].
+export function ticks(min, max, count = 6) {
+  const span = max - min || 1;
+  const raw = span / count;
+  const power = 10 ** Math.floor(Math.log10(raw));
+  const step = [1, 2, 5, 10].map((m) => m * power).find((s) => s >= raw);
+  const out = [];
+  for (let v = Math.ceil(min / step) * step; v <= max + step * 1e-9; v += step) out.push(Number(v.toFixed(10)));
+  return out;
+}
+
+// Sizes a canvas's backing store to its CSS box (times the device pixel ratio) and returns a
+// context that draws in CSS pixels, with the box's width and height.
+function prepare(canvas) {
+  const dpr = window.devicePixelRatio || 1;
+  const w = canvas.clientWidth || canvas.width;
+  const h = canvas.clientHeight || canvas.height;
+  canvas.width = Math.round(w * dpr);
+  canvas.height = Math.round(h * dpr);
+  const ctx = canvas.getContext('2d');
+  ctx.setTransform(dpr, 0, 0, dpr, 0, 0);
+  ctx.clearRect(0, 0, w, h);
+  ctx.font = FONT;
+  return { ctx, w, h };
+}
+
+function text(ctx, s, x, y, align = 'left', colour = INK) {
+  ctx.fillStyle = colour;
+  ctx.textAlign = align;
+  ctx.textBaseline = 'middle';
+  ctx.fillText(s, x, y);
+}
+
+// Root-sum-square of an entry's per-channel spread: the size of its colour scatter, ΔE*ab.
+const spreadOf = (e) => Math.hypot(e.spread[0], e.spread[1], e.spread[2]);
+
+// A calibration table drawn as a strip of tint colours over fringe order, with the spread of the
+// pixels behind each colour plotted underneath. Pointer and arrow keys pick an entry; its values
+// are written to `readout`.
+export class TableStrip {
+  constructor(canvas, readout) {
+    this.canvas = canvas;
+    this.readout = readout;
+    this.entries = [];
+    this.index = null;
+    this.pad = { left: 56, right: 16 };
+    canvas.addEventListener('pointermove', (e) => {
+      const rect = canvas.getBoundingClientRect();
+      this.pick(this.indexAt(e.clientX - rect.left));
+    });
+    canvas.addEventListener('keydown', (e) => {
+      const steps = { ArrowLeft: -1, ArrowRight: 1, Home: -Infinity, End: Infinity };
+      if (!(e.key in steps) || !this.entries.length) return;
+      e.preventDefault();
+      const jump = steps[e.key] * (e.shiftKey ? 10 : 1);
+      this.pick(Math.min(this.entries.length - 1, Math.max(0, (this.index ?? 0) + jump)));
+    });
+    new ResizeObserver(() => this.draw()).observe(canvas);
+  }
+
+  show(table) {
+    this.entries = table.entries;
+    this.index = null;
+    const top = this.entries.length ? this.entries[this.entries.length - 1].order : 0;
+    this.canvas.setAttribute(
+      'aria-label',
+      `Colour strip of ${this.entries.length} table entries from fringe order 0 to ${fmt(top)}, ` +
+        'with the colour spread underneath. Use the left and right arrow keys to read entries.',
+    );
+    this.readout.textContent = 'Point at the strip, or focus it and use the arrow keys, to read an entry.';
+    this.draw();
+  }
+
+  get maxOrder() {
+    return this.entries.length ? this.entries[this.entries.length - 1].order : 1;
+  }
+
+  xOf(order, w) {
+    return this.pad.left + (order / this.maxOrder) * (w - this.pad.left - this.pad.right);
+  }
+
+  indexAt(x) {
+    if (!this.entries.length) return null;
+    const w = this.canvas.clientWidth;
+    const t = (x - this.pad.left) / (w - this.pad.left - this.pad.right);
+    const order = Math.min(1, Math.max(0, t)) * this.maxOrder;
+    let best = 0;
+    this.entries.forEach((e, i) => {
+      if (Math.abs(e.order - order) < Math.abs(this.entries[best].order - order)) best = i;
+    });
+    return best;
+  }
+
+  pick(index) {
+    if (index === null) return;
+    this.index = index;
+    const e = this.entries[index];
+    const [L, a, b] = e.lab;
+    this.readout.textContent =
+      `Fringe order ${fmt(e.order, 3)}: L* ${fmt(L, 1)}, a* ${fmt(a, 1)}, b* ${fmt(b, 1)}; ` +
+      `spread ${fmt(spreadOf(e), 1)} ΔE*ab` + (e.samples ? ` from ${e.samples} pixels` : '');
+    this.draw();
+  }
+
+  draw() {
+    if (!this.entries.length || !this.canvas.clientWidth) return;
+    const { ctx, w } = prepare(this.canvas);
+    const strip = { top: 4, bottom: 54 };
+    const plot = { top: 62, bottom: 110 };
+    const n = this.entries.length;
+    // Colour strip: each entry fills the span halfway to its neighbours.
+    this.entries.forEach((e, i) => {
+      const x0 = this.xOf(i === 0 ? e.order : (this.entries[i - 1].order + e.order) / 2, w);
+      const x1 = this.xOf(i === n - 1 ? e.order : (this.entries[i + 1].order + e.order) / 2, w);
+      ctx.fillStyle = css(labToRgb(e.lab));
+      ctx.fillRect(Math.floor(x0), strip.top, Math.ceil(x1 - x0) + 1, strip.bottom - strip.top);
+    });
+    ctx.strokeStyle = INK;
+    ctx.lineWidth = 1;
+    ctx.strokeRect(this.pad.left - 0.5, strip.top - 0.5, w - this.pad.left - this.pad.right + 1, strip.bottom - strip.top + 1);
+    text(ctx, 'Tint', this.pad.left - 8, (strip.top + strip.bottom) / 2, 'right', MUTED);
+
+    // Spread plot.
+    const spreads = this.entries.map(spreadOf);
+    const yTop = Math.max(1, ...spreads);
+    const yOf = (v) => plot.bottom - (v / yTop) * (plot.bottom - plot.top);
+    ctx.strokeStyle = GRID;
+    for (const v of ticks(0, yTop, 2)) {
+      ctx.beginPath();
+      ctx.moveTo(this.pad.left, Math.round(yOf(v)) + 0.5);
+      ctx.lineTo(w - this.pad.right, Math.round(yOf(v)) + 0.5);
+      ctx.stroke();
+      text(ctx, fmt(v, v < 10 ? 1 : 0), this.pad.left - 8, yOf(v), 'right', MUTED);
+    }
+    ctx.beginPath();
+    this.entries.forEach((e, i) => {
+      const x = this.xOf(e.order, w);
+      if (i === 0) ctx.moveTo(x, yOf(spreads[i]));
+      else ctx.lineTo(x, yOf(spreads[i]));
+    });
+    ctx.strokeStyle = '#2f5d9e';
+    ctx.lineWidth = 1.5;
+    ctx.stroke();
+    text(ctx, 'Spread ΔE', this.pad.left + 4, plot.top + 2, 'left', MUTED);
+
+    // Order axis.
+    ctx.strokeStyle = INK;
+    ctx.lineWidth = 1;
+    ctx.beginPath();
+    ctx.moveTo(this.pad.left, plot.bottom + 0.5);
+    ctx.lineTo(w - this.pad.right, plot.bottom + 0.5);
+    ctx.stroke();
+    for (const v of ticks(0, this.maxOrder, Math.max(2, Math.floor(w / 90)))) {
+      const x = Math.round(this.xOf(v, w)) + 0.5;
+      ctx.beginPath();
+      ctx.moveTo(x, plot.bottom);
+      ctx.lineTo(x, plot.bottom + 5);
+      ctx.stroke();
+      text(ctx, fmt(v, Number.isInteger(v) ? 0 : 1), x, plot.bottom + 14, 'center');
+    }
+    text(ctx, 'Fringe order', (w + this.pad.left) / 2, plot.bottom + 32, 'center', MUTED);
+
+    if (this.index !== null) {
+      const x = Math.round(this.xOf(this.entries[this.index].order, w)) + 0.5;
+      ctx.beginPath();
+      ctx.moveTo(x, strip.top - 2);
+      ctx.lineTo(x, plot.bottom);
+      ctx.lineWidth = 3;
+      ctx.strokeStyle = '#fff';
+      ctx.stroke();
+      ctx.lineWidth = 1;
+      ctx.strokeStyle = INK;
+      ctx.stroke();
+    }
+  }
+}
+
+// The false-colour scale from 0 (bottom) to `top` fringes (top), with whole-order labels.
+export function drawColourBar(canvas, top) {
+  const { ctx, h } = prepare(canvas);
+  const bar = { left: 4, width: 22, top: 8, bottom: h - 8 };
+  const span = bar.bottom - bar.top;
+  for (let y = 0; y < span; y += 1) {
+    ctx.fillStyle = css(cividis(1 - y / (span - 1)));
+    ctx.fillRect(bar.left, bar.top + y, bar.width, 1);
+  }
+  ctx.strokeStyle = INK;
+  ctx.lineWidth = 1;
+  ctx.strokeRect(bar.left - 0.5, bar.top - 0.5, bar.width + 1, span + 1);
+  for (const v of ticks(0, top, Math.min(10, Math.max(2, Math.floor(span / 40))))) {
+    const y = Math.round(bar.bottom - (v / top) * span) + 0.5;
+    ctx.beginPath();
+    ctx.moveTo(bar.left + bar.width, y);
+    ctx.lineTo(bar.left + bar.width + 5, y);
+    ctx.stroke();
+    text(ctx, fmt(v, Number.isInteger(v) ? 0 : 1), bar.left + bar.width + 8, y);
+  }
+  canvas.setAttribute('aria-label', `Colour scale from fringe order 0 (dark blue) to ${fmt(top, 0)} (yellow).`);
+}
+
+// A profile of fringe order along a line: `samples` = [{distance, order}] (order NaN = no
+// value). With `stressPerOrder` (MPa per fringe) a second axis gives σ1 − σ2.
+export function drawProfile(canvas, samples, stressPerOrder) {
+  const { ctx, w, h } = prepare(canvas);
+  const pad = { left: 56, right: stressPerOrder ? 64 : 16, top: 12, bottom: 40 };
+  const valued = samples.filter((s) => Number.isFinite(s.order));
+  const length = samples.length ? samples[samples.length - 1].distance : 1;
+  const yMax = Math.max(0.5, ...valued.map((s) => s.order)) * 1.05;
+  const xOf = (d) => pad.left + (d / (length || 1)) * (w - pad.left - pad.right);
+  const yOf = (n) => h - pad.bottom - (n / yMax) * (h - pad.top - pad.bottom);
+
+  ctx.lineWidth = 1;
+  for (const v of ticks(0, yMax, 5)) {
+    const y = Math.round(yOf(v)) + 0.5;
+    ctx.strokeStyle = GRID;
+    ctx.beginPath();
+    ctx.moveTo(pad.left, y);
+    ctx.lineTo(w - pad.right, y);
+    ctx.stroke();
+    text(ctx, fmt(v, 1), pad.left - 8, y, 'right');
+  }
+  if (stressPerOrder) {
+    const sMax = yMax * stressPerOrder;
+    for (const v of ticks(0, sMax, 5)) {
+      text(ctx, fmt(v, v < 10 ? 1 : 0), w - pad.right + 8, yOf(v / stressPerOrder), 'left', MUTED);
+    }
+    ctx.save();
+    ctx.translate(w - 10, (pad.top + h - pad.bottom) / 2);
+    ctx.rotate(Math.PI / 2);
+    text(ctx, 'σ1 − σ2 (MPa)', 0, 0, 'center', MUTED);
+    ctx.restore();
+  }
+  for (const v of ticks(0, length, Math.max(2, Math.floor(w / 100)))) {
+    const x = Math.round(xOf(v)) + 0.5;
+    ctx.strokeStyle = GRID;
+    ctx.beginPath();
+    ctx.moveTo(x, pad.top);
+    ctx.lineTo(x, h - pad.bottom);
+    ctx.stroke();
+    text(ctx, fmt(v, 0), x, h - pad.bottom + 12, 'center');
+  }
+  text(ctx, 'Distance along the line (pixels)', (w + pad.left - pad.right) / 2, h - 10, 'center', MUTED);
+  ctx.save();
+  ctx.translate(14, (pad.top + h - pad.bottom) / 2);
+  ctx.rotate(-Math.PI / 2);
+  text(ctx, 'Fringe order', 0, 0, 'center', MUTED);
+  ctx.restore();
+
+  ctx.strokeStyle = INK;
+  ctx.strokeRect(pad.left + 0.5, pad.top + 0.5, w - pad.left - pad.right, h - pad.top - pad.bottom);
+  // The curve, broken where there is no value.
+  ctx.beginPath();
+  let open = false;
+  for (const s of samples) {
+    if (!Number.isFinite(s.order)) {
+      open = false;
+      continue;
+    }
+    if (open) ctx.lineTo(xOf(s.distance), yOf(s.order));
+    else ctx.moveTo(xOf(s.distance), yOf(s.order));
+    open = true;
+  }
+  ctx.strokeStyle = '#1f4e96';
+  ctx.lineWidth = 2;
+  ctx.stroke();
+}
