@@ -1,0 +1,391 @@
+//! The command line: `serve`, `calibrate`, `map`.
+
+use std::net::SocketAddr;
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+
+use anyhow::Context;
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
+use isotint_core::export::{self, OutputFormat};
+use isotint_core::geometry::PixelPoint;
+use isotint_core::order_map::MapStatistics;
+use isotint_core::{
+    CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, OrderHint, PixelRect,
+};
+
+use crate::config::ServiceConfig;
+use crate::domain::{beam_spec, DEFAULT_ORDER_STEP};
+use crate::pipeline;
+
+/// Fringe-order maps from white-light photoelastic photos (dark-field circular polariscope).
+///
+/// Pixel coordinates are pixel-edge coordinates: x right, y down; pixel (x, y) covers
+/// [x, x+1) × [y, y+1).
+#[derive(Debug, Parser)]
+#[command(name = "isotint", version)]
+pub struct Cli {
+    /// Log format.
+    #[arg(
+        long,
+        global = true,
+        env = "ISOTINT_LOG_FORMAT",
+        default_value = "text"
+    )]
+    pub log_format: LogFormat,
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Log output format.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum LogFormat {
+    /// Human-readable lines.
+    Text,
+    /// One JSON object per line.
+    Json,
+}
+
+/// Subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Run the HTTP service.
+    Serve(ServeArgs),
+    /// Build a calibration table from a photo of a beam in four-point bending.
+    Calibrate(CalibrateArgs),
+    /// Map the fringe orders of a specimen photo with a calibration table.
+    Map(MapArgs),
+}
+
+/// Options of `isotint serve`.
+#[derive(Debug, Args)]
+pub struct ServeArgs {
+    /// Address to listen on.
+    #[arg(long, env = "ISOTINT_BIND", default_value = "127.0.0.1:8080")]
+    pub bind: SocketAddr,
+    /// Database URL: sqlite://FILE?mode=rwc (created if missing) or postgres://….
+    #[arg(
+        long,
+        env = "ISOTINT_DATABASE_URL",
+        default_value = "sqlite://isotint.sqlite?mode=rwc"
+    )]
+    pub database: String,
+    /// Directory whose *.json calibration files are imported (once each) at start.
+    #[arg(
+        long,
+        env = "ISOTINT_CALIBRATION_SETS",
+        default_value = "calibration-sets"
+    )]
+    pub calibration_sets: PathBuf,
+    /// Largest accepted request body, MiB.
+    #[arg(long, env = "ISOTINT_UPLOAD_LIMIT_MIB", default_value_t = 64)]
+    pub upload_limit_mib: usize,
+    /// Calibration and map jobs that run at once.
+    #[arg(long, env = "ISOTINT_MAX_JOBS", default_value_t = 2)]
+    pub max_jobs: usize,
+    /// Jobs that may wait for a slot; further requests get 503 with Retry-After.
+    #[arg(long, env = "ISOTINT_JOB_QUEUE", default_value_t = 4)]
+    pub job_queue: usize,
+    /// Time limit of one request (e.g. 90s, 2m).
+    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", default_value = "120s", value_parser = humantime::parse_duration)]
+    pub request_timeout: Duration,
+    /// How long stored order maps are served (e.g. 24h, 30m).
+    #[arg(long, env = "ISOTINT_RETENTION", default_value = "24h", value_parser = humantime::parse_duration)]
+    pub retention: Duration,
+    /// How often expired order maps are deleted.
+    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", default_value = "5m", value_parser = humantime::parse_duration)]
+    pub purge_interval: Duration,
+    /// Largest accepted photo, pixels in all (checked on the header, before decoding).
+    #[arg(long, env = "ISOTINT_MAX_IMAGE_PIXELS", default_value_t = 50_000_000)]
+    pub max_image_pixels: u64,
+}
+
+impl ServeArgs {
+    /// The service configuration these options describe.
+    pub fn config(&self) -> ServiceConfig {
+        ServiceConfig {
+            upload_limit_bytes: self.upload_limit_mib.saturating_mul(1 << 20),
+            max_jobs: self.max_jobs,
+            job_queue: self.job_queue,
+            request_timeout: self.request_timeout,
+            retention: self.retention,
+            purge_interval: self.purge_interval.max(Duration::from_secs(1)),
+            decode_limits: DecodeLimits {
+                max_pixels: self.max_image_pixels,
+                ..DecodeLimits::default()
+            },
+            calibration_sets: Some(self.calibration_sets.clone()),
+        }
+    }
+}
+
+/// Options of `isotint calibrate`.
+#[derive(Debug, Args)]
+pub struct CalibrateArgs {
+    /// Photo of the beam in four-point bending (PNG, JPEG or TIFF).
+    #[arg(long)]
+    pub photo: PathBuf,
+    /// Constant-moment zone LEFT,TOP,RIGHT,BOTTOM in pixel-edge coordinates (pixels); TOP and
+    /// BOTTOM are the beam's edges.
+    #[arg(long, value_parser = parse_region, allow_hyphen_values = true)]
+    pub region: PixelRect,
+    /// Fringe order at the beam edges (dimensionless).
+    #[arg(long)]
+    pub edge_order: Option<f64>,
+    /// Bending moment in the constant-moment zone, N·mm (with --depth and --fringe-value, or
+    /// with --edge-order and --depth to report the fringe value).
+    #[arg(long)]
+    pub moment: Option<f64>,
+    /// Beam depth (edge to edge), mm.
+    #[arg(long)]
+    pub depth: Option<f64>,
+    /// Material fringe value f_σ, N/mm per fringe.
+    #[arg(long)]
+    pub fringe_value: Option<f64>,
+    /// Name of the calibration (default: the photo's file name).
+    #[arg(long)]
+    pub name: Option<String>,
+    /// Move TOP and BOTTOM to the beam edges found in the photo before measuring.
+    #[arg(long)]
+    pub refine_edges: bool,
+    /// Grid spacing of the table, fringes.
+    #[arg(long, default_value_t = DEFAULT_ORDER_STEP)]
+    pub order_step: f64,
+    /// Model or coating material.
+    #[arg(long, default_value = "")]
+    pub material: String,
+    /// Specimen thickness, mm.
+    #[arg(long)]
+    pub thickness_mm: Option<f64>,
+    /// Light source, e.g. "halogen 3200 K".
+    #[arg(long, default_value = "")]
+    pub light_source: String,
+    /// Camera and exposure settings.
+    #[arg(long, default_value = "")]
+    pub camera: String,
+    /// Free text.
+    #[arg(long, default_value = "")]
+    pub notes: String,
+    /// Where to write the calibration file (JSON).
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
+/// Options of `isotint map`.
+#[derive(Debug, Args)]
+pub struct MapArgs {
+    /// Calibration file (JSON, as written by `isotint calibrate`).
+    #[arg(long)]
+    pub calibration: PathBuf,
+    /// Specimen photo (PNG, JPEG or TIFF).
+    #[arg(long)]
+    pub photo: PathBuf,
+    /// Mask image of the photo's size; non-zero = specimen.
+    #[arg(long)]
+    pub mask: Option<PathBuf>,
+    /// Do not fit an exposure / white-balance / vignetting correction.
+    #[arg(long)]
+    pub no_exposure_compensation: bool,
+    /// Largest order to consider, fringes (default: the table's maximum).
+    #[arg(long)]
+    pub max_order: Option<f64>,
+    /// Largest plausible change of order between neighbouring pixels, fringes per pixel.
+    #[arg(long)]
+    pub max_gradient: Option<f64>,
+    /// Known order at a point: X,Y,N in pixel-edge coordinates (repeatable).
+    #[arg(long = "hint", value_parser = parse_hint, allow_hyphen_values = true)]
+    pub hints: Vec<OrderHint>,
+    /// Output file; the format follows the extension: .npy (float32, NaN = no value), .png
+    /// (16-bit, N × 1000), .preview.png (false colour), .csv.
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
+fn parse_region(text: &str) -> Result<PixelRect, String> {
+    PixelRect::parse(text).map_err(|e| e.to_string())
+}
+
+fn parse_hint(text: &str) -> Result<OrderHint, String> {
+    let parts: Vec<&str> = text.split(',').map(str::trim).collect();
+    let [x, y, n] = parts[..] else {
+        return Err(format!("expected X,Y,N, got {text:?}"));
+    };
+    let number = |s: &str| {
+        s.parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite())
+            .ok_or_else(|| format!("{s:?} is not a finite number"))
+    };
+    Ok(OrderHint {
+        at: PixelPoint {
+            x: number(x)?,
+            y: number(y)?,
+        },
+        order: number(n)?,
+    })
+}
+
+fn init_tracing(format: LogFormat) {
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env()
+        .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,sqlx=warn"));
+    let builder = tracing_subscriber::fmt().with_env_filter(filter);
+    match format {
+        LogFormat::Text => builder.init(),
+        LogFormat::Json => builder.json().init(),
+    }
+}
+
+/// Runs a parsed command line.
+pub fn run(cli: Cli) -> anyhow::Result<()> {
+    init_tracing(cli.log_format);
+    match cli.command {
+        Command::Serve(args) => serve(&args),
+        Command::Calibrate(args) => calibrate(&args),
+        Command::Map(args) => map(&args),
+    }
+}
+
+fn serve(args: &ServeArgs) -> anyhow::Result<()> {
+    let runtime = tokio::runtime::Builder::new_multi_thread()
+        .enable_all()
+        .build()
+        .context("could not start the async runtime")?;
+    runtime.block_on(crate::service::run(
+        args.bind,
+        &args.database,
+        args.config(),
+    ))
+}
+
+fn read(path: &Path, what: &str) -> anyhow::Result<Vec<u8>> {
+    std::fs::read(path).with_context(|| format!("could not read the {what} {}", path.display()))
+}
+
+fn write(path: &Path, bytes: &[u8]) -> anyhow::Result<()> {
+    std::fs::write(path, bytes).with_context(|| format!("could not write {}", path.display()))
+}
+
+fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
+    let load = EdgeLoad::from_fields(EdgeLoadFields {
+        edge_order: args.edge_order,
+        moment_n_mm: args.moment,
+        depth_mm: args.depth,
+        fringe_value_n_per_mm: args.fringe_value,
+    })?;
+    let name = args.name.clone().unwrap_or_else(|| {
+        args.photo
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "beam".into())
+    });
+    let metadata = CalibrationMetadata {
+        name,
+        material: args.material.clone(),
+        thickness_mm: args.thickness_mm,
+        light_source: args.light_source.clone(),
+        camera: args.camera.clone(),
+        notes: args.notes.clone(),
+    };
+    let spec = beam_spec(
+        args.region,
+        load,
+        args.refine_edges,
+        Some(args.order_step),
+        metadata,
+    )?;
+    let photo = read(&args.photo, "photo")?;
+    let calibration = pipeline::calibrate(&photo, &spec, &DecodeLimits::default())?;
+    write(&args.out, calibration.table.to_json().as_bytes())?;
+    println!(
+        "calibration {:?} written to {}",
+        calibration.table.metadata.name,
+        args.out.display()
+    );
+    print!("{}", report_text(&calibration.report));
+    Ok(())
+}
+
+/// The lines `isotint calibrate` prints about a calibration.
+pub fn report_text(r: &BeamReport) -> String {
+    let mut out = format!(
+        "  edge order          {:.3} fringes\n  max order in table  {:.3} fringes\n  \
+         residual            mean {:.2}, p95 {:.2} (CIEDE2000)\n  \
+         rows                {} used, {} edge rows skipped, {} outlier rows, {:.1} % outlier pixels\n",
+        r.edge_order,
+        r.max_order,
+        r.residual_mean_de2000,
+        r.residual_p95_de2000,
+        r.rows_used,
+        r.edge_rows_skipped,
+        r.outlier_rows,
+        100.0 * r.outlier_pixel_share
+    );
+    if let Some(s) = r.edge_shift {
+        out += &format!(
+            "  edge shift          top {:+.2} px, bottom {:+.2} px\n",
+            s.top_px, s.bottom_px
+        );
+    }
+    if let Some(f) = r.fringe_value_n_per_mm {
+        out += &format!("  fringe value        {f:.3} N/mm per fringe\n");
+    }
+    out
+}
+
+fn map(args: &MapArgs) -> anyhow::Result<()> {
+    let out = args.out.to_string_lossy();
+    let format = OutputFormat::from_path(&out)?;
+    let table = CalibrationTable::from_json(&read(&args.calibration, "calibration")?)
+        .with_context(|| {
+            format!(
+                "{} is not a usable calibration file",
+                args.calibration.display()
+            )
+        })?;
+    let mut options = MapOptions {
+        exposure_compensation: !args.no_exposure_compensation,
+        max_order: args.max_order,
+        hints: args.hints.clone(),
+        ..MapOptions::default()
+    };
+    if let Some(g) = args.max_gradient {
+        options.max_gradient = g;
+    }
+    let photo = read(&args.photo, "photo")?;
+    let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
+    let map = pipeline::map(
+        &photo,
+        mask.as_deref(),
+        &table,
+        &options,
+        &DecodeLimits::default(),
+    )?;
+    write(&args.out, &export::encode(&map, format)?)?;
+    println!(
+        "{}×{} order map ({}) written to {}",
+        map.width,
+        map.height,
+        format.name(),
+        args.out.display()
+    );
+    print!("{}", statistics_text(&map.statistics));
+    Ok(())
+}
+
+/// The lines `isotint map` prints about a map.
+pub fn statistics_text(s: &MapStatistics) -> String {
+    format!(
+        "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
+         unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {:.3}\n  \
+         mean residual       {:.2} (ΔE*ab)\n",
+        s.specimen_pixels,
+        s.valued_pixels,
+        100.0 * s.beyond_range_share,
+        100.0 * s.unreliable_share,
+        s.min_order,
+        s.mean_order,
+        s.max_order,
+        s.mean_residual
+    )
+}

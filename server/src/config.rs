@@ -1,0 +1,45 @@
+//! Settings of the HTTP service, filled from the command line (see `cli.rs`).
+
+use std::path::PathBuf;
+use std::time::Duration;
+
+use isotint_core::DecodeLimits;
+
+/// Limits and policies of a running service.
+#[derive(Debug, Clone)]
+pub struct ServiceConfig {
+    /// Largest accepted request body, bytes.
+    pub upload_limit_bytes: usize,
+    /// Calibration and map jobs that run at once.
+    pub max_jobs: usize,
+    /// Jobs that may wait for a free slot; one more is refused with 503.
+    pub job_queue: usize,
+    /// Time limit of one request.
+    pub request_timeout: Duration,
+    /// How long stored order maps are served.
+    pub retention: Duration,
+    /// How often expired order maps are deleted.
+    pub purge_interval: Duration,
+    /// Header checks applied before any photo or mask is decoded.
+    pub decode_limits: DecodeLimits,
+    /// Directory whose `*.json` calibration files are imported at start.
+    pub calibration_sets: Option<PathBuf>,
+}
+
+impl Default for ServiceConfig {
+    fn default() -> Self {
+        ServiceConfig {
+            upload_limit_bytes: 64 << 20,
+            max_jobs: 2,
+            job_queue: 4,
+            request_timeout: Duration::from_secs(120),
+            retention: Duration::from_secs(24 * 3600),
+            purge_interval: Duration::from_secs(300),
+            decode_limits: DecodeLimits {
+                max_pixels: 50_000_000,
+                ..DecodeLimits::default()
+            },
+            calibration_sets: None,
+        }
+    }
+}

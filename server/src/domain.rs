@@ -1,0 +1,242 @@
+//! Domain types of the service, parsed once at the edge (CLI flags, HTTP paths and bodies):
+//! typed ids, timestamps and checked free-text fields.
+
+use std::fmt;
+use std::hash::{Hash, Hasher};
+use std::marker::PhantomData;
+use std::str::FromStr;
+
+use isotint_core::beam::{BeamSpec, EdgeLoad};
+use isotint_core::calibration::ORDER_STEP_RANGE;
+use isotint_core::{CalibrationMetadata, CoreError, CoreResult, PixelRect};
+use serde::{Deserialize, Deserializer, Serialize, Serializer};
+use time::OffsetDateTime;
+use uuid::Uuid;
+
+/// What an [`Id`] identifies; names the thing in messages.
+pub trait IdKind {
+    /// Noun used in messages, e.g. "calibration".
+    const NOUN: &'static str;
+}
+
+/// Marker of calibration ids.
+#[derive(Debug)]
+pub enum CalibrationKind {}
+
+impl IdKind for CalibrationKind {
+    const NOUN: &'static str = "calibration";
+}
+
+/// Marker of order-map ids.
+#[derive(Debug)]
+pub enum OrderMapKind {}
+
+impl IdKind for OrderMapKind {
+    const NOUN: &'static str = "order map";
+}
+
+/// A random UUID that identifies one kind of stored thing.
+pub struct Id<K>(Uuid, PhantomData<fn() -> K>);
+
+/// Id of a stored calibration.
+pub type CalibrationId = Id<CalibrationKind>;
+/// Id of a stored order map.
+pub type OrderMapId = Id<OrderMapKind>;
+
+impl<K: IdKind> Id<K> {
+    /// A fresh random id.
+    pub fn random() -> Self {
+        Id(Uuid::new_v4(), PhantomData)
+    }
+}
+
+impl<K> Clone for Id<K> {
+    fn clone(&self) -> Self {
+        *self
+    }
+}
+impl<K> Copy for Id<K> {}
+impl<K> PartialEq for Id<K> {
+    fn eq(&self, other: &Self) -> bool {
+        self.0 == other.0
+    }
+}
+impl<K> Eq for Id<K> {}
+impl<K> Hash for Id<K> {
+    fn hash<H: Hasher>(&self, state: &mut H) {
+        self.0.hash(state);
+    }
+}
+impl<K> fmt::Debug for Id<K> {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "Id({})", self.0)
+    }
+}
+impl<K> fmt::Display for Id<K> {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        self.0.hyphenated().fmt(f)
+    }
+}
+
+impl<K: IdKind> FromStr for Id<K> {
+    type Err = CoreError;
+
+    fn from_str(text: &str) -> CoreResult<Self> {
+        Uuid::parse_str(text.trim())
+            .map(|u| Id(u, PhantomData))
+            .map_err(|_| {
+                CoreError::invalid(
+                    "id",
+                    format!(
+                        "{:?} is not a {} id (expected a UUID)",
+                        shorten(text, 60),
+                        K::NOUN
+                    ),
+                )
+            })
+    }
+}
+
+impl<K> Serialize for Id<K> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_str(self)
+    }
+}
+
+impl<'de, K: IdKind> Deserialize<'de> for Id<K> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let text = String::deserialize(d)?;
+        text.parse().map_err(serde::de::Error::custom)
+    }
+}
+
+/// The first `max` characters of `text`, with "…" when cut (for echoing input in messages).
+pub fn shorten(text: &str, max: usize) -> String {
+    if text.chars().count() <= max {
+        text.to_string()
+    } else {
+        text.chars().take(max).chain(std::iter::once('…')).collect()
+    }
+}
+
+/// Unix time in milliseconds.
+pub fn unix_ms(t: OffsetDateTime) -> i64 {
+    (t.unix_timestamp_nanos() / 1_000_000) as i64
+}
+
+/// The instant `ms` milliseconds after the Unix epoch (clamped to the representable range).
+pub fn from_unix_ms(ms: i64) -> OffsetDateTime {
+    OffsetDateTime::from_unix_timestamp_nanos(i128::from(ms) * 1_000_000)
+        .unwrap_or(OffsetDateTime::UNIX_EPOCH)
+}
+
+/// RFC 3339 text of a UTC instant.
+pub fn rfc3339(t: OffsetDateTime) -> String {
+    t.format(&time::format_description::well_known::Rfc3339)
+        .unwrap_or_else(|_| t.to_string())
+}
+
+/// Checks a free-text field: at most `max_chars` characters and no control characters
+/// (line breaks and tabs are allowed where `multiline`). The error names the field.
+pub fn check_text(
+    field: &'static str,
+    value: &str,
+    max_chars: usize,
+    multiline: bool,
+) -> CoreResult<()> {
+    let count = value.chars().count();
+    if count > max_chars {
+        return Err(CoreError::invalid(
+            field,
+            format!("is {count} characters long; at most {max_chars} are allowed"),
+        ));
+    }
+    let allowed = |c: char| multiline && matches!(c, '\n' | '\r' | '\t');
+    if let Some(c) = value.chars().find(|c| c.is_control() && !allowed(*c)) {
+        return Err(CoreError::invalid(
+            field,
+            format!("contains the control character U+{:04X}", u32::from(c)),
+        ));
+    }
+    Ok(())
+}
+
+/// Checks every text field of calibration metadata (name 1–200 characters, other short fields
+/// up to 200, notes up to 4000) and the thickness; messages name the field.
+pub fn check_metadata(m: &CalibrationMetadata) -> CoreResult<()> {
+    if m.name.trim().is_empty() {
+        return Err(CoreError::invalid("name", "must not be empty"));
+    }
+    check_text("name", &m.name, 200, false)?;
+    check_text("material", &m.material, 200, false)?;
+    check_text("light_source", &m.light_source, 200, false)?;
+    check_text("camera", &m.camera, 200, false)?;
+    check_text("notes", &m.notes, 4000, true)?;
+    if let Some(t) = m.thickness_mm {
+        if !(t.is_finite() && t > 0.0) {
+            return Err(CoreError::invalid(
+                "thickness_mm",
+                format!("must be a positive number of millimetres, got {t}"),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Default grid spacing of a new calibration table, fringes.
+pub const DEFAULT_ORDER_STEP: f64 = 0.01;
+
+/// Builds a checked beam specification from parsed edge input (CLI flags or API JSON): the
+/// region is finite and well oriented, the order step (default [`DEFAULT_ORDER_STEP`]) within
+/// the format's range, and the metadata passes [`check_metadata`].
+pub fn beam_spec(
+    region: PixelRect,
+    load: EdgeLoad,
+    refine_edges: bool,
+    order_step: Option<f64>,
+    metadata: CalibrationMetadata,
+) -> CoreResult<BeamSpec> {
+    region.validate()?;
+    let order_step = order_step.unwrap_or(DEFAULT_ORDER_STEP);
+    let (lo, hi) = ORDER_STEP_RANGE;
+    if !(order_step.is_finite() && (lo..=hi).contains(&order_step)) {
+        return Err(CoreError::invalid(
+            "order_step",
+            format!("must lie in [{lo}, {hi}] fringes, got {order_step}"),
+        ));
+    }
+    check_metadata(&metadata)?;
+    Ok(BeamSpec {
+        region,
+        load,
+        refine_edges,
+        order_step,
+        metadata,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn an_id_round_trips_through_text_and_a_bad_one_names_its_kind() {
+        let id = CalibrationId::random();
+        assert_eq!(id.to_string().parse::<CalibrationId>().unwrap(), id);
+        let err = "nope".parse::<OrderMapId>().unwrap_err().to_string();
+        assert!(err.contains("order map id"), "{err}");
+    }
+
+    #[test]
+    fn control_characters_are_refused_except_line_breaks_in_notes() {
+        assert!(check_text("name", "a\u{7}b", 10, false).is_err());
+        assert!(check_text("notes", "a\nb", 10, true).is_ok());
+        assert!(check_text("name", &"x".repeat(11), 10, false).is_err());
+    }
+
+    #[test]
+    fn milliseconds_round_trip() {
+        let t = from_unix_ms(1_700_000_000_123);
+        assert_eq!(unix_ms(t), 1_700_000_000_123);
+    }
+}

@@ -1,0 +1,442 @@
+//! `/api/v1/calibrations`: list, read, export, import, create from a beam photo, archive,
+//! restore. Calibrations are immutable; a correction names the old one in `supersedes`.
+
+use axum::body::Bytes;
+use axum::extract::multipart::MultipartRejection;
+use axum::extract::rejection::{BytesRejection, QueryRejection};
+use axum::extract::{Multipart, Path, Query, State};
+use axum::http::{header, HeaderMap, StatusCode};
+use axum::response::{IntoResponse, Response};
+use axum::Json;
+use isotint_core::beam::{BeamReport, BeamSpec, EdgeLoad, EdgeLoadFields};
+use isotint_core::{CalibrationMetadata, CalibrationTable, CoreError, PixelRect};
+use serde::{Deserialize, Serialize};
+use utoipa::{IntoParams, ToSchema};
+use utoipa_axum::router::OpenApiRouter;
+use utoipa_axum::routes;
+
+use super::error::{ApiError, ErrorBody};
+use super::form::{parse_json, Form};
+use super::AppState;
+use crate::domain::{beam_spec, check_metadata, check_text, rfc3339, CalibrationId};
+use crate::pipeline;
+use crate::storage::calibrations::{self as store, CalibrationRow, ListFilter};
+
+/// Routes of this module.
+pub fn router() -> OpenApiRouter<AppState> {
+    OpenApiRouter::new()
+        .routes(routes!(list_calibrations, create_calibration))
+        .routes(routes!(import_calibration))
+        .routes(routes!(get_calibration))
+        .routes(routes!(export_calibration))
+        .routes(routes!(archive_calibration))
+        .routes(routes!(restore_calibration))
+}
+
+/// What lists and detail views show of a calibration.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct CalibrationSummary {
+    /// Calibration id (UUID).
+    #[schema(value_type = String, format = Uuid)]
+    pub id: CalibrationId,
+    /// Short human name.
+    pub name: String,
+    /// Model or coating material.
+    pub material: String,
+    /// Specimen thickness, mm.
+    pub thickness_mm: Option<f64>,
+    /// Light source.
+    pub light_source: String,
+    /// Camera and exposure settings.
+    pub camera: String,
+    /// Free text.
+    pub notes: String,
+    /// When the table was made, RFC 3339.
+    pub created_at: String,
+    /// Order spacing of the table, fringes.
+    pub order_step: f64,
+    /// Largest calibrated order, fringes.
+    pub max_order: f64,
+    /// `beam_photo` or `rendered`.
+    pub source_kind: String,
+    /// Mean CIEDE2000 residual (beam calibrations only).
+    pub residual_de2000: Option<f64>,
+    /// The calibration this one corrects.
+    #[schema(value_type = Option<String>, format = Uuid)]
+    pub supersedes: Option<CalibrationId>,
+    /// The calibration that corrects this one.
+    #[schema(value_type = Option<String>, format = Uuid)]
+    pub superseded_by: Option<CalibrationId>,
+    /// Hidden from lists unless `include_archived=true`.
+    pub archived: bool,
+}
+
+impl From<CalibrationRow> for CalibrationSummary {
+    fn from(r: CalibrationRow) -> Self {
+        CalibrationSummary {
+            id: r.id,
+            name: r.metadata.name,
+            material: r.metadata.material,
+            thickness_mm: r.metadata.thickness_mm,
+            light_source: r.metadata.light_source,
+            camera: r.metadata.camera,
+            notes: r.metadata.notes,
+            created_at: rfc3339(r.created_at),
+            order_step: r.order_step,
+            max_order: r.max_order,
+            source_kind: r.source_kind,
+            residual_de2000: r.residual_de2000,
+            supersedes: r.supersedes,
+            superseded_by: r.superseded_by,
+            archived: r.archived,
+        }
+    }
+}
+
+/// List response.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct CalibrationList {
+    /// Matching calibrations, newest first.
+    pub calibrations: Vec<CalibrationSummary>,
+}
+
+/// A calibration with its table.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct CalibrationDetail {
+    /// The summary fields.
+    #[serde(flatten)]
+    pub summary: CalibrationSummary,
+    /// The calibration table file (format `isotint-calibration`).
+    #[schema(value_type = Object)]
+    pub table: CalibrationTable,
+}
+
+/// Response of a stored beam calibration.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct CreatedCalibration {
+    /// The summary fields.
+    #[serde(flatten)]
+    pub summary: CalibrationSummary,
+    /// Quality report of the measurement.
+    #[schema(value_type = Object)]
+    pub report: BeamReport,
+}
+
+/// Response of a dry run: nothing is stored.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct DryRunCalibration {
+    /// Quality report of the measurement.
+    #[schema(value_type = Object)]
+    pub report: BeamReport,
+    /// The table that would be stored.
+    #[schema(value_type = Object)]
+    pub table: CalibrationTable,
+}
+
+/// Query of the list.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct ListQuery {
+    /// Case-insensitive text matched against name, material, light source and camera.
+    pub q: Option<String>,
+    /// Include archived calibrations (default false).
+    #[serde(default)]
+    pub include_archived: bool,
+}
+
+/// Query of the import.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct ImportQuery {
+    /// Id of the calibration the imported one corrects.
+    pub supersedes: Option<String>,
+}
+
+/// The `spec` part of a beam calibration: where the constant-moment zone is and what is known
+/// about the load. Give `edge_order`, or `moment_n_mm` + `depth_mm` + `fringe_value_n_per_mm`,
+/// or `edge_order` + `moment_n_mm` + `depth_mm` (then the fringe value is reported).
+#[derive(Debug, Deserialize, ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct BeamRequest {
+    /// Short human name, 1–200 characters.
+    pub name: String,
+    /// Constant-moment zone `{left, top, right, bottom}` in pixel-edge coordinates; `top` and
+    /// `bottom` are the beam's edges.
+    #[schema(value_type = Object)]
+    pub region: PixelRect,
+    /// Fringe order at the beam edges.
+    pub edge_order: Option<f64>,
+    /// Bending moment in the constant-moment zone, N·mm.
+    pub moment_n_mm: Option<f64>,
+    /// Beam depth, mm.
+    pub depth_mm: Option<f64>,
+    /// Material fringe value, N/mm per fringe.
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Move top and bottom to the edges found in the photo.
+    #[serde(default)]
+    pub refine_edges: bool,
+    /// Grid spacing of the table, fringes (default 0.01).
+    pub order_step: Option<f64>,
+    /// Model or coating material.
+    #[serde(default)]
+    pub material: String,
+    /// Specimen thickness, mm.
+    pub thickness_mm: Option<f64>,
+    /// Light source.
+    #[serde(default)]
+    pub light_source: String,
+    /// Camera and exposure settings.
+    #[serde(default)]
+    pub camera: String,
+    /// Free text.
+    #[serde(default)]
+    pub notes: String,
+    /// Id of the calibration this one corrects.
+    #[schema(value_type = Option<String>, format = Uuid)]
+    pub supersedes: Option<CalibrationId>,
+    /// Measure and report, but store nothing.
+    #[serde(default)]
+    pub dry_run: bool,
+}
+
+/// Multipart body of `POST /api/v1/calibrations`.
+#[derive(ToSchema)]
+pub struct BeamForm {
+    /// Photo of the beam (PNG, JPEG or TIFF).
+    #[schema(value_type = String, format = Binary)]
+    pub photo: Vec<u8>,
+    /// JSON of the specification.
+    pub spec: BeamRequest,
+}
+
+impl BeamRequest {
+    /// Checks every field and builds the core's spec.
+    pub fn into_spec(self) -> Result<BeamSpec, CoreError> {
+        let load = EdgeLoad::from_fields(EdgeLoadFields {
+            edge_order: self.edge_order,
+            moment_n_mm: self.moment_n_mm,
+            depth_mm: self.depth_mm,
+            fringe_value_n_per_mm: self.fringe_value_n_per_mm,
+        })?;
+        let metadata = CalibrationMetadata {
+            name: self.name,
+            material: self.material,
+            thickness_mm: self.thickness_mm,
+            light_source: self.light_source,
+            camera: self.camera,
+            notes: self.notes,
+        };
+        beam_spec(
+            self.region,
+            load,
+            self.refine_edges,
+            self.order_step,
+            metadata,
+        )
+    }
+}
+
+/// Parses an id from a URL path; a malformed one is simply not found.
+pub(super) fn path_id<K: crate::domain::IdKind>(
+    text: &str,
+) -> Result<crate::domain::Id<K>, ApiError> {
+    text.parse()
+        .map_err(|e: CoreError| ApiError::NotFound(e.to_string()))
+}
+
+/// Lists calibrations, newest first; archived ones only on request.
+#[utoipa::path(get, path = "/api/v1/calibrations", tag = "calibrations", params(ListQuery),
+    responses((status = 200, body = CalibrationList), (status = 400, body = ErrorBody)))]
+async fn list_calibrations(
+    State(state): State<AppState>,
+    query: Result<Query<ListQuery>, QueryRejection>,
+) -> Result<Json<CalibrationList>, ApiError> {
+    let Query(query) = query?;
+    let text = query
+        .q
+        .map(|q| q.trim().to_string())
+        .filter(|q| !q.is_empty());
+    if let Some(q) = &text {
+        check_text("q", q, 200, false)?;
+    }
+    let filter = ListFilter {
+        text,
+        include_archived: query.include_archived,
+    };
+    let rows = store::list(&state.storage, &filter).await?;
+    Ok(Json(CalibrationList {
+        calibrations: rows.into_iter().map(Into::into).collect(),
+    }))
+}
+
+/// One calibration with its table.
+#[utoipa::path(get, path = "/api/v1/calibrations/{id}", tag = "calibrations",
+    params(("id" = String, Path, description = "Calibration id")),
+    responses((status = 200, body = CalibrationDetail), (status = 404, body = ErrorBody)))]
+async fn get_calibration(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+) -> Result<Json<CalibrationDetail>, ApiError> {
+    let id: CalibrationId = path_id(&id)?;
+    let summary = store::get(&state.storage, id).await?.into();
+    let table = store::table(&state.storage, id).await?;
+    Ok(Json(CalibrationDetail { summary, table }))
+}
+
+/// A file name made of safe characters only.
+fn file_stem(name: &str) -> String {
+    let stem: String = name
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '-'
+            }
+        })
+        .take(60)
+        .collect();
+    let stem = stem.trim_matches('-');
+    if stem.is_empty() {
+        "calibration".into()
+    } else {
+        stem.to_string()
+    }
+}
+
+/// The table file exactly as in `calibration-sets/`, as a download.
+#[utoipa::path(get, path = "/api/v1/calibrations/{id}/export", tag = "calibrations",
+    params(("id" = String, Path, description = "Calibration id")),
+    responses((status = 200, description = "The calibration file", content_type = "application/json"),
+              (status = 404, body = ErrorBody)))]
+async fn export_calibration(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+) -> Result<Response, ApiError> {
+    let id: CalibrationId = path_id(&id)?;
+    let row = store::get(&state.storage, id).await?;
+    let json = store::table_json(&state.storage, id).await?;
+    let disposition = format!(
+        "attachment; filename=\"{}.json\"",
+        file_stem(&row.metadata.name)
+    );
+    Ok((
+        [
+            (header::CONTENT_TYPE, "application/json".to_string()),
+            (header::CONTENT_DISPOSITION, disposition),
+        ],
+        json,
+    )
+        .into_response())
+}
+
+fn optional_id(text: Option<&str>) -> Result<Option<CalibrationId>, ApiError> {
+    text.map(|t| {
+        t.parse().map_err(|e: CoreError| {
+            ApiError::unprocessable("invalid_input", format!("supersedes: {e}"))
+        })
+    })
+    .transpose()
+}
+
+/// Imports a calibration file (as exported or as in `calibration-sets/`). Importing the same
+/// table again returns the stored one with 200.
+#[utoipa::path(post, path = "/api/v1/calibrations/import", tag = "calibrations", params(ImportQuery),
+    request_body(content = Object, content_type = "application/json", description = "A calibration file"),
+    responses((status = 201, body = CalibrationSummary), (status = 200, body = CalibrationSummary),
+              (status = 404, body = ErrorBody), (status = 409, body = ErrorBody),
+              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody), (status = 422, body = ErrorBody)))]
+async fn import_calibration(
+    State(state): State<AppState>,
+    query: Result<Query<ImportQuery>, QueryRejection>,
+    headers: HeaderMap,
+    body: Result<Bytes, BytesRejection>,
+) -> Result<(StatusCode, Json<CalibrationSummary>), ApiError> {
+    let Query(query) = query?;
+    let supersedes = optional_id(query.supersedes.as_deref())?;
+    let content_type = headers
+        .get(header::CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .unwrap_or("");
+    if !content_type.starts_with("application/json") {
+        return Err(ApiError::UnsupportedMediaType(format!(
+            "a calibration file is sent as application/json, not {:?}",
+            crate::domain::shorten(content_type, 60)
+        )));
+    }
+    let table = CalibrationTable::from_json(&body?)?;
+    check_metadata(&table.metadata)?;
+    let inserted = store::insert(&state.storage, &table, supersedes, None).await?;
+    let status = if inserted.created {
+        StatusCode::CREATED
+    } else {
+        StatusCode::OK
+    };
+    Ok((status, Json(inserted.row.into())))
+}
+
+/// Measures a calibration table on a beam photo. With `dry_run` the report and table are
+/// returned and nothing is stored.
+#[utoipa::path(post, path = "/api/v1/calibrations", tag = "calibrations",
+    request_body(content = BeamForm, content_type = "multipart/form-data"),
+    responses((status = 201, body = CreatedCalibration), (status = 200, body = DryRunCalibration),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
+              (status = 409, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 415, body = ErrorBody), (status = 422, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
+async fn create_calibration(
+    State(state): State<AppState>,
+    multipart: Result<Multipart, MultipartRejection>,
+) -> Result<Response, ApiError> {
+    let admission = state.jobs.admit()?;
+    let mut form = Form::read(multipart, &["photo", "spec"]).await?;
+    let request: BeamRequest = parse_json("spec", &form.require("spec")?)?;
+    let (supersedes, dry_run) = (request.supersedes, request.dry_run);
+    let spec = request.into_spec()?;
+    let photo = form.require("photo")?;
+    if let Some(old) = supersedes {
+        store::get(&state.storage, old).await?;
+    }
+    let limits = state.config.decode_limits;
+    let calibration = admission
+        .run(move || pipeline::calibrate(&photo, &spec, &limits))
+        .await??;
+    if dry_run {
+        let body = DryRunCalibration {
+            report: calibration.report,
+            table: calibration.table,
+        };
+        return Ok((StatusCode::OK, Json(body)).into_response());
+    }
+    let inserted = store::insert(&state.storage, &calibration.table, supersedes, None).await?;
+    tracing::info!(id = %inserted.row.id, "calibration stored");
+    let body = CreatedCalibration {
+        summary: inserted.row.into(),
+        report: calibration.report,
+    };
+    Ok((StatusCode::CREATED, Json(body)).into_response())
+}
+
+/// Hides a calibration from lists (it stays readable and usable by id).
+#[utoipa::path(post, path = "/api/v1/calibrations/{id}/archive", tag = "calibrations",
+    params(("id" = String, Path, description = "Calibration id")),
+    responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody)))]
+async fn archive_calibration(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+) -> Result<Json<CalibrationSummary>, ApiError> {
+    let row = store::set_archived(&state.storage, path_id(&id)?, true).await?;
+    Ok(Json(row.into()))
+}
+
+/// Shows an archived calibration in lists again.
+#[utoipa::path(post, path = "/api/v1/calibrations/{id}/restore", tag = "calibrations",
+    params(("id" = String, Path, description = "Calibration id")),
+    responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody)))]
+async fn restore_calibration(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+) -> Result<Json<CalibrationSummary>, ApiError> {
+    let row = store::set_archived(&state.storage, path_id(&id)?, false).await?;
+    Ok(Json(row.into()))
+}

@@ -1,0 +1,250 @@
+//! The API's one error type. Every client mistake answers 4xx with
+//! `{"error": {"code": "...", "message": "..."}}` naming the problem; internal failures answer
+//! an opaque 500 and are logged.
+
+use std::time::Duration;
+
+use axum::extract::multipart::MultipartError;
+use axum::extract::multipart::MultipartRejection;
+use axum::extract::rejection::{BytesRejection, QueryRejection};
+use axum::extract::{Request, State};
+use axum::http::{header, HeaderValue, Method, StatusCode, Uri};
+use axum::middleware::Next;
+use axum::response::{IntoResponse, Response};
+use axum::Json;
+use isotint_core::CoreError;
+use serde::Serialize;
+use utoipa::ToSchema;
+
+use crate::storage::StorageError;
+
+/// An API failure; converts into the JSON error response.
+#[derive(Debug)]
+pub enum ApiError {
+    /// 400: the request is malformed (missing field, bad JSON, bad query).
+    BadRequest {
+        /// Stable machine-readable code.
+        code: &'static str,
+        /// What is wrong, naming the field.
+        message: String,
+    },
+    /// 404: no such resource or route.
+    NotFound(String),
+    /// 405: the route exists but not with this method.
+    MethodNotAllowed(String),
+    /// 409: the request contradicts stored state.
+    Conflict(String),
+    /// 410: the resource existed but has expired.
+    Gone(String),
+    /// 413: the body or an image is too large.
+    TooLarge(String),
+    /// 415: wrong content type.
+    UnsupportedMediaType(String),
+    /// 422: well-formed but invalid values.
+    Unprocessable {
+        /// Stable machine-readable code.
+        code: &'static str,
+        /// What is wrong, naming the field.
+        message: String,
+    },
+    /// 503: all job slots and queue places are taken; retry after the given seconds.
+    Busy {
+        /// Seconds to wait before retrying.
+        retry_after_s: u64,
+    },
+    /// 503: the database does not answer.
+    Unavailable(String),
+    /// 504: the request took longer than the time limit.
+    TimedOut(Duration),
+    /// 500: a bug or an infrastructure failure; the detail is logged, not returned.
+    Internal(String),
+}
+
+/// JSON body of every error response.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct ErrorBody {
+    /// The error.
+    pub error: ErrorDetail,
+}
+
+/// Code and message of an error response.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct ErrorDetail {
+    /// Stable machine-readable code, e.g. `missing_field`, `image_too_large`.
+    pub code: String,
+    /// Human-readable explanation naming the offending input.
+    pub message: String,
+}
+
+impl ApiError {
+    /// 400 with a code and message.
+    pub fn bad_request(code: &'static str, message: impl Into<String>) -> Self {
+        ApiError::BadRequest {
+            code,
+            message: message.into(),
+        }
+    }
+
+    /// 422 with a code and message.
+    pub fn unprocessable(code: &'static str, message: impl Into<String>) -> Self {
+        ApiError::Unprocessable {
+            code,
+            message: message.into(),
+        }
+    }
+
+    fn parts(&self) -> (StatusCode, &'static str, String) {
+        match self {
+            ApiError::BadRequest { code, message } => {
+                (StatusCode::BAD_REQUEST, code, message.clone())
+            }
+            ApiError::NotFound(m) => (StatusCode::NOT_FOUND, "not_found", m.clone()),
+            ApiError::MethodNotAllowed(m) => (
+                StatusCode::METHOD_NOT_ALLOWED,
+                "method_not_allowed",
+                m.clone(),
+            ),
+            ApiError::Conflict(m) => (StatusCode::CONFLICT, "conflict", m.clone()),
+            ApiError::Gone(m) => (StatusCode::GONE, "expired", m.clone()),
+            ApiError::TooLarge(m) => (StatusCode::PAYLOAD_TOO_LARGE, "too_large", m.clone()),
+            ApiError::UnsupportedMediaType(m) => (
+                StatusCode::UNSUPPORTED_MEDIA_TYPE,
+                "unsupported_media_type",
+                m.clone(),
+            ),
+            ApiError::Unprocessable { code, message } => {
+                (StatusCode::UNPROCESSABLE_ENTITY, code, message.clone())
+            }
+            ApiError::Busy { retry_after_s } => (
+                StatusCode::SERVICE_UNAVAILABLE,
+                "busy",
+                format!("all job slots are taken; retry in {retry_after_s} s"),
+            ),
+            ApiError::Unavailable(m) => (StatusCode::SERVICE_UNAVAILABLE, "unavailable", m.clone()),
+            ApiError::TimedOut(limit) => (
+                StatusCode::GATEWAY_TIMEOUT,
+                "timeout",
+                format!(
+                    "the request took longer than the limit of {}",
+                    humantime::format_duration(*limit)
+                ),
+            ),
+            ApiError::Internal(_) => (
+                StatusCode::INTERNAL_SERVER_ERROR,
+                "internal",
+                "internal error; it has been logged".to_string(),
+            ),
+        }
+    }
+}
+
+impl IntoResponse for ApiError {
+    fn into_response(self) -> Response {
+        if let ApiError::Internal(detail) = &self {
+            tracing::error!(error = %detail, "internal error");
+        }
+        let (status, code, message) = self.parts();
+        let body = ErrorBody {
+            error: ErrorDetail {
+                code: code.to_string(),
+                message,
+            },
+        };
+        let mut response = (status, Json(body)).into_response();
+        if let ApiError::Busy { retry_after_s } = self {
+            response
+                .headers_mut()
+                .insert(header::RETRY_AFTER, HeaderValue::from(retry_after_s));
+        }
+        response
+    }
+}
+
+impl From<CoreError> for ApiError {
+    fn from(e: CoreError) -> Self {
+        let message = e.to_string();
+        match e {
+            CoreError::Decode(_) => ApiError::unprocessable("undecodable_image", message),
+            CoreError::TooLarge(_) => ApiError::TooLarge(message),
+            CoreError::Invalid { .. } => ApiError::unprocessable("invalid_input", message),
+            CoreError::Table(_) => ApiError::unprocessable("invalid_calibration", message),
+            CoreError::Encode(_) => ApiError::Internal(message),
+        }
+    }
+}
+
+impl From<StorageError> for ApiError {
+    fn from(e: StorageError) -> Self {
+        match e {
+            StorageError::NotFound { .. } => ApiError::NotFound(e.to_string()),
+            StorageError::Conflict(m) => ApiError::Conflict(m),
+            other => ApiError::Internal(other.to_string()),
+        }
+    }
+}
+
+impl From<MultipartRejection> for ApiError {
+    fn from(e: MultipartRejection) -> Self {
+        ApiError::UnsupportedMediaType(format!(
+            "expected a multipart/form-data body: {}",
+            e.body_text()
+        ))
+    }
+}
+
+impl From<MultipartError> for ApiError {
+    fn from(e: MultipartError) -> Self {
+        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+            ApiError::TooLarge("the request body exceeds the upload limit".into())
+        } else {
+            ApiError::bad_request(
+                "malformed_multipart",
+                format!("malformed multipart body: {}", e.body_text()),
+            )
+        }
+    }
+}
+
+impl From<BytesRejection> for ApiError {
+    fn from(e: BytesRejection) -> Self {
+        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+            ApiError::TooLarge("the request body exceeds the upload limit".into())
+        } else {
+            ApiError::bad_request("unreadable_body", e.body_text())
+        }
+    }
+}
+
+impl From<QueryRejection> for ApiError {
+    fn from(e: QueryRejection) -> Self {
+        ApiError::bad_request("invalid_query", e.body_text())
+    }
+}
+
+/// Fallback for unknown routes: 404 JSON naming the path.
+pub async fn no_route(method: Method, uri: Uri) -> ApiError {
+    ApiError::NotFound(format!("no route for {method} {}", uri.path()))
+}
+
+/// Fallback for known routes asked with the wrong method: 405 JSON.
+pub async fn wrong_method(method: Method, uri: Uri) -> ApiError {
+    ApiError::MethodNotAllowed(format!("{method} is not allowed on {}", uri.path()))
+}
+
+/// Middleware: answers 504 JSON when the rest of the stack takes longer than `limit`.
+pub async fn time_limit(State(limit): State<Duration>, request: Request, next: Next) -> Response {
+    match tokio::time::timeout(limit, next.run(request)).await {
+        Ok(response) => response,
+        Err(_) => ApiError::TimedOut(limit).into_response(),
+    }
+}
+
+/// Response for a handler that panicked: opaque 500 JSON (the panic is logged).
+pub fn panic_response(panic: Box<dyn std::any::Any + Send + 'static>) -> Response {
+    let detail = panic
+        .downcast_ref::<String>()
+        .cloned()
+        .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
+        .unwrap_or_else(|| "unknown panic".into());
+    ApiError::Internal(format!("handler panicked: {detail}")).into_response()
+}

@@ -1,0 +1,94 @@
+//! Reading multipart forms and JSON parts into memory, with errors that name the field.
+
+use axum::body::Bytes;
+use axum::extract::multipart::MultipartRejection;
+use axum::extract::Multipart;
+use serde::de::DeserializeOwned;
+
+use super::error::ApiError;
+use crate::domain::shorten;
+
+/// The parts of a multipart form, by name.
+#[derive(Debug)]
+pub struct Form {
+    parts: Vec<(String, Bytes)>,
+    expected: &'static [&'static str],
+}
+
+impl Form {
+    /// Reads every part of `multipart`. Parts not in `expected` and repeated parts are refused.
+    pub async fn read(
+        multipart: Result<Multipart, MultipartRejection>,
+        expected: &'static [&'static str],
+    ) -> Result<Form, ApiError> {
+        let mut multipart = multipart?;
+        let mut parts: Vec<(String, Bytes)> = Vec::new();
+        while let Some(field) = multipart.next_field().await? {
+            let name = field.name().unwrap_or_default().to_string();
+            if !expected.contains(&name.as_str()) {
+                return Err(ApiError::bad_request(
+                    "unknown_field",
+                    format!(
+                        "unknown multipart field {:?}; expected {}",
+                        shorten(&name, 40),
+                        expected.join(", ")
+                    ),
+                ));
+            }
+            if parts.iter().any(|(n, _)| *n == name) {
+                return Err(ApiError::bad_request(
+                    "repeated_field",
+                    format!("multipart field {name:?} appears more than once"),
+                ));
+            }
+            let bytes = field.bytes().await?;
+            parts.push((name, bytes));
+        }
+        Ok(Form { parts, expected })
+    }
+
+    /// Removes and returns the part `name`, if present.
+    pub fn take(&mut self, name: &str) -> Option<Bytes> {
+        let i = self.parts.iter().position(|(n, _)| n == name)?;
+        Some(self.parts.swap_remove(i).1)
+    }
+
+    /// Removes and returns the part `name`; 400 naming it if missing.
+    pub fn require(&mut self, name: &'static str) -> Result<Bytes, ApiError> {
+        self.take(name).ok_or_else(|| {
+            ApiError::bad_request(
+                "missing_field",
+                format!(
+                    "multipart field {name:?} is missing (fields: {})",
+                    self.expected.join(", ")
+                ),
+            )
+        })
+    }
+
+    /// Removes the part `name` and parses it as UTF-8 text; 400 if it is not.
+    pub fn text(&mut self, name: &'static str) -> Result<Option<String>, ApiError> {
+        self.take(name)
+            .map(|b| {
+                String::from_utf8(b.to_vec()).map_err(|_| {
+                    ApiError::bad_request(
+                        "invalid_text",
+                        format!("field {name:?} is not UTF-8 text"),
+                    )
+                })
+            })
+            .transpose()
+    }
+}
+
+/// Parses `bytes` as the JSON of `what`: syntax errors answer 400, values of the wrong shape
+/// (missing or unknown fields, wrong types) 422; both name the problem.
+pub fn parse_json<T: DeserializeOwned>(what: &str, bytes: &[u8]) -> Result<T, ApiError> {
+    serde_json::from_slice(bytes).map_err(|e| {
+        let message = format!("{what}: {e}");
+        match e.classify() {
+            serde_json::error::Category::Data => ApiError::unprocessable("invalid_json", message),
+            _ => ApiError::bad_request("malformed_json", message),
+        }
+    })
+}

@@ -1,0 +1,75 @@
+//! The HTTP layer (axum 0.8): one [`AppState`], one error type ([`error::ApiError`]), one
+//! `router()` per resource module, merged in [`app`].
+
+pub mod calibrations;
+pub mod error;
+pub mod form;
+pub mod health;
+pub mod jobs;
+pub mod openapi;
+pub mod order_maps;
+pub mod web;
+
+use std::sync::Arc;
+
+use axum::extract::DefaultBodyLimit;
+use axum::Router;
+use tower_http::catch_panic::CatchPanicLayer;
+use tower_http::trace::TraceLayer;
+use utoipa::OpenApi;
+use utoipa_axum::router::OpenApiRouter;
+
+use crate::config::ServiceConfig;
+use crate::storage::Storage;
+
+/// Shared state of every handler.
+#[derive(Debug, Clone)]
+pub struct AppState {
+    /// Database access.
+    pub storage: Storage,
+    /// Limits and policies.
+    pub config: Arc<ServiceConfig>,
+    /// Admission control of pixel jobs.
+    pub jobs: jobs::JobGate,
+}
+
+impl AppState {
+    /// State for `storage` under `config`.
+    pub fn new(storage: Storage, config: ServiceConfig) -> Self {
+        let jobs = jobs::JobGate::new(config.max_jobs, config.job_queue);
+        AppState {
+            storage,
+            config: Arc::new(config),
+            jobs,
+        }
+    }
+}
+
+/// The API routes with their OpenAPI description.
+fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
+    OpenApiRouter::with_openapi(openapi::ApiDoc::openapi())
+        .merge(health::router())
+        .merge(calibrations::router())
+        .merge(order_maps::router())
+        .split_for_parts()
+}
+
+/// The whole service: API, OpenAPI document and browser workbench, with body limit, time
+/// limit, panic guard, JSON fallbacks and request tracing.
+pub fn app(state: AppState) -> Router {
+    let (api, doc) = api();
+    let upload_limit = state.config.upload_limit_bytes;
+    let time_limit = state.config.request_timeout;
+    api.merge(openapi::router(doc))
+        .merge(web::router())
+        .fallback(error::no_route)
+        .method_not_allowed_fallback(error::wrong_method)
+        .layer(DefaultBodyLimit::max(upload_limit))
+        .layer(axum::middleware::from_fn_with_state(
+            time_limit,
+            error::time_limit,
+        ))
+        .layer(CatchPanicLayer::custom(error::panic_response))
+        .layer(TraceLayer::new_for_http())
+        .with_state(state)
+}

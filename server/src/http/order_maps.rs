@@ -1,0 +1,307 @@
+//! `/api/v1/order-maps`: map a specimen photo with a stored calibration; fetch stored results
+//! as JSON or as files (npy, png16, preview, csv, flags) until they expire.
+
+use axum::extract::multipart::MultipartRejection;
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Multipart, Path, Query, State};
+use axum::http::{header, StatusCode};
+use axum::response::{IntoResponse, Response};
+use axum::Json;
+use isotint_core::export::{self, OutputFormat};
+use isotint_core::exposure::ExposureCorrection;
+use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap};
+use serde::{Deserialize, Serialize};
+use time::OffsetDateTime;
+use utoipa::{IntoParams, ToSchema};
+use utoipa_axum::router::OpenApiRouter;
+use utoipa_axum::routes;
+
+use super::calibrations::path_id;
+use super::error::{ApiError, ErrorBody};
+use super::form::{parse_json, Form};
+use super::AppState;
+use crate::domain::{rfc3339, CalibrationId, OrderMapId};
+use crate::pipeline;
+use crate::storage::order_maps::{self as store, OrderMapRow};
+
+/// Routes of this module.
+pub fn router() -> OpenApiRouter<AppState> {
+    OpenApiRouter::new()
+        .routes(routes!(create_order_map))
+        .routes(routes!(get_order_map))
+        .routes(routes!(get_order_map_file))
+}
+
+/// Query of `POST /api/v1/order-maps`.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct CreateQuery {
+    /// `npy`, `png16`, `preview` or `csv`: answer with that file instead of storing the map.
+    pub format: Option<String>,
+}
+
+/// Multipart body of `POST /api/v1/order-maps`.
+#[derive(ToSchema)]
+pub struct MapForm {
+    /// Specimen photo (PNG, JPEG or TIFF).
+    #[schema(value_type = String, format = Binary)]
+    pub photo: Vec<u8>,
+    /// Calibration id.
+    #[schema(value_type = String, format = Uuid)]
+    pub calibration: String,
+    /// Optional mask PNG, same size as the photo; non-zero = specimen.
+    #[schema(value_type = Option<String>, format = Binary)]
+    pub mask: Option<Vec<u8>>,
+    /// Optional JSON: `hints` [{x, y, order}], `exposure_compensation`, `max_order`,
+    /// `max_gradient`.
+    #[schema(value_type = Option<Object>)]
+    pub options: Option<MapOptions>,
+}
+
+/// Where to fetch a stored map's files.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct OrderMapLinks {
+    /// This resource.
+    #[serde(rename = "self")]
+    pub self_link: String,
+    /// Orders, NPY float32 (height, width), NaN = no value.
+    pub npy: String,
+    /// Orders, 16-bit PNG, grey = round(N × 1000), 65535 = no value.
+    pub png16: String,
+    /// False-colour preview PNG.
+    pub preview: String,
+    /// CSV `x,y,order,residual,flags`.
+    pub csv: String,
+    /// Per-pixel flag bits, NPY uint8.
+    pub flags: String,
+}
+
+/// A stored order map.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct OrderMapResource {
+    /// Order-map id (UUID).
+    #[schema(value_type = String, format = Uuid)]
+    pub id: OrderMapId,
+    /// Width, pixels.
+    pub width: u32,
+    /// Height, pixels.
+    pub height: u32,
+    /// Calibration used.
+    #[schema(value_type = String, format = Uuid)]
+    pub calibration_id: CalibrationId,
+    /// Summary figures (NaN figures are null).
+    #[schema(value_type = Object)]
+    pub statistics: serde_json::Value,
+    /// Exposure correction applied.
+    #[schema(value_type = Object)]
+    pub exposure: ExposureCorrection,
+    /// When it was made, RFC 3339.
+    pub created_at: String,
+    /// When it stops being served, RFC 3339.
+    pub expires_at: String,
+    /// Files of this map.
+    pub links: OrderMapLinks,
+}
+
+impl From<OrderMapRow> for OrderMapResource {
+    fn from(r: OrderMapRow) -> Self {
+        let base = format!("/api/v1/order-maps/{}", r.id);
+        let link = |kind: &str| format!("{base}/{kind}");
+        OrderMapResource {
+            links: OrderMapLinks {
+                npy: link("npy"),
+                png16: link("png16"),
+                preview: link("preview"),
+                csv: link("csv"),
+                flags: link("flags"),
+                self_link: base.clone(),
+            },
+            id: r.id,
+            width: r.width,
+            height: r.height,
+            calibration_id: r.calibration_id,
+            statistics: r.statistics,
+            exposure: r.exposure,
+            created_at: rfc3339(r.created_at),
+            expires_at: rfc3339(r.expires_at),
+        }
+    }
+}
+
+/// A downloadable representation of a map.
+#[derive(Debug, Clone, Copy)]
+enum Representation {
+    Orders(OutputFormat),
+    Flags,
+}
+
+impl Representation {
+    fn parse(name: &str) -> Result<Self, ApiError> {
+        if name == "flags" {
+            return Ok(Representation::Flags);
+        }
+        OutputFormat::from_name(name)
+            .map(Representation::Orders)
+            .map_err(|_| {
+                ApiError::NotFound(format!(
+                    "{:?} is not a file of an order map; use npy, png16, preview, csv or flags",
+                    crate::domain::shorten(name, 40)
+                ))
+            })
+    }
+
+    fn encode(self, map: &OrderMap) -> CoreResult<Vec<u8>> {
+        match self {
+            Representation::Orders(format) => export::encode(map, format),
+            Representation::Flags => {
+                let bits: Vec<u8> = map.flags.iter().map(|f| f.0).collect();
+                Ok(export::npy_u8(
+                    &bits,
+                    map.height as usize,
+                    map.width as usize,
+                ))
+            }
+        }
+    }
+
+    fn content_type(self) -> &'static str {
+        match self {
+            Representation::Orders(format) => format.content_type(),
+            Representation::Flags => OutputFormat::Npy.content_type(),
+        }
+    }
+
+    fn file_name(self, stem: &str) -> String {
+        match self {
+            Representation::Orders(format) => format!("{stem}.{}", format.extension()),
+            Representation::Flags => format!("{stem}-flags.npy"),
+        }
+    }
+}
+
+fn file_response(representation: Representation, stem: &str, bytes: Vec<u8>) -> Response {
+    let disposition = format!(
+        "attachment; filename=\"{}\"",
+        representation.file_name(stem)
+    );
+    (
+        [
+            (
+                header::CONTENT_TYPE,
+                representation.content_type().to_string(),
+            ),
+            (header::CONTENT_DISPOSITION, disposition),
+        ],
+        bytes,
+    )
+        .into_response()
+}
+
+fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
+    if row.expires_at <= OffsetDateTime::now_utc() {
+        return Err(ApiError::Gone(format!(
+            "order map {} expired at {}; map the photo again",
+            row.id,
+            rfc3339(row.expires_at)
+        )));
+    }
+    Ok(())
+}
+
+/// Maps a specimen photo's fringe orders with a stored calibration. With `?format=` the
+/// response is that file and nothing is stored; otherwise the map is stored for the retention
+/// time and described as JSON.
+#[utoipa::path(post, path = "/api/v1/order-maps", tag = "order-maps", params(CreateQuery),
+    request_body(content = MapForm, content_type = "multipart/form-data"),
+    responses((status = 201, body = OrderMapResource),
+              (status = 200, description = "The map as the requested file",
+               content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
+              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody),
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody),
+              (status = 504, body = ErrorBody)))]
+async fn create_order_map(
+    State(state): State<AppState>,
+    query: Result<Query<CreateQuery>, QueryRejection>,
+    multipart: Result<Multipart, MultipartRejection>,
+) -> Result<Response, ApiError> {
+    let Query(query) = query?;
+    let format = query
+        .format
+        .as_deref()
+        .map(|f| OutputFormat::from_name(f).map(Representation::Orders))
+        .transpose()?;
+    let admission = state.jobs.admit()?;
+    let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
+    let calibration_text = form.require("calibration")?;
+    let calibration_id: CalibrationId = std::str::from_utf8(&calibration_text)
+        .map_err(|_| CoreError::invalid("calibration", "is not UTF-8 text"))?
+        .parse()?;
+    let options: MapOptions = match form.take("options") {
+        Some(bytes) => parse_json("options", &bytes)?,
+        None => MapOptions::default(),
+    };
+    let photo = form.require("photo")?;
+    let mask = form.take("mask");
+    let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
+    let limits = state.config.decode_limits;
+    let (map, file) = admission
+        .run(move || -> CoreResult<(OrderMap, Option<Vec<u8>>)> {
+            let map = pipeline::map(&photo, mask.as_deref(), &table, &options, &limits)?;
+            let file = format.map(|f| f.encode(&map)).transpose()?;
+            Ok((map, file))
+        })
+        .await??;
+    if let (Some(representation), Some(bytes)) = (format, file) {
+        return Ok(file_response(representation, "order-map", bytes));
+    }
+    let row = store::insert(&state.storage, calibration_id, &map, state.config.retention).await?;
+    let location = format!("/api/v1/order-maps/{}", row.id);
+    Ok((
+        StatusCode::CREATED,
+        [(header::LOCATION, location)],
+        Json(OrderMapResource::from(row)),
+    )
+        .into_response())
+}
+
+/// A stored order map's description and links.
+#[utoipa::path(get, path = "/api/v1/order-maps/{id}", tag = "order-maps",
+    params(("id" = String, Path, description = "Order-map id")),
+    responses((status = 200, body = OrderMapResource), (status = 404, body = ErrorBody),
+              (status = 410, body = ErrorBody)))]
+async fn get_order_map(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+) -> Result<Json<OrderMapResource>, ApiError> {
+    let row = store::get(&state.storage, path_id(&id)?).await?;
+    refuse_expired(&row)?;
+    Ok(Json(row.into()))
+}
+
+/// A stored order map as a file: `npy`, `png16`, `preview`, `csv` or `flags` (NPY uint8 of
+/// the flag bits: 1 outside mask, 2 beyond range, 4 unreliable).
+#[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
+    params(("id" = String, Path, description = "Order-map id"),
+           ("file" = String, Path, description = "npy, png16, preview, csv or flags")),
+    responses((status = 200, description = "The file",
+               content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
+              (status = 404, body = ErrorBody), (status = 410, body = ErrorBody)))]
+async fn get_order_map_file(
+    State(state): State<AppState>,
+    Path((id, file)): Path<(String, String)>,
+) -> Result<Response, ApiError> {
+    let id: OrderMapId = path_id(&id)?;
+    let representation = Representation::parse(&file)?;
+    let row = store::get(&state.storage, id).await?;
+    refuse_expired(&row)?;
+    let (_, map) = store::load(&state.storage, id).await?;
+    let bytes = tokio::task::spawn_blocking(move || representation.encode(&map))
+        .await
+        .map_err(|e| ApiError::Internal(format!("encoding failed: {e}")))??;
+    Ok(file_response(
+        representation,
+        &format!("order-map-{id}"),
+        bytes,
+    ))
+}

@@ -1,0 +1,29 @@
+//! The pixel work shared by the CLI and the HTTP service: decode, calibrate, map. Every
+//! function here is synchronous and CPU-bound; the service calls them inside
+//! `tokio::task::spawn_blocking`.
+
+use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
+use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
+
+/// Decodes a beam photo and builds a calibration table from it.
+pub fn calibrate(
+    photo: &[u8],
+    spec: &BeamSpec,
+    limits: &DecodeLimits,
+) -> CoreResult<BeamCalibration> {
+    let photo = Photo::decode(photo, limits)?;
+    calibrate_beam(&photo, spec)
+}
+
+/// Decodes a specimen photo (and mask, if any) and maps its fringe orders with `table`.
+pub fn map(
+    photo: &[u8],
+    mask: Option<&[u8]>,
+    table: &CalibrationTable,
+    options: &MapOptions,
+    limits: &DecodeLimits,
+) -> CoreResult<OrderMap> {
+    let photo = Photo::decode(photo, limits)?;
+    let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
+    isotint_core::map_orders(&photo, table, mask.as_ref(), options)
+}

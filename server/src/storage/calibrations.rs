@@ -1,0 +1,354 @@
+//! Calibrations: immutable rows. A correction is a new row whose `supersedes` names the old
+//! one; archiving hides a row from lists but never deletes it. Rows are unique by the SHA-256
+//! of their table file, so importing the same table twice stores it once.
+
+use isotint_core::{CalibrationMetadata, CalibrationTable, TableSource};
+use sha2::{Digest, Sha256};
+use sqlx::any::AnyRow;
+use sqlx::{Any, Executor, Row};
+use time::OffsetDateTime;
+
+use super::{is_unique_violation, json_column, Storage, StorageError, StorageResult};
+use crate::domain::{from_unix_ms, unix_ms, CalibrationId};
+
+/// What the service knows about a calibration apart from its table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CalibrationRow {
+    /// Its id.
+    pub id: CalibrationId,
+    /// Descriptive metadata (from the table).
+    pub metadata: CalibrationMetadata,
+    /// `beam_photo` or `rendered`.
+    pub source_kind: String,
+    /// Order spacing of the table, fringes.
+    pub order_step: f64,
+    /// Largest order of the table, fringes.
+    pub max_order: f64,
+    /// Mean CIEDE2000 residual of a beam calibration.
+    pub residual_de2000: Option<f64>,
+    /// When the table was made.
+    pub created_at: OffsetDateTime,
+    /// The calibration this one corrects.
+    pub supersedes: Option<CalibrationId>,
+    /// The calibration that corrects this one.
+    pub superseded_by: Option<CalibrationId>,
+    /// Hidden from lists.
+    pub archived: bool,
+}
+
+/// A file of the calibration-sets directory being imported.
+#[derive(Debug, Clone)]
+pub struct ImportedFile<'a> {
+    /// File name, for the record.
+    pub name: &'a str,
+    /// SHA-256 (hex) of the file's bytes.
+    pub sha256: &'a str,
+}
+
+/// Result of [`insert`].
+#[derive(Debug, Clone)]
+pub struct Inserted {
+    /// The stored row (the existing one if the same table was stored before).
+    pub row: CalibrationRow,
+    /// Whether a new row was written.
+    pub created: bool,
+}
+
+/// Filter of [`list`].
+#[derive(Debug, Clone, Default)]
+pub struct ListFilter {
+    /// Case-insensitive text matched against name, material, light source and camera.
+    pub text: Option<String>,
+    /// Include archived calibrations.
+    pub include_archived: bool,
+}
+
+/// Largest number of rows [`list`] returns.
+pub const LIST_LIMIT: i64 = 500;
+
+const SUMMARY_COLUMNS: &str = "c.id, c.metadata_json, c.source_kind, c.order_step, \
+     c.max_order, c.residual_de2000, c.created_at_ms, c.supersedes, c.archived, \
+     (SELECT s.id FROM calibrations s WHERE s.supersedes = c.id) AS superseded_by";
+
+/// SHA-256 (hex) of some bytes.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    hex::encode(Sha256::digest(bytes))
+}
+
+fn source_kind(source: &TableSource) -> &'static str {
+    match source {
+        TableSource::BeamPhoto { .. } => "beam_photo",
+        TableSource::Rendered { .. } => "rendered",
+    }
+}
+
+fn parse_id(row: &AnyRow, column: &str) -> StorageResult<Option<CalibrationId>> {
+    let text: Option<String> = row.try_get(column)?;
+    text.map(|t| {
+        t.parse()
+            .map_err(|e| StorageError::Corrupt(format!("{column}: {e}")))
+    })
+    .transpose()
+}
+
+fn summary_from_row(row: &AnyRow) -> StorageResult<CalibrationRow> {
+    Ok(CalibrationRow {
+        id: parse_id(row, "id")?.ok_or_else(|| StorageError::Corrupt("id is null".into()))?,
+        metadata: json_column(row, "metadata_json")?,
+        source_kind: row.try_get("source_kind")?,
+        order_step: row.try_get("order_step")?,
+        max_order: row.try_get("max_order")?,
+        residual_de2000: row.try_get("residual_de2000")?,
+        created_at: from_unix_ms(row.try_get("created_at_ms")?),
+        supersedes: parse_id(row, "supersedes")?,
+        superseded_by: parse_id(row, "superseded_by")?,
+        archived: row.try_get::<i64, _>("archived")? != 0,
+    })
+}
+
+fn not_found(id: CalibrationId) -> StorageError {
+    StorageError::NotFound {
+        what: "calibration",
+        id: id.to_string(),
+    }
+}
+
+async fn fetch_row<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    id: CalibrationId,
+) -> StorageResult<CalibrationRow> {
+    let sql = format!("SELECT {SUMMARY_COLUMNS} FROM calibrations c WHERE c.id = $1");
+    let row = sqlx::query(&sql)
+        .bind(id.to_string())
+        .fetch_optional(executor)
+        .await?
+        .ok_or_else(|| not_found(id))?;
+    summary_from_row(&row)
+}
+
+async fn successor_of<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    id: CalibrationId,
+) -> StorageResult<Option<String>> {
+    Ok(
+        sqlx::query_scalar("SELECT id FROM calibrations WHERE supersedes = $1")
+            .bind(id.to_string())
+            .fetch_optional(executor)
+            .await?,
+    )
+}
+
+async fn insert_row<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    id: CalibrationId,
+    table: &CalibrationTable,
+    table_json: &str,
+    content_sha256: &str,
+    supersedes: Option<CalibrationId>,
+) -> StorageResult<bool> {
+    let residual = match &table.source {
+        TableSource::BeamPhoto {
+            residual_de2000, ..
+        } => Some(*residual_de2000),
+        TableSource::Rendered { .. } => None,
+    };
+    let metadata_json = serde_json::to_string(&table.metadata)
+        .map_err(|e| StorageError::Corrupt(format!("metadata: {e}")))?;
+    let result = sqlx::query(
+        "INSERT INTO calibrations (id, name, material, light_source, camera, metadata_json, \
+         table_json, source_kind, order_step, max_order, residual_de2000, created_at_ms, \
+         stored_at_ms, supersedes, archived, content_sha256) \
+         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, 0, $15) \
+         ON CONFLICT (content_sha256) DO NOTHING",
+    )
+    .bind(id.to_string())
+    .bind(&table.metadata.name)
+    .bind(&table.metadata.material)
+    .bind(&table.metadata.light_source)
+    .bind(&table.metadata.camera)
+    .bind(metadata_json)
+    .bind(table_json)
+    .bind(source_kind(&table.source))
+    .bind(table.order_step)
+    .bind(table.max_order())
+    .bind(residual)
+    .bind(unix_ms(table.created_at))
+    .bind(unix_ms(OffsetDateTime::now_utc()))
+    .bind(supersedes.map(|s| s.to_string()))
+    .bind(content_sha256)
+    .execute(executor)
+    .await?;
+    Ok(result.rows_affected() == 1)
+}
+
+async fn id_by_content<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    content_sha256: &str,
+) -> StorageResult<CalibrationId> {
+    let id: String = sqlx::query_scalar("SELECT id FROM calibrations WHERE content_sha256 = $1")
+        .bind(content_sha256)
+        .fetch_one(executor)
+        .await?;
+    id.parse()
+        .map_err(|e| StorageError::Corrupt(format!("id: {e}")))
+}
+
+async fn record_import<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    file: &ImportedFile<'_>,
+    id: CalibrationId,
+) -> StorageResult<()> {
+    sqlx::query(
+        "INSERT INTO calibration_imports (file_sha256, file_name, calibration_id, imported_at_ms) \
+         VALUES ($1, $2, $3, $4) ON CONFLICT (file_sha256) DO NOTHING",
+    )
+    .bind(file.sha256)
+    .bind(file.name)
+    .bind(id.to_string())
+    .bind(unix_ms(OffsetDateTime::now_utc()))
+    .execute(executor)
+    .await?;
+    Ok(())
+}
+
+/// Stores `table` (all or nothing, in one transaction). If the same table (same file content)
+/// is stored already, returns that row with `created: false`. `supersedes` must name an
+/// existing calibration that no other calibration corrects yet. `file` records an import from
+/// the calibration-sets directory in the same transaction.
+pub async fn insert(
+    storage: &Storage,
+    table: &CalibrationTable,
+    supersedes: Option<CalibrationId>,
+    file: Option<ImportedFile<'_>>,
+) -> StorageResult<Inserted> {
+    let table_json = table.to_json();
+    let content = sha256_hex(table_json.as_bytes());
+    let mut tx = storage.pool().begin().await?;
+    if let Some(old) = supersedes {
+        fetch_row(&mut *tx, old).await?;
+        if let Some(newer) = successor_of(&mut *tx, old).await? {
+            return Err(StorageError::Conflict(format!(
+                "calibration {old} is already superseded by {newer}"
+            )));
+        }
+    }
+    let id = CalibrationId::random();
+    let created = insert_row(&mut *tx, id, table, &table_json, &content, supersedes)
+        .await
+        .map_err(|e| match e {
+            StorageError::Database(ref db) if is_unique_violation(db) => StorageError::Conflict(
+                "the calibration named in supersedes was superseded meanwhile".into(),
+            ),
+            other => other,
+        })?;
+    let stored_id = if created {
+        id
+    } else {
+        id_by_content(&mut *tx, &content).await?
+    };
+    if let Some(file) = &file {
+        record_import(&mut *tx, file, stored_id).await?;
+    }
+    let row = fetch_row(&mut *tx, stored_id).await?;
+    tx.commit().await?;
+    Ok(Inserted { row, created })
+}
+
+/// The calibration imported from a file with this SHA-256, if that file was imported before.
+pub async fn imported_file(
+    storage: &Storage,
+    file_sha256: &str,
+) -> StorageResult<Option<CalibrationId>> {
+    let id: Option<String> =
+        sqlx::query_scalar("SELECT calibration_id FROM calibration_imports WHERE file_sha256 = $1")
+            .bind(file_sha256)
+            .fetch_optional(storage.pool())
+            .await?;
+    id.map(|t| {
+        t.parse()
+            .map_err(|e| StorageError::Corrupt(format!("calibration_id: {e}")))
+    })
+    .transpose()
+}
+
+/// One calibration's summary.
+pub async fn get(storage: &Storage, id: CalibrationId) -> StorageResult<CalibrationRow> {
+    fetch_row(storage.pool(), id).await
+}
+
+/// The stored table file, exactly as written (`CalibrationTable::to_json`).
+pub async fn table_json(storage: &Storage, id: CalibrationId) -> StorageResult<String> {
+    sqlx::query_scalar("SELECT table_json FROM calibrations WHERE id = $1")
+        .bind(id.to_string())
+        .fetch_optional(storage.pool())
+        .await?
+        .ok_or_else(|| not_found(id))
+}
+
+/// The stored table, parsed and validated.
+pub async fn table(storage: &Storage, id: CalibrationId) -> StorageResult<CalibrationTable> {
+    let json = table_json(storage, id).await?;
+    CalibrationTable::from_json(json.as_bytes())
+        .map_err(|e| StorageError::Corrupt(format!("calibration {id}: {e}")))
+}
+
+/// Escapes `%`, `_` and `\` so that `text` matches literally inside a LIKE pattern.
+fn like_pattern(text: &str) -> String {
+    let mut out = String::with_capacity(text.len() + 2);
+    out.push('%');
+    for c in text.to_lowercase().chars() {
+        if matches!(c, '%' | '_' | '\\') {
+            out.push('\\');
+        }
+        out.push(c);
+    }
+    out.push('%');
+    out
+}
+
+/// Calibrations matching `filter`, newest first, at most [`LIST_LIMIT`].
+pub async fn list(storage: &Storage, filter: &ListFilter) -> StorageResult<Vec<CalibrationRow>> {
+    let sql = format!(
+        "SELECT {SUMMARY_COLUMNS} FROM calibrations c \
+         WHERE (c.archived = 0 OR $1 = 1) \
+         AND ($2 = '' OR LOWER(c.name) LIKE $3 ESCAPE '\\' OR LOWER(c.material) LIKE $3 ESCAPE '\\' \
+              OR LOWER(c.light_source) LIKE $3 ESCAPE '\\' OR LOWER(c.camera) LIKE $3 ESCAPE '\\') \
+         ORDER BY c.created_at_ms DESC, c.id LIMIT $4"
+    );
+    let text = filter.text.clone().unwrap_or_default();
+    let rows = sqlx::query(&sql)
+        .bind(i64::from(filter.include_archived))
+        .bind(text.clone())
+        .bind(like_pattern(&text))
+        .bind(LIST_LIMIT)
+        .fetch_all(storage.pool())
+        .await?;
+    rows.iter().map(summary_from_row).collect()
+}
+
+/// Archives (`true`) or restores (`false`) a calibration; returns its new summary.
+pub async fn set_archived(
+    storage: &Storage,
+    id: CalibrationId,
+    archived: bool,
+) -> StorageResult<CalibrationRow> {
+    let result = sqlx::query("UPDATE calibrations SET archived = $1 WHERE id = $2")
+        .bind(i64::from(archived))
+        .bind(id.to_string())
+        .execute(storage.pool())
+        .await?;
+    if result.rows_affected() == 0 {
+        return Err(not_found(id));
+    }
+    get(storage, id).await
+}
+
+#[cfg(test)]
+mod tests {
+    use super::like_pattern;
+
+    #[test]
+    fn like_wildcards_in_search_text_match_literally() {
+        assert_eq!(like_pattern("A_b%"), "%a\\_b\\%%");
+    }
+}
