@@ -1,1 +1,63 @@
-//! Spectral renderer (helper builds this).
+//! Spectral renderer: what a camera sees of a loaded birefringent model in a white-light
+//! dark-field circular polariscope.
+//!
+//! The chain, per pixel sample: light source spectrum S(λ) → polariser → quarter-wave plate at
+//! +45° → specimen (retardation R, fast axis along the isoclinic) → quarter-wave plate at −45° →
+//! crossed analyser → camera sensitivities → 3×3 matrix to linear sRGB → white balance on the
+//! light source → exposure → sRGB transfer function. With ideal plates the transmitted
+//! intensity is I(λ) = S(λ) · sin²(πR/λ).
+//!
+//! Spectra are integrated at 1 nm over 380–780 nm ([`WAVELENGTHS_NM`]). Per-retardation colours
+//! are precomputed once per [`Renderer`] so rendering a photo is a table lookup per sample.
+//!
+//! Conventions: fringe order N and retardation R are related by R = N · [`REFERENCE_WAVELENGTH_NM`].
+//! Angles are radians from +x towards +y (down) in pixel coordinates; pixel (x, y) covers
+//! [x, x+1) × [y, y+1).
+
+pub mod calibrate;
+pub mod camera;
+pub mod demo;
+pub mod effects;
+pub mod fields;
+pub mod light;
+pub mod polariscope;
+mod renderer;
+pub mod scene;
+
+pub use calibrate::{
+    check_order_limit, load_preview, rendered_table, OrderLimitCheck, PreviewSwatch,
+};
+pub use camera::CameraModel;
+pub use effects::{develop, develop_srgb8, PhotoEffects, PhotoEncoding};
+pub use fields::{BendingBeamField, DiscField, FieldSample, HoleField, OrderField};
+pub use light::LightSource;
+pub use polariscope::QuarterWavePlates;
+pub use renderer::{RenderSetup, Renderer, MAX_RENDERED_ORDER};
+pub use scene::{render_scene, LinearImage, RenderedScene};
+
+/// Wavelength at which one fringe order equals one wavelength of retardation, nm.
+///
+/// R = N · 575 nm puts the first-order tint of passage (the sharp red-to-blue change where
+/// green-yellow light is extinguished) at N = 1, the usual convention for white-light work.
+pub const REFERENCE_WAVELENGTH_NM: f64 = 575.0;
+
+/// Wavelengths integrated over, nm, in 1 nm steps (401 samples).
+pub const WAVELENGTHS_NM: std::ops::RangeInclusive<usize> = 380..=780;
+
+/// Number of samples in [`WAVELENGTHS_NM`].
+pub const SPECTRUM_SAMPLES: usize = 401;
+
+/// Retardation (nm) of fringe order `order`: R = N · λ_ref.
+pub fn retardation_nm(order: f64) -> f64 {
+    order * REFERENCE_WAVELENGTH_NM
+}
+
+/// Fringe order of a retardation (nm): N = R / λ_ref.
+pub fn order_from_retardation(retardation_nm: f64) -> f64 {
+    retardation_nm / REFERENCE_WAVELENGTH_NM
+}
+
+/// The wavelengths of [`WAVELENGTHS_NM`] as `f64`, nm.
+pub(crate) fn wavelengths() -> impl Iterator<Item = f64> {
+    WAVELENGTHS_NM.map(|nm| nm as f64)
+}

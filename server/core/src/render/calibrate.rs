@@ -1,0 +1,208 @@
+//! Theoretical calibration tables and load planning from the renderer.
+
+use palette::Srgb;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use super::camera::CameraModel;
+use super::fields::OrderField;
+use super::light::LightSource;
+use super::polariscope::QuarterWavePlates;
+use super::renderer::{clip, encode_srgb8, RenderSetup, Renderer};
+use crate::calibration::{
+    CalibrationMetadata, CalibrationTable, TableEntry, TableSource, MAX_TABLE_ORDER,
+    ORDER_STEP_RANGE,
+};
+use crate::colour::lab_from_linear;
+use crate::error::{CoreError, CoreResult};
+use crate::geometry::PixelPoint;
+
+/// Fast-axis angles averaged over for the spread of a rendered table entry (plates that are
+/// not ideal make the colour depend on the isoclinic).
+const SPREAD_ANGLES: usize = 16;
+
+/// A calibration table computed by the renderer: for every order 0, step, 2·step, … ≤
+/// `max_order` the CIELAB (D65) colour of the 8-bit-gamut-clipped linear sRGB that the camera
+/// gives at exposure 1, averaged over isoclinic angles. `spread` is the standard deviation
+/// over isoclinic angles (zero for ideal plates), `samples` is 0. `plate_design_nm` in the
+/// source is 0 for ideal plates.
+pub fn rendered_table(
+    light: LightSource,
+    camera: CameraModel,
+    plates: QuarterWavePlates,
+    max_order: f64,
+    order_step: f64,
+    metadata: CalibrationMetadata,
+) -> CoreResult<CalibrationTable> {
+    if !(max_order.is_finite() && max_order > 0.0 && max_order <= MAX_TABLE_ORDER) {
+        return Err(CoreError::invalid(
+            "max_order",
+            format!("must lie in (0, {MAX_TABLE_ORDER}] fringes, got {max_order}"),
+        ));
+    }
+    let (lo, hi) = ORDER_STEP_RANGE;
+    if !(order_step.is_finite() && (lo..=hi).contains(&order_step)) {
+        return Err(CoreError::invalid(
+            "order_step",
+            format!("must lie in [{lo}, {hi}] fringes, got {order_step}"),
+        ));
+    }
+    let renderer = Renderer::new(RenderSetup {
+        light,
+        camera,
+        plates,
+        exposure: 1.0,
+    })?;
+    let count = (max_order / order_step + 1e-9).floor() as usize;
+    let entries = (0..=count)
+        .into_par_iter()
+        .map(|i| {
+            let order = i as f64 * order_step;
+            let mean = lab_from_linear(clip(renderer.linear_isoclinic_mean(order)));
+            let spread = if plates.design_nm().is_none() {
+                [0.0; 3]
+            } else {
+                let labs: Vec<[f32; 3]> = (0..SPREAD_ANGLES)
+                    .map(|a| {
+                        let theta = std::f64::consts::PI * a as f64 / SPREAD_ANGLES as f64;
+                        let lab = lab_from_linear(clip(renderer.linear(order, theta)));
+                        [lab.l, lab.a, lab.b]
+                    })
+                    .collect();
+                std::array::from_fn(|k| {
+                    let m = labs.iter().map(|l| l[k]).sum::<f32>() / labs.len() as f32;
+                    (labs.iter().map(|l| (l[k] - m).powi(2)).sum::<f32>() / labs.len() as f32)
+                        .sqrt()
+                })
+            };
+            TableEntry {
+                order,
+                lab: [mean.l, mean.a, mean.b],
+                spread,
+                samples: 0,
+            }
+        })
+        .collect();
+    CalibrationTable::new(
+        metadata,
+        order_step,
+        TableSource::Rendered {
+            light: light.name().to_string(),
+            camera: camera.name().to_string(),
+            plate_design_nm: plates.design_nm().unwrap_or(0.0),
+        },
+        entries,
+    )
+}
+
+/// One colour of a load preview.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PreviewSwatch {
+    /// Fringe order.
+    pub order: f64,
+    /// 8-bit sRGB, averaged over isoclinic angles, clipped to the gamut.
+    pub srgb: Srgb<u8>,
+}
+
+/// The colours a planned load will show: `count` (2–10 000) evenly spaced orders from
+/// `from_order` to `to_order` (both ≥ 0, inclusive), rendered with `renderer`.
+pub fn load_preview(
+    renderer: &Renderer,
+    from_order: f64,
+    to_order: f64,
+    count: usize,
+) -> CoreResult<Vec<PreviewSwatch>> {
+    for (field, v) in [("from_order", from_order), ("to_order", to_order)] {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(CoreError::invalid(
+                field,
+                format!("must be a number ≥ 0, got {v}"),
+            ));
+        }
+    }
+    if !(2..=10_000).contains(&count) {
+        return Err(CoreError::invalid(
+            "count",
+            format!("must lie in 2–10000, got {count}"),
+        ));
+    }
+    Ok((0..count)
+        .map(|i| {
+            let order = from_order + (to_order - from_order) * i as f64 / (count - 1) as f64;
+            PreviewSwatch {
+                order,
+                srgb: encode_srgb8(renderer.linear_isoclinic_mean(order)),
+            }
+        })
+        .collect())
+}
+
+/// Result of [`check_order_limit`].
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct OrderLimitCheck {
+    /// The limit checked against, fringes.
+    pub limit: f64,
+    /// Whether every specimen pixel centre has N ≤ limit.
+    pub within_limit: bool,
+    /// Largest order over specimen pixel centres (NaN if there are none).
+    pub max_order: f64,
+    /// Centre of the pixel with the largest order, pixel-edge coordinates.
+    pub max_at: Option<PixelPoint>,
+    /// Specimen pixels whose order exceeds the limit.
+    pub pixels_over: u64,
+    /// Specimen pixels in all.
+    pub specimen_pixels: u64,
+}
+
+/// Checks whether `field` stays at or below `limit` fringes at every specimen pixel centre of a
+/// `width` × `height` image (e.g. the largest order a calibration table covers).
+pub fn check_order_limit(
+    field: &dyn OrderField,
+    width: u32,
+    height: u32,
+    limit: f64,
+) -> CoreResult<OrderLimitCheck> {
+    if !(limit.is_finite() && limit > 0.0) {
+        return Err(CoreError::invalid(
+            "limit",
+            format!("must be a positive number, got {limit}"),
+        ));
+    }
+    let (over, count, best) = (0..height)
+        .into_par_iter()
+        .map(|y| {
+            let (mut over, mut count, mut best) = (0u64, 0u64, None::<(f64, PixelPoint)>);
+            for x in 0..width {
+                let p = PixelPoint {
+                    x: f64::from(x) + 0.5,
+                    y: f64::from(y) + 0.5,
+                };
+                if let Some(s) = field.sample(p.x, p.y) {
+                    count += 1;
+                    over += u64::from(s.order > limit);
+                    if best.is_none_or(|(b, _)| s.order > b) {
+                        best = Some((s.order, p));
+                    }
+                }
+            }
+            (over, count, best)
+        })
+        .reduce(
+            || (0, 0, None),
+            |a, b| {
+                let best = match (a.2, b.2) {
+                    (Some(p), Some(q)) => Some(if q.0 > p.0 { q } else { p }),
+                    (p, q) => p.or(q),
+                };
+                (a.0 + b.0, a.1 + b.1, best)
+            },
+        );
+    Ok(OrderLimitCheck {
+        limit,
+        within_limit: over == 0,
+        max_order: best.map_or(f64::NAN, |b| b.0),
+        max_at: best.map(|b| b.1),
+        pixels_over: over,
+        specimen_pixels: count,
+    })
+}

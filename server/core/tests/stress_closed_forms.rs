@@ -1,0 +1,149 @@
+//! Stress module against hand-worked numbers and textbook closed forms.
+
+use std::f64::consts::PI;
+
+use approx::assert_relative_eq;
+use isotint_core::stress::{
+    pure_bending_edge_order, stress_concentration_factor, Coating, DiscInCompression, EdgeSign,
+    PlateWithHole, StressOpticLaw,
+};
+
+#[test]
+fn pure_bending_edge_order_matches_a_hand_worked_beam() {
+    // source: beam theory σ_edge = 6M/(b·d²) with the stress-optic law N = σ·b/f_σ.
+    // Hand-worked: M = 4536 N·mm, d = 24 mm, f_σ = 10.5 N/mm → 6·4536 / (10.5·576) = 27216/6048 = 4.5.
+    assert_relative_eq!(
+        pure_bending_edge_order(4536.0, 24.0, 10.5),
+        4.5,
+        max_relative = 1e-12
+    );
+}
+
+#[test]
+fn the_stress_optic_law_turns_orders_into_megapascals() {
+    // source: stress-optic law σ1 − σ2 = N·f_σ/h (Dally & Riley, from memory).
+    // Hand-worked: N = 2, f_σ = 10.5 N/mm, h = 6 mm → 3.5 MPa.
+    let law = StressOpticLaw::new(10.5, 6.0).unwrap();
+    assert_relative_eq!(law.stress_difference_mpa(2.0), 3.5, max_relative = 1e-12);
+    assert_relative_eq!(law.order(3.5), 2.0, max_relative = 1e-12);
+    // At a free edge one principal stress is zero: σ_t = ±N·f_σ/h.
+    assert_relative_eq!(
+        law.free_edge_stress_mpa(2.0, EdgeSign::Compression),
+        -3.5,
+        max_relative = 1e-12
+    );
+    assert_relative_eq!(
+        law.free_edge_stress_mpa(2.0, EdgeSign::Tension),
+        3.5,
+        max_relative = 1e-12
+    );
+}
+
+#[test]
+fn coating_strain_counts_the_double_pass() {
+    // source: reflection photoelasticity ε1 − ε2 = N·f_ε/(2·t_c) (from memory).
+    // Hand-worked: N = 1.5, f_ε = 4 µm, t_c = 2 mm → 1.5·0.004/(2·2) = 0.0015 = 1500 µε.
+    let coating = Coating::new(4.0, 2.0).unwrap();
+    assert_relative_eq!(coating.strain_difference(1.5), 1.5e-3, max_relative = 1e-12);
+}
+
+#[test]
+fn stress_concentration_factor_is_peak_over_nominal() {
+    // source: definition K_t = σ_max/σ_nom (Peterson's stress concentration factors, from memory).
+    assert_relative_eq!(stress_concentration_factor(7.5, 2.5).unwrap(), 3.0);
+    assert!(stress_concentration_factor(7.5, 0.0).is_err());
+}
+
+#[test]
+fn disc_centre_stress_difference_matches_timoshenko() {
+    // source: Timoshenko & Goodier, Theory of Elasticity, disc in diametral compression:
+    // at the centre σx = 2P/(πDh), σy = −6P/(πDh), so σ1 − σ2 = 8P/(πDh).
+    // Hand-worked: P = 600 N, D = 50 mm, h = 6 mm → 8·600/(π·300) = 5.0930 MPa.
+    let disc = DiscInCompression::new(50.0, 6.0, 600.0).unwrap();
+    let centre = disc.stress_at(0.0, 0.0);
+    let unit = 600.0 / (PI * 50.0 * 6.0);
+    assert_relative_eq!(centre.sx, 2.0 * unit, max_relative = 1e-9);
+    assert_relative_eq!(centre.sy, -6.0 * unit, max_relative = 1e-9);
+    assert!(centre.txy.abs() < 1e-12);
+    assert_relative_eq!(centre.principal_difference(), 5.0930, max_relative = 1e-4);
+    assert_relative_eq!(
+        disc.centre_stress_difference_mpa(),
+        centre.principal_difference(),
+        max_relative = 1e-9
+    );
+}
+
+#[test]
+fn disc_stresses_along_the_horizontal_diameter_match_the_textbook_profile() {
+    // source: Timoshenko & Goodier / Frocht (from memory): on the horizontal diameter
+    // σx = (2P/πDh)·((D² − 4x²)/(D² + 4x²))², σy = −(2P/πDh)·(4D⁴/(D² + 4x²)² − 1).
+    let (d, h, p) = (50.0, 6.0, 600.0);
+    let disc = DiscInCompression::new(d, h, p).unwrap();
+    let unit = 2.0 * p / (PI * d * h);
+    for x in [0.0, 5.0, 12.5, 20.0, 24.0] {
+        let s = disc.stress_at(x, 0.0);
+        let q = d * d + 4.0 * x * x;
+        assert_relative_eq!(
+            s.sx,
+            unit * ((d * d - 4.0 * x * x) / q).powi(2),
+            epsilon = 1e-9
+        );
+        assert_relative_eq!(
+            s.sy,
+            -unit * (4.0 * d.powi(4) / (q * q) - 1.0),
+            epsilon = 1e-9
+        );
+        assert!(
+            s.txy.abs() < 1e-9,
+            "shear on the diameter at x = {x}: {}",
+            s.txy
+        );
+    }
+}
+
+#[test]
+fn disc_rim_is_free_of_traction_away_from_the_loads() {
+    // source: boundary condition of the Timoshenko & Goodier solution: the rim is unloaded.
+    let disc = DiscInCompression::new(40.0, 5.0, 800.0).unwrap();
+    for angle in [0.1f64, 0.7, 1.3, 2.0, 2.9, 4.0, 5.5] {
+        let (nx, ny) = (angle.cos(), angle.sin());
+        let s = disc.stress_at(20.0 * nx, 20.0 * ny);
+        let (tx, ty) = (s.sx * nx + s.txy * ny, s.txy * nx + s.sy * ny);
+        assert!(
+            tx.abs() < 1e-9 && ty.abs() < 1e-9,
+            "traction ({tx}, {ty}) at {angle}"
+        );
+    }
+}
+
+#[test]
+fn kirsch_gives_three_times_the_remote_stress_beside_the_hole_and_minus_s_above_it() {
+    // source: Kirsch (1898) solution for a circular hole in an infinite plate under uniaxial
+    // tension S: σ_θ at the hole edge ranges from −S (on the load axis) to 3S (across it), K_t = 3.
+    let s = 12.0;
+    let plate = PlateWithHole::new(5.0, s).unwrap();
+    let beside = plate.stress_at(5.0, 0.0);
+    assert_relative_eq!(beside.sy, 3.0 * s, max_relative = 1e-12);
+    assert!(beside.sx.abs() < 1e-12);
+    let above = plate.stress_at(0.0, -5.0);
+    assert_relative_eq!(above.sx, -s, max_relative = 1e-12);
+    assert!(above.sy.abs() < 1e-12);
+    assert_relative_eq!(
+        stress_concentration_factor(beside.sy, s).unwrap(),
+        3.0,
+        max_relative = 1e-12
+    );
+    // The hole edge carries only hoop stress: σ1 − σ2 = |σ_θ| everywhere along it.
+    for angle in [0.2f64, 0.9, 1.4, 2.6, 3.3, 5.0] {
+        let (nx, ny) = (angle.cos(), angle.sin());
+        let e = plate.stress_at(5.0 * nx, 5.0 * ny);
+        let (tx, ty) = (e.sx * nx + e.txy * ny, e.txy * nx + e.sy * ny);
+        assert!(
+            tx.abs() < 1e-9 && ty.abs() < 1e-9,
+            "traction ({tx}, {ty}) at {angle}"
+        );
+        // Angle φ from x in the pixel frame: σ_θ = S(1 + 2 cos 2φ).
+        let hoop = s * (1.0 + 2.0 * (2.0 * angle).cos());
+        assert_relative_eq!(e.principal_difference(), hoop.abs(), epsilon = 1e-9);
+    }
+}
