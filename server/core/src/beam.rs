@@ -272,7 +272,9 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
     let steps = (max_order / spec.order_step + 1e-9).floor() as usize;
     // Row spacing in orders; the smoothing bandwidth spans about two rows of each half.
     let row_step = edge_order / half_depth;
-    let bandwidth = row_step.max(2.0 * spec.order_step);
+    // Each half gives a row every `row_step`; folded, the two interleave, so half a row step
+    // keeps the fit close to the data where colours turn quickly (near tints of passage).
+    let bandwidth = (0.5 * row_step).max(spec.order_step);
 
     let mut used = vec![true; rows.len()];
     let mut outlier_rows = 0u32;
@@ -287,7 +289,7 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
             .filter(|(_, u)| **u)
             .map(|(r, _)| *r)
             .collect();
-        let limit = (4.0 * 1.4826 * median(&mut kept)).max(3.0);
+        let limit = (5.0 * 1.4826 * median(&mut kept)).max(5.0);
         for (u, r) in used.iter_mut().zip(&residuals) {
             if *u && *r > limit {
                 *u = false;

@@ -19,6 +19,9 @@
 //!
 //! Distances inside the search are ΔE\*ab with the lightness difference weighted by
 //! [`LIGHTNESS_WEIGHT`] (exposure drift moves L\* most); reported residuals are plain ΔE\*ab.
+//! The preliminary pass that feeds the exposure fit weights lightness even less and has no
+//! *beyond range* label, so that a photo much darker than the calibration still finds its
+//! orders.
 
 use palette::LinSrgb;
 use rayon::prelude::*;
@@ -39,11 +42,24 @@ const BEYOND: usize = CANDIDATES;
 /// Order spacing of the candidate search, fringes.
 const SEARCH_STEP: f64 = 0.02;
 /// Weight of ΔL\* in the search distance (a\* and b\* have weight 1).
-pub(crate) const LIGHTNESS_WEIGHT: f32 = 0.6;
+const LIGHTNESS_WEIGHT: f32 = 0.6;
+/// Least CIELAB chroma of the table colour of a pixel used in the exposure fit.
+const FIT_MIN_CHROMA: f32 = 20.0;
+/// Weight of ΔL\* in the preliminary pass that feeds the exposure fit.
+const PRELIMINARY_LIGHTNESS_WEIGHT: f32 = 0.25;
+
+/// Which solver pass: the preliminary one feeding the exposure fit, or the final one.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Stage {
+    Preliminary,
+    Final,
+}
 /// Data costs are capped here (ΔE units) so that one bad pixel cannot dominate a path.
 const COST_CAP: f32 = 25.0;
-/// Data cost of the *beyond range* label (ΔE units).
-const BEYOND_COST: f32 = 14.0;
+/// Data cost of the *beyond range* label (ΔE units): past the table colours wash out to pale
+/// tints that match some high table order only loosely; a region whose best match is worse
+/// than this, and that continues the top of the table, is taken as beyond range.
+const BEYOND_COST: f32 = 6.0;
 /// Cost of a change of order between one and two maximum gradients.
 const SLOPE_PENALTY: f32 = 3.0;
 /// Cost of a larger change of order (a jump between candidate chains).
@@ -64,13 +80,19 @@ const DIRECTIONS: [(i32, i32); 8] = [
     (-1, 1),
 ];
 /// A pixel whose best colour match is worse than this (ΔE\*ab) is unreliable.
-const RESIDUAL_LIMIT: f32 = 12.0;
+const RESIDUAL_LIMIT: f32 = 10.0;
+/// Valued regions (connected without jumps) smaller than this share of the specimen are
+/// taken as wrong islands and flagged unreliable.
+const ISLAND_SHARE: f64 = 0.005;
+/// ... but never smaller than this many pixels.
+const ISLAND_MIN_PIXELS: usize = 50;
 /// Aggregated ambiguity margin (ΔE units per direction) below which a pixel is unreliable.
 const MARGIN_LIMIT: f32 = 0.35;
 
 /// The table flattened for fast search: CIELAB components in separate arrays.
 struct SearchTable {
     step: f64,
+    lightness_weight: f32,
     l: Vec<f32>,
     a: Vec<f32>,
     b: Vec<f32>,
@@ -78,10 +100,11 @@ struct SearchTable {
 
 impl SearchTable {
     /// Samples `table` every `step` fringes up to `max_order`.
-    fn new(table: &CalibrationTable, step: f64, max_order: f64) -> Self {
+    fn new(table: &CalibrationTable, step: f64, max_order: f64, lightness_weight: f32) -> Self {
         let n = (max_order / step + 1e-9).floor() as usize + 1;
         let mut t = SearchTable {
             step,
+            lightness_weight,
             l: Vec::with_capacity(n),
             a: Vec::with_capacity(n),
             b: Vec::with_capacity(n),
@@ -106,7 +129,7 @@ impl SearchTable {
     /// Search distance between `c` and entry `i`.
     #[inline]
     fn distance(&self, c: Lab, i: usize) -> f32 {
-        let dl = LIGHTNESS_WEIGHT * (c.l - self.l[i]);
+        let dl = self.lightness_weight * (c.l - self.l[i]);
         let (da, db) = (c.a - self.a[i], c.b - self.b[i]);
         (dl * dl + da * da + db * db).sqrt()
     }
@@ -154,7 +177,7 @@ const NO_LABELS: Labels = Labels {
 };
 
 /// Candidate orders of one colour: the local minima of its distance curve.
-fn candidates(search: &SearchTable, c: Lab, beyond_order: f32) -> Labels {
+fn candidates(search: &SearchTable, c: Lab, beyond_order: f32, beyond_cost: f32) -> Labels {
     let n = search.len();
     let mut d = vec![0f32; n];
     for (i, slot) in d.iter_mut().enumerate() {
@@ -178,7 +201,7 @@ fn candidates(search: &SearchTable, c: Lab, beyond_order: f32) -> Labels {
         }
     }
     labels.order[BEYOND] = beyond_order;
-    labels.cost[BEYOND] = BEYOND_COST;
+    labels.cost[BEYOND] = beyond_cost;
     labels
 }
 
@@ -306,10 +329,15 @@ fn solve_pass(
     table: &CalibrationTable,
     max_order: f64,
     options: &MapOptions,
+    stage: Stage,
 ) -> Pass {
     let (width, height) = (lab.width as usize, lab.height as usize);
-    let search = SearchTable::new(table, SEARCH_STEP, max_order);
-    let fine = SearchTable::new(table, table.order_step, max_order);
+    let (lightness_weight, beyond_cost) = match stage {
+        Stage::Preliminary => (PRELIMINARY_LIGHTNESS_WEIGHT, f32::INFINITY),
+        Stage::Final => (LIGHTNESS_WEIGHT, BEYOND_COST),
+    };
+    let search = SearchTable::new(table, SEARCH_STEP, max_order, lightness_weight);
+    let fine = SearchTable::new(table, table.order_step, max_order, lightness_weight);
     let top = search.max_order() as f32;
     let gradient = options.max_gradient as f32;
     let beyond_order = top + 2.0 * gradient;
@@ -320,7 +348,7 @@ fn solve_pass(
         .zip(inside.par_iter())
         .map(|(c, &ins)| {
             if ins {
-                candidates(&search, *c, beyond_order)
+                candidates(&search, *c, beyond_order, beyond_cost)
             } else {
                 NO_LABELS
             }
@@ -414,51 +442,76 @@ fn solve_pass(
     pass
 }
 
-/// Flags pixels where the field is steeper than the maximum gradient, and pixels that jump
-/// away from most of their neighbours.
+/// Flags pixels where the field is steeper than the maximum gradient and both sides of every
+/// jump between neighbours, then flags small islands cut off by jumps or flags.
 fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
     let order = &pass.order;
-    let valued = |p: usize, f: &[PixelFlags]| f[p].0 == 0 && order[p].is_finite();
+    let jump = 2.5 * gradient;
     let flags_before = pass.flags.clone();
+    let valued = |p: usize| flags_before[p].0 == 0 && order[p].is_finite();
     pass.flags
         .par_chunks_mut(width)
         .enumerate()
         .for_each(|(y, row)| {
             for x in 0..width {
                 let p = y * width + x;
-                if !valued(p, &flags_before) {
+                if !valued(p) {
                     continue;
                 }
-                let mut neighbours = 0;
-                let mut jumps = 0;
-                let mut steepest = 0f32;
-                for (nx, ny) in [
-                    (x.wrapping_sub(1), y),
-                    (x + 1, y),
-                    (x, y.wrapping_sub(1)),
-                    (x, y + 1),
-                ] {
-                    if nx >= width || ny >= height {
-                        continue;
-                    }
-                    let q = ny * width + nx;
-                    if !valued(q, &flags_before) {
-                        continue;
-                    }
-                    neighbours += 1;
-                    let change = (order[q] - order[p]).abs();
-                    steepest = steepest.max(change);
-                    if change > 2.5 * gradient {
-                        jumps += 1;
-                    }
-                }
-                if (neighbours > 0 && jumps * 2 > neighbours)
-                    || (steepest > 1.5 * gradient && jumps == 0)
-                {
+                let steepest = neighbours4(x, y, width, height)
+                    .filter(|&q| valued(q))
+                    .map(|q| (order[q] - order[p]).abs())
+                    .fold(0f32, f32::max);
+                if steepest > 1.5 * gradient {
                     row[x].0 |= PixelFlags::UNRELIABLE;
                 }
             }
         });
+    // Islands: 4-connected valued pixels joined where the change is below a jump.
+    let specimen = pass
+        .flags
+        .iter()
+        .filter(|f| !f.has(PixelFlags::OUTSIDE_MASK))
+        .count();
+    let min_size = ((specimen as f64 * ISLAND_SHARE) as usize).max(ISLAND_MIN_PIXELS);
+    let mut seen = vec![false; order.len()];
+    let mut stack = Vec::new();
+    let mut island = Vec::new();
+    for start in 0..order.len() {
+        if seen[start] || pass.flags[start].0 != 0 {
+            continue;
+        }
+        seen[start] = true;
+        stack.push(start);
+        island.clear();
+        while let Some(p) = stack.pop() {
+            island.push(p);
+            for q in neighbours4(p % width, p / width, width, height) {
+                if !seen[q] && pass.flags[q].0 == 0 && (order[q] - order[p]).abs() <= jump {
+                    seen[q] = true;
+                    stack.push(q);
+                }
+            }
+        }
+        if island.len() < min_size {
+            for &p in &island {
+                pass.flags[p].0 |= PixelFlags::UNRELIABLE;
+            }
+        }
+    }
+}
+
+/// Row-major indices of the 4-neighbours of (x, y) inside a `width` × `height` image.
+fn neighbours4(x: usize, y: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {
+    [
+        (x.wrapping_sub(1), y),
+        (x + 1, y),
+        (x, y.wrapping_sub(1)),
+        (x, y + 1),
+    ]
+    .into_iter()
+    .filter(move |&(nx, ny)| nx < width && ny < height)
+    .map(move |(nx, ny)| ny * width + nx)
 }
 
 /// Averages each valued pixel with its 3×3 neighbourhood where all nine are valued and lie
@@ -508,7 +561,21 @@ fn fit_exposure(
     let (w, h) = (photo.width(), photo.height());
     let confident: Vec<usize> = (0..pass.order.len())
         .filter(|&p| {
-            pass.flags[p].0 == 0 && pass.margin[p] > 2.0 * MARGIN_LIMIT && pass.order[p] > 0.15
+            // Vivid colours only: their order follows from hue, whatever the exposure; greys
+            // would tie the order to lightness, which is what is being fitted.
+            pass.flags[p].0 == 0
+                && pass.margin[p] > 2.0 * MARGIN_LIMIT
+                && table
+                    .colour_at(f64::from(pass.order[p]))
+                    .into_components()
+                    .1
+                    .hypot(
+                        table
+                            .colour_at(f64::from(pass.order[p]))
+                            .into_components()
+                            .2,
+                    )
+                    > FIT_MIN_CHROMA
         })
         .collect();
     if confident.len() < 200 {
@@ -557,24 +624,33 @@ fn fit_exposure(
     let slope = if sxx > 1e-4 * n { sxy / sxx } else { 0.0 };
     let intercept = my - slope * mx;
     let vignetting = if intercept > 0.0 {
-        (slope / intercept).clamp(-0.5, 1.0)
+        // Lenses darken corners, never brighten them.
+        (slope / intercept).clamp(0.0, 1.0)
     } else {
         0.0
     };
-    // Channel gains: median ratio per channel after removing the radial term.
+    // Channel gains: ratio of sums over the pixels whose ratio lies near the median, leaving
+    // out dark and nearly clipped channel values, after removing the radial term.
     let mut gain = [1f32; 3];
     for (c, g) in gain.iter_mut().enumerate() {
-        let mut values: Vec<f32> = samples
+        let pairs: Vec<(f32, f32)> = samples
             .iter()
             .filter_map(|(o, e, r2)| {
                 let (ov, ev) = ([o.red, o.green, o.blue][c], [e.red, e.green, e.blue][c]);
-                (ov > 0.01 && ev > 0.01).then(|| ev / ov / (1.0 + vignetting * r2))
+                let ov = ov * (1.0 + vignetting * r2);
+                (ov > 0.02 && ov < 0.9 && ev > 0.02 && ev < 0.95).then_some((ov, ev))
             })
             .collect();
-        if values.len() < 50 {
+        if pairs.len() < 50 {
             return None;
         }
-        *g = median_f32(&mut values).clamp(0.5, 2.0);
+        let mut ratios: Vec<f32> = pairs.iter().map(|(o, e)| e / o).collect();
+        let centre = median_f32(&mut ratios);
+        let (so, se) = pairs
+            .iter()
+            .filter(|(o, e)| (e / o / centre - 1.0).abs() < 0.15)
+            .fold((0.0, 0.0), |acc, (o, e)| (acc.0 + o, acc.1 + e));
+        *g = (se / so).clamp(0.5, 2.0);
     }
     Some(ExposureCorrection { gain, vignetting })
 }
@@ -662,13 +738,31 @@ pub(crate) fn solve(
         None => vec![true; width as usize * height as usize],
     };
     let mut exposure = ExposureCorrection::NONE;
-    let mut pass = solve_pass(&photo.to_lab(&exposure), &inside, table, max_order, options);
     if options.exposure_compensation {
-        if let Some(fit) = fit_exposure(photo, table, &pass) {
-            exposure = fit;
-            pass = solve_pass(&photo.to_lab(&exposure), &inside, table, max_order, options);
+        // Two rounds: a strong drift is only partly corrected by the first fit.
+        for _ in 0..2 {
+            let preliminary = solve_pass(
+                &photo.to_lab(&exposure),
+                &inside,
+                table,
+                max_order,
+                options,
+                Stage::Preliminary,
+            );
+            match fit_exposure(photo, table, &preliminary) {
+                Some(fit) => exposure = fit,
+                None => break,
+            }
         }
     }
+    let pass = solve_pass(
+        &photo.to_lab(&exposure),
+        &inside,
+        table,
+        max_order,
+        options,
+        Stage::Final,
+    );
     let statistics = statistics(&pass);
     Ok(OrderMap {
         width,
