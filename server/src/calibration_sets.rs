@@ -6,6 +6,7 @@ use std::path::{Path, PathBuf};
 
 use isotint_core::CalibrationTable;
 
+use crate::domain::check_metadata;
 use crate::storage::calibrations::{self, sha256_hex, ImportedFile};
 use crate::storage::{Storage, StorageResult};
 
@@ -51,7 +52,11 @@ pub async fn import_dir(storage: &Storage, dir: &Path) -> StorageResult<ImportSu
             summary.already_known += 1;
             continue;
         }
-        let table = match CalibrationTable::from_json(&bytes) {
+        let parsed = CalibrationTable::from_json(&bytes).and_then(|t| {
+            check_metadata(&t.metadata)?;
+            Ok(t)
+        });
+        let table = match parsed {
             Ok(t) => t,
             Err(e) => {
                 tracing::warn!(file = %path.display(), error = %e, "calibration file refused");
@@ -67,7 +72,9 @@ pub async fn import_dir(storage: &Storage, dir: &Path) -> StorageResult<ImportSu
             name: &name,
             sha256: &sha,
         };
-        let inserted = calibrations::insert(storage, &table, None, Some(file)).await?;
+        // from_json accepted the bytes, so they are UTF-8.
+        let text = String::from_utf8_lossy(&bytes);
+        let inserted = calibrations::insert(storage, &table, &text, None, Some(file)).await?;
         if inserted.created {
             tracing::info!(file = %name, id = %inserted.row.id, "calibration imported");
             summary.imported += 1;

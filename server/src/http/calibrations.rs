@@ -364,9 +364,12 @@ async fn import_calibration(
             crate::domain::shorten(content_type, 60)
         )));
     }
-    let table = CalibrationTable::from_json(&body?)?;
+    let body = body?;
+    let table = CalibrationTable::from_json(&body)?;
     check_metadata(&table.metadata)?;
-    let inserted = store::insert(&state.storage, &table, supersedes, None).await?;
+    // from_json accepted the body, so it is UTF-8.
+    let text = String::from_utf8_lossy(&body);
+    let inserted = store::insert(&state.storage, &table, &text, supersedes, None).await?;
     let status = if inserted.created {
         StatusCode::CREATED
     } else {
@@ -408,7 +411,9 @@ async fn create_calibration(
         };
         return Ok((StatusCode::OK, Json(body)).into_response());
     }
-    let inserted = store::insert(&state.storage, &calibration.table, supersedes, None).await?;
+    let json = calibration.table.to_json();
+    let inserted =
+        store::insert(&state.storage, &calibration.table, &json, supersedes, None).await?;
     tracing::info!(id = %inserted.row.id, "calibration stored");
     let body = CreatedCalibration {
         summary: inserted.row.into(),

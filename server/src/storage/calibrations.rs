@@ -211,17 +211,18 @@ async fn record_import<'c, E: Executor<'c, Database = Any>>(
     Ok(())
 }
 
-/// Stores `table` (all or nothing, in one transaction). If the same table (same file content)
-/// is stored already, returns that row with `created: false`. `supersedes` must name an
-/// existing calibration that no other calibration corrects yet. `file` records an import from
-/// the calibration-sets directory in the same transaction.
+/// Stores `table` whose file text is `table_json` (all or nothing, in one transaction); the text
+/// is kept byte for byte for export. If the same file is stored already, returns that row with
+/// `created: false`. `supersedes` must name an existing calibration that no other calibration
+/// corrects yet. `file` records an import from the calibration-sets directory in the same
+/// transaction.
 pub async fn insert(
     storage: &Storage,
     table: &CalibrationTable,
+    table_json: &str,
     supersedes: Option<CalibrationId>,
     file: Option<ImportedFile<'_>>,
 ) -> StorageResult<Inserted> {
-    let table_json = table.to_json();
     let content = sha256_hex(table_json.as_bytes());
     let mut tx = storage.pool().begin().await?;
     if let Some(old) = supersedes {
@@ -233,7 +234,7 @@ pub async fn insert(
         }
     }
     let id = CalibrationId::random();
-    let created = insert_row(&mut *tx, id, table, &table_json, &content, supersedes)
+    let created = insert_row(&mut *tx, id, table, table_json, &content, supersedes)
         .await
         .map_err(|e| match e {
             StorageError::Database(ref db) if is_unique_violation(db) => StorageError::Conflict(
@@ -276,7 +277,7 @@ pub async fn get(storage: &Storage, id: CalibrationId) -> StorageResult<Calibrat
     fetch_row(storage.pool(), id).await
 }
 
-/// The stored table file, exactly as written (`CalibrationTable::to_json`).
+/// The stored table file, byte for byte as written or imported.
 pub async fn table_json(storage: &Storage, id: CalibrationId) -> StorageResult<String> {
     sqlx::query_scalar("SELECT table_json FROM calibrations WHERE id = $1")
         .bind(id.to_string())

@@ -1,0 +1,239 @@
+//! The storage layer on SQLite and, when `ISOTINT_TEST_POSTGRES_URL` is set, on PostgreSQL:
+//! the same portable SQL, the same behaviour.
+
+mod common;
+
+use std::future::Future;
+use std::time::Duration;
+
+use isotint::calibration_sets::import_dir;
+use isotint::domain::CalibrationId;
+use isotint::storage::calibrations::{self, ListFilter};
+use isotint::storage::{order_maps, Backend, Storage, StorageError};
+use isotint_core::exposure::ExposureCorrection;
+use isotint_core::order_map::MapStatistics;
+use isotint_core::{OrderMap, PixelFlags};
+use time::OffsetDateTime;
+
+/// Runs `check` on a fresh SQLite database, then on a fresh PostgreSQL database if one is
+/// configured.
+async fn on_every_backend<F, Fut>(check: F)
+where
+    F: Fn(Storage) -> Fut,
+    Fut: Future<Output = ()>,
+{
+    let dir = tempfile::tempdir().unwrap();
+    let url = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("s.sqlite").display()
+    );
+    let sqlite = Storage::connect(&url).await.unwrap();
+    assert_eq!(sqlite.backend(), Backend::Sqlite);
+    check(sqlite.clone()).await;
+    sqlite.close().await;
+    match common::PostgresDatabase::create().await {
+        Some(db) => {
+            let pg = Storage::connect(&db.url).await.unwrap();
+            assert_eq!(pg.backend(), Backend::Postgres);
+            check(pg.clone()).await;
+            pg.close().await;
+            db.drop_database().await;
+        }
+        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
+    }
+}
+
+/// Stores a rendered table named `name`.
+async fn store(
+    storage: &Storage,
+    name: &str,
+    supersedes: Option<CalibrationId>,
+) -> Result<calibrations::Inserted, StorageError> {
+    let table = common::table(name);
+    calibrations::insert(storage, &table, &table.to_json(), supersedes, None).await
+}
+
+#[tokio::test]
+async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend() {
+    on_every_backend(|storage| async move {
+        let first = common::table("Epoxy strip A");
+        let a = calibrations::insert(&storage, &first, &first.to_json(), None, None)
+            .await
+            .unwrap();
+        assert!(a.created);
+        assert_eq!(a.row.metadata.name, "Epoxy strip A");
+        assert_eq!(a.row.source_kind, "rendered");
+        assert!((a.row.max_order - 4.0).abs() < 1e-9);
+
+        let again = calibrations::insert(&storage, &first, &first.to_json(), None, None)
+            .await
+            .unwrap();
+        assert!(!again.created, "the same table is stored once");
+        assert_eq!(again.row.id, a.row.id);
+
+        let b = store(&storage, "Epoxy strip B", Some(a.row.id))
+            .await
+            .unwrap();
+        assert_eq!(b.row.supersedes, Some(a.row.id));
+        let a_now = calibrations::get(&storage, a.row.id).await.unwrap();
+        assert_eq!(a_now.superseded_by, Some(b.row.id));
+
+        let twice = store(&storage, "Epoxy strip C", Some(a.row.id)).await;
+        assert!(matches!(twice, Err(StorageError::Conflict(_))), "{twice:?}");
+        let unknown = store(&storage, "Epoxy strip D", Some(CalibrationId::random())).await;
+        assert!(
+            matches!(unknown, Err(StorageError::NotFound { .. })),
+            "{unknown:?}"
+        );
+
+        let all = calibrations::list(&storage, &ListFilter::default())
+            .await
+            .unwrap();
+        assert_eq!(all.len(), 2, "failed inserts left no row");
+
+        let found = calibrations::list(
+            &storage,
+            &ListFilter {
+                text: Some("STRIP b".into()),
+                include_archived: false,
+            },
+        )
+        .await
+        .unwrap();
+        assert_eq!(
+            found.iter().map(|r| r.id).collect::<Vec<_>>(),
+            vec![b.row.id]
+        );
+        let wildcard = calibrations::list(
+            &storage,
+            &ListFilter {
+                text: Some("%".into()),
+                include_archived: false,
+            },
+        )
+        .await
+        .unwrap();
+        assert!(wildcard.is_empty(), "% matches literally");
+
+        let archived = calibrations::set_archived(&storage, a.row.id, true)
+            .await
+            .unwrap();
+        assert!(archived.archived);
+        let visible = calibrations::list(&storage, &ListFilter::default())
+            .await
+            .unwrap();
+        assert_eq!(visible.len(), 1);
+        let with_archived = calibrations::list(
+            &storage,
+            &ListFilter {
+                text: None,
+                include_archived: true,
+            },
+        )
+        .await
+        .unwrap();
+        assert_eq!(with_archived.len(), 2);
+        calibrations::set_archived(&storage, a.row.id, false)
+            .await
+            .unwrap();
+
+        let json = calibrations::table_json(&storage, a.row.id).await.unwrap();
+        assert_eq!(json, first.to_json(), "the file is kept byte for byte");
+        let parsed = calibrations::table(&storage, a.row.id).await.unwrap();
+        assert_eq!(parsed.metadata, first.metadata);
+        assert_eq!(parsed.entries.len(), first.entries.len());
+    })
+    .await;
+}
+
+#[tokio::test]
+async fn importing_the_calibration_sets_twice_stores_each_file_once_on_every_backend() {
+    on_every_backend(|storage| async move {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("a.json"), common::table("Set A").to_json()).unwrap();
+        std::fs::write(dir.path().join("b.json"), common::table("Set B").to_json()).unwrap();
+        std::fs::write(dir.path().join("broken.json"), b"{\"format\": 1").unwrap();
+        std::fs::write(dir.path().join("notes.txt"), b"not a calibration").unwrap();
+
+        let first = import_dir(&storage, dir.path()).await.unwrap();
+        assert_eq!(first.imported, 2);
+        assert_eq!(first.refused.len(), 1);
+        let second = import_dir(&storage, dir.path()).await.unwrap();
+        assert_eq!(second.imported, 0);
+        assert_eq!(second.already_known, 2);
+        let listed = calibrations::list(&storage, &ListFilter::default())
+            .await
+            .unwrap();
+        assert_eq!(listed.len(), 2);
+
+        let missing = import_dir(&storage, &dir.path().join("nowhere"))
+            .await
+            .unwrap();
+        assert_eq!(missing.imported, 0);
+    })
+    .await;
+}
+
+fn small_map() -> OrderMap {
+    OrderMap {
+        width: 3,
+        height: 2,
+        order: vec![0.5, 1.25, f32::NAN, 2.0, 3.5, f32::NAN],
+        residual: vec![1.0; 6],
+        margin: vec![4.0; 6],
+        flags: vec![
+            PixelFlags(0),
+            PixelFlags(0),
+            PixelFlags(PixelFlags::OUTSIDE_MASK),
+            PixelFlags(0),
+            PixelFlags(0),
+            PixelFlags(PixelFlags::UNRELIABLE),
+        ],
+        exposure: ExposureCorrection::NONE,
+        statistics: MapStatistics {
+            specimen_pixels: 5,
+            valued_pixels: 4,
+            beyond_range_share: 0.0,
+            unreliable_share: 0.2,
+            min_order: 0.5,
+            max_order: 3.5,
+            mean_order: 1.8125,
+            mean_residual: f64::NAN,
+        },
+    }
+}
+
+#[tokio::test]
+async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expiry_on_every_backend()
+{
+    on_every_backend(|storage| async move {
+        let cal = store(&storage, "Map strip", None).await.unwrap();
+        let map = small_map();
+        let row = order_maps::insert(&storage, cal.row.id, &map, Duration::from_secs(3600))
+            .await
+            .unwrap();
+        let (meta, back) = order_maps::load(&storage, row.id).await.unwrap();
+        assert_eq!(meta.calibration_id, cal.row.id);
+        assert_eq!((back.width, back.height), (3, 2));
+        assert_eq!(back.order[1], 1.25);
+        assert!(back.order[2].is_nan());
+        assert_eq!(back.flags[5], PixelFlags(PixelFlags::UNRELIABLE));
+        assert_eq!(back.statistics.max_order, 3.5);
+        assert!(back.statistics.mean_residual.is_nan());
+        assert!(meta.statistics["mean_residual"].is_null());
+
+        let later = OffsetDateTime::now_utc() + time::Duration::hours(2);
+        assert_eq!(
+            order_maps::purge_expired(&storage, OffsetDateTime::now_utc())
+                .await
+                .unwrap(),
+            0
+        );
+        assert_eq!(order_maps::purge_expired(&storage, later).await.unwrap(), 1);
+        assert!(matches!(
+            order_maps::get(&storage, row.id).await,
+            Err(StorageError::NotFound { .. })
+        ));
+    })
+    .await;
+}
