@@ -120,14 +120,13 @@ export class AnalysisPage {
     const select = $('an-calibration');
     const keep = this.wantedCalibration || select.value;
     try {
-      const { calibrations } = await api.calibrations('');
-      const usable = calibrations.filter((c) => !c.archived || c.id === keep);
-      const placeholder = new Option(usable.length ? 'Choose a calibration…' : 'No calibrations yet: make one first', '');
+      const { calibrations } = await api.calibrations();
+      const placeholder = new Option(calibrations.length ? 'Choose a calibration…' : 'No calibrations yet: make one first', '');
       select.replaceChildren(
         placeholder,
-        ...usable.map((c) => new Option(`${c.name}${c.material ? ` (${c.material})` : ''}, to N = ${fmt(c.max_order, 1)}`, c.id)),
+        ...calibrations.map((c) => new Option(`${c.name}${c.material ? ` (${c.material})` : ''}, to N = ${fmt(c.max_order, 1)}`, c.id)),
       );
-      select.value = usable.some((c) => c.id === keep) ? keep : '';
+      select.value = calibrations.some((c) => c.id === keep) ? keep : '';
     } catch (e) {
       select.replaceChildren(new Option('Calibrations could not be loaded', ''));
       showError($('an-error'), e);

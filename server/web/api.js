@@ -82,10 +82,12 @@ export function postForm(url, form, onProgress) {
 }
 
 export const api = {
-  calibrations: (q) => getJson(`/api/v1/calibrations${q ? `?q=${encodeURIComponent(q)}` : ''}`),
+  calibrations: (q = '', includeArchived = false) =>
+    getJson(`/api/v1/calibrations?${new URLSearchParams({ q, include_archived: includeArchived })}`),
   calibration: (id) => getJson(`/api/v1/calibrations/${encodeURIComponent(id)}`),
   exportUrl: (id) => `/api/v1/calibrations/${encodeURIComponent(id)}/export`,
   archive: (id) => postJson(`/api/v1/calibrations/${encodeURIComponent(id)}/archive`),
+  restore: (id) => postJson(`/api/v1/calibrations/${encodeURIComponent(id)}/restore`),
   createCalibration: (form, onProgress) => postForm('/api/v1/calibrations', form, onProgress),
   createOrderMap: (form, onProgress) => postForm('/api/v1/order-maps', form, onProgress),
 };

@@ -10,8 +10,16 @@ import { ImageView, TwoPointGesture, decodeImage, strokeBoth } from './view.js';
 // Tells the rest of the page that the list of calibrations has changed.
 export const CHANGED = 'isotint:calibrations-changed';
 
-const describeSource = (source) =>
-  ({ beam_photo: 'beam photo', rendered: 'rendered from light source and camera data' })[source?.kind] || source?.kind;
+const SOURCES = { beam_photo: 'beam photo', rendered: 'rendered from light source and camera data' };
+
+// A link to another calibration (for "replaces" and "replaced by"), or undefined.
+function calibrationLink(id) {
+  if (!id) return undefined;
+  const a = document.createElement('a');
+  a.href = `#/calibrations/${encodeURIComponent(id)}`;
+  a.textContent = 'open';
+  return a;
+}
 
 function summaryPairs(c) {
   return [
@@ -20,11 +28,12 @@ function summaryPairs(c) {
     ['Light source', c.light_source],
     ['Camera', c.camera],
     ['Made', when(c.created_at)],
-    ['Source', describeSource(c.table?.source)],
+    ['Source', SOURCES[c.source_kind] || c.source_kind],
     ['Calibrated up to', `fringe order ${fmt(c.max_order)}`],
     ['Order step', fmt(c.order_step, 3)],
     ['Fit residual', c.residual_de2000 != null ? `${fmt(c.residual_de2000)} ΔE00 (mean)` : ''],
-    ['Replaces', c.supersedes],
+    ['Replaces', calibrationLink(c.supersedes)],
+    ['Replaced by', calibrationLink(c.superseded_by)],
     ['Notes', c.notes],
   ];
 }
@@ -42,7 +51,8 @@ export class CalibrationsPage {
       clearTimeout(this.searchTimer);
       this.searchTimer = setTimeout(() => this.refresh(), 250);
     });
-    $('cal-archive').addEventListener('click', () => this.archive());
+    $('cal-archive').addEventListener('click', () => this.toggleArchived());
+    $('cal-show-archived').addEventListener('change', () => this.refresh());
     document.addEventListener(CHANGED, () => this.refresh());
     this.form = new NewCalibrationForm();
   }
@@ -67,7 +77,7 @@ export class CalibrationsPage {
     const q = this.search.value.trim();
     this.listStatus.textContent = 'Loading…';
     try {
-      const { calibrations } = await api.calibrations(q);
+      const { calibrations } = await api.calibrations(q, $('cal-show-archived').checked);
       if (request !== this.listRequest) return;
       this.render(calibrations);
       const n = calibrations.length;
@@ -91,12 +101,15 @@ export class CalibrationsPage {
         const sub = document.createElement('span');
         sub.className = 'cal-sub';
         sub.textContent = [c.material, c.light_source, `to N = ${fmt(c.max_order, 1)}`].filter(Boolean).join(' · ');
-        a.append(name, sub);
+        const comma = document.createElement('span');
+        comma.className = 'visually-hidden';
+        comma.textContent = ', ';
+        a.append(name, comma, sub);
         if (c.archived) {
           const badge = document.createElement('span');
           badge.className = 'badge';
           badge.textContent = 'archived';
-          a.append(badge);
+          a.append(comma.cloneNode(true), badge);
         }
         li.append(a);
         return li;
@@ -122,7 +135,7 @@ export class CalibrationsPage {
       $('cal-detail').hidden = false;
       $('cal-detail-name').textContent = c.name;
       $('cal-detail-archived').hidden = !c.archived;
-      $('cal-archive').hidden = Boolean(c.archived);
+      $('cal-archive').textContent = c.archived ? 'Restore to the list' : 'Archive';
       fillDl($('cal-detail-meta'), summaryPairs(c));
       this.strip.show(c.table);
       fillValues($('cal-values').tBodies[0], c.table.entries);
@@ -130,6 +143,7 @@ export class CalibrationsPage {
       exportLink.href = api.exportUrl(c.id);
       exportLink.download = `${c.name.replace(/[^\w.-]+/g, '_') || 'calibration'}.json`;
       $('cal-use').href = `#/analyse?calibration=${encodeURIComponent(c.id)}`;
+      $('cal-use').hidden = c.archived; // the analysis page offers listed calibrations only
     } catch (e) {
       $('cal-empty').hidden = true;
       $('cal-detail').hidden = false;
@@ -139,12 +153,14 @@ export class CalibrationsPage {
     }
   }
 
-  async archive() {
+  // Archives the calibration shown (after a confirmation) or restores it to the list.
+  async toggleArchived() {
     const c = this.current;
     if (!c) return;
-    if (!window.confirm(`Archive “${c.name}”? It stays readable but is no longer offered for new analyses.`)) return;
+    const question = `Archive “${c.name}”? It stays readable here (tick “Show archived ones too”) but leaves the list.`;
+    if (!c.archived && !window.confirm(question)) return;
     try {
-      await api.archive(c.id);
+      await (c.archived ? api.restore(c.id) : api.archive(c.id));
       document.dispatchEvent(new CustomEvent(CHANGED));
       await this.detail(c.id);
     } catch (e) {
@@ -192,13 +208,17 @@ class NewCalibrationForm {
     this.edits = 0; // counts changes to the inputs
 
     const gesture = new TwoPointGesture((a, b) => this.setRegion(a, b));
+    this.gesture = gesture;
     this.view.setTool({
       press: (p) => gesture.press(p),
       drag: (p) => {
         gesture.drag(p);
         this.point(p);
       },
-      release: (p) => gesture.release(p),
+      release: (p) => {
+        gesture.release(p);
+        this.point(p);
+      },
       hover: (p) => {
         gesture.hover(p);
         this.point(p);
@@ -243,9 +263,15 @@ class NewCalibrationForm {
 
   point(p) {
     const r = this.region;
+    const next = this.gesture.pending
+      ? ' Now point at the opposite corner and click (or press Enter).'
+      : r
+        ? ''
+        : ' Drag to draw the zone.';
     this.readout.textContent =
-      `Cursor at x ${fmt(p.x, 1)}, y ${fmt(p.y, 1)} px` +
-      (r ? `. Zone ${fmt(r.right - r.left, 0)} × ${fmt(r.bottom - r.top, 0)} px.` : '. Drag to draw the zone.');
+      `Cursor at x ${fmt(p.x, 1)}, y ${fmt(p.y, 1)} px.` +
+      (r ? ` Zone ${fmt(r.right - r.left, 0)} × ${fmt(r.bottom - r.top, 0)} px.` : '') +
+      next;
   }
 
   async loadPhoto() {

@@ -10,9 +10,10 @@ export const $ = (id) => {
 export function showError(el, error) {
   el.hidden = !error;
   el.textContent = error ? error.message || String(error) : '';
+  if (error) el.scrollIntoView({ block: 'nearest' });
 }
 
-// Fills a <dl> with [term, value] pairs, skipping empty values.
+// Fills a <dl> with [term, value] pairs (value: text or a node), skipping empty values.
 export function fillDl(dl, pairs) {
   dl.replaceChildren();
   for (const [term, value] of pairs) {
@@ -20,7 +21,7 @@ export function fillDl(dl, pairs) {
     const dt = document.createElement('dt');
     dt.textContent = term;
     const dd = document.createElement('dd');
-    dd.textContent = value;
+    dd.append(value);
     dl.append(dt, dd);
   }
 }

@@ -1,9 +1,13 @@
 // Drives the isotint workbench in Debian's headless Chromium, as a person would:
 // make a calibration from the demo beam photo by dragging the constant-moment zone (check the
-// fit, then save), analyse the demo disc photo with it, read a value by hovering, draw a profile
-// line and download the NPY map, whose shape must equal the photo's (height, width).
+// fit, then save), analyse the demo disc photo with it inside an outline drawn on the photo,
+// read values by hovering, draw a profile line and download the NPY map, whose shape must equal
+// the photo's (height, width).
 //
 // Usage: node workbench.mjs BASE_URL DEMO_DIR
+// DEMO_DIR is what `isotint demo --out DEMO_DIR` writes; its scenario.json names the photos,
+// the beam's constant-moment zone and edge order, the disc's centre and radius, and the
+// material's fringe value and thickness.
 // Screenshots go to $WORKBENCH_SCREENSHOTS (default: the system's temp directory).
 // Exits 0 when every step passed; prints one line per step and a closing "N passed, N failed".
 
@@ -20,7 +24,6 @@ if (!baseUrl || !demoDir) {
 const CHROMIUM = process.env.CHROMIUM || '/usr/bin/chromium';
 const SHOTS = process.env.WORKBENCH_SCREENSHOTS || os.tmpdir();
 const STEP_TIMEOUT = 120_000;
-const PHOTO = /\.(png|jpe?g|tiff?)$/i;
 
 let passed = 0;
 let failed = 0;
@@ -42,14 +45,6 @@ function check(condition, message) {
   if (!condition) throw new Error(message);
 }
 
-// The demo photo whose file name contains `word` (beam, disc).
-function demoPhoto(word) {
-  const files = fs.readdirSync(demoDir).filter((f) => PHOTO.test(f) && f.toLowerCase().includes(word));
-  check(files.length > 0, `no ${word} photo (png, jpeg or tiff with "${word}" in its name) in ${demoDir}`);
-  files.sort((a, b) => a.length - b.length);
-  return path.join(demoDir, files[0]);
-}
-
 // Reads the shape of a 2-D NPY file: [rows, cols].
 function npyShape(bytes) {
   check(bytes.subarray(1, 6).toString('latin1') === 'NUMPY', 'the download is not an NPY file');
@@ -61,47 +56,6 @@ function npyShape(bytes) {
   const [rows, cols] = [Number(shape[1]), Number(shape[2])];
   check(bytes.length - 10 - headerLength === rows * cols * 4, 'NPY data length does not match its shape');
   return [rows, cols];
-}
-
-// Finds the beam in a dark-field photo: its upper and lower edges are the first and last bright
-// rows of the middle column (the mid-line is dark too, the edges are bright), and the middle
-// fifth of its bright length is taken as the constant-moment zone. Runs in the page, which can
-// decode the photo.
-async function findBeam(page, file) {
-  const base64 = fs.readFileSync(file).toString('base64');
-  return page.evaluate(async (data) => {
-    const bytes = Uint8Array.from(atob(data), (c) => c.charCodeAt(0));
-    const bitmap = await createImageBitmap(new Blob([bytes]), { imageOrientation: 'none' });
-    const canvas = new OffscreenCanvas(bitmap.width, bitmap.height);
-    const ctx = canvas.getContext('2d');
-    ctx.drawImage(bitmap, 0, 0);
-    const { data: px, width, height } = ctx.getImageData(0, 0, bitmap.width, bitmap.height);
-    const bright = (x, y) => {
-      const i = (y * width + x) * 4;
-      return Math.max(px[i], px[i + 1], px[i + 2]) > 60;
-    };
-    const mid = Math.floor(width / 2);
-    let top = -1;
-    let bottom = -1;
-    for (let y = 0; y < height; y += 1) {
-      if (bright(mid, y)) {
-        if (top < 0) top = y;
-        bottom = y + 1;
-      }
-    }
-    if (top < 0) return null;
-    const row = Math.min(height - 1, top + 1);
-    let left = mid;
-    let right = mid;
-    while (left > 0 && bright(left - 1, row)) left -= 1;
-    while (right < width && bright(right, row)) right += 1;
-    const length = right - left;
-    return {
-      width,
-      height,
-      region: { left: Math.round(left + 0.4 * length), top, right: Math.round(left + 0.6 * length), bottom },
-    };
-  }, base64);
 }
 
 // Screen position of an image point on a view canvas (image coordinates in pixels).
@@ -143,8 +97,10 @@ async function main() {
       if (!r.url().startsWith(baseUrl) && !/^(blob|data):/.test(r.url())) problems.push(`request to ${r.url()}`);
     });
 
-    const beamFile = demoPhoto('beam');
-    const discFile = demoPhoto('disc');
+    const scenario = JSON.parse(fs.readFileSync(path.join(demoDir, 'scenario.json'), 'utf8'));
+    const { beam, disc } = scenario;
+    const beamFile = path.join(demoDir, beam.photos[0]);
+    const discFile = path.join(demoDir, disc.photo);
     const calibrationName = `Browser test beam ${Date.now()}`;
 
     await step('the workbench opens with its caution and both pages', async () => {
@@ -162,11 +118,9 @@ async function main() {
     await step('a calibration is made from the beam photo by dragging its zone', async () => {
       await page.getByRole('link', { name: /New calibration/ }).click();
       await cal.getByLabel('Beam photo (PNG, JPEG or TIFF)').setInputFiles(beamFile);
-      const beam = await findBeam(page, beamFile);
-      check(beam, `no bright beam found in ${beamFile}`);
       const view = page.locator('#cf-view');
       await page.getByText(`Photo ${beam.width} × ${beam.height} px`).waitFor();
-      const { region } = beam;
+      const region = beam.constant_moment_zone;
       const a = await screenPoint(view, beam, { x: region.left, y: region.top });
       const b = await screenPoint(view, beam, { x: region.right, y: region.bottom });
       await page.mouse.move(a.x, a.y);
@@ -174,10 +128,14 @@ async function main() {
       await page.mouse.move((a.x + b.x) / 2, (a.y + b.y) / 2, { steps: 4 });
       await page.mouse.move(b.x, b.y, { steps: 4 });
       await page.mouse.up();
-      const typed = await Promise.all(['Left', 'Top edge', 'Right', 'Bottom edge'].map((l) => cal.getByLabel(l, { exact: true }).inputValue()));
-      check(typed.every((v) => v !== '' && Number.isFinite(Number(v))), `zone fields not filled by the drag: ${typed}`);
-      check(Number(typed[2]) > Number(typed[0]) && Number(typed[3]) > Number(typed[1]), `zone is empty: ${typed}`);
-      await cal.getByLabel('Edge fringe order').fill(process.env.DEMO_EDGE_ORDER || '3');
+      // The drag lands within a screen pixel of the zone's corners, so the typed edges agree with
+      // the zone to within the view's scale.
+      const scale = beam.width / (await view.boundingBox()).width;
+      for (const [label, key] of [['Left', 'left'], ['Top edge', 'top'], ['Right', 'right'], ['Bottom edge', 'bottom']]) {
+        const typed = Number(await cal.getByLabel(label, { exact: true }).inputValue());
+        check(Math.abs(typed - region[key]) <= scale + 1, `${label} is ${typed} after the drag, expected about ${region[key]}`);
+      }
+      await cal.getByLabel('Edge fringe order').fill(String(beam.field.edge_order));
       await cal.getByLabel('Name', { exact: true }).fill(calibrationName);
       await cal.getByLabel('Material', { exact: true }).fill('demo model material');
       check(await cal.getByRole('button', { name: 'Save calibration' }).isDisabled(), 'saving is possible before the fit was checked');
@@ -201,7 +159,7 @@ async function main() {
     });
 
     let discSize;
-    await step('the disc photo is analysed with the new calibration', async () => {
+    await step('the disc photo is analysed with the new calibration inside a drawn outline', async () => {
       await page.getByRole('navigation').getByRole('link', { name: 'Analyse a photo' }).click();
       await an.getByLabel('1. Photo of the specimen').setInputFiles(discFile);
       await page.getByText(/^Photo \d+ × \d+ px\.$/).waitFor();
@@ -212,8 +170,19 @@ async function main() {
       await select.locator('option', { hasText: calibrationName }).waitFor({ state: 'attached' });
       const value = await select.locator('option', { hasText: calibrationName }).getAttribute('value');
       await select.selectOption(value);
-      await an.getByLabel('Material fringe value (N/mm per fringe)').fill('11');
-      await an.getByLabel('Thickness (mm)', { exact: true }).fill('6');
+      await an.getByLabel('Material fringe value (N/mm per fringe)').fill(String(scenario.fringe_value_n_per_mm));
+      await an.getByLabel('Thickness (mm)', { exact: true }).fill(String(scenario.thickness_mm));
+      // Outline: a 16-sided polygon just inside the disc's rim, closed on its first corner.
+      await an.getByLabel('Draw an outline on the photo').check();
+      const view = page.locator('#an-view');
+      const { centre, radius_px: radius } = disc.field;
+      for (let i = 0; i <= 16; i += 1) {
+        const angle = (2 * Math.PI * (i % 16)) / 16;
+        const corner = { x: centre.x + 0.95 * radius * Math.cos(angle), y: centre.y + 0.95 * radius * Math.sin(angle) };
+        const p = await screenPoint(view, discSize, corner);
+        await page.mouse.click(p.x, p.y);
+      }
+      await page.getByText('Outline closed, 16 corners.').waitFor();
       await an.getByRole('button', { name: 'Make the fringe-order map' }).click();
       const error = page.locator('#an-error');
       await Promise.race([
@@ -223,6 +192,7 @@ async function main() {
         }),
       ]);
       await page.locator('#an-legend').waitFor({ state: 'visible' });
+      await page.getByText(/^Map ready/).waitFor();
     });
 
     await step('hovering the map shows the fringe order (or names the flag) at the cursor', async () => {
@@ -238,6 +208,10 @@ async function main() {
       check(/^Pixel \(\d+, \d+\): /.test(readout), `no hover readout: ${readout}`);
       console.log(`# hover: ${readout}`);
       if (/fringe order \d/.test(readout)) check(/MPa/.test(readout), `no stress in the readout: ${readout}`);
+      const corner = await screenPoint(view, discSize, { x: 2, y: 2 });
+      await page.mouse.move(corner.x, corner.y);
+      readout = await page.locator('#an-readout').textContent();
+      check(/outside the specimen/.test(readout), `a pixel outside the outline is not named so: ${readout}`);
     });
 
     await step('a profile line is drawn across the map', async () => {
