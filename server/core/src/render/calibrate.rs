@@ -57,7 +57,8 @@ pub fn rendered_table(
     let entries = (0..=count)
         .into_par_iter()
         .map(|i| {
-            let order = i as f64 * order_step;
+            // Rounded to 1e-9 fringe so the JSON shows 0.35, not 0.35000000000000003.
+            let order = (i as f64 * order_step * 1e9).round() / 1e9;
             let mean = lab_from_linear(clip(renderer.linear_isoclinic_mean(order)));
             let spread = if plates.design_nm().is_none() {
                 [0.0; 3]

@@ -234,13 +234,50 @@ pub fn develop(
                     ))
                 }
             };
+            let mut rgb = eight()?;
+            average_chroma_blocks(&mut rgb, w as usize, h as usize);
             let mut out = Vec::new();
             let mut encoder = Encoder::new(&mut out, quality);
             encoder.set_sampling_factor(SamplingFactor::R_4_2_0);
             encoder
-                .encode(&eight()?, w16, h16, ColorType::Rgb)
+                .encode(&rgb, w16, h16, ColorType::Rgb)
                 .map_err(|e| CoreError::Encode(e.to_string()))?;
             Ok(out)
+        }
+    }
+}
+
+/// Replaces the chroma (JFIF YCbCr) of every 2×2 block by the block mean, keeping each pixel's
+/// luma. The JPEG encoder subsamples chroma by taking one pixel per block; averaging first
+/// makes its 4:2:0 output centred on the block, as camera encoders produce it.
+fn average_chroma_blocks(rgb: &mut [u8], width: usize, height: usize) {
+    let ycc = |p: &[u8]| {
+        let (r, g, b) = (f32::from(p[0]), f32::from(p[1]), f32::from(p[2]));
+        (
+            0.299 * r + 0.587 * g + 0.114 * b,
+            -0.168_736 * r - 0.331_264 * g + 0.5 * b,
+            0.5 * r - 0.418_688 * g - 0.081_312 * b,
+        )
+    };
+    for by in (0..height).step_by(2) {
+        for bx in (0..width).step_by(2) {
+            let pixels: Vec<usize> = [(0, 0), (1, 0), (0, 1), (1, 1)]
+                .iter()
+                .filter(|(dx, dy)| bx + dx < width && by + dy < height)
+                .map(|(dx, dy)| ((by + dy) * width + bx + dx) * 3)
+                .collect();
+            let n = pixels.len() as f32;
+            let (cb, cr) = pixels.iter().fold((0.0, 0.0), |acc, &i| {
+                let (_, cb, cr) = ycc(&rgb[i..i + 3]);
+                (acc.0 + cb / n, acc.1 + cr / n)
+            });
+            for &i in &pixels {
+                let (y, _, _) = ycc(&rgb[i..i + 3]);
+                let out = [y + 1.402 * cr, y - 0.344_136 * cb - 0.714_136 * cr, y + 1.772 * cb];
+                for (slot, v) in rgb[i..i + 3].iter_mut().zip(out) {
+                    *slot = v.round().clamp(0.0, 255.0) as u8;
+                }
+            }
         }
     }
 }

@@ -166,6 +166,7 @@ impl Renderer {
 
 /// One table row: Σ over wavelengths of the basis coefficients at the (sin δ, cos δ) that
 /// `phase(λ)` gives.
+#[allow(clippy::needless_range_loop)] // five accumulators share the channel index
 fn row(per_lambda: &[WavelengthWeights], phase: impl Fn(f64) -> (f64, f64)) -> [[f32; 3]; BASIS] {
     let mut acc = [[0.0f64; 3]; BASIS];
     for w in per_lambda {
