@@ -3,7 +3,7 @@
 // line and the downloads.
 
 import { api, getBytes } from './api.js';
-import { $, showError, fillDl, numberIn, requiredNumber, progress } from './dom.js';
+import { $, showError, fillDl, requiredNumber, progress } from './dom.js';
 import { ImageView, TwoPointGesture, decodeImage, tracePath, strokeBoth, marker } from './view.js';
 import { drawColourBar, drawProfile, fmt } from './plot.js';
 import { cividis, flagOf, scaleTop, FLAGS } from './colour.js';
@@ -280,15 +280,11 @@ export class AnalysisPage {
     );
   }
 
-  // MPa per fringe from the material fringe value and thickness, or null if either is missing.
+  // MPa per fringe from the material fringe value and thickness (σ1 − σ2 = N·f/h), or null
+  // while either is missing or not a positive number.
   stressPerOrder() {
-    try {
-      const f = numberIn($('an-fringe-value'), { positive: true });
-      const h = numberIn($('an-thickness'), { positive: true });
-      return f !== null && h !== null ? f / h : null;
-    } catch {
-      return null;
-    }
+    const [f, h] = ['an-fringe-value', 'an-thickness'].map((id) => $(id).valueAsNumber);
+    return f > 0 && h > 0 ? f / h : null;
   }
 
   // The map's values at an image point: {x, y, order, flag} with pixel indices.

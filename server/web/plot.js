@@ -11,7 +11,9 @@ const FONT = '12px system-ui, sans-serif';
 // Number formatting with a real minus sign.
 export function fmt(value, digits = 2) {
   if (!Number.isFinite(value)) return '–';
-  return value.toFixed(digits).replace('-', '−');
+  const text = value.toFixed(digits);
+  // No "−0.0": a value that rounds to zero is shown unsigned.
+  return Number(text) === 0 ? text.replace('-', '') : text.replace('-', '−');
 }
 
 // Evenly spaced "nice" tick values (1, 2 or 5 × 10^k apart) covering [min, max].

@@ -56,7 +56,7 @@ export class ImageView {
   }
 
   setTool(tool) {
-    if (this.pressed) this.pressed = false;
+    this.pressed = false;
     this.tool = tool || {};
     this.draw();
   }
