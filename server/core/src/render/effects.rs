@@ -160,7 +160,9 @@ fn develop_codes(
     let optics = apply_optics(image, effects)?;
     let w = image.width as usize;
     let sigma = effects.noise_sigma_codes * max_code / 255.0;
-    let noise = Normal::new(0.0f32, sigma.max(f32::MIN_POSITIVE))
+    let noise = (sigma > 0.0)
+        .then(|| Normal::new(0.0f32, sigma))
+        .transpose()
         .map_err(|e| CoreError::invalid("noise_sigma_codes", e.to_string()))?;
     let mut codes = vec![[0.0f32; 3]; optics.pixels.len()];
     codes
@@ -175,7 +177,7 @@ fn develop_codes(
             for (o, c) in out.iter_mut().zip(row) {
                 let e: Srgb<f32> = Srgb::from_linear(clip(*c));
                 *o = [e.red, e.green, e.blue].map(|v| {
-                    let n = if sigma > 0.0 { rng.sample(noise) } else { 0.0 };
+                    let n = noise.map_or(0.0, |d| rng.sample(d));
                     (v * max_code + n).clamp(0.0, max_code)
                 });
             }
@@ -273,7 +275,11 @@ fn average_chroma_blocks(rgb: &mut [u8], width: usize, height: usize) {
             });
             for &i in &pixels {
                 let (y, _, _) = ycc(&rgb[i..i + 3]);
-                let out = [y + 1.402 * cr, y - 0.344_136 * cb - 0.714_136 * cr, y + 1.772 * cb];
+                let out = [
+                    y + 1.402 * cr,
+                    y - 0.344_136 * cb - 0.714_136 * cr,
+                    y + 1.772 * cb,
+                ];
                 for (slot, v) in rgb[i..i + 3].iter_mut().zip(out) {
                     *slot = v.round().clamp(0.0, 255.0) as u8;
                 }

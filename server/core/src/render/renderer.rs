@@ -71,7 +71,8 @@ struct WavelengthWeights {
 }
 
 impl Renderer {
-    /// Builds the colour table (about 50 ms for 401 wavelengths × 5751 retardations).
+    /// Builds the colour table: 401 wavelengths × 5751 retardations, about 0.1 s in release
+    /// mode on two cores. Build once per setup and share.
     pub fn new(setup: RenderSetup) -> CoreResult<Renderer> {
         if !(setup.exposure.is_finite() && setup.exposure > 0.0) {
             return Err(CoreError::invalid(
