@@ -87,7 +87,7 @@ fn supersampling_averages_the_samples_inside_each_pixel() {
         let s = beam.sample(sx, sy).unwrap();
         expected += renderer.linear(s.order, s.fast_axis_rad());
     }
-    expected = expected * 0.25;
+    expected *= 0.25;
     let got = scene.image.pixels[(y * 8 + x) as usize];
     assert_relative_eq!(got.red, expected.red, epsilon = 1e-6);
     assert_relative_eq!(got.green, expected.green, epsilon = 1e-6);
