@@ -43,6 +43,8 @@ const BEYOND: usize = CANDIDATES;
 const SEARCH_STEP: f64 = 0.02;
 /// Weight of ΔL\* in the search distance (a\* and b\* have weight 1).
 const LIGHTNESS_WEIGHT: f32 = 0.6;
+/// Weight of ΔL\* in the local refinement of the chosen candidate.
+const REFINE_LIGHTNESS_WEIGHT: f32 = 2.5;
 /// Least CIELAB chroma of the table colour of a pixel used in the exposure fit.
 const FIT_MIN_CHROMA: f32 = 20.0;
 /// Weight of ΔL\* in the preliminary pass that feeds the exposure fit.
@@ -60,6 +62,11 @@ const COST_CAP: f32 = 25.0;
 /// tints that match some high table order only loosely; a region whose best match is worse
 /// than this, and that continues the top of the table, is taken as beyond range.
 const BEYOND_COST: f32 = 6.0;
+/// Cost per fringe of a change of order within the maximum gradient: small, so that ramps pass
+/// freely but, of two equally good candidates, the one closer to the neighbours wins.
+const RAMP_COST: f32 = 6.0;
+/// The *beyond range* cost is at least this multiple of the photo's median best match.
+const BEYOND_TO_TYPICAL: f32 = 4.0;
 /// Cost of a change of order between one and two maximum gradients.
 const SLOPE_PENALTY: f32 = 3.0;
 /// Cost of a larger change of order (a jump between candidate chains).
@@ -68,6 +75,19 @@ const JUMP_PENALTY: f32 = 24.0;
 const HINT_PENALTY: f32 = 400.0;
 /// How far a label may lie from a hint's order without penalty, fringes.
 const HINT_TOLERANCE: f64 = 0.2;
+/// Layers grown by the repair of flagged pixels next to valued ones.
+const REPAIR_LAYERS: usize = 12;
+/// Steepest field the repair accepts, fringes per pixel.
+const REPAIR_MAX_GRADIENT: f64 = 0.35;
+/// Largest ΔE\*ab between a repaired pixel and its footprint-averaged table colour.
+const REPAIR_RESIDUAL: f32 = 6.0;
+/// Orders this close to the top of the table (fringes) next to *beyond range* pixels are
+/// taken as beyond range too.
+const TOP_GUARD: f32 = 0.25;
+/// How many pixel layers that rule may spread.
+const TOP_GUARD_LAYERS: usize = 4;
+/// Radius of the final order smoothing window, pixels.
+const SMOOTH_RADIUS: usize = 2;
 /// The eight scan directions of the aggregation.
 const DIRECTIONS: [(i32, i32); 8] = [
     (1, 0),
@@ -215,7 +235,7 @@ fn transition(a: f32, b: f32, step_gradient: f32, top: f32) -> f32 {
     let (a, b) = (a.min(top + step_gradient), b.min(top + step_gradient));
     let change = (a - b).abs();
     if change <= step_gradient {
-        0.0
+        RAMP_COST * change
     } else if change <= 2.0 * step_gradient {
         SLOPE_PENALTY
     } else {
@@ -337,7 +357,12 @@ fn solve_pass(
         Stage::Final => (LIGHTNESS_WEIGHT, BEYOND_COST),
     };
     let search = SearchTable::new(table, SEARCH_STEP, max_order, lightness_weight);
-    let fine = SearchTable::new(table, table.order_step, max_order, lightness_weight);
+    let fine = SearchTable::new(
+        table,
+        table.order_step,
+        max_order,
+        REFINE_LIGHTNESS_WEIGHT.max(lightness_weight),
+    );
     let top = search.max_order() as f32;
     let gradient = options.max_gradient as f32;
     let beyond_order = top + 2.0 * gradient;
@@ -354,6 +379,24 @@ fn solve_pass(
             }
         })
         .collect();
+    if beyond_cost.is_finite() {
+        // Noisy or compressed photos match the table less well everywhere: scale the cost of
+        // *beyond range* with the photo's typical best match.
+        let mut best: Vec<f32> = labels
+            .iter()
+            .step_by((labels.len() / 20_000).max(1))
+            .map(|l| l.cost[0])
+            .filter(|c| c.is_finite())
+            .collect();
+        if !best.is_empty() {
+            let typical = median_f32(&mut best);
+            let scaled = beyond_cost.max(BEYOND_TO_TYPICAL * typical);
+            labels
+                .par_iter_mut()
+                .filter(|l| l.cost[BEYOND].is_finite())
+                .for_each(|l| l.cost[BEYOND] = scaled);
+        }
+    }
     for hint in &options.hints {
         if let Some((x, y)) = hint.at.pixel(lab.width, lab.height) {
             let p = y as usize * width + x as usize;
@@ -433,6 +476,10 @@ fn solve_pass(
             }
         });
     flag_steep_and_isolated(&mut pass, width, height, gradient);
+    if stage == Stage::Final {
+        repair_steep_edges(&mut pass, lab, table, max_order, width, height);
+        extend_beyond_range(&mut pass, top, width, height);
+    }
     smooth(&mut pass, width, height, gradient);
     for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
         if f.0 != 0 {
@@ -501,6 +548,157 @@ fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usize, gradien
     }
 }
 
+/// Grows values into flagged pixels next to valued ones, layer by layer: a plane fitted to the
+/// valued pixels around predicts the order and its gradient G; the pixel's colour must then
+/// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
+/// fringes blur within a pixel, within a window of the prediction. What does not match stays
+/// flagged.
+fn repair_steep_edges(
+    pass: &mut Pass,
+    lab: &LabImage,
+    table: &CalibrationTable,
+    max_order: f64,
+    width: usize,
+    height: usize,
+) {
+    let r = 2i64;
+    for _ in 0..REPAIR_LAYERS {
+        let order = pass.order.clone();
+        let flags = pass.flags.clone();
+        let valued = |q: usize| flags[q].0 == 0;
+        let updates: Vec<(usize, f32, f32)> = (0..order.len())
+            .into_par_iter()
+            .filter(|&p| !flags[p].has(PixelFlags::OUTSIDE_MASK) && !valued(p))
+            .filter_map(|p| {
+                let (x, y) = ((p % width) as i64, (p / width) as i64);
+                // Least-squares plane n = a + bx·dx + by·dy through valued pixels around.
+                let (mut s1, mut sx, mut sy, mut sxx, mut syy, mut sxy) =
+                    (0.0f64, 0.0, 0.0, 0.0, 0.0, 0.0);
+                let (mut sn, mut sxn, mut syn) = (0.0f64, 0.0, 0.0);
+                for dy in -r..=r {
+                    for dx in -r..=r {
+                        let (nx, ny) = (x + dx, y + dy);
+                        if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
+                            continue;
+                        }
+                        let q = ny as usize * width + nx as usize;
+                        if !valued(q) {
+                            continue;
+                        }
+                        let (fx, fy, n) = (dx as f64, dy as f64, f64::from(order[q]));
+                        s1 += 1.0;
+                        sx += fx;
+                        sy += fy;
+                        sxx += fx * fx;
+                        syy += fy * fy;
+                        sxy += fx * fy;
+                        sn += n;
+                        sxn += fx * n;
+                        syn += fy * n;
+                    }
+                }
+                if s1 < 4.0 {
+                    return None;
+                }
+                let (a, bx, by) = solve3(
+                    [[s1, sx, sy], [sx, sxx, sxy], [sy, sxy, syy]],
+                    [sn, sxn, syn],
+                )?;
+                let g = bx.hypot(by);
+                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > max_order - 0.05 {
+                    return None;
+                }
+                let reach = 0.05 + 0.5 * g;
+                let colour = lab.data[p];
+                let lo = ((a - reach).max(0.0) / table.order_step).floor() as usize;
+                let hi = ((a + reach).min(max_order) / table.order_step).ceil() as usize;
+                let footprint = |n: f64| {
+                    let mut acc = [0f32; 3];
+                    for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
+                        let c = table.colour_at((n + g * u).clamp(0.0, max_order));
+                        acc[0] += c.l / 5.0;
+                        acc[1] += c.a / 5.0;
+                        acc[2] += c.b / 5.0;
+                    }
+                    Lab::new(acc[0], acc[1], acc[2])
+                };
+                let (best_n, best_d) = (lo..=hi)
+                    .map(|i| {
+                        let n = i as f64 * table.order_step;
+                        (n, delta_e_ab(colour, footprint(n)))
+                    })
+                    .min_by(|u, v| u.1.total_cmp(&v.1))?;
+                (best_d < REPAIR_RESIDUAL).then_some((p, best_n as f32, best_d))
+            })
+            .collect();
+        if updates.is_empty() {
+            break;
+        }
+        for (p, n, d) in updates {
+            pass.order[p] = n;
+            pass.residual[p] = d;
+            pass.flags[p] = PixelFlags::default();
+        }
+    }
+}
+
+/// Near the end of the table colours cannot tell whether the order still rises: valued pixels
+/// within [`TOP_GUARD`] fringes of the table's top that lie next to a *beyond range* pixel are
+/// flagged beyond range too, a few layers deep.
+fn extend_beyond_range(pass: &mut Pass, top: f32, width: usize, height: usize) {
+    for _ in 0..TOP_GUARD_LAYERS {
+        let flags = pass.flags.clone();
+        let grown: Vec<usize> = (0..pass.order.len())
+            .into_par_iter()
+            .filter(|&p| {
+                flags[p].0 == 0
+                    && pass.order[p] >= top - TOP_GUARD
+                    && neighbours8(p % width, p / width, width, height)
+                        .any(|q| flags[q].has(PixelFlags::BEYOND_RANGE))
+            })
+            .collect();
+        if grown.is_empty() {
+            break;
+        }
+        for p in grown {
+            pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
+        }
+    }
+}
+
+/// Row-major indices of the 8-neighbours of (x, y) inside a `width` × `height` image.
+fn neighbours8(x: usize, y: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {
+    (-1i64..=1)
+        .flat_map(|dy| (-1i64..=1).map(move |dx| (dx, dy)))
+        .filter(|&(dx, dy)| dx != 0 || dy != 0)
+        .map(move |(dx, dy)| (x as i64 + dx, y as i64 + dy))
+        .filter(move |&(nx, ny)| {
+            nx >= 0 && ny >= 0 && (nx as usize) < width && (ny as usize) < height
+        })
+        .map(move |(nx, ny)| ny as usize * width + nx as usize)
+}
+
+/// Solves a 3×3 linear system by Cramer's rule; `None` if it is (nearly) singular.
+fn solve3(m: [[f64; 3]; 3], v: [f64; 3]) -> Option<(f64, f64, f64)> {
+    let det = |m: [[f64; 3]; 3]| {
+        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+    };
+    let d = det(m);
+    if d.abs() < 1e-9 {
+        return None;
+    }
+    let column = |k: usize| {
+        let mut c = m;
+        for row in 0..3 {
+            c[row][k] = v[row];
+        }
+        det(c) / d
+    };
+    Some((column(0), column(1), column(2)))
+}
+
 /// Row-major indices of the 4-neighbours of (x, y) inside a `width` × `height` image.
 fn neighbours4(x: usize, y: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {
     [
@@ -514,39 +712,41 @@ fn neighbours4(x: usize, y: usize, width: usize, height: usize) -> impl Iterator
     .map(move |(nx, ny)| ny * width + nx)
 }
 
-/// Averages each valued pixel with its 3×3 neighbourhood where all nine are valued and lie
-/// within a few gradients of each other (a symmetric mean keeps linear ramps exact).
+/// Averages each valued pixel with its (2r+1)² neighbourhood, r = [`SMOOTH_RADIUS`], where all
+/// of it is valued and lies within a few gradients of the centre (a symmetric mean keeps
+/// linear ramps exact and leaves edges of the valued area alone).
 fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
+    let r = SMOOTH_RADIUS;
+    let limit = 2.0 * gradient * r as f32;
     let order = pass.order.clone();
     let flags = &pass.flags;
+    let count = ((2 * r + 1) * (2 * r + 1)) as f32;
     pass.order
         .par_chunks_mut(width)
         .enumerate()
         .for_each(|(y, row)| {
-            if y == 0 || y + 1 >= height {
+            if y < r || y + r >= height {
                 return;
             }
-            for x in 1..width.saturating_sub(1) {
+            for x in r..width.saturating_sub(r) {
                 let p = y * width + x;
                 if flags[p].0 != 0 {
                     continue;
                 }
                 let mut sum = 0.0;
                 let mut ok = true;
-                for ny in y - 1..=y + 1 {
-                    for nx in x - 1..=x + 1 {
+                'window: for ny in y - r..=y + r {
+                    for nx in x - r..=x + r {
                         let q = ny * width + nx;
-                        if flags[q].0 != 0
-                            || !order[q].is_finite()
-                            || (order[q] - order[p]).abs() > 3.0 * gradient
-                        {
+                        if flags[q].0 != 0 || (order[q] - order[p]).abs() > limit {
                             ok = false;
+                            break 'window;
                         }
                         sum += order[q];
                     }
                 }
                 if ok {
-                    row[x] = sum / 9.0;
+                    row[x] = sum / count;
                 }
             }
         });
