@@ -11,9 +11,7 @@ use isotint::config::ServiceConfig;
 use isotint::http::{app, AppState};
 use isotint::storage::Storage;
 use isotint_core::render::camera::CameraModel;
-use isotint_core::render::effects::{
-    apply_optics, develop, encode_mask_png, PhotoEffects, PhotoEncoding,
-};
+use isotint_core::render::effects::{develop, encode_mask_png, PhotoEffects, PhotoEncoding};
 use isotint_core::render::fields::{BendingBeamField, DiscField, OrderField};
 use isotint_core::render::light::LightSource;
 use isotint_core::render::polariscope::QuarterWavePlates;
@@ -30,6 +28,8 @@ pub struct TestService {
     pub app: Router,
     /// Direct access to the database.
     pub storage: Storage,
+    /// The state behind the router (job gate, configuration).
+    pub state: AppState,
     /// Keeps the database directory alive.
     pub dir: tempfile::TempDir,
 }
@@ -42,8 +42,14 @@ pub async fn service_with(config: ServiceConfig) -> TestService {
         dir.path().join("test.sqlite").display()
     );
     let storage = Storage::connect(&url).await.unwrap();
-    let app = app(AppState::new(storage.clone(), config));
-    TestService { app, storage, dir }
+    let state = AppState::new(storage.clone(), config);
+    let app = app(state.clone());
+    TestService {
+        app,
+        storage,
+        state,
+        dir,
+    }
 }
 
 /// A fresh service with default limits.
@@ -330,15 +336,14 @@ pub struct RenderedPhoto {
 
 /// Renders `field` as a lightly blurred 8-bit PNG.
 pub fn render(field: &dyn OrderField, width: u32, height: u32, seed: u64) -> RenderedPhoto {
-    let scene = render_scene(field, &renderer(), width, height, 2).unwrap();
+    let scene = render_scene(field, &renderer(), width, height, 3).unwrap();
     let fx = PhotoEffects {
         blur_sigma_px: 0.6,
         seed,
         ..PhotoEffects::default()
     };
-    let optics = apply_optics(&scene.image, &fx).unwrap();
     RenderedPhoto {
-        png: develop(&optics, &fx, PhotoEncoding::Png8).unwrap(),
+        png: develop(&scene.image, &fx, PhotoEncoding::Png8).unwrap(),
         mask_png: encode_mask_png(&scene.mask).unwrap(),
         true_order: scene.true_order,
         width,
@@ -364,16 +369,16 @@ pub fn beam_photo() -> (RenderedPhoto, PixelRect) {
     (render(&beam, 600, 240, 1), region)
 }
 
-/// A disc in diametral compression (280 × 280 px), centre order ≈ 2.
+/// A disc in diametral compression (360 × 360 px, 40 mm across, 700 N, f_σ = 11 N/mm).
 pub fn disc_photo() -> RenderedPhoto {
     let disc = DiscField::new(
-        PixelPoint { x: 140.0, y: 140.0 },
-        125.0,
-        DiscInCompression::new(40.0, 6.0, 500.0).unwrap(),
+        PixelPoint { x: 180.0, y: 180.0 },
+        160.0,
+        DiscInCompression::new(40.0, 6.0, 700.0).unwrap(),
         11.0,
     )
     .unwrap();
-    render(&disc, 280, 280, 2)
+    render(&disc, 360, 360, 2)
 }
 
 /// The region as the API's JSON object.

@@ -125,7 +125,7 @@ impl ApiError {
                 StatusCode::GATEWAY_TIMEOUT,
                 "timeout",
                 format!(
-                    "the request took longer than the limit of {}",
+                    "the request exceeded the time limit of {}",
                     humantime::format_duration(*limit)
                 ),
             ),

@@ -82,13 +82,26 @@ impl Form {
 }
 
 /// Parses `bytes` as the JSON of `what`: syntax errors answer 400, values of the wrong shape
-/// (missing or unknown fields, wrong types) 422; both name the problem.
+/// (missing or unknown fields, wrong types) 422; both name the problem and where it is.
 pub fn parse_json<T: DeserializeOwned>(what: &str, bytes: &[u8]) -> Result<T, ApiError> {
-    serde_json::from_slice(bytes).map_err(|e| {
-        let message = format!("{what}: {e}");
-        match e.classify() {
-            serde_json::error::Category::Data => ApiError::unprocessable("invalid_json", message),
-            _ => ApiError::bad_request("malformed_json", message),
-        }
-    })
+    let mut de = serde_json::Deserializer::from_slice(bytes);
+    let value = serde_path_to_error::deserialize(&mut de).map_err(|e| {
+        let path = e.path().to_string();
+        let place = if path == "." {
+            what.to_string()
+        } else {
+            format!("{what}.{path}")
+        };
+        json_error(&place, e.into_inner())
+    })?;
+    de.end().map_err(|e| json_error(what, e))?;
+    Ok(value)
+}
+
+fn json_error(place: &str, e: serde_json::Error) -> ApiError {
+    let message = format!("{place}: {e}");
+    match e.classify() {
+        serde_json::error::Category::Data => ApiError::unprocessable("invalid_json", message),
+        _ => ApiError::bad_request("malformed_json", message),
+    }
 }

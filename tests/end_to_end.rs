@@ -1,0 +1,213 @@
+//! The whole chain through the real router: a calibration measured on a rendered beam photo,
+//! then a rendered disc mapped with it and compared with the closed-form fringe orders.
+
+mod common;
+
+use std::time::Duration;
+
+use axum::http::StatusCode;
+use common::{
+    beam_photo, disc_photo, get, region_json, service, service_with, Form, Reply, BEAM_EDGE_ORDER,
+};
+use isotint::config::ServiceConfig;
+use isotint_core::export::read_npy_f32;
+use isotint_core::Mask;
+use serde_json::json;
+
+/// Creates a calibration from the rendered beam; returns its id.
+async fn calibrate(app: &axum::Router) -> String {
+    let (beam, region) = beam_photo();
+    let spec = json!({
+        "name": "Rendered beam",
+        "region": region_json(&region),
+        "edge_order": BEAM_EDGE_ORDER,
+        "material": "cast epoxy",
+        "light_source": "daylight",
+    });
+    let reply = Form::new()
+        .file("photo", "beam.png", "image/png", beam.png)
+        .json("spec", &spec)
+        .post(app, "/api/v1/calibrations")
+        .await;
+    assert_eq!(
+        reply.status,
+        StatusCode::CREATED,
+        "{}",
+        String::from_utf8_lossy(&reply.body)
+    );
+    let v = reply.json();
+    assert_eq!(v["source_kind"], "beam_photo");
+    assert!(
+        v["report"]["residual_mean_de2000"].as_f64().unwrap() < 5.0,
+        "{v}"
+    );
+    assert!(v["residual_de2000"].is_number());
+    v["id"].as_str().unwrap().to_string()
+}
+
+/// Mean absolute error and coverage of `orders` against the disc's true orders, scored ≥ 3 px
+/// inside the mask where the true order is ≤ 4.
+fn score(orders: &[f32], truth: &[f32], mask_png: &[u8]) -> (f64, f64) {
+    let mask = Mask::decode(mask_png, &Default::default())
+        .unwrap()
+        .eroded(3);
+    let (mut scored, mut valued, mut sum) = (0usize, 0usize, 0.0f64);
+    for (i, t) in truth.iter().enumerate() {
+        if !mask.as_slice()[i] || !t.is_finite() || *t > 4.0 {
+            continue;
+        }
+        scored += 1;
+        if orders[i].is_finite() {
+            valued += 1;
+            sum += f64::from((orders[i] - t).abs());
+        }
+    }
+    assert!(scored > 10_000, "too few scored pixels: {scored}");
+    (sum / valued.max(1) as f64, valued as f64 / scored as f64)
+}
+
+fn npy(reply: &Reply) -> (usize, usize, Vec<f32>) {
+    assert_eq!(
+        reply.status,
+        StatusCode::OK,
+        "{}",
+        String::from_utf8_lossy(&reply.body)
+    );
+    read_npy_f32(&reply.body).unwrap()
+}
+
+#[tokio::test]
+async fn a_dry_run_reports_the_residual_and_stores_nothing() {
+    let svc = service().await;
+    let (beam, region) = beam_photo();
+    let spec = json!({"name": "Trial", "region": region_json(&region), "edge_order": BEAM_EDGE_ORDER, "dry_run": true});
+    let reply = Form::new()
+        .file("photo", "beam.png", "image/png", beam.png)
+        .json("spec", &spec)
+        .post(&svc.app, "/api/v1/calibrations")
+        .await;
+    assert_eq!(
+        reply.status,
+        StatusCode::OK,
+        "{}",
+        String::from_utf8_lossy(&reply.body)
+    );
+    let v = reply.json();
+    assert!(v["report"]["residual_mean_de2000"].is_number());
+    assert_eq!(v["table"]["format"], "isotint-calibration");
+    let list = get(&svc.app, "/api/v1/calibrations").await.json();
+    assert!(list["calibrations"].as_array().unwrap().is_empty());
+}
+
+#[tokio::test]
+async fn a_disc_mapped_with_a_beam_calibration_matches_the_closed_form_orders() {
+    let svc = service().await;
+    let id = calibrate(&svc.app).await;
+    let disc = disc_photo();
+
+    // One round trip: the NPY comes back directly.
+    let reply = Form::new()
+        .file("photo", "disc.png", "image/png", disc.png.clone())
+        .text("calibration", &id)
+        .file("mask", "disc-mask.png", "image/png", disc.mask_png.clone())
+        .post(&svc.app, "/api/v1/order-maps?format=npy")
+        .await;
+    let (rows, cols, orders) = npy(&reply);
+    assert_eq!((rows, cols), (disc.height as usize, disc.width as usize));
+    let (mae, coverage) = score(&orders, &disc.true_order, &disc.mask_png);
+    println!(
+        "disc via API: MAE {mae:.4} fringe, coverage {:.2} %",
+        100.0 * coverage
+    );
+    assert!(mae <= 0.02, "mean absolute error {mae}");
+    assert!(coverage >= 0.97, "coverage {coverage}");
+
+    // Stored: JSON description, then every file by link.
+    let reply = Form::new()
+        .file("photo", "disc.png", "image/png", disc.png.clone())
+        .text("calibration", &id)
+        .file("mask", "disc-mask.png", "image/png", disc.mask_png.clone())
+        .json("options", &json!({"exposure_compensation": true}))
+        .post(&svc.app, "/api/v1/order-maps")
+        .await;
+    assert_eq!(
+        reply.status,
+        StatusCode::CREATED,
+        "{}",
+        String::from_utf8_lossy(&reply.body)
+    );
+    let v = reply.json();
+    assert_eq!(v["width"], disc.width);
+    assert_eq!(v["calibration_id"], id.as_str());
+    assert!(v["statistics"]["valued_pixels"].as_u64().unwrap() > 10_000);
+    let links = &v["links"];
+    let again = get(&svc.app, links["self"].as_str().unwrap()).await;
+    assert_eq!(again.status, StatusCode::OK);
+    assert_eq!(again.json()["id"], v["id"]);
+    let (_, _, stored) = npy(&get(&svc.app, links["npy"].as_str().unwrap()).await);
+    assert_eq!(stored.len(), orders.len());
+    let same = stored
+        .iter()
+        .zip(&orders)
+        .all(|(a, b)| a.to_bits() == b.to_bits() || (a.is_nan() && b.is_nan()));
+    assert!(same, "the stored map equals the direct one");
+    for (kind, content_type) in [
+        ("png16", "image/png"),
+        ("preview", "image/png"),
+        ("csv", "text/csv"),
+    ] {
+        let reply = get(&svc.app, links[kind].as_str().unwrap()).await;
+        assert_eq!(reply.status, StatusCode::OK, "{kind}");
+        assert!(
+            reply.headers["content-type"]
+                .to_str()
+                .unwrap()
+                .starts_with(content_type),
+            "{kind}"
+        );
+        assert!(reply.body.len() > 1000, "{kind}");
+    }
+    let flags = get(&svc.app, links["flags"].as_str().unwrap()).await;
+    assert_eq!(flags.status, StatusCode::OK);
+    assert!(flags.body.starts_with(b"\x93NUMPY"));
+    assert!(flags.body.len() >= (disc.width * disc.height) as usize);
+}
+
+#[tokio::test]
+async fn an_expired_order_map_answers_410_and_is_purged() {
+    let svc = service_with(ServiceConfig {
+        retention: Duration::ZERO,
+        ..ServiceConfig::default()
+    })
+    .await;
+    let id = calibrate(&svc.app).await;
+    let disc = disc_photo();
+    let reply = Form::new()
+        .file("photo", "disc.png", "image/png", disc.png)
+        .text("calibration", &id)
+        .post(&svc.app, "/api/v1/order-maps")
+        .await;
+    assert_eq!(
+        reply.status,
+        StatusCode::CREATED,
+        "{}",
+        String::from_utf8_lossy(&reply.body)
+    );
+    let map_id = reply.json()["id"].as_str().unwrap().to_string();
+    let gone = get(&svc.app, &format!("/api/v1/order-maps/{map_id}")).await;
+    assert_eq!(gone.status, StatusCode::GONE);
+    assert!(gone.error_message().contains("expired"));
+    let gone = get(&svc.app, &format!("/api/v1/order-maps/{map_id}/npy")).await;
+    assert_eq!(gone.status, StatusCode::GONE);
+    let later = time::OffsetDateTime::now_utc() + time::Duration::seconds(1);
+    let purged = isotint::storage::order_maps::purge_expired(&svc.storage, later)
+        .await
+        .unwrap();
+    assert_eq!(purged, 1);
+    assert_eq!(
+        get(&svc.app, &format!("/api/v1/order-maps/{map_id}"))
+            .await
+            .status,
+        StatusCode::NOT_FOUND
+    );
+}
