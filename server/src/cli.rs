@@ -10,6 +10,7 @@ use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
+use isotint_core::render::demo::DemoScenario;
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, OrderHint, PixelRect,
 };
@@ -56,6 +57,9 @@ pub enum Command {
     Calibrate(CalibrateArgs),
     /// Map the fringe orders of a specimen photo with a calibration table.
     Map(MapArgs),
+    /// Write the demo scenario (rendered photos, masks, true orders) and a calibration
+    /// measured on its beam photo.
+    Demo(DemoArgs),
 }
 
 /// Options of `isotint serve`.
@@ -122,6 +126,7 @@ impl ServeArgs {
 
 /// Options of `isotint calibrate`.
 #[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
 pub struct CalibrateArgs {
     /// Photo of the beam in four-point bending (PNG, JPEG or TIFF).
     #[arg(long)]
@@ -174,6 +179,7 @@ pub struct CalibrateArgs {
 
 /// Options of `isotint map`.
 #[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
 pub struct MapArgs {
     /// Calibration file (JSON, as written by `isotint calibrate`).
     #[arg(long)]
@@ -198,6 +204,14 @@ pub struct MapArgs {
     pub hints: Vec<OrderHint>,
     /// Output file; the format follows the extension: .npy (float32, NaN = no value), .png
     /// (16-bit, N × 1000), .preview.png (false colour), .csv.
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
+/// Options of `isotint demo`.
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Directory to write to (created if missing).
     #[arg(long)]
     pub out: PathBuf,
 }
@@ -243,6 +257,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Serve(args) => serve(&args),
         Command::Calibrate(args) => calibrate(&args),
         Command::Map(args) => map(&args),
+        Command::Demo(args) => demo(&args),
     }
 }
 
@@ -389,3 +404,50 @@ pub fn statistics_text(s: &MapStatistics) -> String {
         s.mean_residual
     )
 }
+
+/// Share of the constant-moment zone's length left out at each end when the demo calibrates
+/// (keeps away from the load points).
+const DEMO_ZONE_INSET: f64 = 0.05;
+
+fn demo(args: &DemoArgs) -> anyhow::Result<()> {
+    let scenario = DemoScenario::birchfield()?;
+    std::fs::create_dir_all(&args.out)
+        .with_context(|| format!("could not create {}", args.out.display()))?;
+    for file in &scenario.files {
+        write(&args.out.join(&file.name), &file.bytes)?;
+        println!("{:<26} {}", file.name, file.description);
+    }
+    let d = &scenario.description;
+    let zone = d.beam.constant_moment_zone;
+    let inset = DEMO_ZONE_INSET * zone.width();
+    let region = PixelRect::new(zone.left + inset, zone.top, zone.right - inset, zone.bottom)?;
+    let load = EdgeLoad::Load {
+        moment_n_mm: d.beam.moment_n_mm,
+        depth_mm: d.beam.depth_mm,
+        fringe_value_n_per_mm: d.fringe_value_n_per_mm,
+    };
+    let metadata = CalibrationMetadata {
+        name: "Demo beam, four-point bending".into(),
+        material: d.material.clone(),
+        thickness_mm: Some(d.thickness_mm),
+        light_source: d.setup.light.description().into(),
+        camera: d.setup.camera.name().into(),
+        notes: format!("Measured by `isotint demo` on {}.", d.beam.photos[0]),
+    };
+    let spec = beam_spec(region, load, false, None, metadata)?;
+    let beam = read(&args.out.join(&d.beam.photos[0]), "demo beam photo")?;
+    let calibration = pipeline::calibrate(&beam, &spec, &DecodeLimits::default())?;
+    write(
+        &args.out.join(DEMO_CALIBRATION),
+        calibration.table.to_json().as_bytes(),
+    )?;
+    println!(
+        "{DEMO_CALIBRATION:<26} calibration measured on {}",
+        d.beam.photos[0]
+    );
+    print!("{}", report_text(&calibration.report));
+    Ok(())
+}
+
+/// File name of the calibration `isotint demo` writes.
+pub const DEMO_CALIBRATION: &str = "calibration.json";

@@ -1,0 +1,246 @@
+//! The command line as a lab uses it: `demo`, then `calibrate` and `map` on its files.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+use std::sync::OnceLock;
+
+use isotint_core::export::read_npy_f32;
+use isotint_core::{DecodeLimits, Mask};
+use serde_json::Value;
+
+fn isotint(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_isotint"))
+        .args(args)
+        .output()
+        .expect("the isotint binary runs")
+}
+
+fn ok(output: Output) -> String {
+    let text = String::from_utf8_lossy(&output.stdout).into_owned();
+    assert!(
+        output.status.success(),
+        "failed: {}\n{text}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    text
+}
+
+/// The demo directory, written once per test run.
+fn demo() -> &'static Path {
+    static DIR: OnceLock<PathBuf> = OnceLock::new();
+    DIR.get_or_init(|| {
+        let dir = tempfile::tempdir().unwrap().keep();
+        let out = ok(isotint(&["demo", "--out", dir.to_str().unwrap()]));
+        assert!(out.contains("calibration.json"), "{out}");
+        dir
+    })
+}
+
+fn scenario() -> Value {
+    serde_json::from_slice(&std::fs::read(demo().join("scenario.json")).unwrap()).unwrap()
+}
+
+fn path(name: &str) -> String {
+    demo().join(name).to_str().unwrap().to_string()
+}
+
+#[test]
+fn the_demo_calibration_maps_the_disc_close_to_the_closed_form_orders() {
+    let out_file = path("disc-orders.npy");
+    let printed = ok(isotint(&[
+        "map",
+        "--calibration",
+        &path("calibration.json"),
+        "--photo",
+        &path("disc.png"),
+        "--mask",
+        &path("disc-mask.png"),
+        "--out",
+        &out_file,
+    ]));
+    assert!(printed.contains("valued pixels"), "{printed}");
+    let (rows, cols, orders) = read_npy_f32(&std::fs::read(&out_file).unwrap()).unwrap();
+    let (_, _, truth) = read_npy_f32(&std::fs::read(path("disc-true-order.npy")).unwrap()).unwrap();
+    assert_eq!(orders.len(), rows * cols);
+    let mask = Mask::decode(
+        &std::fs::read(path("disc-mask.png")).unwrap(),
+        &DecodeLimits::default(),
+    )
+    .unwrap()
+    .eroded(3);
+    let (mut scored, mut valued, mut sum) = (0usize, 0usize, 0.0f64);
+    for (i, t) in truth.iter().enumerate() {
+        if mask.as_slice()[i] && t.is_finite() && *t <= 4.0 {
+            scored += 1;
+            if orders[i].is_finite() {
+                valued += 1;
+                sum += f64::from((orders[i] - t).abs());
+            }
+        }
+    }
+    let mae = sum / valued.max(1) as f64;
+    let coverage = valued as f64 / scored as f64;
+    println!(
+        "demo disc via CLI: MAE {mae:.4}, coverage {:.2} %",
+        100.0 * coverage
+    );
+    assert!(mae <= 0.03, "MAE {mae}");
+    assert!(coverage >= 0.95, "coverage {coverage}");
+}
+
+#[test]
+fn calibrate_reports_the_fringe_value_implied_by_edge_order_moment_and_depth() {
+    let s = scenario();
+    let zone = &s["beam"]["constant_moment_zone"];
+    let inset = 0.05 * (zone["right"].as_f64().unwrap() - zone["left"].as_f64().unwrap());
+    let region = format!(
+        "{},{},{},{}",
+        zone["left"].as_f64().unwrap() + inset,
+        zone["top"],
+        zone["right"].as_f64().unwrap() - inset,
+        zone["bottom"]
+    );
+    let edge_order = s["beam"]["field"]["edge_order"].as_f64().unwrap();
+    let out_file = path("beam-calibration.json");
+    let printed = ok(isotint(&[
+        "calibrate",
+        "--photo",
+        &path("beam.png"),
+        "--region",
+        &region,
+        "--edge-order",
+        &edge_order.to_string(),
+        "--moment",
+        &s["beam"]["moment_n_mm"].to_string(),
+        "--depth",
+        &s["beam"]["depth_mm"].to_string(),
+        "--name",
+        "CLI beam",
+        "--refine-edges",
+        "--out",
+        &out_file,
+    ]));
+    let expected = s["fringe_value_n_per_mm"].as_f64().unwrap();
+    let line = printed
+        .lines()
+        .find(|l| l.contains("fringe value"))
+        .unwrap_or_else(|| panic!("no fringe value in {printed}"));
+    let reported: f64 = line.split_whitespace().nth(2).unwrap().parse().unwrap();
+    assert!((reported - expected).abs() < 1e-6 * expected, "{line}");
+    assert!(printed.contains("edge shift"), "{printed}");
+    assert!(printed.contains("residual"), "{printed}");
+    let table: Value = serde_json::from_slice(&std::fs::read(&out_file).unwrap()).unwrap();
+    assert_eq!(table["metadata"]["name"], "CLI beam");
+    assert_eq!(table["source"]["kind"], "beam_photo");
+}
+
+#[test]
+fn every_output_format_is_chosen_by_extension() {
+    for (name, magic) in [
+        ("plate.npy", &b"\x93NUMPY"[..]),
+        ("plate.png", &b"\x89PNG"[..]),
+        ("plate.preview.png", &b"\x89PNG"[..]),
+        ("plate.csv", &b"x,y,order"[..]),
+    ] {
+        let out_file = path(name);
+        ok(isotint(&[
+            "map",
+            "--calibration",
+            &path("calibration.json"),
+            "--photo",
+            &path("plate-hole.png"),
+            "--mask",
+            &path("plate-hole-mask.png"),
+            "--hint",
+            "400.5,100.5,1.0",
+            "--no-exposure-compensation",
+            "--out",
+            &out_file,
+        ]));
+        let bytes = std::fs::read(&out_file).unwrap();
+        assert!(bytes.starts_with(magic), "{name}");
+    }
+}
+
+#[test]
+fn bad_command_line_input_fails_with_a_message_naming_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("c.json");
+    let out = out.to_str().unwrap();
+    let cases: [(&[&str], &str); 5] = [
+        (
+            &[
+                "calibrate",
+                "--photo",
+                "p.png",
+                "--region",
+                "5,5,1,9",
+                "--edge-order",
+                "2",
+                "--out",
+                out,
+            ],
+            "region",
+        ),
+        (
+            &[
+                "calibrate",
+                "--photo",
+                "p.png",
+                "--region",
+                "0,0,9,9",
+                "--edge-order",
+                "-2",
+                "--out",
+                out,
+            ],
+            "edge_order",
+        ),
+        (
+            &[
+                "calibrate",
+                "--photo",
+                "/nonexistent/p.png",
+                "--region",
+                "0,0,9,9",
+                "--edge-order",
+                "2",
+                "--out",
+                out,
+            ],
+            "/nonexistent/p.png",
+        ),
+        (
+            &[
+                "map",
+                "--calibration",
+                "c.json",
+                "--photo",
+                "p.png",
+                "--out",
+                "orders.jpg",
+            ],
+            ".npy",
+        ),
+        (
+            &[
+                "map",
+                "--calibration",
+                "c.json",
+                "--photo",
+                "p.png",
+                "--hint",
+                "1,2",
+                "--out",
+                "o.npy",
+            ],
+            "X,Y,N",
+        ),
+    ];
+    for (args, needle) in cases {
+        let output = isotint(args);
+        assert!(!output.status.success(), "{args:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{args:?}: {stderr}");
+    }
+}
