@@ -15,7 +15,6 @@ use std::sync::OnceLock;
 use image::{DynamicImage, ImageReader};
 use palette::color_difference::Ciede2000;
 use palette::{FromColor, LinSrgb, Srgb};
-use rayon::prelude::*;
 
 use crate::error::{CoreError, CoreResult};
 
@@ -222,24 +221,6 @@ impl Photo {
                     lut[c.blue as usize],
                 )
             }
-        }
-    }
-
-    /// CIELAB (D65) of every pixel after multiplying linear light by `gain(x, y)` (see
-    /// [`crate::exposure::ExposureCorrection`]). Runs in parallel over rows.
-    pub fn to_lab(&self, correction: &crate::exposure::ExposureCorrection) -> LabImage {
-        let w = self.width as usize;
-        let mut data = vec![Lab::new(0.0, 0.0, 0.0); w * self.height as usize];
-        data.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
-            for (x, out) in row.iter_mut().enumerate() {
-                let lin = correction.apply(self.linear(y * w + x), x, y, self.width, self.height);
-                *out = Lab::from_color(lin);
-            }
-        });
-        LabImage {
-            width: self.width,
-            height: self.height,
-            data,
         }
     }
 }

@@ -27,11 +27,12 @@ use palette::LinSrgb;
 use rayon::prelude::*;
 
 use crate::calibration::CalibrationTable;
-use crate::colour::{delta_e_ab, linear_from_lab, Lab, LabImage, Photo};
+use crate::colour::{delta_e_ab, lab_from_linear, linear_from_lab, Lab, LabImage, Photo};
 use crate::error::{CoreError, CoreResult};
 use crate::exposure::{radius_sq, ExposureCorrection};
 use crate::geometry::Mask;
-use crate::order_map::{MapOptions, MapStatistics, OrderMap, PixelFlags};
+use crate::geometry::PixelPoint;
+use crate::order_map::{MapOptions, MapStatistics, OrderHint, OrderMap, PixelFlags};
 
 /// Colour candidates kept per pixel.
 const CANDIDATES: usize = 4;
@@ -86,19 +87,13 @@ const REPAIR_RESIDUAL: f32 = 6.0;
 const TOP_GUARD: f32 = 0.25;
 /// How many pixel layers that rule may spread.
 const TOP_GUARD_LAYERS: usize = 4;
+/// Largest maximum gradient used on block means, fringes per working pixel: steeper would
+/// let a chain jump to the next colour repeat unpenalised.
+const COARSE_MAX_GRADIENT: f64 = 0.45;
 /// Radius of the final order smoothing window, pixels.
 const SMOOTH_RADIUS: usize = 2;
-/// The eight scan directions of the aggregation.
-const DIRECTIONS: [(i32, i32); 8] = [
-    (1, 0),
-    (-1, 0),
-    (0, 1),
-    (0, -1),
-    (1, 1),
-    (-1, -1),
-    (1, -1),
-    (-1, 1),
-];
+/// Number of scan directions summed by the aggregation.
+const DIRECTIONS: f32 = 8.0;
 /// A pixel whose best colour match is worse than this (ΔE\*ab) is unreliable.
 const RESIDUAL_LIMIT: f32 = 10.0;
 /// Valued regions (connected without jumps) smaller than this share of the specimen are
@@ -149,9 +144,15 @@ impl SearchTable {
     /// Search distance between `c` and entry `i`.
     #[inline]
     fn distance(&self, c: Lab, i: usize) -> f32 {
+        self.distance_sq(c, i).sqrt()
+    }
+
+    /// Squared search distance (cheaper for scanning; same minima).
+    #[inline]
+    fn distance_sq(&self, c: Lab, i: usize) -> f32 {
         let dl = self.lightness_weight * (c.l - self.l[i]);
         let (da, db) = (c.a - self.a[i], c.b - self.b[i]);
-        (dl * dl + da * da + db * db).sqrt()
+        dl * dl + da * da + db * db
     }
 
     /// Best order in entries `lo..=hi` with a parabolic sub-step fit: (order, distance).
@@ -159,13 +160,13 @@ impl SearchTable {
         let hi = hi.min(self.len() - 1);
         let (mut best, mut best_d) = (lo, f32::INFINITY);
         for i in lo..=hi {
-            let d = self.distance(c, i);
+            let d = self.distance_sq(c, i);
             if d < best_d {
                 best = i;
                 best_d = d;
             }
         }
-        self.parabolic(c, best, best_d)
+        self.parabolic(c, best, best_d.sqrt())
     }
 
     /// Refines a discrete minimum at entry `i` with a parabola through its neighbours.
@@ -201,7 +202,7 @@ fn candidates(search: &SearchTable, c: Lab, beyond_order: f32, beyond_cost: f32)
     let n = search.len();
     let mut d = vec![0f32; n];
     for (i, slot) in d.iter_mut().enumerate() {
-        *slot = search.distance(c, i);
+        *slot = search.distance_sq(c, i);
     }
     let mut best: [(f32, usize); CANDIDATES] = [(f32::INFINITY, usize::MAX); CANDIDATES];
     for i in 0..n {
@@ -215,7 +216,7 @@ fn candidates(search: &SearchTable, c: Lab, beyond_order: f32, beyond_cost: f32)
     let mut labels = NO_LABELS;
     for (slot, (dist, i)) in best.iter().enumerate() {
         if *i != usize::MAX {
-            let (order, value) = search.parabolic(c, *i, *dist);
+            let (order, value) = search.parabolic(c, *i, dist.sqrt());
             labels.order[slot] = order as f32;
             labels.cost[slot] = value.min(COST_CAP);
         }
@@ -243,7 +244,33 @@ fn transition(a: f32, b: f32, step_gradient: f32, top: f32) -> f32 {
     }
 }
 
-/// Sums, for every pixel and label, the path costs along the eight scan directions.
+/// One step along a scan path: the path cost of each label at a pixel, given the path costs
+/// at its predecessor on the path (none at the start of a path).
+#[inline]
+fn path_step(
+    here: &Labels,
+    previous: Option<(&[f32; LABELS], &Labels)>,
+    step_gradient: f32,
+    top: f32,
+) -> [f32; LABELS] {
+    let mut path = here.cost;
+    if let Some((lp, before)) = previous {
+        let floor = lp.iter().copied().fold(f32::INFINITY, f32::min);
+        for (k, slot) in path.iter_mut().enumerate() {
+            let best = lp
+                .iter()
+                .zip(&before.order)
+                .map(|(cost, order)| cost + transition(here.order[k], *order, step_gradient, top))
+                .fold(f32::INFINITY, f32::min);
+            *slot += best.min(floor + JUMP_PENALTY) - floor;
+        }
+    }
+    path
+}
+
+/// Sums, for every pixel and label, the path costs along eight scan directions: left and
+/// right along each row (rows in parallel), and down and up the image in two row sweeps
+/// that carry the vertical and both diagonal directions (pixels of a row in parallel).
 fn aggregate(
     labels: &[Labels],
     inside: &[bool],
@@ -253,86 +280,81 @@ fn aggregate(
     top: f32,
 ) -> Vec<[f32; LABELS]> {
     let mut total = vec![[0f32; LABELS]; labels.len()];
-    for (dx, dy) in DIRECTIONS {
-        let diagonal = dx != 0 && dy != 0;
-        let step_gradient = if diagonal {
-            gradient * std::f32::consts::SQRT_2
-        } else {
-            gradient
-        };
-        let starts: Vec<(i32, i32)> = border_starts(width as i32, height as i32, dx, dy);
-        let paths: Vec<Vec<(u32, [f32; LABELS])>> = starts
-            .par_iter()
-            .map(|&(sx, sy)| {
-                let mut out = Vec::new();
-                let (mut x, mut y) = (sx, sy);
-                let mut prev: Option<[f32; LABELS]> = None;
-                let mut prev_labels = NO_LABELS;
-                while x >= 0 && y >= 0 && (x as usize) < width && (y as usize) < height {
-                    let p = y as usize * width + x as usize;
+    total
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(y, row)| {
+            let base = y * width;
+            for forward in [true, false] {
+                let mut previous: Option<([f32; LABELS], usize)> = None;
+                for i in 0..width {
+                    let x = if forward { i } else { width - 1 - i };
+                    let p = base + x;
                     if !inside[p] {
-                        prev = None;
-                    } else {
-                        let here = labels[p];
-                        let mut path = here.cost;
-                        if let Some(lp) = prev {
-                            let floor = lp.iter().copied().fold(f32::INFINITY, f32::min);
-                            for (k, slot) in path.iter_mut().enumerate() {
-                                let mut best = f32::INFINITY;
-                                for (j, lpj) in lp.iter().enumerate() {
-                                    let v = lpj
-                                        + transition(
-                                            here.order[k],
-                                            prev_labels.order[j],
-                                            step_gradient,
-                                            top,
-                                        );
-                                    best = best.min(v);
-                                }
-                                *slot += best.min(floor + JUMP_PENALTY) - floor;
-                            }
-                        }
-                        out.push((p as u32, path));
-                        prev = Some(path);
-                        prev_labels = here;
+                        previous = None;
+                        continue;
                     }
-                    x += dx;
-                    y += dy;
-                }
-                out
-            })
-            .collect();
-        for path in paths {
-            for (p, costs) in path {
-                let slot = &mut total[p as usize];
-                for k in 0..LABELS {
-                    slot[k] += costs[k];
+                    let path = path_step(
+                        &labels[p],
+                        previous.as_ref().map(|(lp, q)| (lp, &labels[*q])),
+                        gradient,
+                        top,
+                    );
+                    for (t, v) in row[x].iter_mut().zip(&path) {
+                        *t += v;
+                    }
+                    previous = Some((path, p));
                 }
             }
+        });
+    // Predecessor column offsets of the three sweep directions and their step gradients.
+    let sweeps: [(i64, f32); 3] = [
+        (0, gradient),
+        (1, gradient * std::f32::consts::SQRT_2),
+        (-1, gradient * std::f32::consts::SQRT_2),
+    ];
+    const NO_PATH: [f32; LABELS] = [f32::NAN; LABELS];
+    for downward in [true, false] {
+        let mut previous: Vec<[[f32; LABELS]; 3]> = vec![[NO_PATH; 3]; width];
+        for k in 0..height {
+            let y = if downward { k } else { height - 1 - k };
+            let before_y = if downward { y.wrapping_sub(1) } else { y + 1 };
+            let current: Vec<[[f32; LABELS]; 3]> = (0..width)
+                .into_par_iter()
+                .map(|x| {
+                    let p = y * width + x;
+                    if !inside[p] {
+                        return [NO_PATH; 3];
+                    }
+                    let mut out = [NO_PATH; 3];
+                    for (d, &(dx, step_gradient)) in sweeps.iter().enumerate() {
+                        let px = x as i64 - dx;
+                        let before = (k > 0
+                            && px >= 0
+                            && (px as usize) < width
+                            && !previous[px as usize][d][0].is_nan())
+                        .then(|| {
+                            (
+                                &previous[px as usize][d],
+                                &labels[before_y * width + px as usize],
+                            )
+                        });
+                        out[d] = path_step(&labels[p], before, step_gradient, top);
+                    }
+                    out
+                })
+                .collect();
+            for (slot, paths) in total[y * width..(y + 1) * width].iter_mut().zip(&current) {
+                for path in paths.iter().filter(|path| !path[0].is_nan()) {
+                    for (t, v) in slot.iter_mut().zip(path) {
+                        *t += v;
+                    }
+                }
+            }
+            previous = current;
         }
     }
     total
-}
-
-/// Pixels whose predecessor along (dx, dy) lies outside the image: where scan paths begin.
-fn border_starts(width: i32, height: i32, dx: i32, dy: i32) -> Vec<(i32, i32)> {
-    let outside = |x: i32, y: i32| x < 0 || y < 0 || x >= width || y >= height;
-    let mut starts = Vec::new();
-    for y in 0..height {
-        for x in [0, width - 1] {
-            if outside(x - dx, y - dy) && !starts.contains(&(x, y)) {
-                starts.push((x, y));
-            }
-        }
-    }
-    for x in 1..width - 1 {
-        for y in [0, height - 1] {
-            if outside(x - dx, y - dy) && !starts.contains(&(x, y)) {
-                starts.push((x, y));
-            }
-        }
-    }
-    starts
 }
 
 /// One solver pass on a CIELAB image.
@@ -432,7 +454,7 @@ fn solve_pass(
         flags: vec![PixelFlags::default(); n],
     };
     let fine_reach = (2.0 * SEARCH_STEP / fine.step).ceil() as usize;
-    let directions = DIRECTIONS.len() as f32;
+    let directions = DIRECTIONS;
     pass.order
         .par_iter_mut()
         .zip(pass.residual.par_iter_mut())
@@ -754,11 +776,11 @@ fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
 
 /// Fits the exposure correction on confident pixels of a first pass.
 fn fit_exposure(
-    photo: &Photo,
+    working: &Working,
     table: &CalibrationTable,
     pass: &Pass,
 ) -> Option<ExposureCorrection> {
-    let (w, h) = (photo.width(), photo.height());
+    let (w, h) = (working.width, working.height);
     let confident: Vec<usize> = (0..pass.order.len())
         .filter(|&p| {
             // Vivid colours only: their order follows from hue, whatever the exposure; greys
@@ -786,7 +808,7 @@ fn fit_exposure(
         .iter()
         .step_by(stride)
         .map(|&p| {
-            let observed = photo.linear(p);
+            let observed = working.linear[p];
             let expected = linear_from_lab(table.colour_at(f64::from(pass.order[p])));
             (
                 observed,
@@ -917,6 +939,101 @@ fn statistics(pass: &Pass) -> MapStatistics {
 }
 
 /// Runs the whole solver; see the module documentation.
+/// Photos up to this many pixels are labelled at full resolution; larger ones on block means.
+const FULL_RESOLUTION_LIMIT: u64 = 2_000_000;
+/// Largest working image of the preliminary passes that feed the exposure fit, pixels.
+const PRELIMINARY_LIMIT: u64 = 500_000;
+
+/// The image the labelling runs on, in linear-light sRGB: the photo itself, or the means of
+/// `stride` × `stride` blocks of it when the photo is large. A block belongs to the specimen
+/// only if all its pixels do.
+struct Working {
+    width: u32,
+    height: u32,
+    stride: u32,
+    linear: Vec<LinSrgb<f32>>,
+    inside: Vec<bool>,
+}
+
+impl Working {
+    /// Block means of `photo` with the smallest stride that keeps at most `limit` pixels.
+    fn new(photo: &Photo, mask: Option<&Mask>, limit: u64) -> Working {
+        let (w, h) = (photo.width(), photo.height());
+        let pixels = u64::from(w) * u64::from(h);
+        let stride = if pixels <= limit {
+            1
+        } else {
+            ((pixels as f64 / limit as f64).sqrt().ceil() as u32).max(2)
+        };
+        let (cw, ch) = (w.div_ceil(stride), h.div_ceil(stride));
+        let cells: Vec<(LinSrgb<f32>, bool)> = (0..ch as usize * cw as usize)
+            .into_par_iter()
+            .map(|c| {
+                let (cx, cy) = ((c % cw as usize) as u32, (c / cw as usize) as u32);
+                let (mut sum, mut n, mut all_inside) = (LinSrgb::new(0.0, 0.0, 0.0), 0.0, true);
+                for y in cy * stride..((cy + 1) * stride).min(h) {
+                    for x in cx * stride..((cx + 1) * stride).min(w) {
+                        let i = (y * w + x) as usize;
+                        sum += photo.linear(i);
+                        n += 1.0;
+                        all_inside &= mask.is_none_or(|m| m.as_slice()[i]);
+                    }
+                }
+                (sum / n, all_inside)
+            })
+            .collect();
+        let (linear, inside) = cells.into_iter().unzip();
+        Working {
+            width: cw,
+            height: ch,
+            stride,
+            linear,
+            inside,
+        }
+    }
+
+    /// `options` in working pixels: on block means the field changes `stride` times faster
+    /// per pixel, and hints move to their block.
+    fn scale(&self, options: &MapOptions) -> MapOptions {
+        let s = f64::from(self.stride);
+        MapOptions {
+            max_gradient: (options.max_gradient * s)
+                .min(COARSE_MAX_GRADIENT.max(options.max_gradient)),
+            hints: options
+                .hints
+                .iter()
+                .map(|h| OrderHint {
+                    at: PixelPoint {
+                        x: h.at.x / s,
+                        y: h.at.y / s,
+                    },
+                    order: h.order,
+                })
+                .collect(),
+            ..options.clone()
+        }
+    }
+
+    /// CIELAB (D65) of every working pixel after `correction`.
+    fn lab(&self, correction: &ExposureCorrection) -> LabImage {
+        let w = self.width as usize;
+        let data = self
+            .linear
+            .par_iter()
+            .enumerate()
+            .map(|(i, c)| {
+                lab_from_linear(correction.apply(*c, i % w, i / w, self.width, self.height))
+            })
+            .collect();
+        LabImage {
+            width: self.width,
+            height: self.height,
+            data,
+        }
+    }
+}
+
+/// Runs the whole solver; see the module documentation.
 pub(crate) fn solve(
     photo: &Photo,
     table: &CalibrationTable,
@@ -932,41 +1049,54 @@ pub(crate) fn solve(
             format!("{max_order} leaves too little of the table to match against"),
         ));
     }
-    let (width, height) = (photo.width(), photo.height());
-    let inside: Vec<bool> = match mask {
-        Some(m) => m.as_slice().to_vec(),
-        None => vec![true; width as usize * height as usize],
-    };
     let mut exposure = ExposureCorrection::NONE;
     if options.exposure_compensation {
+        let working = Working::new(photo, mask, PRELIMINARY_LIMIT);
+        let scaled = working.scale(options);
         // Two rounds: a strong drift is only partly corrected by the first fit.
         for _ in 0..2 {
             let preliminary = solve_pass(
-                &photo.to_lab(&exposure),
-                &inside,
+                &working.lab(&exposure),
+                &working.inside,
                 table,
                 max_order,
-                options,
+                &scaled,
                 Stage::Preliminary,
             );
-            match fit_exposure(photo, table, &preliminary) {
+            match fit_exposure(&working, table, &preliminary) {
                 Some(fit) => exposure = fit,
                 None => break,
             }
         }
     }
+    let working = Working::new(photo, mask, FULL_RESOLUTION_LIMIT);
     let pass = solve_pass(
-        &photo.to_lab(&exposure),
-        &inside,
+        &working.lab(&exposure),
+        &working.inside,
         table,
         max_order,
-        options,
+        &working.scale(options),
         Stage::Final,
     );
+    let pass = if working.stride == 1 {
+        pass
+    } else {
+        drop(working.linear);
+        refine_full_resolution(
+            photo,
+            mask,
+            working.stride,
+            &pass,
+            &exposure,
+            table,
+            max_order,
+            options.max_gradient as f32,
+        )
+    };
     let statistics = statistics(&pass);
     Ok(OrderMap {
-        width,
-        height,
+        width: photo.width(),
+        height: photo.height(),
         order: pass.order,
         residual: pass.residual,
         margin: pass.margin,
@@ -974,4 +1104,111 @@ pub(crate) fn solve(
         exposure,
         statistics,
     })
+}
+
+/// Full-resolution orders from a labelling on block means: each pixel searches the table
+/// near the order interpolated from the valued block centres around it, within the change
+/// those blocks show; blocks without a value pass their flags on.
+#[allow(clippy::too_many_arguments)]
+fn refine_full_resolution(
+    photo: &Photo,
+    mask: Option<&Mask>,
+    stride: u32,
+    coarse: &Pass,
+    exposure: &ExposureCorrection,
+    table: &CalibrationTable,
+    max_order: f64,
+    gradient: f32,
+) -> Pass {
+    let (w, h) = (photo.width() as usize, photo.height() as usize);
+    let s = stride as usize;
+    let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
+    let fine = SearchTable::new(table, table.order_step, max_order, REFINE_LIGHTNESS_WEIGHT);
+    let n = w * h;
+    let mut pass = Pass {
+        order: vec![f32::NAN; n],
+        residual: vec![f32::NAN; n],
+        margin: vec![f32::NAN; n],
+        flags: vec![PixelFlags::default(); n],
+    };
+    let rows = pass
+        .order
+        .par_chunks_mut(w)
+        .zip(pass.residual.par_chunks_mut(w))
+        .zip(pass.margin.par_chunks_mut(w))
+        .zip(pass.flags.par_chunks_mut(w))
+        .enumerate();
+    rows.for_each(|(y, (((order, residual), margin), flags))| {
+        for x in 0..w {
+            let i = y * w + x;
+            if mask.is_some_and(|m| !m.as_slice()[i]) {
+                flags[x].0 = PixelFlags::OUTSIDE_MASK;
+                continue;
+            }
+            // Position in block-centre coordinates.
+            let fx = ((x as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (cw - 1) as f32);
+            let fy = ((y as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (ch - 1) as f32);
+            let (x0, y0) = (fx.floor() as usize, fy.floor() as usize);
+            let (x1, y1) = ((x0 + 1).min(cw - 1), (y0 + 1).min(ch - 1));
+            let (tx, ty) = (fx - x0 as f32, fy - y0 as f32);
+            let corners = [
+                (x0, y0, (1.0 - tx) * (1.0 - ty)),
+                (x1, y0, tx * (1.0 - ty)),
+                (x0, y1, (1.0 - tx) * ty),
+                (x1, y1, tx * ty),
+            ];
+            let (mut sum, mut weight, mut lo, mut hi, mut best_margin) =
+                (0.0, 0.0, f32::INFINITY, f32::NEG_INFINITY, f32::NAN);
+            for &(cx, cy, wgt) in &corners {
+                let c = cy * cw + cx;
+                if coarse.flags[c].0 == 0 && coarse.order[c].is_finite() {
+                    sum += wgt * coarse.order[c];
+                    weight += wgt;
+                    lo = lo.min(coarse.order[c]);
+                    hi = hi.max(coarse.order[c]);
+                    best_margin = if best_margin.is_nan() {
+                        coarse.margin[c]
+                    } else {
+                        best_margin.max(coarse.margin[c])
+                    };
+                }
+            }
+            let nearest =
+                ((fy.round() as usize).min(ch - 1)) * cw + (fx.round() as usize).min(cw - 1);
+            if weight < 0.25 {
+                flags[x].0 = if coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
+                    PixelFlags::BEYOND_RANGE
+                } else {
+                    PixelFlags::UNRELIABLE
+                };
+                continue;
+            }
+            let predicted = f64::from(sum / weight);
+            let reach = 0.05 + f64::from(hi - lo);
+            let colour = lab_from_linear(exposure.apply(
+                photo.linear(i),
+                x,
+                y,
+                photo.width(),
+                photo.height(),
+            ));
+            let from = ((predicted - reach).max(0.0) / fine.step).floor() as usize;
+            let to = ((predicted + reach).min(max_order) / fine.step).ceil() as usize;
+            let (value, _) = fine.best_in(colour, from, to);
+            let miss = delta_e_ab(colour, table.colour_at(value));
+            order[x] = value as f32;
+            residual[x] = miss;
+            margin[x] = best_margin;
+            if miss > RESIDUAL_LIMIT {
+                flags[x].0 = PixelFlags::UNRELIABLE;
+            }
+        }
+    });
+    smooth(&mut pass, w, h, gradient);
+    for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
+        if f.0 != 0 {
+            *o = f32::NAN;
+        }
+    }
+    pass
 }
