@@ -234,3 +234,28 @@ async fn the_openapi_document_describes_every_route() {
         );
     }
 }
+
+#[tokio::test]
+async fn the_service_runs_on_postgresql_when_one_is_configured() {
+    let Some(db) = common::PostgresDatabase::create().await else {
+        eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped");
+        return;
+    };
+    let storage = isotint::storage::Storage::connect(&db.url).await.unwrap();
+    let app = isotint::http::app(isotint::http::AppState::new(
+        storage.clone(),
+        isotint::config::ServiceConfig::default(),
+    ));
+    assert_eq!(
+        get(&app, "/api/v1/health").await.json()["database"],
+        "postgres"
+    );
+    let t = table("Strip on PostgreSQL");
+    let id = import_id(&app, &t).await;
+    let export = get(&app, &format!("/api/v1/calibrations/{id}/export")).await;
+    assert_eq!(String::from_utf8(export.body).unwrap(), t.to_json());
+    let found = get(&app, "/api/v1/calibrations?q=postgresql").await.json();
+    assert_eq!(found["calibrations"].as_array().unwrap().len(), 1);
+    storage.close().await;
+    db.drop_database().await;
+}

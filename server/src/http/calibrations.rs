@@ -16,7 +16,7 @@ use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
-use super::form::{parse_json, Form};
+use super::form::{parse_json, path_id, Form};
 use super::AppState;
 use crate::domain::{beam_spec, check_metadata, check_text, rfc3339, CalibrationId};
 use crate::pipeline;
@@ -234,14 +234,6 @@ impl BeamRequest {
             metadata,
         )
     }
-}
-
-/// Parses an id from a URL path; a malformed one is simply not found.
-pub(super) fn path_id<K: crate::domain::IdKind>(
-    text: &str,
-) -> Result<crate::domain::Id<K>, ApiError> {
-    text.parse()
-        .map_err(|e: CoreError| ApiError::NotFound(e.to_string()))
 }
 
 /// Lists calibrations, newest first; archived ones only on request.

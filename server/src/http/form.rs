@@ -1,4 +1,5 @@
-//! Reading multipart forms and JSON parts into memory, with errors that name the field.
+//! Parsing request input at the edge: multipart forms, JSON parts and path ids, with errors
+//! that name the field.
 
 use axum::body::Bytes;
 use axum::extract::multipart::MultipartRejection;
@@ -6,7 +7,7 @@ use axum::extract::Multipart;
 use serde::de::DeserializeOwned;
 
 use super::error::ApiError;
-use crate::domain::shorten;
+use crate::domain::{shorten, Id, IdKind};
 
 /// The parts of a multipart form, by name.
 #[derive(Debug)]
@@ -79,6 +80,12 @@ impl Form {
             })
             .transpose()
     }
+}
+
+/// Parses an id from a URL path; a malformed one is simply not found.
+pub fn path_id<K: IdKind>(text: &str) -> Result<Id<K>, ApiError> {
+    text.parse()
+        .map_err(|e: isotint_core::CoreError| ApiError::NotFound(e.to_string()))
 }
 
 /// Parses `bytes` as the JSON of `what`: syntax errors answer 400, values of the wrong shape

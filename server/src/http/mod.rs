@@ -15,7 +15,8 @@ use std::sync::Arc;
 use axum::extract::DefaultBodyLimit;
 use axum::Router;
 use tower_http::catch_panic::CatchPanicLayer;
-use tower_http::trace::TraceLayer;
+use tower_http::trace::{DefaultMakeSpan, DefaultOnResponse, TraceLayer};
+use tracing::Level;
 use utoipa::OpenApi;
 use utoipa_axum::router::OpenApiRouter;
 
@@ -70,6 +71,10 @@ pub fn app(state: AppState) -> Router {
             error::time_limit,
         ))
         .layer(CatchPanicLayer::custom(error::panic_response))
-        .layer(TraceLayer::new_for_http())
+        .layer(
+            TraceLayer::new_for_http()
+                .make_span_with(DefaultMakeSpan::new().level(Level::INFO))
+                .on_response(DefaultOnResponse::new().level(Level::INFO)),
+        )
         .with_state(state)
 }

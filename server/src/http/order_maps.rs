@@ -16,9 +16,8 @@ use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
-use super::calibrations::path_id;
 use super::error::{ApiError, ErrorBody};
-use super::form::{parse_json, Form};
+use super::form::{parse_json, path_id, Form};
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId, OrderMapId};
 use crate::pipeline;
