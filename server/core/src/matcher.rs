@@ -85,6 +85,14 @@ const REPAIR_RESIDUAL: f32 = 6.0;
 /// Orders this close to the top of the table (fringes) next to *beyond range* pixels are
 /// taken as beyond range too.
 const TOP_GUARD: f32 = 0.25;
+/// Orders within this many fringes of the table's top may be aliases of orders beyond it.
+const ALIAS_RANGE: f32 = 1.0;
+/// Half-width of the window over which residuals are averaged for the alias check, pixels.
+const ALIAS_WINDOW: usize = 4;
+/// A local mean residual above this multiple of the photo's median marks a possible alias.
+const ALIAS_RESIDUAL_RATIO: f32 = 2.5;
+/// ... and never below this many ΔE*ab.
+const ALIAS_RESIDUAL_MIN: f32 = 2.5;
 /// How many pixel layers that rule may spread.
 const TOP_GUARD_LAYERS: usize = 4;
 /// Largest maximum gradient used on block means, fringes per working pixel: steeper would
@@ -500,6 +508,7 @@ fn solve_pass(
     flag_steep_and_isolated(&mut pass, width, height, gradient);
     if stage == Stage::Final {
         repair_steep_edges(&mut pass, lab, table, max_order, width, height);
+        flag_poor_high_matches(&mut pass, top, width, height);
         extend_beyond_range(&mut pass, top, width, height);
     }
     smooth(&mut pass, width, height, gradient);
@@ -661,6 +670,62 @@ fn repair_steep_edges(
             pass.residual[p] = d;
             pass.flags[p] = PixelFlags::default();
         }
+    }
+}
+
+/// Past the end of the table colours repeat in paler form, so a region of orders near the
+/// table's top whose colours match it markedly worse than the photo does elsewhere is more
+/// likely an alias of orders beyond the table than a true value: such pixels (order within
+/// [`ALIAS_RANGE`] of the top, mean residual over a (2·[`ALIAS_WINDOW`]+1)² window above
+/// [`ALIAS_RESIDUAL_RATIO`] × the photo's median residual) are flagged beyond range — the
+/// cautious reading, since beyond range means higher stress.
+fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, height: usize) {
+    let valued = |p: usize| pass.flags[p].0 == 0 && pass.residual[p].is_finite();
+    let mut sample: Vec<f32> = (0..pass.order.len())
+        .step_by((pass.order.len() / 50_000).max(1))
+        .filter(|&p| valued(p))
+        .map(|p| pass.residual[p])
+        .collect();
+    if sample.is_empty() {
+        return;
+    }
+    let limit = (ALIAS_RESIDUAL_RATIO * median_f32(&mut sample)).max(ALIAS_RESIDUAL_MIN);
+    // Integral images of the residual and of the count of valued pixels.
+    let (w1, h1) = (width + 1, height + 1);
+    let mut sum = vec![0f64; w1 * h1];
+    let mut count = vec![0u32; w1 * h1];
+    for y in 0..height {
+        let (mut row_sum, mut row_count) = (0f64, 0u32);
+        for x in 0..width {
+            let p = y * width + x;
+            if valued(p) {
+                row_sum += f64::from(pass.residual[p]);
+                row_count += 1;
+            }
+            sum[(y + 1) * w1 + x + 1] = sum[y * w1 + x + 1] + row_sum;
+            count[(y + 1) * w1 + x + 1] = count[y * w1 + x + 1] + row_count;
+        }
+    }
+    let r = ALIAS_WINDOW;
+    let flagged: Vec<usize> = (0..pass.order.len())
+        .into_par_iter()
+        .filter(|&p| valued(p) && pass.order[p] >= top - ALIAS_RANGE)
+        .filter(|&p| {
+            let (x, y) = (p % width, p / width);
+            let (x0, y0, x1, y1) = (
+                x.saturating_sub(r),
+                y.saturating_sub(r),
+                (x + r + 1).min(width),
+                (y + r + 1).min(height),
+            );
+            let at = |xx: usize, yy: usize| yy * w1 + xx;
+            let s = sum[at(x1, y1)] - sum[at(x0, y1)] - sum[at(x1, y0)] + sum[at(x0, y0)];
+            let n = count[at(x1, y1)] + count[at(x0, y0)] - count[at(x0, y1)] - count[at(x1, y0)];
+            n > 0 && s / f64::from(n) > f64::from(limit)
+        })
+        .collect();
+    for p in flagged {
+        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
     }
 }
 
