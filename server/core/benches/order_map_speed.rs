@@ -11,14 +11,15 @@ use std::process::Command;
 use std::time::Instant;
 
 use isotint_core::beam::{calibrate_beam, BeamSpec, EdgeLoad};
+use isotint_core::export::{npy_f32, read_npy_f32};
 use isotint_core::render::{
     develop, render_scene, BendingBeamField, CameraModel, DiscField, LightSource, PhotoEffects,
     PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
 };
 use isotint_core::stress::DiscInCompression;
 use isotint_core::{
-    map_orders, CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, Photo, PixelPoint,
-    PixelRect,
+    map_orders, CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, Mask, Photo,
+    PixelPoint, PixelRect,
 };
 
 const WIDTH: u32 = 4000;
@@ -28,23 +29,29 @@ const RUNS: usize = 3;
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--measure") {
-        measure(Path::new(&args[i + 1]), Path::new(&args[i + 2]));
+        measure(
+            Path::new(&args[i + 1]),
+            Path::new(&args[i + 2]),
+            Path::new(&args[i + 3]),
+        );
         return;
     }
     let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../target/bench-data");
     std::fs::create_dir_all(&dir).expect("bench-data folder");
-    let (photo, calibration) = (
+    let (photo, calibration, truth) = (
         dir.join("disc-12mp.jpg"),
         dir.join("bench-calibration.json"),
+        dir.join("disc-12mp-true-order.npy"),
     );
-    if !photo.exists() || !calibration.exists() {
-        prepare(&photo, &calibration);
+    if !photo.exists() || !calibration.exists() || !truth.exists() {
+        prepare(&photo, &calibration, &truth);
     }
     let status = Command::new(std::env::current_exe().expect("own path"))
         .args([
             "--measure",
             photo.to_str().unwrap(),
             calibration.to_str().unwrap(),
+            truth.to_str().unwrap(),
         ])
         .env("RAYON_NUM_THREADS", "2")
         .status()
@@ -52,7 +59,7 @@ fn main() {
     assert!(status.success());
 }
 
-fn prepare(photo: &Path, calibration: &Path) {
+fn prepare(photo: &Path, calibration: &Path, truth: &Path) {
     let setup = RenderSetup {
         light: LightSource::Halogen,
         camera: CameraModel::Sensor,
@@ -113,22 +120,26 @@ fn prepare(photo: &Path, calibration: &Path) {
         develop(&scene.image, &fx, PhotoEncoding::Jpeg { quality: 90 }).unwrap(),
     )
     .unwrap();
+    std::fs::write(
+        truth,
+        npy_f32(&scene.true_order, HEIGHT as usize, WIDTH as usize),
+    )
+    .unwrap();
 }
 
-fn measure(photo: &Path, calibration: &Path) {
+fn measure(photo: &Path, calibration: &Path, truth: &Path) {
     let bytes = std::fs::read(photo).unwrap();
     let table = CalibrationTable::from_json(&std::fs::read(calibration).unwrap()).unwrap();
     let mut times = Vec::new();
-    let mut valued = 0;
+    let mut last = None;
     for _ in 0..RUNS {
+        drop(last.take());
         let start = Instant::now();
         let decoded = Photo::decode(&bytes, &DecodeLimits::default()).unwrap();
         let map = map_orders(&decoded, &table, None, &MapOptions::default()).unwrap();
         times.push(start.elapsed().as_secs_f64());
-        valued = map.statistics.valued_pixels;
+        last = Some(map);
     }
-    times.sort_by(f64::total_cmp);
-    let pixels = f64::from(WIDTH) * f64::from(HEIGHT);
     let peak_kib: f64 = std::fs::read_to_string("/proc/self/status")
         .ok()
         .and_then(|s| {
@@ -137,13 +148,43 @@ fn measure(photo: &Path, calibration: &Path) {
                 .map(|l| l.split_whitespace().nth(1).unwrap().parse().unwrap())
         })
         .unwrap_or(f64::NAN);
+    // Accuracy of the last run inside the disc, where the true order is ≤ 4 (no mask is given
+    // to the solver: the black background is mapped too, and left out of the score here).
+    let map = last.expect("at least one run");
+    let (_, _, true_order) = read_npy_f32(&std::fs::read(truth).unwrap()).unwrap();
+    // Scored ≥ 3 px inside the disc, as in the accuracy suite.
+    let inside = Mask::new(
+        WIDTH,
+        HEIGHT,
+        true_order.iter().map(|t| t.is_finite()).collect(),
+    )
+    .unwrap()
+    .eroded(3);
+    let (mut scored, mut valued, mut error, mut gross) = (0usize, 0usize, 0f64, 0usize);
+    for ((o, t), scored_here) in map.order.iter().zip(&true_order).zip(inside.as_slice()) {
+        if *scored_here && *t <= 4.0 {
+            scored += 1;
+            if o.is_finite() {
+                valued += 1;
+                let e = f64::from((o - t).abs());
+                error += e;
+                gross += usize::from(e > 0.5);
+            }
+        }
+    }
+    times.sort_by(f64::total_cmp);
+    let pixels = f64::from(WIDTH) * f64::from(HEIGHT);
+
     println!(
-        "order map of a {WIDTH}×{HEIGHT} JPEG ({:.1} MB), {} rayon threads: best {:.2} s, median {:.2} s over {RUNS} runs; peak RSS {:.0} MiB = {:.1} bytes/pixel; {valued} pixels valued",
+        "order map of a {WIDTH}×{HEIGHT} JPEG ({:.1} MB), {} rayon threads: best {:.2} s, median {:.2} s over {RUNS} runs; peak RSS {:.0} MiB = {:.1} bytes/pixel; where N ≤ 4: MAE {:.4}, off > 0.5 {:.3} %, coverage {:.2} %",
         bytes.len() as f64 / 1e6,
         rayon::current_num_threads(),
         times[0],
         times[RUNS / 2],
         peak_kib / 1024.0,
         peak_kib * 1024.0 / pixels,
+        error / valued.max(1) as f64,
+        100.0 * gross as f64 / scored.max(1) as f64,
+        100.0 * valued as f64 / scored.max(1) as f64,
     );
 }

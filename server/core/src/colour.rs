@@ -127,6 +127,12 @@ fn lut16() -> &'static [f32] {
     })
 }
 
+/// Linear light of an sRGB-encoded colour through a transfer-function table indexed by code.
+#[inline]
+fn decode_with<T: Copy + Into<usize>>(lut: &[f32], c: Srgb<T>) -> LinSrgb<f32> {
+    LinSrgb::new(lut[c.red.into()], lut[c.green.into()], lut[c.blue.into()])
+}
+
 impl Photo {
     /// Decodes PNG, JPEG or TIFF bytes (8 or 16 bit per channel) after checking the header
     /// against `limits`.
@@ -205,22 +211,8 @@ impl Photo {
     /// Linear-light sRGB of pixel index `i` (row-major), components 0–1.
     pub fn linear(&self, i: usize) -> LinSrgb<f32> {
         match &self.pixels {
-            SrgbPixels::Eight(p) => {
-                let (lut, c) = (lut8(), p[i]);
-                LinSrgb::new(
-                    lut[c.red as usize],
-                    lut[c.green as usize],
-                    lut[c.blue as usize],
-                )
-            }
-            SrgbPixels::Sixteen(p) => {
-                let (lut, c) = (lut16(), p[i]);
-                LinSrgb::new(
-                    lut[c.red as usize],
-                    lut[c.green as usize],
-                    lut[c.blue as usize],
-                )
-            }
+            SrgbPixels::Eight(p) => decode_with(lut8(), p[i]),
+            SrgbPixels::Sixteen(p) => decode_with(lut16(), p[i]),
         }
     }
 }

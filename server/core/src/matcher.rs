@@ -1005,7 +1005,9 @@ fn statistics(pass: &Pass) -> MapStatistics {
 
 /// Runs the whole solver; see the module documentation.
 /// Photos up to this many pixels are labelled at full resolution; larger ones on block means.
-const FULL_RESOLUTION_LIMIT: u64 = 2_000_000;
+const FULL_RESOLUTION_LIMIT: u64 = 1_000_000;
+/// A first exposure fit this close to no correction needs no second round.
+const SETTLED_GAIN: f32 = 0.03;
 /// Largest working image of the preliminary passes that feed the exposure fit, pixels.
 const PRELIMINARY_LIMIT: u64 = 500_000;
 
@@ -1118,7 +1120,8 @@ pub(crate) fn solve(
     if options.exposure_compensation {
         let working = Working::new(photo, mask, PRELIMINARY_LIMIT);
         let scaled = working.scale(options);
-        // Two rounds: a strong drift is only partly corrected by the first fit.
+        // A second round only where the first found a real drift: a strong drift is only
+        // partly corrected by the first fit.
         for _ in 0..2 {
             let preliminary = solve_pass(
                 &working.lab(&exposure),
@@ -1129,7 +1132,14 @@ pub(crate) fn solve(
                 Stage::Preliminary,
             );
             match fit_exposure(&working, table, &preliminary) {
-                Some(fit) => exposure = fit,
+                Some(fit) => {
+                    let settled = fit.gain.iter().all(|g| (g - 1.0).abs() < SETTLED_GAIN)
+                        && fit.vignetting < SETTLED_GAIN;
+                    exposure = fit;
+                    if settled {
+                        break;
+                    }
+                }
                 None => break,
             }
         }
