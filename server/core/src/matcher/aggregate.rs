@@ -1,0 +1,144 @@
+//! Semi-global aggregation over each pixel's candidates, with a transition cost built for
+//! smooth ramps.
+
+use super::*;
+
+/// Cost per fringe of a change of order within the maximum gradient: small, so that ramps pass
+/// freely but, of two equally good candidates, the one closer to the neighbours wins.
+pub(super) const RAMP_COST: f32 = 6.0;
+/// Cost of a change of order between one and two maximum gradients.
+pub(super) const SLOPE_PENALTY: f32 = 3.0;
+/// Cost of a larger change of order (a jump between candidate chains).
+pub(super) const JUMP_PENALTY: f32 = 24.0;
+/// Number of scan directions summed by the aggregation.
+pub(super) const DIRECTIONS: f32 = 8.0;
+/// Transition cost between label orders `a` and `b` of neighbouring pixels.
+#[inline]
+pub(super) fn transition(a: f32, b: f32, step_gradient: f32, top: f32) -> f32 {
+    if a.is_nan() || b.is_nan() {
+        return f32::INFINITY;
+    }
+    // Orders at the top of the table may continue into *beyond range* (and back) freely.
+    let (a, b) = (a.min(top + step_gradient), b.min(top + step_gradient));
+    let change = (a - b).abs();
+    if change <= step_gradient {
+        RAMP_COST * change
+    } else if change <= 2.0 * step_gradient {
+        SLOPE_PENALTY
+    } else {
+        JUMP_PENALTY
+    }
+}
+
+/// One step along a scan path: the path cost of each label at a pixel, given the path costs
+/// at its predecessor on the path (none at the start of a path).
+#[inline]
+pub(super) fn path_step(
+    here: &Labels,
+    previous: Option<(&[f32; LABELS], &Labels)>,
+    step_gradient: f32,
+    top: f32,
+) -> [f32; LABELS] {
+    let mut path = here.cost;
+    if let Some((lp, before)) = previous {
+        let floor = lp.iter().copied().fold(f32::INFINITY, f32::min);
+        for (k, slot) in path.iter_mut().enumerate() {
+            let best = lp
+                .iter()
+                .zip(&before.order)
+                .map(|(cost, order)| cost + transition(here.order[k], *order, step_gradient, top))
+                .fold(f32::INFINITY, f32::min);
+            *slot += best.min(floor + JUMP_PENALTY) - floor;
+        }
+    }
+    path
+}
+
+/// Sums, for every pixel and label, the path costs along eight scan directions: left and
+/// right along each row (rows in parallel), and down and up the image in two row sweeps
+/// that carry the vertical and both diagonal directions (pixels of a row in parallel).
+pub(super) fn aggregate(
+    labels: &[Labels],
+    inside: &[bool],
+    width: usize,
+    height: usize,
+    gradient: f32,
+    top: f32,
+) -> Vec<[f32; LABELS]> {
+    let mut total = vec![[0f32; LABELS]; labels.len()];
+    total
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(y, row)| {
+            let base = y * width;
+            for forward in [true, false] {
+                let mut previous: Option<([f32; LABELS], usize)> = None;
+                for i in 0..width {
+                    let x = if forward { i } else { width - 1 - i };
+                    let p = base + x;
+                    if !inside[p] {
+                        previous = None;
+                        continue;
+                    }
+                    let path = path_step(
+                        &labels[p],
+                        previous.as_ref().map(|(lp, q)| (lp, &labels[*q])),
+                        gradient,
+                        top,
+                    );
+                    for (t, v) in row[x].iter_mut().zip(&path) {
+                        *t += v;
+                    }
+                    previous = Some((path, p));
+                }
+            }
+        });
+    // Predecessor column offsets of the three sweep directions and their step gradients.
+    let sweeps: [(i64, f32); 3] = [
+        (0, gradient),
+        (1, gradient * std::f32::consts::SQRT_2),
+        (-1, gradient * std::f32::consts::SQRT_2),
+    ];
+    const NO_PATH: [f32; LABELS] = [f32::NAN; LABELS];
+    for downward in [true, false] {
+        let mut previous: Vec<[[f32; LABELS]; 3]> = vec![[NO_PATH; 3]; width];
+        for k in 0..height {
+            let y = if downward { k } else { height - 1 - k };
+            let before_y = if downward { y.wrapping_sub(1) } else { y + 1 };
+            let current: Vec<[[f32; LABELS]; 3]> = (0..width)
+                .into_par_iter()
+                .map(|x| {
+                    let p = y * width + x;
+                    if !inside[p] {
+                        return [NO_PATH; 3];
+                    }
+                    let mut out = [NO_PATH; 3];
+                    for (d, &(dx, step_gradient)) in sweeps.iter().enumerate() {
+                        let px = x as i64 - dx;
+                        let before = (k > 0
+                            && px >= 0
+                            && (px as usize) < width
+                            && !previous[px as usize][d][0].is_nan())
+                        .then(|| {
+                            (
+                                &previous[px as usize][d],
+                                &labels[before_y * width + px as usize],
+                            )
+                        });
+                        out[d] = path_step(&labels[p], before, step_gradient, top);
+                    }
+                    out
+                })
+                .collect();
+            for (slot, paths) in total[y * width..(y + 1) * width].iter_mut().zip(&current) {
+                for path in paths.iter().filter(|path| !path[0].is_nan()) {
+                    for (t, v) in slot.iter_mut().zip(path) {
+                        *t += v;
+                    }
+                }
+            }
+            previous = current;
+        }
+    }
+    total
+}

@@ -1,0 +1,359 @@
+//! After the labelling: flags for steep fields, jumps and islands, repair of steep edges,
+//! the beyond-range guards at the table's top, and the final ramp-preserving smoothing.
+
+use super::*;
+
+/// Layers grown by the repair of flagged pixels next to valued ones.
+pub(super) const REPAIR_LAYERS: usize = 12;
+/// Steepest field the repair accepts, fringes per pixel.
+pub(super) const REPAIR_MAX_GRADIENT: f64 = 0.35;
+/// Largest ΔE\*ab between a repaired pixel and its footprint-averaged table colour.
+pub(super) const REPAIR_RESIDUAL: f32 = 6.0;
+/// Orders this close to the top of the table (fringes) next to *beyond range* pixels are
+/// taken as beyond range too.
+pub(super) const TOP_GUARD: f32 = 0.25;
+/// Orders within this many fringes of the table's top may be aliases of orders beyond it.
+pub(super) const ALIAS_RANGE: f32 = 1.0;
+/// Half-width of the window over which residuals are averaged for the alias check, pixels.
+pub(super) const ALIAS_WINDOW: usize = 4;
+/// A local mean residual above this multiple of the photo's median marks a possible alias.
+pub(super) const ALIAS_RESIDUAL_RATIO: f32 = 2.5;
+/// ... and never below this many ΔE*ab.
+pub(super) const ALIAS_RESIDUAL_MIN: f32 = 2.5;
+/// How many pixel layers that rule may spread.
+pub(super) const TOP_GUARD_LAYERS: usize = 4;
+/// Radius of the final order smoothing window, pixels.
+pub(super) const SMOOTH_RADIUS: usize = 2;
+/// Valued regions (connected without jumps) smaller than this share of the specimen are
+/// taken as wrong islands and flagged unreliable.
+pub(super) const ISLAND_SHARE: f64 = 0.005;
+/// ... but never smaller than this many pixels.
+pub(super) const ISLAND_MIN_PIXELS: usize = 50;
+/// Flags pixels where the field is steeper than the maximum gradient and both sides of every
+/// jump between neighbours, then flags small islands cut off by jumps or flags.
+pub(super) fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
+    let order = &pass.order;
+    let jump = 2.5 * gradient;
+    let flags_before = pass.flags.clone();
+    let valued = |p: usize| flags_before[p].0 == 0 && order[p].is_finite();
+    pass.flags
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(y, row)| {
+            for x in 0..width {
+                let p = y * width + x;
+                if !valued(p) {
+                    continue;
+                }
+                let steepest = neighbours4(x, y, width, height)
+                    .filter(|&q| valued(q))
+                    .map(|q| (order[q] - order[p]).abs())
+                    .fold(0f32, f32::max);
+                if steepest > 1.5 * gradient {
+                    row[x].0 |= PixelFlags::UNRELIABLE;
+                }
+            }
+        });
+    // Islands: 4-connected valued pixels joined where the change is below a jump.
+    let specimen = pass
+        .flags
+        .iter()
+        .filter(|f| !f.has(PixelFlags::OUTSIDE_MASK))
+        .count();
+    let min_size = ((specimen as f64 * ISLAND_SHARE) as usize).max(ISLAND_MIN_PIXELS);
+    let mut seen = vec![false; order.len()];
+    let mut stack = Vec::new();
+    let mut island = Vec::new();
+    for start in 0..order.len() {
+        if seen[start] || pass.flags[start].0 != 0 {
+            continue;
+        }
+        seen[start] = true;
+        stack.push(start);
+        island.clear();
+        while let Some(p) = stack.pop() {
+            island.push(p);
+            for q in neighbours4(p % width, p / width, width, height) {
+                if !seen[q] && pass.flags[q].0 == 0 && (order[q] - order[p]).abs() <= jump {
+                    seen[q] = true;
+                    stack.push(q);
+                }
+            }
+        }
+        if island.len() < min_size {
+            for &p in &island {
+                pass.flags[p].0 |= PixelFlags::UNRELIABLE;
+            }
+        }
+    }
+}
+
+/// Grows values into flagged pixels next to valued ones, layer by layer: a plane fitted to the
+/// valued pixels around predicts the order and its gradient G; the pixel's colour must then
+/// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
+/// fringes blur within a pixel, within a window of the prediction. What does not match stays
+/// flagged.
+pub(super) fn repair_steep_edges(
+    pass: &mut Pass,
+    lab: &LabImage,
+    table: &CalibrationTable,
+    max_order: f64,
+    width: usize,
+    height: usize,
+) {
+    let r = 2i64;
+    for _ in 0..REPAIR_LAYERS {
+        let order = pass.order.clone();
+        let flags = pass.flags.clone();
+        let valued = |q: usize| flags[q].0 == 0;
+        let updates: Vec<(usize, f32, f32)> = (0..order.len())
+            .into_par_iter()
+            .filter(|&p| !flags[p].has(PixelFlags::OUTSIDE_MASK) && !valued(p))
+            .filter_map(|p| {
+                let (x, y) = ((p % width) as i64, (p / width) as i64);
+                // Least-squares plane n = a + bx·dx + by·dy through valued pixels around.
+                let (mut s1, mut sx, mut sy, mut sxx, mut syy, mut sxy) =
+                    (0.0f64, 0.0, 0.0, 0.0, 0.0, 0.0);
+                let (mut sn, mut sxn, mut syn) = (0.0f64, 0.0, 0.0);
+                for dy in -r..=r {
+                    for dx in -r..=r {
+                        let (nx, ny) = (x + dx, y + dy);
+                        if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
+                            continue;
+                        }
+                        let q = ny as usize * width + nx as usize;
+                        if !valued(q) {
+                            continue;
+                        }
+                        let (fx, fy, n) = (dx as f64, dy as f64, f64::from(order[q]));
+                        s1 += 1.0;
+                        sx += fx;
+                        sy += fy;
+                        sxx += fx * fx;
+                        syy += fy * fy;
+                        sxy += fx * fy;
+                        sn += n;
+                        sxn += fx * n;
+                        syn += fy * n;
+                    }
+                }
+                if s1 < 4.0 {
+                    return None;
+                }
+                let (a, bx, by) = solve3(
+                    [[s1, sx, sy], [sx, sxx, sxy], [sy, sxy, syy]],
+                    [sn, sxn, syn],
+                )?;
+                let g = bx.hypot(by);
+                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > max_order - 0.05 {
+                    return None;
+                }
+                let reach = 0.05 + 0.5 * g;
+                let colour = lab.data[p];
+                let lo = ((a - reach).max(0.0) / table.order_step).floor() as usize;
+                let hi = ((a + reach).min(max_order) / table.order_step).ceil() as usize;
+                let footprint = |n: f64| {
+                    let mut acc = [0f32; 3];
+                    for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
+                        let c = table.colour_at((n + g * u).clamp(0.0, max_order));
+                        acc[0] += c.l / 5.0;
+                        acc[1] += c.a / 5.0;
+                        acc[2] += c.b / 5.0;
+                    }
+                    Lab::new(acc[0], acc[1], acc[2])
+                };
+                let (best_n, best_d) = (lo..=hi)
+                    .map(|i| {
+                        let n = i as f64 * table.order_step;
+                        (n, delta_e_ab(colour, footprint(n)))
+                    })
+                    .min_by(|u, v| u.1.total_cmp(&v.1))?;
+                (best_d < REPAIR_RESIDUAL).then_some((p, best_n as f32, best_d))
+            })
+            .collect();
+        if updates.is_empty() {
+            break;
+        }
+        for (p, n, d) in updates {
+            pass.order[p] = n;
+            pass.residual[p] = d;
+            pass.flags[p] = PixelFlags::default();
+        }
+    }
+}
+
+/// Past the end of the table colours repeat in paler form, so a region of orders near the
+/// table's top whose colours match it markedly worse than the photo does elsewhere is more
+/// likely an alias of orders beyond the table than a true value: such pixels (order within
+/// [`ALIAS_RANGE`] of the top, mean residual over a (2·[`ALIAS_WINDOW`]+1)² window above
+/// [`ALIAS_RESIDUAL_RATIO`] × the photo's median residual) are flagged beyond range — the
+/// cautious reading, since beyond range means higher stress.
+pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, height: usize) {
+    let valued = |p: usize| pass.flags[p].0 == 0 && pass.residual[p].is_finite();
+    let mut sample: Vec<f32> = (0..pass.order.len())
+        .step_by((pass.order.len() / 50_000).max(1))
+        .filter(|&p| valued(p))
+        .map(|p| pass.residual[p])
+        .collect();
+    if sample.is_empty() {
+        return;
+    }
+    let limit = (ALIAS_RESIDUAL_RATIO * median_f32(&mut sample)).max(ALIAS_RESIDUAL_MIN);
+    // Integral images of the residual and of the count of valued pixels.
+    let (w1, h1) = (width + 1, height + 1);
+    let mut sum = vec![0f64; w1 * h1];
+    let mut count = vec![0u32; w1 * h1];
+    for y in 0..height {
+        let (mut row_sum, mut row_count) = (0f64, 0u32);
+        for x in 0..width {
+            let p = y * width + x;
+            if valued(p) {
+                row_sum += f64::from(pass.residual[p]);
+                row_count += 1;
+            }
+            sum[(y + 1) * w1 + x + 1] = sum[y * w1 + x + 1] + row_sum;
+            count[(y + 1) * w1 + x + 1] = count[y * w1 + x + 1] + row_count;
+        }
+    }
+    let r = ALIAS_WINDOW;
+    let flagged: Vec<usize> = (0..pass.order.len())
+        .into_par_iter()
+        .filter(|&p| valued(p) && pass.order[p] >= top - ALIAS_RANGE)
+        .filter(|&p| {
+            let (x, y) = (p % width, p / width);
+            let (x0, y0, x1, y1) = (
+                x.saturating_sub(r),
+                y.saturating_sub(r),
+                (x + r + 1).min(width),
+                (y + r + 1).min(height),
+            );
+            let at = |xx: usize, yy: usize| yy * w1 + xx;
+            let s = sum[at(x1, y1)] - sum[at(x0, y1)] - sum[at(x1, y0)] + sum[at(x0, y0)];
+            let n = count[at(x1, y1)] + count[at(x0, y0)] - count[at(x0, y1)] - count[at(x1, y0)];
+            n > 0 && s / f64::from(n) > f64::from(limit)
+        })
+        .collect();
+    for p in flagged {
+        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
+    }
+}
+
+/// Near the end of the table colours cannot tell whether the order still rises: valued pixels
+/// within [`TOP_GUARD`] fringes of the table's top that lie next to a *beyond range* pixel are
+/// flagged beyond range too, a few layers deep.
+pub(super) fn extend_beyond_range(pass: &mut Pass, top: f32, width: usize, height: usize) {
+    for _ in 0..TOP_GUARD_LAYERS {
+        let flags = pass.flags.clone();
+        let grown: Vec<usize> = (0..pass.order.len())
+            .into_par_iter()
+            .filter(|&p| {
+                flags[p].0 == 0
+                    && pass.order[p] >= top - TOP_GUARD
+                    && neighbours8(p % width, p / width, width, height)
+                        .any(|q| flags[q].has(PixelFlags::BEYOND_RANGE))
+            })
+            .collect();
+        if grown.is_empty() {
+            break;
+        }
+        for p in grown {
+            pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
+        }
+    }
+}
+
+/// Row-major indices of the 8-neighbours of (x, y) inside a `width` × `height` image.
+pub(super) fn neighbours8(
+    x: usize,
+    y: usize,
+    width: usize,
+    height: usize,
+) -> impl Iterator<Item = usize> {
+    (-1i64..=1)
+        .flat_map(|dy| (-1i64..=1).map(move |dx| (dx, dy)))
+        .filter(|&(dx, dy)| dx != 0 || dy != 0)
+        .map(move |(dx, dy)| (x as i64 + dx, y as i64 + dy))
+        .filter(move |&(nx, ny)| {
+            nx >= 0 && ny >= 0 && (nx as usize) < width && (ny as usize) < height
+        })
+        .map(move |(nx, ny)| ny as usize * width + nx as usize)
+}
+
+/// Solves a 3×3 linear system by Cramer's rule; `None` if it is (nearly) singular.
+pub(super) fn solve3(m: [[f64; 3]; 3], v: [f64; 3]) -> Option<(f64, f64, f64)> {
+    let det = |m: [[f64; 3]; 3]| {
+        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+    };
+    let d = det(m);
+    if d.abs() < 1e-9 {
+        return None;
+    }
+    let column = |k: usize| {
+        let mut c = m;
+        for row in 0..3 {
+            c[row][k] = v[row];
+        }
+        det(c) / d
+    };
+    Some((column(0), column(1), column(2)))
+}
+
+/// Row-major indices of the 4-neighbours of (x, y) inside a `width` × `height` image.
+pub(super) fn neighbours4(
+    x: usize,
+    y: usize,
+    width: usize,
+    height: usize,
+) -> impl Iterator<Item = usize> {
+    [
+        (x.wrapping_sub(1), y),
+        (x + 1, y),
+        (x, y.wrapping_sub(1)),
+        (x, y + 1),
+    ]
+    .into_iter()
+    .filter(move |&(nx, ny)| nx < width && ny < height)
+    .map(move |(nx, ny)| ny * width + nx)
+}
+
+/// Averages each valued pixel with its (2r+1)² neighbourhood, r = [`SMOOTH_RADIUS`], where all
+/// of it is valued and lies within a few gradients of the centre (a symmetric mean keeps
+/// linear ramps exact and leaves edges of the valued area alone).
+pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
+    let r = SMOOTH_RADIUS;
+    let limit = 2.0 * gradient * r as f32;
+    let order = pass.order.clone();
+    let flags = &pass.flags;
+    let count = ((2 * r + 1) * (2 * r + 1)) as f32;
+    pass.order
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(y, row)| {
+            if y < r || y + r >= height {
+                return;
+            }
+            for x in r..width.saturating_sub(r) {
+                let p = y * width + x;
+                if flags[p].0 != 0 {
+                    continue;
+                }
+                let mut sum = 0.0;
+                let mut ok = true;
+                'window: for ny in y - r..=y + r {
+                    for nx in x - r..=x + r {
+                        let q = ny * width + nx;
+                        if flags[q].0 != 0 || (order[q] - order[p]).abs() > limit {
+                            ok = false;
+                            break 'window;
+                        }
+                        sum += order[q];
+                    }
+                }
+                if ok {
+                    row[x] = sum / count;
+                }
+            }
+        });
+}

@@ -1,0 +1,113 @@
+//! The exposure / white-balance / vignetting fit on confident pixels of a preliminary pass.
+
+use super::*;
+
+/// Least CIELAB chroma of the table colour of a pixel used in the exposure fit.
+pub(super) const FIT_MIN_CHROMA: f32 = 20.0;
+/// Fits the exposure correction on confident pixels of a first pass.
+pub(super) fn fit_exposure(
+    working: &Working,
+    table: &CalibrationTable,
+    pass: &Pass,
+) -> Option<ExposureCorrection> {
+    let (w, h) = (working.width, working.height);
+    let confident: Vec<usize> = (0..pass.order.len())
+        .filter(|&p| {
+            // Vivid colours only: their order follows from hue, whatever the exposure; greys
+            // would tie the order to lightness, which is what is being fitted.
+            pass.flags[p].0 == 0
+                && pass.margin[p] > 2.0 * MARGIN_LIMIT
+                && table
+                    .colour_at(f64::from(pass.order[p]))
+                    .into_components()
+                    .1
+                    .hypot(
+                        table
+                            .colour_at(f64::from(pass.order[p]))
+                            .into_components()
+                            .2,
+                    )
+                    > FIT_MIN_CHROMA
+        })
+        .collect();
+    if confident.len() < 200 {
+        return None;
+    }
+    let stride = (confident.len() / 40_000).max(1);
+    let samples: Vec<(LinSrgb<f32>, LinSrgb<f32>, f32)> = confident
+        .iter()
+        .step_by(stride)
+        .map(|&p| {
+            let observed = working.linear[p];
+            let expected = linear_from_lab(table.colour_at(f64::from(pass.order[p])));
+            (
+                observed,
+                expected,
+                radius_sq(p % w as usize, p / w as usize, w, h),
+            )
+        })
+        .filter(|(o, e, _)| {
+            let (so, se) = (o.red + o.green + o.blue, e.red + e.green + e.blue);
+            so > 0.03 && se > 0.03
+        })
+        .collect();
+    if samples.len() < 100 {
+        return None;
+    }
+    // Radial term: least squares of the brightness ratio against ρ², t = a + b·ρ².
+    let ratios: Vec<(f32, f32)> = samples
+        .iter()
+        .map(|(o, e, r2)| ((e.red + e.green + e.blue) / (o.red + o.green + o.blue), *r2))
+        .collect();
+    let mut ratio_values: Vec<f32> = ratios.iter().map(|r| r.0).collect();
+    let centre = median_f32(&mut ratio_values);
+    let inliers: Vec<&(f32, f32)> = ratios
+        .iter()
+        .filter(|r| (r.0 / centre - 1.0).abs() < 0.25)
+        .collect();
+    let n = inliers.len() as f32;
+    let (sx, sy) = inliers
+        .iter()
+        .fold((0.0, 0.0), |acc, r| (acc.0 + r.1, acc.1 + r.0));
+    let (mx, my) = (sx / n, sy / n);
+    let (sxx, sxy) = inliers.iter().fold((0.0, 0.0), |acc, r| {
+        (acc.0 + (r.1 - mx).powi(2), acc.1 + (r.1 - mx) * (r.0 - my))
+    });
+    let slope = if sxx > 1e-4 * n { sxy / sxx } else { 0.0 };
+    let intercept = my - slope * mx;
+    let vignetting = if intercept > 0.0 {
+        // Lenses darken corners, never brighten them.
+        (slope / intercept).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    // Channel gains: ratio of sums over the pixels whose ratio lies near the median, leaving
+    // out dark and nearly clipped channel values, after removing the radial term.
+    let mut gain = [1f32; 3];
+    for (c, g) in gain.iter_mut().enumerate() {
+        let pairs: Vec<(f32, f32)> = samples
+            .iter()
+            .filter_map(|(o, e, r2)| {
+                let (ov, ev) = ([o.red, o.green, o.blue][c], [e.red, e.green, e.blue][c]);
+                let ov = ov * (1.0 + vignetting * r2);
+                (ov > 0.02 && ov < 0.9 && ev > 0.02 && ev < 0.95).then_some((ov, ev))
+            })
+            .collect();
+        if pairs.len() < 50 {
+            return None;
+        }
+        let mut ratios: Vec<f32> = pairs.iter().map(|(o, e)| e / o).collect();
+        let centre = median_f32(&mut ratios);
+        let (so, se) = pairs
+            .iter()
+            .filter(|(o, e)| (e / o / centre - 1.0).abs() < 0.15)
+            .fold((0.0, 0.0), |acc, (o, e)| (acc.0 + o, acc.1 + e));
+        *g = (se / so).clamp(0.5, 2.0);
+    }
+    Some(ExposureCorrection { gain, vignetting })
+}
+
+pub(super) fn median_f32(v: &mut [f32]) -> f32 {
+    let k = v.len() / 2;
+    *v.select_nth_unstable_by(k, f32::total_cmp).1
+}

@@ -1,0 +1,578 @@
+//! The solver behind [`crate::order_map::map_orders`].
+//!
+//! 1. **Candidates.** Each specimen pixel's CIELAB colour is compared with the table on a
+//!    0.02-fringe grid; the local minima of that distance curve are the pixel's candidate
+//!    orders (colours repeat, so there are several), each refined to sub-step precision.
+//!    One extra label, *beyond range*, stands for orders past the end of the table.
+//! 2. **Semi-global aggregation over candidates.** Costs are aggregated along eight scan
+//!    directions, as in semi-global matching, but over each pixel's few candidates rather
+//!    than a dense label range, and with a transition cost built for smooth ramps: a change of
+//!    order up to the maximum gradient per pixel is free, up to twice that costs a little, and
+//!    anything larger is a jump. Evidence from far away (unambiguous low orders, the dark
+//!    zero-order regions inside the specimen, hints) travels along every path, so no single
+//!    seed decides a region.
+//! 3. **Local refinement** of the winning candidate on the table's own grid, then flags
+//!    (`cleanup`): poor colour match, too small an ambiguity margin, too steep a field, jumps
+//!    and small islands make a pixel *unreliable*; the winning label *beyond range* flags it
+//!    as such. Values are then grown into steep edges against the table averaged over the
+//!    pixel footprint, high orders that match markedly worse than the rest of the photo (likely
+//!    aliases of orders past the table) and high orders next to beyond-range pixels are
+//!    flagged beyond range, and a 5 × 5 mean that keeps ramps exact smooths the result.
+//! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
+//!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
+//!    pass on a ≤ 0.5-megapixel image, in up to two rounds.
+//! 5. **Large photos** are labelled on block means (≤ 1 megapixel) and refined at full
+//!    resolution near the interpolated order.
+//!
+//! Distances inside the search are ΔE\*ab with the lightness difference weighted by
+//! [`LIGHTNESS_WEIGHT`] (exposure drift moves L\* most); reported residuals are plain ΔE\*ab.
+//! The preliminary pass that feeds the exposure fit weights lightness even less and has no
+//! *beyond range* label, so that a photo much darker than the calibration still finds its
+//! orders.
+
+use palette::LinSrgb;
+use rayon::prelude::*;
+
+use crate::calibration::CalibrationTable;
+use crate::colour::{delta_e_ab, lab_from_linear, linear_from_lab, Lab, LabImage, Photo};
+use crate::error::{CoreError, CoreResult};
+use crate::exposure::{radius_sq, ExposureCorrection};
+use crate::geometry::Mask;
+use crate::geometry::PixelPoint;
+use crate::order_map::{MapOptions, MapStatistics, OrderHint, OrderMap, PixelFlags};
+
+mod aggregate;
+mod cleanup;
+mod exposure_fit;
+mod search;
+
+use aggregate::*;
+use cleanup::*;
+use exposure_fit::*;
+use search::*;
+
+/// Weight of ΔL\* in the search distance (a\* and b\* have weight 1).
+const LIGHTNESS_WEIGHT: f32 = 0.6;
+/// Weight of ΔL\* in the local refinement of the chosen candidate.
+const REFINE_LIGHTNESS_WEIGHT: f32 = 2.5;
+/// Weight of ΔL\* in the preliminary pass that feeds the exposure fit.
+const PRELIMINARY_LIGHTNESS_WEIGHT: f32 = 0.25;
+
+/// Which solver pass: the preliminary one feeding the exposure fit, or the final one.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Stage {
+    Preliminary,
+    Final,
+}
+/// Data cost of the *beyond range* label (ΔE units): past the table colours wash out to pale
+/// tints that match some high table order only loosely; a region whose best match is worse
+/// than this, and that continues the top of the table, is taken as beyond range.
+const BEYOND_COST: f32 = 6.0;
+/// The *beyond range* cost is at least this multiple of the photo's median best match.
+const BEYOND_TO_TYPICAL: f32 = 4.0;
+/// Extra cost of a label that disagrees with a hint by more than [`HINT_TOLERANCE`] fringes.
+const HINT_PENALTY: f32 = 400.0;
+/// How far a label may lie from a hint's order without penalty, fringes.
+const HINT_TOLERANCE: f64 = 0.2;
+/// Largest maximum gradient used on block means, fringes per working pixel: steeper would
+/// let a chain jump to the next colour repeat unpenalised.
+const COARSE_MAX_GRADIENT: f64 = 0.45;
+/// A pixel whose best colour match is worse than this (ΔE\*ab) is unreliable.
+const RESIDUAL_LIMIT: f32 = 10.0;
+/// Aggregated ambiguity margin (ΔE units per direction) below which a pixel is unreliable.
+const MARGIN_LIMIT: f32 = 0.35;
+
+/// One solver pass on a CIELAB image.
+struct Pass {
+    order: Vec<f32>,
+    residual: Vec<f32>,
+    margin: Vec<f32>,
+    flags: Vec<PixelFlags>,
+}
+
+fn solve_pass(
+    lab: &LabImage,
+    inside: &[bool],
+    table: &CalibrationTable,
+    max_order: f64,
+    options: &MapOptions,
+    stage: Stage,
+) -> Pass {
+    let (width, height) = (lab.width as usize, lab.height as usize);
+    let (lightness_weight, beyond_cost) = match stage {
+        Stage::Preliminary => (PRELIMINARY_LIGHTNESS_WEIGHT, f32::INFINITY),
+        Stage::Final => (LIGHTNESS_WEIGHT, BEYOND_COST),
+    };
+    let search = SearchTable::new(table, SEARCH_STEP, max_order, lightness_weight);
+    let fine = SearchTable::new(
+        table,
+        table.order_step,
+        max_order,
+        REFINE_LIGHTNESS_WEIGHT.max(lightness_weight),
+    );
+    let top = search.max_order() as f32;
+    let gradient = options.max_gradient as f32;
+    let beyond_order = top + 2.0 * gradient;
+
+    let mut labels: Vec<Labels> = lab
+        .data
+        .par_iter()
+        .zip(inside.par_iter())
+        .map(|(c, &ins)| {
+            if ins {
+                candidates(&search, *c, beyond_order, beyond_cost)
+            } else {
+                NO_LABELS
+            }
+        })
+        .collect();
+    if beyond_cost.is_finite() {
+        // Noisy or compressed photos match the table less well everywhere: scale the cost of
+        // *beyond range* with the photo's typical best match.
+        let mut best: Vec<f32> = labels
+            .iter()
+            .step_by((labels.len() / 20_000).max(1))
+            .map(|l| l.cost[0])
+            .filter(|c| c.is_finite())
+            .collect();
+        if !best.is_empty() {
+            let typical = median_f32(&mut best);
+            let scaled = beyond_cost.max(BEYOND_TO_TYPICAL * typical);
+            labels
+                .par_iter_mut()
+                .filter(|l| l.cost[BEYOND].is_finite())
+                .for_each(|l| l.cost[BEYOND] = scaled);
+        }
+    }
+    for hint in &options.hints {
+        if let Some((x, y)) = hint.at.pixel(lab.width, lab.height) {
+            let p = y as usize * width + x as usize;
+            if !inside[p] {
+                continue;
+            }
+            let l = &mut labels[p];
+            // Make sure the hinted order is a candidate, then penalise every label far from it.
+            let (hint_order, hint_cost) = {
+                let centre = (hint.order / search.step).round() as usize;
+                let reach = (HINT_TOLERANCE / search.step).ceil() as usize;
+                search.best_in(lab.data[p], centre.saturating_sub(reach), centre + reach)
+            };
+            if hint.order <= search.max_order() {
+                l.order[CANDIDATES - 1] = hint_order as f32;
+                l.cost[CANDIDATES - 1] = hint_cost.min(COST_CAP);
+            }
+            for k in 0..LABELS {
+                if (f64::from(l.order[k].min(beyond_order)) - hint.order).abs() > HINT_TOLERANCE {
+                    l.cost[k] += HINT_PENALTY;
+                }
+            }
+        }
+    }
+
+    let total = aggregate(&labels, inside, width, height, gradient, top);
+
+    let n = lab.data.len();
+    let mut pass = Pass {
+        order: vec![f32::NAN; n],
+        residual: vec![f32::NAN; n],
+        margin: vec![f32::NAN; n],
+        flags: vec![PixelFlags::default(); n],
+    };
+    let fine_reach = (2.0 * SEARCH_STEP / fine.step).ceil() as usize;
+    let directions = DIRECTIONS;
+    pass.order
+        .par_iter_mut()
+        .zip(pass.residual.par_iter_mut())
+        .zip(pass.margin.par_iter_mut())
+        .zip(pass.flags.par_iter_mut())
+        .enumerate()
+        .for_each(|(p, (((order, residual), margin), flags))| {
+            if !inside[p] {
+                flags.0 |= PixelFlags::OUTSIDE_MASK;
+                return;
+            }
+            let s = &total[p];
+            let l = &labels[p];
+            let best = (0..LABELS)
+                .filter(|k| s[*k].is_finite())
+                .min_by(|a, b| s[*a].total_cmp(&s[*b]))
+                .unwrap_or(BEYOND);
+            let chosen = l.order[best];
+            let rival = (0..LABELS)
+                .filter(|k| {
+                    s[*k].is_finite()
+                        && (l.order[*k].min(beyond_order) - chosen.min(beyond_order)).abs() > 0.5
+                })
+                .map(|k| s[k])
+                .fold(f32::INFINITY, f32::min);
+            *margin = ((rival - s[best]) / directions).min(COST_CAP);
+            if best == BEYOND {
+                flags.0 |= PixelFlags::BEYOND_RANGE;
+                return;
+            }
+            let centre = (f64::from(chosen) / fine.step).round() as usize;
+            let (refined, _) = fine.best_in(
+                lab.data[p],
+                centre.saturating_sub(fine_reach),
+                centre + fine_reach,
+            );
+            *order = refined as f32;
+            *residual = delta_e_ab(lab.data[p], table.colour_at(refined));
+            if *residual > RESIDUAL_LIMIT || *margin < MARGIN_LIMIT {
+                flags.0 |= PixelFlags::UNRELIABLE;
+            }
+        });
+    flag_steep_and_isolated(&mut pass, width, height, gradient);
+    if stage == Stage::Final {
+        repair_steep_edges(&mut pass, lab, table, max_order, width, height);
+        flag_poor_high_matches(&mut pass, top, width, height);
+        extend_beyond_range(&mut pass, top, width, height);
+    }
+    smooth(&mut pass, width, height, gradient);
+    for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
+        if f.0 != 0 {
+            *o = f32::NAN;
+        }
+    }
+    pass
+}
+
+/// Summary figures of a finished pass.
+fn statistics(pass: &Pass) -> MapStatistics {
+    let specimen = pass
+        .flags
+        .iter()
+        .filter(|f| !f.has(PixelFlags::OUTSIDE_MASK))
+        .count() as u64;
+    let beyond = pass
+        .flags
+        .iter()
+        .filter(|f| f.has(PixelFlags::BEYOND_RANGE))
+        .count() as f64;
+    let unreliable = pass
+        .flags
+        .iter()
+        .filter(|f| f.has(PixelFlags::UNRELIABLE))
+        .count() as f64;
+    let (mut count, mut sum, mut min, mut max, mut res) =
+        (0u64, 0f64, f64::INFINITY, f64::NEG_INFINITY, 0f64);
+    for (o, r) in pass.order.iter().zip(&pass.residual) {
+        if o.is_finite() {
+            let v = f64::from(*o);
+            count += 1;
+            sum += v;
+            min = min.min(v);
+            max = max.max(v);
+            res += f64::from(*r);
+        }
+    }
+    let share = |v: f64| {
+        if specimen == 0 {
+            0.0
+        } else {
+            v / specimen as f64
+        }
+    };
+    MapStatistics {
+        specimen_pixels: specimen,
+        valued_pixels: count,
+        beyond_range_share: share(beyond),
+        unreliable_share: share(unreliable),
+        min_order: if count > 0 { min } else { f64::NAN },
+        max_order: if count > 0 { max } else { f64::NAN },
+        mean_order: if count > 0 {
+            sum / count as f64
+        } else {
+            f64::NAN
+        },
+        mean_residual: if count > 0 {
+            res / count as f64
+        } else {
+            f64::NAN
+        },
+    }
+}
+
+/// Photos up to this many pixels are labelled at full resolution; larger ones on block means.
+const FULL_RESOLUTION_LIMIT: u64 = 1_000_000;
+/// A first exposure fit this close to no correction needs no second round.
+const SETTLED_GAIN: f32 = 0.03;
+/// Largest working image of the preliminary passes that feed the exposure fit, pixels.
+const PRELIMINARY_LIMIT: u64 = 500_000;
+
+/// The image the labelling runs on, in linear-light sRGB: the photo itself, or the means of
+/// `stride` × `stride` blocks of it when the photo is large. A block belongs to the specimen
+/// only if all its pixels do.
+struct Working {
+    width: u32,
+    height: u32,
+    stride: u32,
+    linear: Vec<LinSrgb<f32>>,
+    inside: Vec<bool>,
+}
+
+impl Working {
+    /// Block means of `photo` with the smallest stride that keeps at most `limit` pixels.
+    fn new(photo: &Photo, mask: Option<&Mask>, limit: u64) -> Working {
+        let (w, h) = (photo.width(), photo.height());
+        let pixels = u64::from(w) * u64::from(h);
+        let stride = if pixels <= limit {
+            1
+        } else {
+            ((pixels as f64 / limit as f64).sqrt().ceil() as u32).max(2)
+        };
+        let (cw, ch) = (w.div_ceil(stride), h.div_ceil(stride));
+        let cells: Vec<(LinSrgb<f32>, bool)> = (0..ch as usize * cw as usize)
+            .into_par_iter()
+            .map(|c| {
+                let (cx, cy) = ((c % cw as usize) as u32, (c / cw as usize) as u32);
+                let (mut sum, mut n, mut all_inside) = (LinSrgb::new(0.0, 0.0, 0.0), 0.0, true);
+                for y in cy * stride..((cy + 1) * stride).min(h) {
+                    for x in cx * stride..((cx + 1) * stride).min(w) {
+                        let i = (y * w + x) as usize;
+                        sum += photo.linear(i);
+                        n += 1.0;
+                        all_inside &= mask.is_none_or(|m| m.as_slice()[i]);
+                    }
+                }
+                (sum / n, all_inside)
+            })
+            .collect();
+        let (linear, inside) = cells.into_iter().unzip();
+        Working {
+            width: cw,
+            height: ch,
+            stride,
+            linear,
+            inside,
+        }
+    }
+
+    /// `options` in working pixels: on block means the field changes `stride` times faster
+    /// per pixel, and hints move to their block.
+    fn scale(&self, options: &MapOptions) -> MapOptions {
+        let s = f64::from(self.stride);
+        MapOptions {
+            max_gradient: (options.max_gradient * s)
+                .min(COARSE_MAX_GRADIENT.max(options.max_gradient)),
+            hints: options
+                .hints
+                .iter()
+                .map(|h| OrderHint {
+                    at: PixelPoint {
+                        x: h.at.x / s,
+                        y: h.at.y / s,
+                    },
+                    order: h.order,
+                })
+                .collect(),
+            ..options.clone()
+        }
+    }
+
+    /// CIELAB (D65) of every working pixel after `correction`.
+    fn lab(&self, correction: &ExposureCorrection) -> LabImage {
+        let w = self.width as usize;
+        let data = self
+            .linear
+            .par_iter()
+            .enumerate()
+            .map(|(i, c)| {
+                lab_from_linear(correction.apply(*c, i % w, i / w, self.width, self.height))
+            })
+            .collect();
+        LabImage {
+            width: self.width,
+            height: self.height,
+            data,
+        }
+    }
+}
+
+/// Runs the whole solver; see the module documentation.
+pub(crate) fn solve(
+    photo: &Photo,
+    table: &CalibrationTable,
+    mask: Option<&Mask>,
+    options: &MapOptions,
+) -> CoreResult<OrderMap> {
+    let max_order = options
+        .max_order
+        .map_or(table.max_order(), |m| m.min(table.max_order()));
+    if max_order < 4.0 * SEARCH_STEP {
+        return Err(CoreError::invalid(
+            "max_order",
+            format!("{max_order} leaves too little of the table to match against"),
+        ));
+    }
+    let mut exposure = ExposureCorrection::NONE;
+    if options.exposure_compensation {
+        let working = Working::new(photo, mask, PRELIMINARY_LIMIT);
+        let scaled = working.scale(options);
+        // A second round only where the first found a real drift: a strong drift is only
+        // partly corrected by the first fit.
+        for _ in 0..2 {
+            let preliminary = solve_pass(
+                &working.lab(&exposure),
+                &working.inside,
+                table,
+                max_order,
+                &scaled,
+                Stage::Preliminary,
+            );
+            match fit_exposure(&working, table, &preliminary) {
+                Some(fit) => {
+                    let settled = fit.gain.iter().all(|g| (g - 1.0).abs() < SETTLED_GAIN)
+                        && fit.vignetting < SETTLED_GAIN;
+                    exposure = fit;
+                    if settled {
+                        break;
+                    }
+                }
+                None => break,
+            }
+        }
+    }
+    let working = Working::new(photo, mask, FULL_RESOLUTION_LIMIT);
+    let pass = solve_pass(
+        &working.lab(&exposure),
+        &working.inside,
+        table,
+        max_order,
+        &working.scale(options),
+        Stage::Final,
+    );
+    let pass = if working.stride == 1 {
+        pass
+    } else {
+        drop(working.linear);
+        refine_full_resolution(
+            photo,
+            mask,
+            working.stride,
+            &pass,
+            &exposure,
+            table,
+            max_order,
+            options.max_gradient as f32,
+        )
+    };
+    let statistics = statistics(&pass);
+    Ok(OrderMap {
+        width: photo.width(),
+        height: photo.height(),
+        order: pass.order,
+        residual: pass.residual,
+        margin: pass.margin,
+        flags: pass.flags,
+        exposure,
+        statistics,
+    })
+}
+
+/// Full-resolution orders from a labelling on block means: each pixel searches the table
+/// near the order interpolated from the valued block centres around it, within the change
+/// those blocks show; blocks without a value pass their flags on.
+#[allow(clippy::too_many_arguments)]
+fn refine_full_resolution(
+    photo: &Photo,
+    mask: Option<&Mask>,
+    stride: u32,
+    coarse: &Pass,
+    exposure: &ExposureCorrection,
+    table: &CalibrationTable,
+    max_order: f64,
+    gradient: f32,
+) -> Pass {
+    let (w, h) = (photo.width() as usize, photo.height() as usize);
+    let s = stride as usize;
+    let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
+    let fine = SearchTable::new(table, table.order_step, max_order, REFINE_LIGHTNESS_WEIGHT);
+    let n = w * h;
+    let mut pass = Pass {
+        order: vec![f32::NAN; n],
+        residual: vec![f32::NAN; n],
+        margin: vec![f32::NAN; n],
+        flags: vec![PixelFlags::default(); n],
+    };
+    let rows = pass
+        .order
+        .par_chunks_mut(w)
+        .zip(pass.residual.par_chunks_mut(w))
+        .zip(pass.margin.par_chunks_mut(w))
+        .zip(pass.flags.par_chunks_mut(w))
+        .enumerate();
+    rows.for_each(|(y, (((order, residual), margin), flags))| {
+        for x in 0..w {
+            let i = y * w + x;
+            if mask.is_some_and(|m| !m.as_slice()[i]) {
+                flags[x].0 = PixelFlags::OUTSIDE_MASK;
+                continue;
+            }
+            // Position in block-centre coordinates.
+            let fx = ((x as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (cw - 1) as f32);
+            let fy = ((y as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (ch - 1) as f32);
+            let (x0, y0) = (fx.floor() as usize, fy.floor() as usize);
+            let (x1, y1) = ((x0 + 1).min(cw - 1), (y0 + 1).min(ch - 1));
+            let (tx, ty) = (fx - x0 as f32, fy - y0 as f32);
+            let corners = [
+                (x0, y0, (1.0 - tx) * (1.0 - ty)),
+                (x1, y0, tx * (1.0 - ty)),
+                (x0, y1, (1.0 - tx) * ty),
+                (x1, y1, tx * ty),
+            ];
+            let (mut sum, mut weight, mut lo, mut hi, mut best_margin) =
+                (0.0, 0.0, f32::INFINITY, f32::NEG_INFINITY, f32::NAN);
+            for &(cx, cy, wgt) in &corners {
+                let c = cy * cw + cx;
+                if coarse.flags[c].0 == 0 && coarse.order[c].is_finite() {
+                    sum += wgt * coarse.order[c];
+                    weight += wgt;
+                    lo = lo.min(coarse.order[c]);
+                    hi = hi.max(coarse.order[c]);
+                    best_margin = if best_margin.is_nan() {
+                        coarse.margin[c]
+                    } else {
+                        best_margin.max(coarse.margin[c])
+                    };
+                }
+            }
+            let nearest =
+                ((fy.round() as usize).min(ch - 1)) * cw + (fx.round() as usize).min(cw - 1);
+            if weight < 0.25 {
+                flags[x].0 = if coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
+                    PixelFlags::BEYOND_RANGE
+                } else {
+                    PixelFlags::UNRELIABLE
+                };
+                continue;
+            }
+            let predicted = f64::from(sum / weight);
+            let reach = 0.05 + f64::from(hi - lo);
+            let colour = lab_from_linear(exposure.apply(
+                photo.linear(i),
+                x,
+                y,
+                photo.width(),
+                photo.height(),
+            ));
+            let from = ((predicted - reach).max(0.0) / fine.step).floor() as usize;
+            let to = ((predicted + reach).min(max_order) / fine.step).ceil() as usize;
+            let (value, _) = fine.best_in(colour, from, to);
+            let miss = delta_e_ab(colour, table.colour_at(value));
+            order[x] = value as f32;
+            residual[x] = miss;
+            margin[x] = best_margin;
+            if miss > RESIDUAL_LIMIT {
+                flags[x].0 = PixelFlags::UNRELIABLE;
+            }
+        }
+    });
+    smooth(&mut pass, w, h, gradient);
+    for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
+        if f.0 != 0 {
+            *o = f32::NAN;
+        }
+    }
+    pass
+}

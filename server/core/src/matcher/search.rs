@@ -1,0 +1,146 @@
+//! Candidate orders of one colour: the table flattened for fast search, and the local
+//! minima of a colour's distance curve along it.
+
+use super::*;
+
+/// Colour candidates kept per pixel.
+pub(super) const CANDIDATES: usize = 4;
+/// Labels per pixel: the candidates plus *beyond range*.
+pub(super) const LABELS: usize = CANDIDATES + 1;
+/// Index of the *beyond range* label.
+pub(super) const BEYOND: usize = CANDIDATES;
+/// Order spacing of the candidate search, fringes.
+pub(super) const SEARCH_STEP: f64 = 0.02;
+/// Data costs are capped here (ΔE units) so that one bad pixel cannot dominate a path.
+pub(super) const COST_CAP: f32 = 25.0;
+/// The table flattened for fast search: CIELAB components in separate arrays.
+pub(super) struct SearchTable {
+    pub(super) step: f64,
+    pub(super) lightness_weight: f32,
+    pub(super) l: Vec<f32>,
+    pub(super) a: Vec<f32>,
+    pub(super) b: Vec<f32>,
+}
+
+impl SearchTable {
+    /// Samples `table` every `step` fringes up to `max_order`.
+    pub(super) fn new(
+        table: &CalibrationTable,
+        step: f64,
+        max_order: f64,
+        lightness_weight: f32,
+    ) -> Self {
+        let n = (max_order / step + 1e-9).floor() as usize + 1;
+        let mut t = SearchTable {
+            step,
+            lightness_weight,
+            l: Vec::with_capacity(n),
+            a: Vec::with_capacity(n),
+            b: Vec::with_capacity(n),
+        };
+        for i in 0..n {
+            let c = table.colour_at(i as f64 * step);
+            t.l.push(c.l);
+            t.a.push(c.a);
+            t.b.push(c.b);
+        }
+        t
+    }
+
+    pub(super) fn len(&self) -> usize {
+        self.l.len()
+    }
+
+    pub(super) fn max_order(&self) -> f64 {
+        (self.len() - 1) as f64 * self.step
+    }
+
+    /// Search distance between `c` and entry `i`.
+    #[inline]
+    pub(super) fn distance(&self, c: Lab, i: usize) -> f32 {
+        self.distance_sq(c, i).sqrt()
+    }
+
+    /// Squared search distance (cheaper for scanning; same minima).
+    #[inline]
+    pub(super) fn distance_sq(&self, c: Lab, i: usize) -> f32 {
+        let dl = self.lightness_weight * (c.l - self.l[i]);
+        let (da, db) = (c.a - self.a[i], c.b - self.b[i]);
+        dl * dl + da * da + db * db
+    }
+
+    /// Best order in entries `lo..=hi` with a parabolic sub-step fit: (order, distance).
+    pub(super) fn best_in(&self, c: Lab, lo: usize, hi: usize) -> (f64, f32) {
+        let hi = hi.min(self.len() - 1);
+        let (mut best, mut best_d) = (lo, f32::INFINITY);
+        for i in lo..=hi {
+            let d = self.distance_sq(c, i);
+            if d < best_d {
+                best = i;
+                best_d = d;
+            }
+        }
+        self.parabolic(c, best, best_d.sqrt())
+    }
+
+    /// Refines a discrete minimum at entry `i` with a parabola through its neighbours.
+    pub(super) fn parabolic(&self, c: Lab, i: usize, d: f32) -> (f64, f32) {
+        if i == 0 || i + 1 >= self.len() {
+            return (i as f64 * self.step, d);
+        }
+        let (dm, dp) = (self.distance(c, i - 1), self.distance(c, i + 1));
+        let denom = dm - 2.0 * d + dp;
+        if denom <= 1e-6 {
+            return (i as f64 * self.step, d);
+        }
+        let shift = (0.5 * (dm - dp) / denom).clamp(-0.5, 0.5);
+        let value = d - 0.25 * (dm - dp) * shift;
+        ((i as f64 + f64::from(shift)) * self.step, value.max(0.0))
+    }
+}
+
+/// Per-pixel labels: candidate orders (the last slot is *beyond range*) and their data costs.
+#[derive(Clone, Copy)]
+pub(super) struct Labels {
+    pub(super) order: [f32; LABELS],
+    pub(super) cost: [f32; LABELS],
+}
+
+pub(super) const NO_LABELS: Labels = Labels {
+    order: [f32::NAN; LABELS],
+    cost: [f32::INFINITY; LABELS],
+};
+
+/// Candidate orders of one colour: the local minima of its distance curve.
+pub(super) fn candidates(
+    search: &SearchTable,
+    c: Lab,
+    beyond_order: f32,
+    beyond_cost: f32,
+) -> Labels {
+    let n = search.len();
+    let mut d = vec![0f32; n];
+    for (i, slot) in d.iter_mut().enumerate() {
+        *slot = search.distance_sq(c, i);
+    }
+    let mut best: [(f32, usize); CANDIDATES] = [(f32::INFINITY, usize::MAX); CANDIDATES];
+    for i in 0..n {
+        let left = if i == 0 { f32::INFINITY } else { d[i - 1] };
+        let right = if i + 1 == n { f32::INFINITY } else { d[i + 1] };
+        if d[i] <= left && d[i] < right && d[i] < best[CANDIDATES - 1].0 {
+            best[CANDIDATES - 1] = (d[i], i);
+            best.sort_by(|x, y| x.0.total_cmp(&y.0));
+        }
+    }
+    let mut labels = NO_LABELS;
+    for (slot, (dist, i)) in best.iter().enumerate() {
+        if *i != usize::MAX {
+            let (order, value) = search.parabolic(c, *i, dist.sqrt());
+            labels.order[slot] = order as f32;
+            labels.cost[slot] = value.min(COST_CAP);
+        }
+    }
+    labels.order[BEYOND] = beyond_order;
+    labels.cost[BEYOND] = beyond_cost;
+    labels
+}
