@@ -135,7 +135,8 @@ pub struct OrderMap {
     pub order: Vec<f32>,
     /// ΔE\*ab between the (corrected) pixel colour and the table colour at its order.
     pub residual: Vec<f32>,
-    /// Ambiguity margin: how much worse (ΔE\*ab) the best match more than half a fringe away is.
+    /// Ambiguity margin: how much higher the aggregated cost of the best alternative more than
+    /// half a fringe away is (ΔE units per scan direction; capped at 25; NaN outside the mask).
     pub margin: Vec<f32>,
     /// Flags per pixel.
     pub flags: Vec<PixelFlags>,
