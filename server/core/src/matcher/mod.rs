@@ -539,7 +539,9 @@ fn refine_full_resolution(
             }
             let nearest =
                 ((fy.round() as usize).min(ch - 1)) * cw + (fx.round() as usize).min(cw - 1);
-            if weight < 0.25 {
+            // Only where every block the value is interpolated from has one: next to a flagged
+            // block the field is too uncertain to refine.
+            if weight < 0.99 {
                 flags[x].0 = if coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
                     PixelFlags::BEYOND_RANGE
                 } else {
