@@ -24,63 +24,30 @@ const JS: &str = "text/javascript; charset=utf-8";
 /// The page itself.
 const INDEX: &str = include_str!("../../web/index.html");
 
+/// One [`Asset`] from `server/web/`, embedded under its own file name.
+macro_rules! asset {
+    ($file:literal, $content_type:expr) => {
+        Asset {
+            name: $file,
+            content_type: $content_type,
+            body: include_str!(concat!("../../web/", $file)),
+        }
+    };
+}
+
 /// Everything the page loads from `/assets/`.
 const ASSETS: &[Asset] = &[
-    Asset {
-        name: "style.css",
-        content_type: "text/css; charset=utf-8",
-        body: include_str!("../../web/style.css"),
-    },
-    Asset {
-        name: "icon.svg",
-        content_type: "image/svg+xml",
-        body: include_str!("../../web/icon.svg"),
-    },
-    Asset {
-        name: "app.js",
-        content_type: JS,
-        body: include_str!("../../web/app.js"),
-    },
-    Asset {
-        name: "api.js",
-        content_type: JS,
-        body: include_str!("../../web/api.js"),
-    },
-    Asset {
-        name: "dom.js",
-        content_type: JS,
-        body: include_str!("../../web/dom.js"),
-    },
-    Asset {
-        name: "colour.js",
-        content_type: JS,
-        body: include_str!("../../web/colour.js"),
-    },
-    Asset {
-        name: "npy.js",
-        content_type: JS,
-        body: include_str!("../../web/npy.js"),
-    },
-    Asset {
-        name: "view.js",
-        content_type: JS,
-        body: include_str!("../../web/view.js"),
-    },
-    Asset {
-        name: "plot.js",
-        content_type: JS,
-        body: include_str!("../../web/plot.js"),
-    },
-    Asset {
-        name: "calibrations.js",
-        content_type: JS,
-        body: include_str!("../../web/calibrations.js"),
-    },
-    Asset {
-        name: "analysis.js",
-        content_type: JS,
-        body: include_str!("../../web/analysis.js"),
-    },
+    asset!("style.css", "text/css; charset=utf-8"),
+    asset!("icon.svg", "image/svg+xml"),
+    asset!("app.js", JS),
+    asset!("api.js", JS),
+    asset!("dom.js", JS),
+    asset!("colour.js", JS),
+    asset!("npy.js", JS),
+    asset!("view.js", JS),
+    asset!("plot.js", JS),
+    asset!("calibrations.js", JS),
+    asset!("analysis.js", JS),
 ];
 
 /// Only this origin's scripts, styles and API; pictures also from `blob:` (downloads, masks)
