@@ -405,3 +405,27 @@ async fn a_request_over_the_time_limit_answers_504_in_json() {
         .await;
     refused(&reply, StatusCode::GATEWAY_TIMEOUT, "time limit");
 }
+
+#[tokio::test]
+async fn empty_truncated_and_forged_photos_are_refused_as_undecodable() {
+    let svc = service().await;
+    let good = grey_png(64, 64);
+    let cases: [(&str, Vec<u8>, &str); 3] = [
+        ("empty.png", Vec::new(), "empty"),
+        ("truncated.png", good[..good.len() / 2].to_vec(), "photo"),
+        (
+            "forged.png",
+            b"<html>not a picture</html>".to_vec(),
+            "not a png",
+        ),
+    ];
+    for (name, bytes, needle) in cases {
+        let reply = Form::new()
+            .file("photo", name, "image/png", bytes)
+            .json("spec", &beam_spec())
+            .post(&svc.app, "/api/v1/calibrations")
+            .await;
+        refused(&reply, StatusCode::UNPROCESSABLE_ENTITY, needle);
+    }
+    still_serving_with_no_calibrations(&svc).await;
+}
