@@ -202,15 +202,16 @@ struct Limits {
 }
 
 /// Next to the disc's load points the solver flags, as possibly past the table, high orders
-/// whose colours match poorly (they are more often aliases of orders beyond the table than true
-/// values). That keeps stresses from being under-read there but costs coverage: the disc
-/// reaches about 98.7–99.5 % instead of 99 %. The limit records the level reached.
+/// whose colours match markedly worse than the rest of the photo (there they are more often
+/// aliases of orders beyond the table than true values): stresses are not under-read, at some
+/// cost in coverage. In PNG the disc reaches 99.00–99.48 % (the target) in these scenarios,
+/// with vignetting right at the edge, so its asserted limit sits half a percent lower.
 const DISC_REACHED: Limits = Limits {
     coverage: 0.985,
     ..TARGETS
 };
 
-/// Photos in PNG: the plate must meet the targets, the disc the level reached.
+/// Photos in PNG: the plate must meet the targets, the disc the limit above.
 fn check(name: &str, c: Conditions) {
     check_against(name, c, &DISC_REACHED, &TARGETS);
 }

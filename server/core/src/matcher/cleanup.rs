@@ -13,7 +13,7 @@ pub(super) const REPAIR_RESIDUAL: f32 = 6.0;
 /// taken as beyond range too.
 pub(super) const TOP_GUARD: f32 = 0.25;
 /// Orders within this many fringes of the table's top may be aliases of orders beyond it.
-pub(super) const ALIAS_RANGE: f32 = 1.0;
+pub(super) const ALIAS_RANGE: f32 = 0.6;
 /// Half-width of the window over which residuals are averaged for the alias check, pixels.
 pub(super) const ALIAS_WINDOW: usize = 4;
 /// A local mean residual above this multiple of the photo's median marks a possible alias.
