@@ -10,16 +10,15 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
 
-use isotint_core::beam::{calibrate_beam, BeamSpec, EdgeLoad};
 use isotint_core::export::{npy_f32, read_npy_f32};
 use isotint_core::render::{
-    develop, render_scene, BendingBeamField, CameraModel, DiscField, LightSource, PhotoEffects,
-    PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
+    develop, photographed_beam_table, render_scene, CameraModel, DiscField, LightSource,
+    PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
 };
 use isotint_core::stress::DiscInCompression;
 use isotint_core::{
     map_orders, CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, Mask, Photo,
-    PixelPoint, PixelRect,
+    PixelPoint,
 };
 
 const WIDTH: u32 = 4000;
@@ -73,36 +72,16 @@ fn prepare(photo: &Path, calibration: &Path, truth: &Path) {
         seed: 3,
         ..PhotoEffects::default()
     };
-    let beam = BendingBeamField::new(
-        PixelRect::new(20.0, 80.0, 980.0, 320.0).unwrap(),
-        (50.0, 950.0),
-        (280.0, 720.0),
-        4.5,
-    )
-    .unwrap();
-    let beam_scene = render_scene(&beam, &renderer, 1000, 400, 3).unwrap();
-    let beam_photo = Photo::decode(
-        &develop(&beam_scene.image, &fx, PhotoEncoding::Png8).unwrap(),
-        &DecodeLimits::default(),
-    )
-    .unwrap();
-    let zone = beam.constant_moment_zone();
-    let table: CalibrationTable = calibrate_beam(
-        &beam_photo,
-        &BeamSpec {
-            region: PixelRect::new(zone.left + 20.0, zone.top, zone.right - 20.0, zone.bottom)
-                .unwrap(),
-            load: EdgeLoad::EdgeOrder(4.5),
-            refine_edges: false,
-            order_step: 0.01,
-            metadata: CalibrationMetadata {
-                name: "bench beam".into(),
-                ..Default::default()
-            },
+    let table = photographed_beam_table(
+        &renderer,
+        &fx,
+        PhotoEncoding::Png8,
+        CalibrationMetadata {
+            name: "bench beam".into(),
+            ..Default::default()
         },
     )
-    .unwrap()
-    .table;
+    .unwrap();
     std::fs::write(calibration, table.to_json()).unwrap();
     let disc = DiscField::new(
         PixelPoint {

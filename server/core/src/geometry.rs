@@ -161,15 +161,6 @@ impl Mask {
         })
     }
 
-    /// A mask that keeps every pixel.
-    pub fn full(width: u32, height: u32) -> Self {
-        Mask {
-            width,
-            height,
-            inside: vec![true; width as usize * height as usize],
-        }
-    }
-
     /// Mask width in pixels.
     pub fn width(&self) -> u32 {
         self.width
@@ -263,7 +254,7 @@ mod tests {
 
     #[test]
     fn erosion_removes_a_border_of_the_given_width() {
-        let m = Mask::full(7, 5).eroded(1);
+        let m = Mask::new(7, 5, vec![true; 35]).unwrap().eroded(1);
         let kept: usize = m.as_slice().iter().filter(|v| **v).count();
         assert_eq!(kept, 5 * 3);
         assert!(!m.contains(0, 2) && m.contains(1, 1) && !m.contains(6, 4));

@@ -12,18 +12,16 @@
 //! Ground truth: disc in diametral compression (Timoshenko & Goodier closed form) and plate
 //! with a circular hole under tension (Kirsch solution), via `render::fields`.
 
-use isotint_core::beam::{calibrate_beam, BeamSpec, EdgeLoad};
 use isotint_core::render::camera::CameraModel;
 use isotint_core::render::effects::{develop, PhotoEffects, PhotoEncoding};
-use isotint_core::render::fields::{BendingBeamField, DiscField, HoleField, OrderField};
+use isotint_core::render::fields::{DiscField, HoleField, OrderField};
 use isotint_core::render::light::LightSource;
+use isotint_core::render::photographed_beam_table;
 use isotint_core::render::polariscope::QuarterWavePlates;
 use isotint_core::render::scene::render_scene;
 use isotint_core::render::{RenderSetup, Renderer};
 use isotint_core::stress::{DiscInCompression, PlateWithHole, StressOpticLaw};
-use isotint_core::{
-    map_orders, CalibrationMetadata, DecodeLimits, MapOptions, Photo, PixelPoint, PixelRect,
-};
+use isotint_core::{map_orders, CalibrationMetadata, DecodeLimits, MapOptions, Photo, PixelPoint};
 
 const FRINGE_VALUE: f64 = 11.0; // N/mm per fringe (invented material)
 const THICKNESS: f64 = 6.0; // mm
@@ -100,26 +98,16 @@ fn run(c: Conditions, specimen: &dyn OrderField, size: (u32, u32)) -> Score {
         seed: 1,
         ..PhotoEffects::default()
     };
-    let beam = BendingBeamField::new(
-        PixelRect::new(20.0, 80.0, 980.0, 320.0).unwrap(),
-        (50.0, 950.0),
-        (280.0, 720.0),
-        4.5,
-    )
-    .unwrap();
-    let (beam_photo, _, _) = photo(&beam, &renderer, (1000, 400), &beam_fx, c.encoding);
-    let zone = beam.constant_moment_zone();
-    let spec = BeamSpec {
-        region: PixelRect::new(zone.left + 20.0, zone.top, zone.right - 20.0, zone.bottom).unwrap(),
-        load: EdgeLoad::EdgeOrder(4.5),
-        refine_edges: false,
-        order_step: 0.01,
-        metadata: CalibrationMetadata {
+    let table = photographed_beam_table(
+        &renderer,
+        &beam_fx,
+        c.encoding,
+        CalibrationMetadata {
             name: "accuracy beam".into(),
             ..Default::default()
         },
-    };
-    let table = calibrate_beam(&beam_photo, &spec).unwrap().table;
+    )
+    .unwrap();
 
     let fx = PhotoEffects {
         blur_sigma_px: 0.6,

@@ -5,17 +5,57 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::camera::CameraModel;
+use super::effects::{develop, PhotoEffects, PhotoEncoding};
+use super::fields::BendingBeamField;
 use super::fields::OrderField;
 use super::light::LightSource;
 use super::polariscope::QuarterWavePlates;
 use super::renderer::{clip, encode_srgb8, RenderSetup, Renderer};
+use super::scene::render_scene;
+use crate::beam::{calibrate_beam, BeamSpec, EdgeLoad};
 use crate::calibration::{
     CalibrationMetadata, CalibrationTable, TableEntry, TableSource, MAX_TABLE_ORDER,
     ORDER_STEP_RANGE,
 };
 use crate::colour::lab_from_linear;
+use crate::colour::{DecodeLimits, Photo};
 use crate::error::{CoreError, CoreResult};
-use crate::geometry::PixelPoint;
+use crate::geometry::{PixelPoint, PixelRect};
+
+/// A table measured the way a lab measures one, on a rendered *photo* of a beam in
+/// four-point bending (1000 × 400 px; beam edges at y = 80 and 320, inner loads at x = 280
+/// and 720, supports at 50 and 950; edge order 4.5), taken with `renderer`, `effects` and
+/// `encoding`. The constant-moment zone is used 20 px in from each inner load. Unlike
+/// [`rendered_table`] it includes what the photo pipeline does to colours (blur, noise,
+/// gamut clipping, compression).
+pub fn photographed_beam_table(
+    renderer: &Renderer,
+    effects: &PhotoEffects,
+    encoding: PhotoEncoding,
+    metadata: CalibrationMetadata,
+) -> CoreResult<CalibrationTable> {
+    const EDGE_ORDER: f64 = 4.5;
+    let beam = BendingBeamField::new(
+        PixelRect::new(20.0, 80.0, 980.0, 320.0)?,
+        (50.0, 950.0),
+        (280.0, 720.0),
+        EDGE_ORDER,
+    )?;
+    let scene = render_scene(&beam, renderer, 1000, 400, 3)?;
+    let photo = Photo::decode(
+        &develop(&scene.image, effects, encoding)?,
+        &DecodeLimits::default(),
+    )?;
+    let zone = beam.constant_moment_zone();
+    let spec = BeamSpec {
+        region: PixelRect::new(zone.left + 20.0, zone.top, zone.right - 20.0, zone.bottom)?,
+        load: EdgeLoad::EdgeOrder(EDGE_ORDER),
+        refine_edges: false,
+        order_step: 0.01,
+        metadata,
+    };
+    Ok(calibrate_beam(&photo, &spec)?.table)
+}
 
 /// Fast-axis angles averaged over for the spread of a rendered table entry (plates that are
 /// not ideal make the colour depend on the isoclinic).

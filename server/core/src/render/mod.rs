@@ -25,7 +25,8 @@ mod renderer;
 pub mod scene;
 
 pub use calibrate::{
-    check_order_limit, load_preview, rendered_table, OrderLimitCheck, PreviewSwatch,
+    check_order_limit, load_preview, photographed_beam_table, rendered_table, OrderLimitCheck,
+    PreviewSwatch,
 };
 pub use camera::CameraModel;
 pub use effects::{develop, develop_srgb8, PhotoEffects, PhotoEncoding};
