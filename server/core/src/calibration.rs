@@ -158,7 +158,8 @@ impl CalibrationTable {
     /// Mean colour at any order inside the table, linearly interpolated between grid points.
     pub fn colour_at(&self, order: f64) -> Lab {
         let pos = (order / self.order_step).clamp(0.0, (self.entries.len() - 1) as f64);
-        let i = (pos.floor() as usize).min(self.entries.len() - 2);
+        // pos ≥ 0: truncation is floor (and avoids a library call in the per-pixel path).
+        let i = (pos as usize).min(self.entries.len() - 2);
         let t = (pos - i as f64) as f32;
         let (a, b) = (self.entries[i].lab, self.entries[i + 1].lab);
         Lab::new(

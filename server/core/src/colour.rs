@@ -14,6 +14,7 @@ use std::sync::OnceLock;
 
 use image::{DynamicImage, ImageReader};
 use palette::color_difference::Ciede2000;
+use palette::white_point::WhitePoint;
 use palette::{FromColor, LinSrgb, Srgb};
 
 use crate::error::{CoreError, CoreResult};
@@ -215,6 +216,20 @@ impl Photo {
             SrgbPixels::Sixteen(p) => decode_with(lut16(), p[i]),
         }
     }
+
+    /// Linear-light sRGB of row `y`, written to `out` (cleared first); for loops over whole
+    /// rows, where one match on the bit depth per row beats one per pixel.
+    pub fn linear_row(&self, y: u32, out: &mut Vec<LinSrgb<f32>>) {
+        let span = (y * self.width) as usize..((y + 1) * self.width) as usize;
+        out.clear();
+        match &self.pixels {
+            SrgbPixels::Eight(p) => out.extend(p[span].iter().map(|c| decode_with(lut8(), *c))),
+            SrgbPixels::Sixteen(p) => {
+                let lut = lut16();
+                out.extend(p[span].iter().map(|c| decode_with(lut, *c)))
+            }
+        }
+    }
 }
 
 /// A CIELAB (D65) image, row-major, pixel (x, y) at index `y * width + x`.
@@ -228,9 +243,61 @@ pub struct LabImage {
     pub data: Vec<Lab>,
 }
 
-/// CIELAB (D65) of a linear-light sRGB colour.
+/// Linear-light sRGB → XYZ matrix with the D65 white point divided out, taken from palette
+/// once so that [`lab_from_linear`] uses exactly palette's primaries and white.
+fn xyz_over_white() -> &'static [[f32; 3]; 3] {
+    static MATRIX: OnceLock<[[f32; 3]; 3]> = OnceLock::new();
+    MATRIX.get_or_init(|| {
+        let white: palette::Xyz<_, f64> = palette::white_point::D65::get_xyz();
+        let column = |c: LinSrgb<f64>| {
+            let xyz = palette::Xyz::<palette::white_point::D65, f64>::from_color(c);
+            [xyz.x / white.x, xyz.y / white.y, xyz.z / white.z]
+        };
+        let columns: [[f64; 3]; 3] = [
+            column(LinSrgb::new(1.0, 0.0, 0.0)),
+            column(LinSrgb::new(0.0, 1.0, 0.0)),
+            column(LinSrgb::new(0.0, 0.0, 1.0)),
+        ];
+        std::array::from_fn(|row| std::array::from_fn(|col| columns[col][row] as f32))
+    })
+}
+
+/// Cube root of `x > 0` to f32 precision: a bit-level first guess (within 4 %) and two
+/// Halley steps. About four times faster than the library `cbrt`, which dominated the
+/// per-pixel CIELAB conversion of large photos.
+#[inline]
+fn cube_root(x: f32) -> f32 {
+    let mut y = f32::from_bits(x.to_bits() / 3 + 709_921_077);
+    for _ in 0..2 {
+        let y3 = y * y * y;
+        y *= (y3 + 2.0 * x) / (2.0 * y3 + x);
+    }
+    y
+}
+
+/// CIELAB (D65) of a linear-light sRGB colour: palette's conversion (CIE 15 formulas, same
+/// matrix, white point and clamping) with a faster cube root; agrees with it to better than 0.001.
+#[inline]
 pub fn lab_from_linear(c: LinSrgb<f32>) -> Lab {
-    Lab::from_color(c)
+    const EPSILON: f32 = 216.0 / 24389.0;
+    const KAPPA: f32 = 841.0 / 108.0;
+    const DELTA: f32 = 4.0 / 29.0;
+    let m = xyz_over_white();
+    let f = |row: &[f32; 3]| {
+        let t = row[0] * c.red + row[1] * c.green + row[2] * c.blue;
+        if t > EPSILON {
+            cube_root(t)
+        } else {
+            KAPPA * t + DELTA
+        }
+    };
+    let (x, y, z) = (f(&m[0]), f(&m[1]), f(&m[2]));
+    // Clamped to palette's CIELAB ranges, as its `from_color` does.
+    Lab::new(
+        (116.0 * y - 16.0).clamp(0.0, 100.0),
+        (500.0 * (x - y)).clamp(-128.0, 127.0),
+        (200.0 * (y - z)).clamp(-128.0, 127.0),
+    )
 }
 
 /// Linear-light sRGB of a CIELAB (D65) colour (may leave 0–1 for out-of-gamut colours).
@@ -263,6 +330,27 @@ pub fn ciede2000(a: Lab, b: Lab) -> f32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn fast_cielab_conversion_agrees_with_palettes_reference() {
+        // Naive reference: palette's own LinSrgb → Lab conversion with the library cube root.
+        let mut worst = 0f32;
+        let steps = 40;
+        for r in 0..=steps {
+            for g in 0..=steps {
+                for b in 0..=steps {
+                    let c = LinSrgb::new(r as f32, g as f32, b as f32) / steps as f32;
+                    // Exposure correction can lift linear light above 1.
+                    for scale in [1.0, 1.3] {
+                        let c = c * scale;
+                        let reference: Lab = Lab::from_color(c);
+                        worst = worst.max(delta_e_ab(reference, lab_from_linear(c)));
+                    }
+                }
+            }
+        }
+        assert!(worst < 1e-3, "largest ΔE*ab from palette: {worst}");
+    }
 
     #[test]
     fn eight_and_sixteen_bit_linear_tables_agree_at_shared_codes() {

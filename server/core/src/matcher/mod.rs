@@ -118,9 +118,9 @@ fn solve_pass(
         .data
         .par_iter()
         .zip(inside.par_iter())
-        .map(|(c, &ins)| {
+        .map_init(Vec::new, |scratch, (c, &ins)| {
             if ins {
-                candidates(&search, *c, beyond_order, beyond_cost)
+                candidates(&search, *c, beyond_order, beyond_cost, scratch)
             } else {
                 NO_LABELS
             }
@@ -155,7 +155,12 @@ fn solve_pass(
             let (hint_order, hint_cost) = {
                 let centre = (hint.order / search.step).round() as usize;
                 let reach = (HINT_TOLERANCE / search.step).ceil() as usize;
-                search.best_in(lab.data[p], centre.saturating_sub(reach), centre + reach)
+                search.best_in(
+                    lab.data[p],
+                    centre.saturating_sub(reach),
+                    centre + reach,
+                    &mut Vec::new(),
+                )
             };
             if hint.order <= search.max_order() {
                 l.order[CANDIDATES - 1] = hint_order as f32;
@@ -186,42 +191,47 @@ fn solve_pass(
         .zip(pass.margin.par_iter_mut())
         .zip(pass.flags.par_iter_mut())
         .enumerate()
-        .for_each(|(p, (((order, residual), margin), flags))| {
-            if !inside[p] {
-                flags.0 |= PixelFlags::OUTSIDE_MASK;
-                return;
-            }
-            let s = &total[p];
-            let l = &labels[p];
-            let best = (0..LABELS)
-                .filter(|k| s[*k].is_finite())
-                .min_by(|a, b| s[*a].total_cmp(&s[*b]))
-                .unwrap_or(BEYOND);
-            let chosen = l.order[best];
-            let rival = (0..LABELS)
-                .filter(|k| {
-                    s[*k].is_finite()
-                        && (l.order[*k].min(beyond_order) - chosen.min(beyond_order)).abs() > 0.5
-                })
-                .map(|k| s[k])
-                .fold(f32::INFINITY, f32::min);
-            *margin = ((rival - s[best]) / directions).min(COST_CAP);
-            if best == BEYOND {
-                flags.0 |= PixelFlags::BEYOND_RANGE;
-                return;
-            }
-            let centre = (f64::from(chosen) / fine.step).round() as usize;
-            let (refined, _) = fine.best_in(
-                lab.data[p],
-                centre.saturating_sub(fine_reach),
-                centre + fine_reach,
-            );
-            *order = refined as f32;
-            *residual = delta_e_ab(lab.data[p], table.colour_at(refined));
-            if *residual > RESIDUAL_LIMIT || *margin < MARGIN_LIMIT {
-                flags.0 |= PixelFlags::UNRELIABLE;
-            }
-        });
+        .for_each_init(
+            Vec::new,
+            |scratch, (p, (((order, residual), margin), flags))| {
+                if !inside[p] {
+                    flags.0 |= PixelFlags::OUTSIDE_MASK;
+                    return;
+                }
+                let s = &total[p];
+                let l = &labels[p];
+                let best = (0..LABELS)
+                    .filter(|k| s[*k].is_finite())
+                    .min_by(|a, b| s[*a].total_cmp(&s[*b]))
+                    .unwrap_or(BEYOND);
+                let chosen = l.order[best];
+                let rival = (0..LABELS)
+                    .filter(|k| {
+                        s[*k].is_finite()
+                            && (l.order[*k].min(beyond_order) - chosen.min(beyond_order)).abs()
+                                > 0.5
+                    })
+                    .map(|k| s[k])
+                    .fold(f32::INFINITY, f32::min);
+                *margin = ((rival - s[best]) / directions).min(COST_CAP);
+                if best == BEYOND {
+                    flags.0 |= PixelFlags::BEYOND_RANGE;
+                    return;
+                }
+                let centre = (f64::from(chosen) / fine.step).round() as usize;
+                let (refined, _) = fine.best_in(
+                    lab.data[p],
+                    centre.saturating_sub(fine_reach),
+                    centre + fine_reach,
+                    scratch,
+                );
+                *order = refined as f32;
+                *residual = delta_e_ab(lab.data[p], table.colour_at(refined));
+                if *residual > RESIDUAL_LIMIT || *margin < MARGIN_LIMIT {
+                    flags.0 |= PixelFlags::UNRELIABLE;
+                }
+            },
+        );
     flag_steep_and_isolated(&mut pass, width, height, gradient);
     if stage == Stage::Final {
         repair_steep_edges(&mut pass, lab, table, max_order, width, height);
@@ -298,7 +308,7 @@ const FULL_RESOLUTION_LIMIT: u64 = 1_000_000;
 /// A first exposure fit this close to no correction needs no second round.
 const SETTLED_GAIN: f32 = 0.03;
 /// Largest working image of the preliminary passes that feed the exposure fit, pixels.
-const PRELIMINARY_LIMIT: u64 = 500_000;
+const PRELIMINARY_LIMIT: u64 = 150_000;
 
 /// The image the labelling runs on, in linear-light sRGB: the photo itself, or the means of
 /// `stride` × `stride` blocks of it when the photo is large. A block belongs to the specimen
@@ -488,6 +498,7 @@ fn refine_full_resolution(
     let s = stride as usize;
     let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
     let fine = SearchTable::new(table, table.order_step, max_order, REFINE_LIGHTNESS_WEIGHT);
+    let (fine_step, top) = (fine.step as f32, max_order as f32);
     let n = w * h;
     let mut pass = Pass {
         order: vec![f32::NAN; n],
@@ -495,6 +506,25 @@ fn refine_full_resolution(
         margin: vec![f32::NAN; n],
         flags: vec![PixelFlags::default(); n],
     };
+    // Interpolation between block centres along one axis: (lower block, upper block, weight
+    // of the upper one) for each pixel coordinate.
+    let axis = |length: usize, blocks: usize| -> Vec<(usize, usize, f32)> {
+        (0..length)
+            .map(|v| {
+                let f = ((v as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (blocks - 1) as f32);
+                let low = f as usize; // f ≥ 0: truncation is floor
+                (low, (low + 1).min(blocks - 1), f - low as f32)
+            })
+            .collect()
+    };
+    let (columns, rows_at) = (axis(w, cw), axis(h, ch));
+    // Block orders where the block is valued, NaN elsewhere.
+    let valued: Vec<f32> = coarse
+        .order
+        .iter()
+        .zip(&coarse.flags)
+        .map(|(o, f)| if f.0 == 0 { *o } else { f32::NAN })
+        .collect();
     let rows = pass
         .order
         .par_chunks_mut(w)
@@ -502,74 +532,67 @@ fn refine_full_resolution(
         .zip(pass.margin.par_chunks_mut(w))
         .zip(pass.flags.par_chunks_mut(w))
         .enumerate();
-    rows.for_each(|(y, (((order, residual), margin), flags))| {
-        for x in 0..w {
-            let i = y * w + x;
-            if mask.is_some_and(|m| !m.as_slice()[i]) {
-                flags[x].0 = PixelFlags::OUTSIDE_MASK;
-                continue;
-            }
-            // Position in block-centre coordinates.
-            let fx = ((x as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (cw - 1) as f32);
-            let fy = ((y as f32 + 0.5) / s as f32 - 0.5).clamp(0.0, (ch - 1) as f32);
-            let (x0, y0) = (fx.floor() as usize, fy.floor() as usize);
-            let (x1, y1) = ((x0 + 1).min(cw - 1), (y0 + 1).min(ch - 1));
-            let (tx, ty) = (fx - x0 as f32, fy - y0 as f32);
-            let corners = [
-                (x0, y0, (1.0 - tx) * (1.0 - ty)),
-                (x1, y0, tx * (1.0 - ty)),
-                (x0, y1, (1.0 - tx) * ty),
-                (x1, y1, tx * ty),
-            ];
-            let (mut sum, mut weight, mut lo, mut hi, mut best_margin) =
-                (0.0, 0.0, f32::INFINITY, f32::NEG_INFINITY, f32::NAN);
-            for &(cx, cy, wgt) in &corners {
-                let c = cy * cw + cx;
-                if coarse.flags[c].0 == 0 && coarse.order[c].is_finite() {
-                    sum += wgt * coarse.order[c];
-                    weight += wgt;
-                    lo = lo.min(coarse.order[c]);
-                    hi = hi.max(coarse.order[c]);
-                    best_margin = if best_margin.is_nan() {
-                        coarse.margin[c]
+    let (width, height) = (photo.width(), photo.height());
+    let scratch = || (Vec::new(), Vec::new());
+    rows.for_each_init(
+        scratch,
+        |(linear, distances), (y, (((order, residual), margin), flags))| {
+            photo.linear_row(y as u32, linear);
+            let (y0, y1, ty) = rows_at[y];
+            let nearest_row = if ty < 0.5 { y0 } else { y1 } * cw;
+            for x in 0..w {
+                let i = y * w + x;
+                if mask.is_some_and(|m| !m.as_slice()[i]) {
+                    flags[x].0 = PixelFlags::OUTSIDE_MASK;
+                    continue;
+                }
+                let (x0, x1, tx) = columns[x];
+                let corners = [
+                    (y0 * cw + x0, (1.0 - tx) * (1.0 - ty)),
+                    (y0 * cw + x1, tx * (1.0 - ty)),
+                    (y1 * cw + x0, (1.0 - tx) * ty),
+                    (y1 * cw + x1, tx * ty),
+                ];
+                // Only where every block the value is interpolated from has one: next to a flagged
+                // block the field is too uncertain to refine.
+                if corners
+                    .iter()
+                    .any(|(c, wgt)| *wgt > 0.0 && valued[*c].is_nan())
+                {
+                    let nearest = nearest_row + if tx < 0.5 { x0 } else { x1 };
+                    flags[x].0 = if coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
+                        PixelFlags::BEYOND_RANGE
                     } else {
-                        best_margin.max(coarse.margin[c])
+                        PixelFlags::UNRELIABLE
                     };
+                    continue;
+                }
+                let (mut predicted, mut lo, mut hi, mut best_margin) =
+                    (0.0, f32::INFINITY, f32::NEG_INFINITY, f32::NEG_INFINITY);
+                for &(c, wgt) in &corners {
+                    if wgt > 0.0 {
+                        predicted += wgt * valued[c];
+                        lo = lo.min(valued[c]);
+                        hi = hi.max(valued[c]);
+                        best_margin = best_margin.max(coarse.margin[c]);
+                    }
+                }
+                let reach = 0.05 + (hi - lo);
+                let colour = lab_from_linear(exposure.apply(linear[x], x, y, width, height));
+                // Both ends are ≥ 0: truncation is floor, and + 1 rounds up.
+                let from = ((predicted - reach).max(0.0) / fine_step) as usize;
+                let to = ((predicted + reach).min(top) / fine_step) as usize + 1;
+                let (value, _) = fine.best_in(colour, from, to, distances);
+                let miss = delta_e_ab(colour, table.colour_at(value));
+                order[x] = value as f32;
+                residual[x] = miss;
+                margin[x] = best_margin;
+                if miss > RESIDUAL_LIMIT {
+                    flags[x].0 = PixelFlags::UNRELIABLE;
                 }
             }
-            let nearest =
-                ((fy.round() as usize).min(ch - 1)) * cw + (fx.round() as usize).min(cw - 1);
-            // Only where every block the value is interpolated from has one: next to a flagged
-            // block the field is too uncertain to refine.
-            if weight < 0.99 {
-                flags[x].0 = if coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
-                    PixelFlags::BEYOND_RANGE
-                } else {
-                    PixelFlags::UNRELIABLE
-                };
-                continue;
-            }
-            let predicted = f64::from(sum / weight);
-            let reach = 0.05 + f64::from(hi - lo);
-            let colour = lab_from_linear(exposure.apply(
-                photo.linear(i),
-                x,
-                y,
-                photo.width(),
-                photo.height(),
-            ));
-            let from = ((predicted - reach).max(0.0) / fine.step).floor() as usize;
-            let to = ((predicted + reach).min(max_order) / fine.step).ceil() as usize;
-            let (value, _) = fine.best_in(colour, from, to);
-            let miss = delta_e_ab(colour, table.colour_at(value));
-            order[x] = value as f32;
-            residual[x] = miss;
-            margin[x] = best_margin;
-            if miss > RESIDUAL_LIMIT {
-                flags[x].0 = PixelFlags::UNRELIABLE;
-            }
-        }
-    });
+        },
+    );
     smooth(&mut pass, w, h, gradient);
     for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
         if f.0 != 0 {

@@ -69,18 +69,43 @@ impl SearchTable {
         dl * dl + da * da + db * db
     }
 
+    /// Squared search distances of `c` to entries `lo..=hi` (`hi` clipped to the table),
+    /// written to `out` (cleared first); one branch-free pass that the compiler vectorises.
+    pub(super) fn distances_sq(&self, c: Lab, lo: usize, hi: usize, out: &mut Vec<f32>) {
+        let span = lo..hi.min(self.len() - 1) + 1;
+        let w = self.lightness_weight;
+        out.clear();
+        out.extend(
+            self.l[span.clone()]
+                .iter()
+                .zip(&self.a[span.clone()])
+                .zip(&self.b[span])
+                .map(|((l, a), b)| {
+                    let dl = w * (c.l - l);
+                    let (da, db) = (c.a - a, c.b - b);
+                    dl * dl + da * da + db * db
+                }),
+        );
+    }
+
     /// Best order in entries `lo..=hi` with a parabolic sub-step fit: (order, distance).
-    pub(super) fn best_in(&self, c: Lab, lo: usize, hi: usize) -> (f64, f32) {
-        let hi = hi.min(self.len() - 1);
-        let (mut best, mut best_d) = (lo, f32::INFINITY);
-        for i in lo..=hi {
-            let d = self.distance_sq(c, i);
-            if d < best_d {
+    /// `scratch` is working space, reused between calls.
+    pub(super) fn best_in(
+        &self,
+        c: Lab,
+        lo: usize,
+        hi: usize,
+        scratch: &mut Vec<f32>,
+    ) -> (f64, f32) {
+        self.distances_sq(c, lo, hi, scratch);
+        let (mut best, mut best_d) = (0, f32::INFINITY);
+        for (i, d) in scratch.iter().enumerate() {
+            if *d < best_d {
                 best = i;
-                best_d = d;
+                best_d = *d;
             }
         }
-        self.parabolic(c, best, best_d.sqrt())
+        self.parabolic(c, lo + best, best_d.sqrt())
     }
 
     /// Refines a discrete minimum at entry `i` with a parabola through its neighbours.
@@ -111,18 +136,19 @@ pub(super) const NO_LABELS: Labels = Labels {
     cost: [f32::INFINITY; LABELS],
 };
 
-/// Candidate orders of one colour: the local minima of its distance curve.
+/// Candidate orders of one colour: the local minima of its distance curve. `scratch` is
+/// working space, reused between calls.
 pub(super) fn candidates(
     search: &SearchTable,
     c: Lab,
     beyond_order: f32,
     beyond_cost: f32,
+    scratch: &mut Vec<f32>,
 ) -> Labels {
-    let n = search.len();
-    let mut d = vec![0f32; n];
-    for (i, slot) in d.iter_mut().enumerate() {
-        *slot = search.distance_sq(c, i);
-    }
+    search.distances_sq(c, 0, search.len() - 1, scratch);
+    // Entry i is a local minimum when it is no worse than i - 1 and better than i + 1.
+    let d = scratch.as_slice();
+    let n = d.len();
     let mut best: [(f32, usize); CANDIDATES] = [(f32::INFINITY, usize::MAX); CANDIDATES];
     for i in 0..n {
         let left = if i == 0 { f32::INFINITY } else { d[i - 1] };
