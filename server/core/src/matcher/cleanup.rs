@@ -7,6 +7,9 @@ use super::*;
 pub(super) const REPAIR_LAYERS: usize = 12;
 /// Steepest field the repair accepts, fringes per pixel.
 pub(super) const REPAIR_MAX_GRADIENT: f64 = 0.35;
+/// Footprint widths tried by the repair, pixels: one pixel, and two for the 2 × 2 colour
+/// blocks of JPEG's 4:2:0 chroma subsampling.
+pub(super) const REPAIR_FOOTPRINTS: [f64; 2] = [1.0, 2.0];
 /// Largest ΔE\*ab between a repaired pixel and its footprint-averaged table colour.
 pub(super) const REPAIR_RESIDUAL: f32 = 6.0;
 /// Orders this close to the top of the table (fringes) next to *beyond range* pixels are
@@ -152,10 +155,11 @@ pub(super) fn repair_steep_edges(
                 let colour = lab.data[p];
                 let lo = ((a - reach).max(0.0) / table.order_step).floor() as usize;
                 let hi = ((a + reach).min(max_order) / table.order_step).ceil() as usize;
-                let footprint = |n: f64| {
+                // Mean table colour over a footprint `width` pixels wide across the fringes.
+                let footprint = |n: f64, width: f64| {
                     let mut acc = [0f32; 3];
                     for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
-                        let c = table.colour_at((n + g * u).clamp(0.0, max_order));
+                        let c = table.colour_at((n + g * width * u).clamp(0.0, max_order));
                         acc[0] += c.l / 5.0;
                         acc[1] += c.a / 5.0;
                         acc[2] += c.b / 5.0;
@@ -163,9 +167,10 @@ pub(super) fn repair_steep_edges(
                     Lab::new(acc[0], acc[1], acc[2])
                 };
                 let (best_n, best_d) = (lo..=hi)
-                    .map(|i| {
+                    .flat_map(|i| REPAIR_FOOTPRINTS.map(|width| (i, width)))
+                    .map(|(i, width)| {
                         let n = i as f64 * table.order_step;
-                        (n, delta_e_ab(colour, footprint(n)))
+                        (n, delta_e_ab(colour, footprint(n, width)))
                     })
                     .min_by(|u, v| u.1.total_cmp(&v.1))?;
                 (best_d < REPAIR_RESIDUAL).then_some((p, best_n as f32, best_d))
