@@ -533,11 +533,19 @@ fn refine_full_resolution(
         .zip(pass.flags.par_chunks_mut(w))
         .enumerate();
     let (width, height) = (photo.width(), photo.height());
-    let scratch = || (Vec::new(), Vec::new());
+    let scratch = || (Vec::new(), Vec::new(), Vec::new());
     rows.for_each_init(
         scratch,
-        |(linear, distances), (y, (((order, residual), margin), flags))| {
+        |(linear, colours, distances), (y, (((order, residual), margin), flags))| {
             photo.linear_row(y as u32, linear);
+            // The whole row first, in one simple loop the compiler can vectorise.
+            colours.clear();
+            colours.extend(
+                linear
+                    .iter()
+                    .enumerate()
+                    .map(|(x, c)| lab_from_linear(exposure.apply(*c, x, y, width, height))),
+            );
             let (y0, y1, ty) = rows_at[y];
             let nearest_row = if ty < 0.5 { y0 } else { y1 } * cw;
             for x in 0..w {
@@ -578,7 +586,7 @@ fn refine_full_resolution(
                     }
                 }
                 let reach = 0.05 + (hi - lo);
-                let colour = lab_from_linear(exposure.apply(linear[x], x, y, width, height));
+                let colour = colours[x];
                 // Both ends are ≥ 0: truncation is floor, and + 1 rounds up.
                 let from = ((predicted - reach).max(0.0) / fine_step) as usize;
                 let to = ((predicted + reach).min(top) / fine_step) as usize + 1;

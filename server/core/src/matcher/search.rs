@@ -55,12 +55,6 @@ impl SearchTable {
         (self.len() - 1) as f64 * self.step
     }
 
-    /// Search distance between `c` and entry `i`.
-    #[inline]
-    pub(super) fn distance(&self, c: Lab, i: usize) -> f32 {
-        self.distance_sq(c, i).sqrt()
-    }
-
     /// Squared search distance (cheaper for scanning; same minima).
     #[inline]
     pub(super) fn distance_sq(&self, c: Lab, i: usize) -> f32 {
@@ -105,22 +99,40 @@ impl SearchTable {
                 best_d = *d;
             }
         }
-        self.parabolic(c, lo + best, best_d.sqrt())
+        match (best.checked_sub(1), scratch.get(best + 1)) {
+            (Some(before), Some(after)) => self.vertex(lo + best, scratch[before], best_d, *after),
+            _ => self.parabolic(c, lo + best, best_d),
+        }
     }
 
-    /// Refines a discrete minimum at entry `i` with a parabola through its neighbours.
-    pub(super) fn parabolic(&self, c: Lab, i: usize, d: f32) -> (f64, f32) {
+    /// Refines a discrete minimum at entry `i` (squared distance `d_sq`) with a parabola
+    /// through its neighbours' squared distances, which near a minimum follow a parabola in
+    /// the order: (order, distance at the vertex).
+    pub(super) fn parabolic(&self, c: Lab, i: usize, d_sq: f32) -> (f64, f32) {
         if i == 0 || i + 1 >= self.len() {
-            return (i as f64 * self.step, d);
+            return (i as f64 * self.step, d_sq.sqrt());
         }
-        let (dm, dp) = (self.distance(c, i - 1), self.distance(c, i + 1));
-        let denom = dm - 2.0 * d + dp;
+        self.vertex(
+            i,
+            self.distance_sq(c, i - 1),
+            d_sq,
+            self.distance_sq(c, i + 1),
+        )
+    }
+
+    /// Vertex of the parabola through squared distances `below`, `at`, `above` of entries
+    /// i - 1, i, i + 1 (the vertex kept within half a step of i): (order, distance).
+    fn vertex(&self, i: usize, below: f32, at: f32, above: f32) -> (f64, f32) {
+        let denom = below - 2.0 * at + above;
         if denom <= 1e-6 {
-            return (i as f64 * self.step, d);
+            return (i as f64 * self.step, at.sqrt());
         }
-        let shift = (0.5 * (dm - dp) / denom).clamp(-0.5, 0.5);
-        let value = d - 0.25 * (dm - dp) * shift;
-        ((i as f64 + f64::from(shift)) * self.step, value.max(0.0))
+        let shift = (0.5 * (below - above) / denom).clamp(-0.5, 0.5);
+        let value = at - 0.25 * (below - above) * shift;
+        (
+            (i as f64 + f64::from(shift)) * self.step,
+            value.max(0.0).sqrt(),
+        )
     }
 }
 
@@ -161,7 +173,7 @@ pub(super) fn candidates(
     let mut labels = NO_LABELS;
     for (slot, (dist, i)) in best.iter().enumerate() {
         if *i != usize::MAX {
-            let (order, value) = search.parabolic(c, *i, dist.sqrt());
+            let (order, value) = search.parabolic(c, *i, *dist);
             labels.order[slot] = order as f32;
             labels.cost[slot] = value.min(COST_CAP);
         }
