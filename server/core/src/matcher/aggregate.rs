@@ -12,26 +12,29 @@ pub(super) const SLOPE_PENALTY: f32 = 3.0;
 pub(super) const JUMP_PENALTY: f32 = 24.0;
 /// Number of scan directions summed by the aggregation.
 pub(super) const DIRECTIONS: f32 = 8.0;
-/// Transition cost between label orders `a` and `b` of neighbouring pixels.
-#[inline]
-pub(super) fn transition(a: f32, b: f32, step_gradient: f32, top: f32) -> f32 {
-    if a.is_nan() || b.is_nan() {
-        return f32::INFINITY;
-    }
-    // Orders at the top of the table may continue into *beyond range* (and back) freely.
-    let (a, b) = (a.min(top + step_gradient), b.min(top + step_gradient));
+/// Transition cost between label orders `a` and `b` of neighbouring pixels, both already
+/// capped at `top + step_gradient` (orders at the top of the table may continue into *beyond
+/// range*, and back, freely).
+#[inline(always)]
+fn transition(a: f32, b: f32, step_gradient: f32) -> f32 {
     let change = (a - b).abs();
-    if change <= step_gradient {
-        RAMP_COST * change
-    } else if change <= 2.0 * step_gradient {
+    let steep = if change <= 2.0 * step_gradient {
         SLOPE_PENALTY
     } else {
         JUMP_PENALTY
+    };
+    if change <= step_gradient {
+        RAMP_COST * change
+    } else {
+        steep
     }
 }
 
 /// One step along a scan path: the path cost of each label at a pixel, given the path costs
 /// at its predecessor on the path (none at the start of a path).
+///
+/// Empty label slots (order NaN) carry an infinite data cost, so their path cost is infinite
+/// whatever their transition costs; no NaN test is needed here.
 #[inline]
 pub(super) fn path_step(
     here: &Labels,
@@ -41,14 +44,16 @@ pub(super) fn path_step(
 ) -> [f32; LABELS] {
     let mut path = here.cost;
     if let Some((lp, before)) = previous {
+        let cap = top + step_gradient;
         let floor = lp.iter().copied().fold(f32::INFINITY, f32::min);
-        for (k, slot) in path.iter_mut().enumerate() {
-            let best = lp
-                .iter()
-                .zip(&before.order)
-                .map(|(cost, order)| cost + transition(here.order[k], *order, step_gradient, top))
-                .fold(f32::INFINITY, f32::min);
-            *slot += best.min(floor + JUMP_PENALTY) - floor;
+        let before_orders = before.order.map(|o| o.min(cap));
+        for (slot, order) in path.iter_mut().zip(here.order) {
+            let order = order.min(cap);
+            let mut best = floor + JUMP_PENALTY;
+            for (cost, b) in lp.iter().zip(before_orders) {
+                best = best.min(cost + transition(order, b, step_gradient));
+            }
+            *slot += best - floor;
         }
     }
     path

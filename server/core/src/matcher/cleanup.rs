@@ -323,6 +323,27 @@ pub(super) fn neighbours4(
     .map(move |(nx, ny)| ny * width + nx)
 }
 
+/// Smaller of two values, one instruction: NaN handling is left to the caller (`smooth`
+/// rejects every window whose sum is NaN).
+#[inline(always)]
+fn fast_min(a: f32, b: f32) -> f32 {
+    if b < a {
+        b
+    } else {
+        a
+    }
+}
+
+/// Larger of two values; see [`fast_min`].
+#[inline(always)]
+fn fast_max(a: f32, b: f32) -> f32 {
+    if b > a {
+        b
+    } else {
+        a
+    }
+}
+
 /// Averages each valued pixel with its (2r+1)² neighbourhood, r = [`SMOOTH_RADIUS`], where all
 /// of it is valued and lies within a few gradients of the centre (a symmetric mean keeps
 /// linear ramps exact and leaves edges of the valued area alone).
@@ -338,8 +359,6 @@ pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32
     let limit = 2.0 * gradient * r as f32;
     let count = ((2 * r + 1) * (2 * r + 1)) as f32;
     let (order, flags) = (&pass.order, &pass.flags);
-    // A flagged pixel makes the sum of every window holding it NaN.
-    let value = |p: usize| if flags[p].0 == 0 { order[p] } else { f32::NAN };
     let mut smoothed = order.clone();
     smoothed
         .par_chunks_mut(width * STRIP)
@@ -348,36 +367,48 @@ pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32
             let first = k * STRIP;
             let rows = strip.len() / width;
             let (lo, hi) = (first.saturating_sub(r), (first + rows + r).min(height));
-            // Row-window (sum, min, max) of rows lo..hi, valid for x in r..width - r.
-            let mut along = vec![(0f32, 0f32, 0f32); (hi - lo) * width];
-            for y in lo..hi {
-                let row = &mut along[(y - lo) * width..(y - lo + 1) * width];
-                for (x, slot) in row.iter_mut().enumerate().take(width - r).skip(r) {
-                    let (mut sum, mut min, mut max) = (0.0, f32::INFINITY, f32::NEG_INFINITY);
-                    for q in y * width + x - r..=y * width + x + r {
-                        let v = value(q);
-                        sum += v;
-                        min = min.min(v);
-                        max = max.max(v);
-                    }
-                    *slot = (sum, min, max);
+            let n = (hi - lo) * width;
+            // Values of rows lo..hi, NaN where flagged: a flagged pixel makes the sum of every
+            // window holding it NaN.
+            let values: Vec<f32> = (lo * width..hi * width)
+                .map(|p| if flags[p].0 == 0 { order[p] } else { f32::NAN })
+                .collect();
+            // Row-window sums, minima and maxima, valid for x in r..width - r.
+            let (mut sum, mut min, mut max) = (vec![0f32; n], vec![0f32; n], vec![0f32; n]);
+            for row in 0..hi - lo {
+                let v = &values[row * width..(row + 1) * width];
+                let span = row * width + r..(row + 1) * width - r;
+                let (sum, min, max) = (
+                    &mut sum[span.clone()],
+                    &mut min[span.clone()],
+                    &mut max[span],
+                );
+                for (x, ((s, lo_v), hi_v)) in sum
+                    .iter_mut()
+                    .zip(min.iter_mut())
+                    .zip(max.iter_mut())
+                    .enumerate()
+                {
+                    let window = &v[x..x + 2 * r + 1];
+                    *s = window.iter().sum();
+                    *lo_v = window.iter().copied().fold(f32::INFINITY, fast_min);
+                    *hi_v = window.iter().copied().fold(f32::NEG_INFINITY, fast_max);
                 }
             }
             for y in first.max(r)..(first + rows).min(height - r) {
+                let out = &mut strip[(y - first) * width..(y - first + 1) * width];
                 for x in r..width - r {
-                    let centre = value(y * width + x);
-                    if centre.is_nan() {
-                        continue;
-                    }
-                    let (mut sum, mut min, mut max) = (0.0, f32::INFINITY, f32::NEG_INFINITY);
+                    let centre = values[(y - lo) * width + x];
+                    let (mut s, mut low, mut high) = (0.0, f32::INFINITY, f32::NEG_INFINITY);
                     for ny in y - r..=y + r {
-                        let (s, lo_v, hi_v) = along[(ny - lo) * width + x];
-                        sum += s;
-                        min = min.min(lo_v);
-                        max = max.max(hi_v);
+                        let q = (ny - lo) * width + x;
+                        s += sum[q];
+                        low = fast_min(low, min[q]);
+                        high = fast_max(high, max[q]);
                     }
-                    if !sum.is_nan() && max - centre <= limit && centre - min <= limit {
-                        strip[(y - first) * width + x] = sum / count;
+                    // NaN (a flagged pixel in the window, or at the centre) fails every test.
+                    if high - centre <= limit && centre - low <= limit && !s.is_nan() {
+                        out[x] = s / count;
                     }
                 }
             }
