@@ -134,6 +134,17 @@ fn decode_with<T: Copy + Into<usize>>(lut: &[f32], c: Srgb<T>) -> LinSrgb<f32> {
     LinSrgb::new(lut[c.red.into()], lut[c.green.into()], lut[c.blue.into()])
 }
 
+/// Row-major RGB components as sRGB colours: the buffer is reused where its capacity allows,
+/// copied otherwise.
+fn colours_of<T: Copy>(components: Vec<T>) -> Vec<Srgb<T>> {
+    palette::cast::try_from_component_vec(components).unwrap_or_else(|e| {
+        e.values
+            .chunks_exact(3)
+            .map(|c| Srgb::new(c[0], c[1], c[2]))
+            .collect()
+    })
+}
+
 impl Photo {
     /// Decodes PNG, JPEG or TIFF bytes (8 or 16 bit per channel) after checking the header
     /// against `limits`.
@@ -154,19 +165,9 @@ impl Photo {
                 | DynamicImage::ImageRgba32F(_)
         );
         let pixels = if sixteen {
-            let raw = image.into_rgb16().into_raw();
-            SrgbPixels::Sixteen(
-                raw.chunks_exact(3)
-                    .map(|c| Srgb::new(c[0], c[1], c[2]))
-                    .collect(),
-            )
+            SrgbPixels::Sixteen(colours_of(image.into_rgb16().into_raw()))
         } else {
-            let raw = image.into_rgb8().into_raw();
-            SrgbPixels::Eight(
-                raw.chunks_exact(3)
-                    .map(|c| Srgb::new(c[0], c[1], c[2]))
-                    .collect(),
-            )
+            SrgbPixels::Eight(colours_of(image.into_rgb8().into_raw()))
         };
         Photo {
             width,

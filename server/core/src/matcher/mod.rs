@@ -239,43 +239,88 @@ fn solve_pass(
         extend_beyond_range(&mut pass, top, width, height);
     }
     smooth(&mut pass, width, height, gradient);
-    for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
-        if f.0 != 0 {
-            *o = f32::NAN;
-        }
-    }
+    clear_flagged(&mut pass);
     pass
+}
+
+/// No value where a pixel carries a flag.
+fn clear_flagged(pass: &mut Pass) {
+    pass.order
+        .par_iter_mut()
+        .zip(pass.flags.par_iter())
+        .filter(|(_, f)| f.0 != 0)
+        .for_each(|(o, _)| *o = f32::NAN);
 }
 
 /// Summary figures of a finished pass.
 fn statistics(pass: &Pass) -> MapStatistics {
-    let specimen = pass
-        .flags
-        .iter()
-        .filter(|f| !f.has(PixelFlags::OUTSIDE_MASK))
-        .count() as u64;
-    let beyond = pass
-        .flags
-        .iter()
-        .filter(|f| f.has(PixelFlags::BEYOND_RANGE))
-        .count() as f64;
-    let unreliable = pass
-        .flags
-        .iter()
-        .filter(|f| f.has(PixelFlags::UNRELIABLE))
-        .count() as f64;
-    let (mut count, mut sum, mut min, mut max, mut res) =
-        (0u64, 0f64, f64::INFINITY, f64::NEG_INFINITY, 0f64);
-    for (o, r) in pass.order.iter().zip(&pass.residual) {
-        if o.is_finite() {
-            let v = f64::from(*o);
-            count += 1;
-            sum += v;
-            min = min.min(v);
-            max = max.max(v);
-            res += f64::from(*r);
-        }
+    /// Sums over one chunk of pixels.
+    #[derive(Default)]
+    struct Part {
+        specimen: u64,
+        beyond: u64,
+        unreliable: u64,
+        count: u64,
+        sum: f64,
+        min: f64,
+        max: f64,
+        res: f64,
     }
+    // Fixed chunks, summed in order: the figures do not depend on the thread count.
+    const CHUNK: usize = 1 << 16;
+    let parts: Vec<Part> = pass
+        .order
+        .par_chunks(CHUNK)
+        .zip(pass.residual.par_chunks(CHUNK))
+        .zip(pass.flags.par_chunks(CHUNK))
+        .map(|((order, residual), flags)| {
+            let mut part = Part {
+                min: f64::INFINITY,
+                max: f64::NEG_INFINITY,
+                ..Part::default()
+            };
+            for ((o, r), f) in order.iter().zip(residual).zip(flags) {
+                part.specimen += u64::from(!f.has(PixelFlags::OUTSIDE_MASK));
+                part.beyond += u64::from(f.has(PixelFlags::BEYOND_RANGE));
+                part.unreliable += u64::from(f.has(PixelFlags::UNRELIABLE));
+                if o.is_finite() {
+                    let v = f64::from(*o);
+                    part.count += 1;
+                    part.sum += v;
+                    part.min = part.min.min(v);
+                    part.max = part.max.max(v);
+                    part.res += f64::from(*r);
+                }
+            }
+            part
+        })
+        .collect();
+    let mut all = Part {
+        min: f64::INFINITY,
+        max: f64::NEG_INFINITY,
+        ..Part::default()
+    };
+    for part in parts {
+        all.specimen += part.specimen;
+        all.beyond += part.beyond;
+        all.unreliable += part.unreliable;
+        all.count += part.count;
+        all.sum += part.sum;
+        all.min = all.min.min(part.min);
+        all.max = all.max.max(part.max);
+        all.res += part.res;
+    }
+    let Part {
+        specimen,
+        beyond,
+        unreliable,
+        count,
+        sum,
+        min,
+        max,
+        res,
+    } = all;
+    let (beyond, unreliable) = (beyond as f64, unreliable as f64);
     let share = |v: f64| {
         if specimen == 0 {
             0.0
@@ -602,10 +647,6 @@ fn refine_full_resolution(
         },
     );
     smooth(&mut pass, w, h, gradient);
-    for (o, f) in pass.order.iter_mut().zip(&pass.flags) {
-        if f.0 != 0 {
-            *o = f32::NAN;
-        }
-    }
+    clear_flagged(&mut pass);
     pass
 }
