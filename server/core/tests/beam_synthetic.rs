@@ -117,7 +117,7 @@ fn an_edge_order_can_be_derived_from_the_load() {
         fringe_value_n_per_mm: Some(45.0),
     })
     .unwrap();
-    assert!((load.edge_order() - 3.0).abs() < 1e-12);
+    assert!((load.edge_order().unwrap() - 3.0).abs() < 1e-12);
 }
 
 #[test]
