@@ -60,6 +60,9 @@ pub struct EdgeLoadFields {
     pub depth_mm: Option<f64>,
     /// Material fringe value, N/mm per fringe.
     pub fringe_value_n_per_mm: Option<f64>,
+    /// Estimate the edge order from the photo's colour sequence (no other field may be given).
+    #[serde(default)]
+    pub estimate_edge_order: bool,
 }
 
 fn positive(field: &'static str, v: f64) -> CoreResult<f64> {
@@ -75,8 +78,27 @@ fn positive(field: &'static str, v: f64) -> CoreResult<f64> {
 
 impl EdgeLoad {
     /// Parses the caller's fields: an edge order, or moment + depth + fringe value, or an edge
-    /// order with moment + depth (then the fringe value is reported).
+    /// order with moment + depth (then the fringe value is reported), or `estimate_edge_order`
+    /// alone.
     pub fn from_fields(f: EdgeLoadFields) -> CoreResult<EdgeLoad> {
+        if f.estimate_edge_order {
+            let given = [
+                ("edge_order", f.edge_order),
+                ("moment_n_mm", f.moment_n_mm),
+                ("depth_mm", f.depth_mm),
+                ("fringe_value_n_per_mm", f.fringe_value_n_per_mm),
+            ];
+            return match given.iter().find(|(_, v)| v.is_some()) {
+                None => Ok(EdgeLoad::Estimate),
+                Some((field, _)) => Err(CoreError::invalid(
+                    "estimate_edge_order",
+                    format!(
+                        "estimates the edge order from the photo alone and cannot be combined \
+                         with {field}; drop one of the two"
+                    ),
+                )),
+            };
+        }
         match (
             f.edge_order,
             f.moment_n_mm,
@@ -97,7 +119,7 @@ impl EdgeLoad {
             _ => Err(CoreError::invalid(
                 "edge_order",
                 "give edge_order, or moment_n_mm + depth_mm + fringe_value_n_per_mm, \
-                 or edge_order + moment_n_mm + depth_mm",
+                 or edge_order + moment_n_mm + depth_mm, or estimate_edge_order",
             )),
         }
     }

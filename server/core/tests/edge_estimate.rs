@@ -9,7 +9,7 @@
 //! a white-balance error, within 1.7 % (asserted: 3 %).
 
 use isotint_core::beam::estimate::{default_references, estimate_edge_order, EdgeOrderEstimate};
-use isotint_core::beam::{calibrate_beam, BeamSpec, EdgeLoad};
+use isotint_core::beam::{calibrate_beam, BeamSpec, EdgeLoad, EdgeLoadFields};
 use isotint_core::render::camera::CameraModel;
 use isotint_core::render::effects::{develop, PhotoEffects, PhotoEncoding};
 use isotint_core::render::fields::BendingBeamField;
@@ -204,7 +204,11 @@ fn a_calibration_with_an_estimated_edge_order_reports_it_and_records_it_in_the_n
     );
     let spec = BeamSpec {
         region,
-        load: EdgeLoad::Estimate,
+        load: EdgeLoad::from_fields(EdgeLoadFields {
+            estimate_edge_order: true,
+            ..Default::default()
+        })
+        .unwrap(),
         refine_edges: true,
         order_step: 0.01,
         metadata: CalibrationMetadata {
@@ -300,4 +304,26 @@ fn a_region_with_too_few_rows_is_refused() {
     let thin = PixelRect::new(region.left, 100.0, region.right, 120.0).unwrap();
     let err = refusal(&photo, &thin);
     assert!(err.contains("rows") && err.contains("at least 24"), "{err}");
+}
+
+#[test]
+fn estimating_cannot_be_combined_with_a_given_edge_order_or_load() {
+    let err = EdgeLoad::from_fields(EdgeLoadFields {
+        edge_order: Some(2.0),
+        estimate_edge_order: true,
+        ..Default::default()
+    })
+    .unwrap_err()
+    .to_string();
+    assert!(
+        err.contains("estimate_edge_order") && err.contains("edge_order"),
+        "{err}"
+    );
+    let load = EdgeLoad::from_fields(EdgeLoadFields {
+        estimate_edge_order: true,
+        ..Default::default()
+    })
+    .unwrap();
+    assert_eq!(load, EdgeLoad::Estimate);
+    assert_eq!(load.edge_order(), None);
 }
