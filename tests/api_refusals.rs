@@ -240,6 +240,12 @@ async fn negative_or_inconsistent_numbers_are_refused_naming_the_field() {
             json!({"edge_order": null, "moment_n_mm": -1.0, "depth_mm": 20.0, "fringe_value_n_per_mm": 10.0}),
             "moment_n_mm",
         ),
+        (json!({"estimate_edge_order": true}), "estimate_edge_order"),
+        (json!({"estimate_edge_order": "yes"}), "estimate_edge_order"),
+        (
+            json!({"edge_order": null, "estimate_edge_order": true}),
+            "estimate_edge_order",
+        ),
         (json!({"thickness_mm": -6.0}), "thickness_mm"),
         (json!({"order_step": 0.5}), "order_step"),
         (

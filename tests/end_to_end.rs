@@ -76,15 +76,15 @@ fn npy(reply: &Reply) -> (usize, usize, Vec<f32>) {
     read_npy_f32(&reply.body).unwrap()
 }
 
-#[tokio::test]
-async fn a_dry_run_reports_the_residual_and_stores_nothing() {
-    let svc = service().await;
+/// A dry run on the rendered beam with `spec` (region and `dry_run` added); the JSON answer.
+async fn beam_dry_run(app: &axum::Router, mut spec: serde_json::Value) -> serde_json::Value {
     let (beam, region) = beam_photo();
-    let spec = json!({"name": "Trial", "region": region_json(&region), "edge_order": BEAM_EDGE_ORDER, "dry_run": true});
+    spec["region"] = region_json(&region);
+    spec["dry_run"] = json!(true);
     let reply = Form::new()
         .file("photo", "beam.png", "image/png", beam.png)
         .json("spec", &spec)
-        .post(&svc.app, "/api/v1/calibrations")
+        .post(app, "/api/v1/calibrations")
         .await;
     assert_eq!(
         reply.status,
@@ -92,11 +92,60 @@ async fn a_dry_run_reports_the_residual_and_stores_nothing() {
         "{}",
         String::from_utf8_lossy(&reply.body)
     );
-    let v = reply.json();
+    reply.json()
+}
+
+#[tokio::test]
+async fn a_dry_run_reports_the_residual_and_stores_nothing() {
+    let svc = service().await;
+    let v = beam_dry_run(
+        &svc.app,
+        json!({"name": "Trial", "edge_order": BEAM_EDGE_ORDER}),
+    )
+    .await;
     assert!(v["report"]["residual_mean_de2000"].is_number());
     assert_eq!(v["table"]["format"], "isotint-calibration");
     let list = get(&svc.app, "/api/v1/calibrations").await.json();
     assert!(list["calibrations"].as_array().unwrap().is_empty());
+}
+
+#[tokio::test]
+async fn an_edge_order_estimated_from_the_colour_sequence_is_reported_with_its_runner_up() {
+    let svc = service().await;
+    let v = beam_dry_run(
+        &svc.app,
+        json!({"name": "Estimated", "estimate_edge_order": true}),
+    )
+    .await;
+    let estimate = &v["report"]["edge_order_estimate"];
+    let n = estimate["edge_order"].as_f64().unwrap();
+    println!("estimated edge order {n:.4} (rendered with {BEAM_EDGE_ORDER})");
+    // source: closed-form pure bending (the rendered beam's field); tolerance measured in
+    // server/core/tests/edge_estimate.rs (light among the references: 1 %).
+    assert!(
+        (n - BEAM_EDGE_ORDER).abs() <= 0.01 * BEAM_EDGE_ORDER,
+        "{estimate}"
+    );
+    assert_eq!(v["report"]["edge_order"].as_f64(), Some(n));
+    assert_eq!(v["table"]["source"]["edge_order"].as_f64(), Some(n));
+    assert!(
+        estimate["runner_up"]["edge_order"].is_number(),
+        "{estimate}"
+    );
+    assert!(
+        estimate["cost_ratio"].as_f64().unwrap() >= 1.5,
+        "{estimate}"
+    );
+    assert!(
+        estimate["statement"]
+            .as_str()
+            .unwrap()
+            .contains("confirm it against a known load"),
+        "{estimate}"
+    );
+    let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
+    let field = &doc["components"]["schemas"]["BeamRequest"]["properties"]["estimate_edge_order"];
+    assert_eq!(field["type"], "boolean", "{field}");
 }
 
 #[tokio::test]

@@ -6,6 +6,7 @@ use std::time::Duration;
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand, ValueEnum};
+use isotint_core::beam::estimate::ESTIMATE_CAUTION;
 use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::geometry::PixelPoint;
@@ -148,6 +149,11 @@ pub struct CalibrateArgs {
     /// Material fringe value f_σ, N/mm per fringe.
     #[arg(long)]
     pub fringe_value: Option<f64>,
+    /// Estimate the edge order from the beam's own colour sequence instead of giving it or the
+    /// load (alone, without --edge-order, --moment, --depth, --fringe-value). An estimate:
+    /// confirm it against a known load where possible.
+    #[arg(long)]
+    pub estimate_edge_order: bool,
     /// Name of the calibration (default: the photo's file name).
     #[arg(long)]
     pub name: Option<String>,
@@ -287,6 +293,7 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
         moment_n_mm: args.moment,
         depth_mm: args.depth,
         fringe_value_n_per_mm: args.fringe_value,
+        estimate_edge_order: args.estimate_edge_order,
     })?;
     let name = args.name.clone().unwrap_or_else(|| {
         args.photo
@@ -344,6 +351,28 @@ pub fn report_text(r: &BeamReport) -> String {
     }
     if let Some(f) = r.fringe_value_n_per_mm {
         out += &format!("  fringe value        {f:.3} N/mm per fringe\n");
+    }
+    if let Some(e) = &r.edge_order_estimate {
+        let [red, green, blue] = e.channel_gains;
+        out += &format!(
+            "  edge-order estimate {:.3} fringes, confidence {}; best match {} / {}, mean ΔE*ab \
+             {:.2}, channel gains {red:.2} {green:.2} {blue:.2}\n",
+            e.edge_order,
+            e.confidence.name(),
+            e.light.name(),
+            e.camera.name(),
+            e.cost_de_ab
+        );
+        match (e.runner_up, e.cost_ratio) {
+            (Some(alt), Some(ratio)) => {
+                out += &format!(
+                    "  runner-up           {:.3} fringes, mean ΔE*ab {:.2} ({ratio:.1} × the estimate's)\n",
+                    alt.edge_order, alt.cost_de_ab
+                )
+            }
+            _ => out += "  runner-up           none (no separate minimum)\n",
+        }
+        out += &format!("  caution             {ESTIMATE_CAUTION}\n");
     }
     out
 }

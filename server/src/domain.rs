@@ -7,7 +7,7 @@ use std::marker::PhantomData;
 use std::str::FromStr;
 
 use isotint_core::beam::{BeamSpec, EdgeLoad};
-use isotint_core::calibration::ORDER_STEP_RANGE;
+use isotint_core::calibration::{MAX_NOTES_CHARS, ORDER_STEP_RANGE};
 use isotint_core::{CalibrationMetadata, CoreError, CoreResult, PixelRect};
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 use time::OffsetDateTime;
@@ -171,7 +171,7 @@ pub fn check_metadata(m: &CalibrationMetadata) -> CoreResult<()> {
     check_text("material", &m.material, 200, false)?;
     check_text("light_source", &m.light_source, 200, false)?;
     check_text("camera", &m.camera, 200, false)?;
-    check_text("notes", &m.notes, 4000, true)?;
+    check_text("notes", &m.notes, MAX_NOTES_CHARS, true)?;
     if let Some(t) = m.thickness_mm {
         if !(t.is_finite() && t > 0.0) {
             return Err(CoreError::invalid(

@@ -1,7 +1,11 @@
 //! Calibration tables from a photo of a beam in four-point bending.
 //!
 //! Between the inner loads the moment is constant, so the fringe order varies linearly through
-//! the depth: 0 on the mid-line, ±N_edge at the edges, with N_edge = 6M / (f_σ · d²).
+//! the depth: 0 on the mid-line, ±N_edge at the edges, with N_edge = 6M / (f_σ · d²). When
+//! neither the edge order nor the load is known, [`estimate`] reads N_edge off the beam's own
+//! colour sequence.
+
+pub mod estimate;
 
 use serde::{Deserialize, Serialize};
 
@@ -13,6 +17,7 @@ use crate::colour::Photo;
 use crate::colour::{ciede2000, lab_from_linear, Lab};
 use crate::error::{CoreError, CoreResult};
 use crate::geometry::PixelRect;
+use estimate::{estimate_from_rows, DepthColour, EdgeOrderEstimate, FoldedRows};
 
 /// How the order at the beam edges is known.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -37,6 +42,10 @@ pub enum EdgeLoad {
         /// Beam depth, mm.
         depth_mm: f64,
     },
+    /// Neither is known: the edge order is estimated from the beam's own colour sequence
+    /// ([`estimate::estimate_edge_order`], default references). An estimate, to be confirmed
+    /// against a known load where possible.
+    Estimate,
 }
 
 /// Raw, unvalidated load fields as a caller sends them (CLI flags, JSON). Parse with
@@ -51,6 +60,9 @@ pub struct EdgeLoadFields {
     pub depth_mm: Option<f64>,
     /// Material fringe value, N/mm per fringe.
     pub fringe_value_n_per_mm: Option<f64>,
+    /// Estimate the edge order from the photo's colour sequence (no other field may be given).
+    #[serde(default)]
+    pub estimate_edge_order: bool,
 }
 
 fn positive(field: &'static str, v: f64) -> CoreResult<f64> {
@@ -66,8 +78,27 @@ fn positive(field: &'static str, v: f64) -> CoreResult<f64> {
 
 impl EdgeLoad {
     /// Parses the caller's fields: an edge order, or moment + depth + fringe value, or an edge
-    /// order with moment + depth (then the fringe value is reported).
+    /// order with moment + depth (then the fringe value is reported), or `estimate_edge_order`
+    /// alone.
     pub fn from_fields(f: EdgeLoadFields) -> CoreResult<EdgeLoad> {
+        if f.estimate_edge_order {
+            let given = [
+                ("edge_order", f.edge_order),
+                ("moment_n_mm", f.moment_n_mm),
+                ("depth_mm", f.depth_mm),
+                ("fringe_value_n_per_mm", f.fringe_value_n_per_mm),
+            ];
+            return match given.iter().find(|(_, v)| v.is_some()) {
+                None => Ok(EdgeLoad::Estimate),
+                Some((field, _)) => Err(CoreError::invalid(
+                    "estimate_edge_order",
+                    format!(
+                        "estimates the edge order from the photo alone and cannot be combined \
+                         with {field}; drop one of the two"
+                    ),
+                )),
+            };
+        }
         match (
             f.edge_order,
             f.moment_n_mm,
@@ -88,22 +119,26 @@ impl EdgeLoad {
             _ => Err(CoreError::invalid(
                 "edge_order",
                 "give edge_order, or moment_n_mm + depth_mm + fringe_value_n_per_mm, \
-                 or edge_order + moment_n_mm + depth_mm",
+                 or edge_order + moment_n_mm + depth_mm, or estimate_edge_order",
             )),
         }
     }
 
-    /// The order at the beam edges, fringes.
-    pub fn edge_order(&self) -> f64 {
+    /// The order at the beam edges, fringes, when it is known before the photo is looked at
+    /// (`None` for [`EdgeLoad::Estimate`]).
+    pub fn edge_order(&self) -> Option<f64> {
         match *self {
-            EdgeLoad::EdgeOrder(n) | EdgeLoad::EdgeOrderAndLoad { edge_order: n, .. } => n,
+            EdgeLoad::EdgeOrder(n) | EdgeLoad::EdgeOrderAndLoad { edge_order: n, .. } => Some(n),
             EdgeLoad::Load {
                 moment_n_mm,
                 depth_mm,
                 fringe_value_n_per_mm,
-            } => {
-                crate::stress::pure_bending_edge_order(moment_n_mm, depth_mm, fringe_value_n_per_mm)
-            }
+            } => Some(crate::stress::pure_bending_edge_order(
+                moment_n_mm,
+                depth_mm,
+                fringe_value_n_per_mm,
+            )),
+            EdgeLoad::Estimate => None,
         }
     }
 
@@ -168,6 +203,9 @@ pub struct BeamReport {
     pub edge_shift: Option<EdgeShift>,
     /// Fringe value implied by edge order and load, N/mm per fringe, if both were given.
     pub fringe_value_n_per_mm: Option<f64>,
+    /// How the edge order was estimated from the photo's colour sequence, if it was
+    /// ([`EdgeLoad::Estimate`]); `None` when it was given or computed from the load.
+    pub edge_order_estimate: Option<EdgeOrderEstimate>,
 }
 
 /// A table and its report.
@@ -188,7 +226,10 @@ pub const EDGE_SEARCH_PX: f64 = 6.0;
 /// One row of the constant-moment zone, averaged along the beam axis.
 #[derive(Debug, Clone, Copy)]
 struct RowSample {
-    /// Fringe order at the row centre.
+    /// Distance of the row centre from the mid-line over the half-depth: 0 on the mid-line,
+    /// 1 at the edges.
+    depth: f64,
+    /// Fringe order at the row centre (edge order × `depth`, once the edge order is known).
     order: f64,
     /// Robust mean colour (CIELAB D65).
     mean: [f64; 3],
@@ -198,12 +239,91 @@ struct RowSample {
     kept: u32,
 }
 
+/// The rows of a constant-moment zone, folded about the mid-line.
+#[derive(Debug, Clone)]
+struct RowProfile {
+    /// Rows whose centre lies at least [`EDGE_SKIP_PX`] inside the edges, top to bottom.
+    rows: Vec<RowSample>,
+    /// Rows skipped as blurred edge rows.
+    edge_rows_skipped: u32,
+    /// Pixels looked at in the kept rows.
+    pixels_seen: u64,
+    /// Pixels kept after outlier rejection within rows.
+    pixels_kept: u64,
+    /// Half the beam depth, px.
+    half_depth: f64,
+}
+
+impl RowProfile {
+    /// Row depths and colours, as the edge-order estimate reads them.
+    fn folded(&self) -> FoldedRows {
+        FoldedRows {
+            rows: self
+                .rows
+                .iter()
+                .map(|r| DepthColour {
+                    depth: r.depth,
+                    lab: r.mean,
+                })
+                .collect(),
+            row_span: 1.0 / self.half_depth,
+        }
+    }
+}
+
+/// Checks that `region` lies inside the photo and is large enough, then averages its rows
+/// (with outlier rejection) and folds them about the mid-line.
+fn sample_rows(photo: &Photo, region: &PixelRect) -> CoreResult<RowProfile> {
+    region.check_inside(photo.width(), photo.height())?;
+    if region.height() < 4.0 * EDGE_SKIP_PX + 4.0 || region.column_range().len() < 3 {
+        return Err(CoreError::invalid(
+            "region",
+            format!(
+                "{:.1}×{:.1} px is too small for a calibration: it needs at least 3 columns and {} rows",
+                region.width(),
+                region.height(),
+                4.0 * EDGE_SKIP_PX + 4.0
+            ),
+        ));
+    }
+    let mid = 0.5 * (region.top + region.bottom);
+    let half_depth = 0.5 * region.height();
+    let mut profile = RowProfile {
+        rows: Vec::new(),
+        edge_rows_skipped: 0,
+        pixels_seen: 0,
+        pixels_kept: 0,
+        half_depth,
+    };
+    for y in region.row_range() {
+        let centre = f64::from(y) + 0.5;
+        if centre - region.top < EDGE_SKIP_PX || region.bottom - centre < EDGE_SKIP_PX {
+            profile.edge_rows_skipped += 1;
+            continue;
+        }
+        let labs: Vec<[f64; 3]> = region
+            .column_range()
+            .map(|x| {
+                let c = lab_from_linear(photo.linear((y * photo.width() + x) as usize));
+                [f64::from(c.l), f64::from(c.a), f64::from(c.b)]
+            })
+            .collect();
+        profile.pixels_seen += labs.len() as u64;
+        let row = robust_row_mean(&labs, (centre - mid).abs() / half_depth);
+        profile.pixels_kept += u64::from(row.kept);
+        profile.rows.push(row);
+    }
+    Ok(profile)
+}
+
 /// Builds a calibration table from a beam photo.
 ///
 /// Rows of the constant-moment zone are averaged along the beam axis with outlier rejection,
 /// the two halves are folded (tension and compression give the same colours), rows within
 /// [`EDGE_SKIP_PX`] of an edge are skipped, outlier rows are dropped, and the colours are
-/// smoothed onto the order grid by a local linear fit.
+/// smoothed onto the order grid by a local linear fit. With [`EdgeLoad::Estimate`] the edge
+/// order is first estimated from the folded rows ([`estimate`]) and the estimate is reported;
+/// a note saying so is added to the table's `notes`.
 pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibration> {
     spec.region.check_inside(photo.width(), photo.height())?;
     let (lo, hi) = ORDER_STEP_RANGE;
@@ -213,12 +333,8 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
             format!("must lie in [{lo}, {hi}] fringes, got {}", spec.order_step),
         ));
     }
-    let edge_order = spec.load.edge_order();
-    if !(edge_order.is_finite() && edge_order > 0.0 && edge_order <= MAX_TABLE_ORDER) {
-        return Err(CoreError::invalid(
-            "edge_order",
-            format!("the edge order works out at {edge_order:.3}; it must lie in (0, {MAX_TABLE_ORDER}]"),
-        ));
+    if let Some(edge_order) = spec.load.edge_order() {
+        check_edge_order(edge_order)?;
     }
     let mut region = spec.region;
     let edge_shift = if spec.refine_edges {
@@ -233,39 +349,26 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
     } else {
         None
     };
-    if region.height() < 4.0 * EDGE_SKIP_PX + 4.0 || region.column_range().len() < 3 {
-        return Err(CoreError::invalid(
-            "region",
-            format!(
-                "{:.1}×{:.1} px is too small for a calibration: it needs at least 3 columns and {} rows",
-                region.width(),
-                region.height(),
-                4.0 * EDGE_SKIP_PX + 4.0
-            ),
-        ));
-    }
-
-    let mid = 0.5 * (region.top + region.bottom);
-    let half_depth = 0.5 * region.height();
-    let mut rows = Vec::new();
-    let (mut edge_rows_skipped, mut pixels_seen, mut pixels_kept) = (0u32, 0u64, 0u64);
-    for y in region.row_range() {
-        let centre = f64::from(y) + 0.5;
-        if centre - region.top < EDGE_SKIP_PX || region.bottom - centre < EDGE_SKIP_PX {
-            edge_rows_skipped += 1;
-            continue;
+    let profile = sample_rows(photo, &region)?;
+    let mut metadata = spec.metadata.clone();
+    let (edge_order, edge_order_estimate) = match spec.load.edge_order() {
+        Some(n) => (n, None),
+        None => {
+            let estimate = estimate_from_rows(&profile.folded(), &estimate::default_references())?;
+            check_edge_order(estimate.edge_order)?;
+            metadata.notes = estimate.annotate(&metadata.notes)?;
+            (estimate.edge_order, Some(estimate))
         }
-        let labs: Vec<[f64; 3]> = region
-            .column_range()
-            .map(|x| {
-                let c = lab_from_linear(photo.linear((y * photo.width() + x) as usize));
-                [f64::from(c.l), f64::from(c.a), f64::from(c.b)]
-            })
-            .collect();
-        pixels_seen += labs.len() as u64;
-        let row = robust_row_mean(&labs, edge_order * (centre - mid).abs() / half_depth);
-        pixels_kept += u64::from(row.kept);
-        rows.push(row);
+    };
+    let RowProfile {
+        mut rows,
+        edge_rows_skipped,
+        pixels_seen,
+        pixels_kept,
+        half_depth,
+    } = profile;
+    for r in &mut rows {
+        r.order = edge_order * r.depth;
     }
 
     let max_order = rows.iter().map(|r| r.order).fold(0.0, f64::max);
@@ -322,7 +425,7 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
         .collect();
 
     let mut table = CalibrationTable::new(
-        spec.metadata.clone(),
+        metadata,
         spec.order_step,
         TableSource::BeamPhoto {
             photo_width: photo.width(),
@@ -361,8 +464,21 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
         outlier_pixel_share: 1.0 - pixels_kept as f64 / pixels_seen.max(1) as f64,
         edge_shift,
         fringe_value_n_per_mm: spec.load.implied_fringe_value(),
+        edge_order_estimate,
     };
     Ok(BeamCalibration { table, report })
+}
+
+/// Checks that an edge order (given, from the load or estimated) fits a calibration table.
+fn check_edge_order(edge_order: f64) -> CoreResult<()> {
+    if edge_order.is_finite() && edge_order > 0.0 && edge_order <= MAX_TABLE_ORDER {
+        Ok(())
+    } else {
+        Err(CoreError::invalid(
+            "edge_order",
+            format!("the edge order works out at {edge_order:.3}; it must lie in (0, {MAX_TABLE_ORDER}]"),
+        ))
+    }
 }
 
 /// ΔE*ab between two CIELAB triples.
@@ -384,8 +500,9 @@ fn percentile(v: &mut [f64], q: f64) -> f64 {
     *v.select_nth_unstable_by(k, f64::total_cmp).1
 }
 
-/// Mean and spread of one row's pixels after dropping those far from the row's median colour.
-fn robust_row_mean(labs: &[[f64; 3]], order: f64) -> RowSample {
+/// Mean and spread of one row's pixels after dropping those far from the row's median colour;
+/// `depth` is the row's relative distance from the mid-line (its order is set later).
+fn robust_row_mean(labs: &[[f64; 3]], depth: f64) -> RowSample {
     let mut centre = [0.0; 3];
     for (c, slot) in centre.iter_mut().enumerate() {
         let mut channel: Vec<f64> = labs.iter().map(|l| l[c]).collect();
@@ -413,7 +530,8 @@ fn robust_row_mean(labs: &[[f64; 3]], order: f64) -> RowSample {
         }
     }
     RowSample {
-        order,
+        depth,
+        order: 0.0,
         mean,
         spread: spread.map(f64::sqrt),
         kept: kept.len() as u32,

@@ -23,6 +23,9 @@ pub const ORDER_STEP_RANGE: (f64, f64) = (0.001, 0.1);
 /// Largest accepted `max_order`, fringes (past ≈ 5 orders white-light colours wash out).
 pub const MAX_TABLE_ORDER: f64 = 12.0;
 
+/// Most characters `metadata.notes` may hold.
+pub const MAX_NOTES_CHARS: usize = 4000;
+
 /// Who, what and how: descriptive metadata of a calibration.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
 #[serde(deny_unknown_fields)]
@@ -200,8 +203,10 @@ impl CalibrationTable {
                 return fail(format!("metadata.{field} is longer than 200 characters"));
             }
         }
-        if self.metadata.notes.chars().count() > 4000 {
-            return fail("metadata.notes is longer than 4000 characters".into());
+        if self.metadata.notes.chars().count() > MAX_NOTES_CHARS {
+            return fail(format!(
+                "metadata.notes is longer than {MAX_NOTES_CHARS} characters"
+            ));
         }
         if let Some(t) = self.metadata.thickness_mm {
             if !(t.is_finite() && t > 0.0) {

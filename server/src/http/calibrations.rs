@@ -117,7 +117,8 @@ pub struct CreatedCalibration {
     /// The summary fields.
     #[serde(flatten)]
     pub summary: CalibrationSummary,
-    /// Quality report of the measurement.
+    /// Quality report of the measurement; `edge_order_estimate` (estimate, runner-up, cost
+    /// ratio, confidence, statement) is set when the edge order was estimated.
     #[schema(value_type = Object)]
     pub report: BeamReport,
 }
@@ -125,7 +126,8 @@ pub struct CreatedCalibration {
 /// Response of a dry run: nothing is stored.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct DryRunCalibration {
-    /// Quality report of the measurement.
+    /// Quality report of the measurement; `edge_order_estimate` (estimate, runner-up, cost
+    /// ratio, confidence, statement) is set when the edge order was estimated.
     #[schema(value_type = Object)]
     pub report: BeamReport,
     /// The table that would be stored.
@@ -154,7 +156,9 @@ pub struct ImportQuery {
 
 /// The `spec` part of a beam calibration: where the constant-moment zone is and what is known
 /// about the load. Give `edge_order`, or `moment_n_mm` + `depth_mm` + `fringe_value_n_per_mm`,
-/// or `edge_order` + `moment_n_mm` + `depth_mm` (then the fringe value is reported).
+/// or `edge_order` + `moment_n_mm` + `depth_mm` (then the fringe value is reported), or
+/// `estimate_edge_order: true` alone (the edge order is estimated from the beam's colour
+/// sequence and reported in `report.edge_order_estimate`).
 #[derive(Debug, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BeamRequest {
@@ -172,6 +176,11 @@ pub struct BeamRequest {
     pub depth_mm: Option<f64>,
     /// Material fringe value, N/mm per fringe.
     pub fringe_value_n_per_mm: Option<f64>,
+    /// Estimate the edge order (fringes) from the beam's own colour sequence instead of giving
+    /// it or the load; no edge-order or load field may come with it. An estimate: confirm it
+    /// against a known load where possible.
+    #[serde(default)]
+    pub estimate_edge_order: bool,
     /// Move top and bottom to the edges found in the photo.
     #[serde(default)]
     pub refine_edges: bool,
@@ -217,6 +226,7 @@ impl BeamRequest {
             moment_n_mm: self.moment_n_mm,
             depth_mm: self.depth_mm,
             fringe_value_n_per_mm: self.fringe_value_n_per_mm,
+            estimate_edge_order: self.estimate_edge_order,
         })?;
         let metadata = CalibrationMetadata {
             name: self.name,
