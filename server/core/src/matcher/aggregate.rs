@@ -70,7 +70,7 @@ pub(super) fn aggregate(
     gradient: f32,
     top: f32,
 ) -> Vec<[f32; LABELS]> {
-    let mut total = vec![[0f32; LABELS]; labels.len()];
+    let mut total = par_filled(labels.len(), [0f32; LABELS]);
     total
         .par_chunks_mut(width)
         .enumerate()

@@ -359,7 +359,7 @@ pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32
     let limit = 2.0 * gradient * r as f32;
     let count = ((2 * r + 1) * (2 * r + 1)) as f32;
     let (order, flags) = (&pass.order, &pass.flags);
-    let mut smoothed = order.clone();
+    let mut smoothed: Vec<f32> = order.par_iter().copied().collect();
     smoothed
         .par_chunks_mut(width * STRIP)
         .enumerate()

@@ -90,6 +90,27 @@ struct Pass {
     flags: Vec<PixelFlags>,
 }
 
+impl Pass {
+    /// `n` pixels without value or flag.
+    fn empty(n: usize) -> Pass {
+        Pass {
+            order: par_filled(n, f32::NAN),
+            residual: par_filled(n, f32::NAN),
+            margin: par_filled(n, f32::NAN),
+            flags: par_filled(n, PixelFlags::default()),
+        }
+    }
+}
+
+/// A vector of `n` copies of `value`, written in parallel. The first write to fresh memory
+/// is costly (the pages are mapped then); spread over the threads here it costs far less
+/// than inside the pixel loops, where it serialises them.
+pub(super) fn par_filled<T: Copy + Send + Sync>(n: usize, value: T) -> Vec<T> {
+    let mut v = Vec::with_capacity(n);
+    v.par_extend(rayon::iter::repeat_n(value, n));
+    v
+}
+
 fn solve_pass(
     lab: &LabImage,
     inside: &[bool],
@@ -177,12 +198,7 @@ fn solve_pass(
     let total = aggregate(&labels, inside, width, height, gradient, top);
 
     let n = lab.data.len();
-    let mut pass = Pass {
-        order: vec![f32::NAN; n],
-        residual: vec![f32::NAN; n],
-        margin: vec![f32::NAN; n],
-        flags: vec![PixelFlags::default(); n],
-    };
+    let mut pass = Pass::empty(n);
     let fine_reach = (2.0 * SEARCH_STEP / fine.step).ceil() as usize;
     let directions = DIRECTIONS;
     pass.order
@@ -226,7 +242,7 @@ fn solve_pass(
                     scratch,
                 );
                 *order = refined as f32;
-                *residual = delta_e_ab(lab.data[p], table.colour_at(refined));
+                *residual = delta_e_ab(lab.data[p], fine.colour_at(refined as f32));
                 if *residual > RESIDUAL_LIMIT || *margin < MARGIN_LIMIT {
                     flags.0 |= PixelFlags::UNRELIABLE;
                 }
@@ -545,12 +561,7 @@ fn refine_full_resolution(
     let fine = SearchTable::new(table, table.order_step, max_order, REFINE_LIGHTNESS_WEIGHT);
     let (fine_step, top) = (fine.step as f32, max_order as f32);
     let n = w * h;
-    let mut pass = Pass {
-        order: vec![f32::NAN; n],
-        residual: vec![f32::NAN; n],
-        margin: vec![f32::NAN; n],
-        flags: vec![PixelFlags::default(); n],
-    };
+    let mut pass = Pass::empty(n);
     // Interpolation between block centres along one axis: (lower block, upper block, weight
     // of the upper one) for each pixel coordinate.
     let axis = |length: usize, blocks: usize| -> Vec<(usize, usize, f32)> {
@@ -636,7 +647,7 @@ fn refine_full_resolution(
                 let from = ((predicted - reach).max(0.0) / fine_step) as usize;
                 let to = ((predicted + reach).min(top) / fine_step) as usize + 1;
                 let (value, _) = fine.best_in(colour, from, to, distances);
-                let miss = delta_e_ab(colour, table.colour_at(value));
+                let miss = delta_e_ab(colour, fine.colour_at(value as f32));
                 order[x] = value as f32;
                 residual[x] = miss;
                 margin[x] = best_margin;

@@ -16,6 +16,8 @@ pub(super) const COST_CAP: f32 = 25.0;
 /// The table flattened for fast search: CIELAB components in separate arrays.
 pub(super) struct SearchTable {
     pub(super) step: f64,
+    /// 1 / `step`, fringes⁻¹.
+    inverse_step: f32,
     pub(super) lightness_weight: f32,
     pub(super) l: Vec<f32>,
     pub(super) a: Vec<f32>,
@@ -33,6 +35,7 @@ impl SearchTable {
         let n = (max_order / step + 1e-9).floor() as usize + 1;
         let mut t = SearchTable {
             step,
+            inverse_step: (1.0 / step) as f32,
             lightness_weight,
             l: Vec::with_capacity(n),
             a: Vec::with_capacity(n),
@@ -45,6 +48,20 @@ impl SearchTable {
             t.b.push(c.b);
         }
         t
+    }
+
+    /// CIELAB colour at `order` (fringes), interpolated between entries in `f32`: the
+    /// table's own [`CalibrationTable::colour_at`] for the per-pixel loops, where its `f64`
+    /// division showed in profiles. Equal to it where `step` is the table's own step.
+    #[inline]
+    pub(super) fn colour_at(&self, order: f32) -> Lab {
+        let last = self.len() - 1;
+        let pos = (order * self.inverse_step).clamp(0.0, last as f32);
+        // pos ≥ 0: truncation is floor.
+        let i = (pos as usize).min(last - 1);
+        let t = pos - i as f32;
+        let mix = |v: &[f32]| v[i] + t * (v[i + 1] - v[i]);
+        Lab::new(mix(&self.l), mix(&self.a), mix(&self.b))
     }
 
     pub(super) fn len(&self) -> usize {
@@ -181,4 +198,33 @@ pub(super) fn candidates(
     labels.order[BEYOND] = beyond_order;
     labels.cost[BEYOND] = beyond_cost;
     labels
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::{rendered_table, CameraModel, LightSource, QuarterWavePlates};
+
+    #[test]
+    fn flattened_table_colours_match_the_tables_own_interpolation() {
+        // Naive reference: CalibrationTable::colour_at in f64.
+        let table = rendered_table(
+            LightSource::Halogen,
+            CameraModel::Sensor,
+            QuarterWavePlates::Ideal,
+            4.0,
+            0.01,
+            crate::CalibrationMetadata {
+                name: "flattened".into(),
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let flat = SearchTable::new(&table, table.order_step, table.max_order(), 1.0);
+        for k in 0..=4100 {
+            let order = k as f64 * 0.001 - 0.05; // also a little outside 0…4
+            let (a, b) = (table.colour_at(order), flat.colour_at(order as f32));
+            assert!(delta_e_ab(a, b) < 2e-3, "order {order}: {a:?} vs {b:?}");
+        }
+    }
 }
