@@ -46,14 +46,22 @@ pub(super) fn path_step(
     if let Some((lp, before)) = previous {
         let cap = top + step_gradient;
         let floor = lp.iter().copied().fold(f32::INFINITY, f32::min);
-        let before_orders = before.order.map(|o| o.min(cap));
-        for (slot, order) in path.iter_mut().zip(here.order) {
+        // Lanes padded to eight, a whole number of vector registers: for each predecessor
+        // label the transition to all labels here is one vectorised pass.
+        let mut orders = [cap; 8];
+        for (lane, order) in orders.iter_mut().zip(here.order) {
+            *lane = order.min(cap);
+        }
+        let mut best = [floor + JUMP_PENALTY; 8];
+        for (cost, order) in lp.iter().zip(before.order) {
             let order = order.min(cap);
-            let mut best = floor + JUMP_PENALTY;
-            for (cost, b) in lp.iter().zip(before_orders) {
-                best = best.min(cost + transition(order, b, step_gradient));
+            for (b, o) in best.iter_mut().zip(orders) {
+                let candidate = cost + transition(o, order, step_gradient);
+                *b = if candidate < *b { candidate } else { *b };
             }
-            *slot += best - floor;
+        }
+        for (slot, b) in path.iter_mut().zip(best) {
+            *slot += b - floor;
         }
     }
     path
