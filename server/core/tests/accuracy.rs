@@ -328,3 +328,77 @@ fn quarter_wave_plates_exact_only_at_520_nm_meet_the_accuracy_targets() {
         },
     );
 }
+
+/// Far past the end of the table the colours wash out to grey. A disc loaded to about ten
+/// fringes at its centre must come out flagged beyond range there, not read as the table's last
+/// fringe (an under-read by a factor of two or more), while its rim keeps its values.
+#[test]
+fn a_disc_loaded_far_past_the_table_is_flagged_beyond_range_not_read_as_its_top() {
+    // source: Timoshenko & Goodier, disc in diametral compression: centre σ1 − σ2 = 8P/(πDh),
+    // so N = 8P/(πD·f_σ) = 10.0 fringes for P = 1728 N, D = 40 mm, f_σ = 11 N/mm.
+    let disc = DiscField::new(
+        PixelPoint { x: 180.0, y: 180.0 },
+        160.0,
+        DiscInCompression::new(40.0, THICKNESS, 1728.0).unwrap(),
+        FRINGE_VALUE,
+    )
+    .unwrap();
+    let renderer = Renderer::new(RenderSetup {
+        light: LightSource::Halogen,
+        camera: CameraModel::Sensor,
+        plates: QuarterWavePlates::Ideal,
+        exposure: 0.9,
+    })
+    .unwrap();
+    let fx = PhotoEffects {
+        blur_sigma_px: 0.6,
+        noise_sigma_codes: 1.0,
+        seed: 4,
+        ..PhotoEffects::default()
+    };
+    let table = photographed_beam_table(
+        &renderer,
+        &fx,
+        PhotoEncoding::Png8,
+        CalibrationMetadata {
+            name: "far past the table".into(),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let (specimen, truth, mask) = photo(&disc, &renderer, (360, 360), &fx, PhotoEncoding::Png8);
+    let map = map_orders(&specimen, &table, Some(&mask), &MapOptions::default()).unwrap();
+    let top = table.max_order() as f32;
+    let scored = mask.eroded(3);
+    let (mut past, mut past_valued, mut band, mut band_valued) = (0, 0, 0, 0);
+    for (i, t) in truth.iter().enumerate() {
+        if !scored.as_slice()[i] || !t.is_finite() {
+            continue;
+        }
+        let valued = map.order[i].is_finite();
+        if *t > top + 0.5 {
+            past += 1;
+            past_valued += usize::from(valued);
+        } else if *t <= 4.0 {
+            band += 1;
+            band_valued += usize::from(valued);
+        }
+    }
+    let past_share = past_valued as f64 / past as f64;
+    let band_share = band_valued as f64 / band as f64;
+    println!("past the table: {past} px, {past_share:.4} valued; N ≤ 4: {band} px, {band_share:.4} valued");
+    assert!(
+        past > 30_000,
+        "the disc should be largely past the table ({past} px)"
+    );
+    assert!(
+        past_share < 0.02,
+        "{:.1} % of the pixels past the table got a value",
+        100.0 * past_share
+    );
+    assert!(
+        band_share > 0.9,
+        "only {:.1} % of the pixels with N ≤ 4 got a value",
+        100.0 * band_share
+    );
+}

@@ -23,6 +23,12 @@ pub(super) const ALIAS_WINDOW: usize = 4;
 pub(super) const ALIAS_RESIDUAL_RATIO: f32 = 2.5;
 /// ... and never below this many ΔE*ab.
 pub(super) const ALIAS_RESIDUAL_MIN: f32 = 2.5;
+/// Half-width of the window of the washed-out test, pixels.
+pub(super) const WASHED_OUT_WINDOW: usize = 3;
+/// Mean ΔE\*ab from the washed-out colour below which a neighbourhood counts as washed out.
+pub(super) const WASHED_OUT_DISTANCE: f32 = 4.0;
+/// Orders below this are not taken for washed-out high orders (fringes).
+pub(super) const WASHED_OUT_FROM_ORDER: f32 = 2.0;
 /// How many pixel layers that rule may spread.
 pub(super) const TOP_GUARD_LAYERS: usize = 4;
 /// Radius of the final order smoothing window, pixels.
@@ -204,7 +210,27 @@ pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, he
         return;
     }
     let limit = (ALIAS_RESIDUAL_RATIO * median_f32(&mut sample)).max(ALIAS_RESIDUAL_MIN);
-    // Integral images of the residual and of the count of valued pixels.
+    let counted: Vec<bool> = (0..pass.order.len()).map(valued).collect();
+    let local = window_means(&pass.residual, &counted, width, height, ALIAS_WINDOW);
+    let flagged: Vec<usize> = (0..pass.order.len())
+        .into_par_iter()
+        .filter(|&p| valued(p) && pass.order[p] >= top - ALIAS_RANGE && local[p] > limit)
+        .collect();
+    for p in flagged {
+        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
+    }
+}
+
+/// Means of `values` over (2r+1)² windows clipped at the image edges, counting only pixels
+/// where `counted` holds; NaN where a window counts none. Integral images make each window
+/// O(1).
+pub(super) fn window_means(
+    values: &[f32],
+    counted: &[bool],
+    width: usize,
+    height: usize,
+    r: usize,
+) -> Vec<f32> {
     let (w1, h1) = (width + 1, height + 1);
     let mut sum = vec![0f64; w1 * h1];
     let mut count = vec![0u32; w1 * h1];
@@ -212,19 +238,17 @@ pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, he
         let (mut row_sum, mut row_count) = (0f64, 0u32);
         for x in 0..width {
             let p = y * width + x;
-            if valued(p) {
-                row_sum += f64::from(pass.residual[p]);
+            if counted[p] {
+                row_sum += f64::from(values[p]);
                 row_count += 1;
             }
             sum[(y + 1) * w1 + x + 1] = sum[y * w1 + x + 1] + row_sum;
             count[(y + 1) * w1 + x + 1] = count[y * w1 + x + 1] + row_count;
         }
     }
-    let r = ALIAS_WINDOW;
-    let flagged: Vec<usize> = (0..pass.order.len())
+    (0..values.len())
         .into_par_iter()
-        .filter(|&p| valued(p) && pass.order[p] >= top - ALIAS_RANGE)
-        .filter(|&p| {
+        .map(|p| {
             let (x, y) = (p % width, p / width);
             let (x0, y0, x1, y1) = (
                 x.saturating_sub(r),
@@ -235,12 +259,39 @@ pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, he
             let at = |xx: usize, yy: usize| yy * w1 + xx;
             let s = sum[at(x1, y1)] - sum[at(x0, y1)] - sum[at(x1, y0)] + sum[at(x0, y0)];
             let n = count[at(x1, y1)] + count[at(x0, y0)] - count[at(x0, y1)] - count[at(x1, y0)];
-            n > 0 && s / f64::from(n) > f64::from(limit)
+            if n == 0 {
+                f32::NAN
+            } else {
+                (s / f64::from(n)) as f32
+            }
         })
-        .collect();
-    for p in flagged {
-        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
-    }
+        .collect()
+}
+
+/// Colours washed out to the mean colour of high orders (`white`) say little about the order:
+/// such a region is as likely far past the table, or a crowd of fringes finer than a pixel, as
+/// a true order of the table. Valued pixels of order ≥ [`WASHED_OUT_FROM_ORDER`] whose whole
+/// (2·[`WASHED_OUT_WINDOW`]+1)² neighbourhood lies within [`WASHED_OUT_DISTANCE`] ΔE\*ab of it
+/// on average are flagged beyond range — the cautious reading. A ramp that merely passes
+/// through a greyish table colour keeps its value: its neighbours are coloured.
+pub(super) fn flag_washed_out(
+    pass: &mut Pass,
+    lab: &LabImage,
+    white: Lab,
+    inside: &[bool],
+    width: usize,
+    height: usize,
+) {
+    let distance: Vec<f32> = lab.data.par_iter().map(|c| delta_e_ab(*c, white)).collect();
+    let local = window_means(&distance, inside, width, height, WASHED_OUT_WINDOW);
+    pass.flags
+        .par_iter_mut()
+        .zip(pass.order.par_iter())
+        .zip(local.par_iter())
+        .filter(|((f, o), d)| {
+            f.0 == 0 && **o >= WASHED_OUT_FROM_ORDER && **d <= WASHED_OUT_DISTANCE
+        })
+        .for_each(|((f, _), _)| f.0 |= PixelFlags::BEYOND_RANGE);
 }
 
 /// Near the end of the table colours cannot tell whether the order still rises: valued pixels

@@ -68,6 +68,11 @@ enum Stage {
 /// tints that match some high table order only loosely; a region whose best match is worse
 /// than this, and that continues the top of the table, is taken as beyond range.
 const BEYOND_COST: f32 = 6.0;
+/// A pixel must lie this much closer (search distance) to the washed-out colour of high orders
+/// than to every table colour before *beyond range* is its cheaper reading.
+const WASHED_OUT_MARGIN: f32 = 1.0;
+/// Tables shorter than this (fringes) do not reach far enough to tell the washed-out colour.
+const WASHED_OUT_MIN_TABLE: f64 = 1.5;
 /// The *beyond range* cost is at least this multiple of the photo's median best match.
 const BEYOND_TO_TYPICAL: f32 = 4.0;
 /// Extra cost of a label that disagrees with a hint by more than [`HINT_TOLERANCE`] fringes.
@@ -156,14 +161,24 @@ fn solve_pass(
             .map(|l| l.cost[0])
             .filter(|c| c.is_finite())
             .collect();
-        if !best.is_empty() {
-            let typical = median_f32(&mut best);
-            let scaled = beyond_cost.max(BEYOND_TO_TYPICAL * typical);
-            labels
-                .par_iter_mut()
-                .filter(|l| l.cost[BEYOND].is_finite())
-                .for_each(|l| l.cost[BEYOND] = scaled);
-        }
+        let scaled = if best.is_empty() {
+            beyond_cost
+        } else {
+            beyond_cost.max(BEYOND_TO_TYPICAL * median_f32(&mut best))
+        };
+        // Far past the table the colours wash out to the table's mean colour over a fringe:
+        // a pixel that looks like it is cheaper to read as beyond range than the flat cost.
+        let white = washed_out_white(table, max_order);
+        labels
+            .par_iter_mut()
+            .zip(lab.data.par_iter())
+            .filter(|(l, _)| l.cost[BEYOND].is_finite())
+            .for_each(|(l, c)| {
+                let washed = white.map_or(f32::INFINITY, |w| {
+                    search.weighted_distance(*c, w) + WASHED_OUT_MARGIN
+                });
+                l.cost[BEYOND] = scaled.min(washed);
+            });
     }
     for hint in &options.hints {
         if let Some((x, y)) = hint.at.pixel(lab.width, lab.height) {
@@ -251,6 +266,9 @@ fn solve_pass(
     flag_steep_and_isolated(&mut pass, width, height, gradient);
     if stage == Stage::Final {
         repair_steep_edges(&mut pass, lab, table, max_order, width, height);
+        if let Some(white) = washed_out_white(table, max_order) {
+            flag_washed_out(&mut pass, lab, white, inside, width, height);
+        }
         flag_poor_high_matches(&mut pass, top, width, height);
         extend_beyond_range(&mut pass, top, width, height);
     }
@@ -266,6 +284,22 @@ fn clear_flagged(pass: &mut Pass) {
         .zip(pass.flags.par_iter())
         .filter(|(_, f)| f.0 != 0)
         .for_each(|(o, _)| *o = f32::NAN);
+}
+
+/// The colour orders far past the table wash out to, CIELAB (D65): the mean linear-light
+/// colour of the table's last fringe. Averaged over a whole fringe the dark-field transmission
+/// sin²(πNλ₀/λ) is ½ at every wavelength — which is also what a pixel spanning many fringes, or
+/// an order so high that the fringes of different wavelengths no longer line up, shows.
+/// `None` for tables shorter than [`WASHED_OUT_MIN_TABLE`].
+fn washed_out_white(table: &CalibrationTable, max_order: f64) -> Option<Lab> {
+    if max_order < WASHED_OUT_MIN_TABLE {
+        return None;
+    }
+    let steps = (1.0 / table.order_step).round() as usize;
+    let sum = (0..=steps)
+        .map(|k| linear_from_lab(table.colour_at(max_order - k as f64 * table.order_step)))
+        .fold(LinSrgb::new(0.0, 0.0, 0.0), |a, b| a + b);
+    Some(lab_from_linear(sum / (steps + 1) as f32))
 }
 
 /// Summary figures of a finished pass.

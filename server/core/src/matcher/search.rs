@@ -72,6 +72,13 @@ impl SearchTable {
         (self.len() - 1) as f64 * self.step
     }
 
+    /// Search distance between two colours (ΔE\*ab with ΔL\* weighted as in the search).
+    pub(super) fn weighted_distance(&self, a: Lab, b: Lab) -> f32 {
+        let dl = self.lightness_weight * (a.l - b.l);
+        let (da, db) = (a.a - b.a, a.b - b.b);
+        (dl * dl + da * da + db * db).sqrt()
+    }
+
     /// Squared search distance (cheaper for scanning; same minima).
     #[inline]
     pub(super) fn distance_sq(&self, c: Lab, i: usize) -> f32 {
