@@ -29,6 +29,10 @@ pub(super) const WASHED_OUT_WINDOW: usize = 3;
 pub(super) const WASHED_OUT_DISTANCE: f32 = 4.0;
 /// Orders below this are not taken for washed-out high orders (fringes).
 pub(super) const WASHED_OUT_FROM_ORDER: f32 = 2.0;
+/// The photo's typical residual is taken over orders at least this high (fringes): dark
+/// zero-order areas, and black background when no mask is given, match the table's black only
+/// loosely and would raise it until no alias is ever flagged.
+pub(super) const ALIAS_REFERENCE_MIN_ORDER: f32 = 0.5;
 /// How many pixel layers that rule may spread.
 pub(super) const TOP_GUARD_LAYERS: usize = 4;
 /// Radius of the final order smoothing window, pixels.
@@ -197,13 +201,14 @@ pub(super) fn repair_steep_edges(
 /// table's top whose colours match it markedly worse than the photo does elsewhere is more
 /// likely an alias of orders beyond the table than a true value: such pixels (order within
 /// [`ALIAS_RANGE`] of the top, mean residual over a (2·[`ALIAS_WINDOW`]+1)² window above
-/// [`ALIAS_RESIDUAL_RATIO`] × the photo's median residual) are flagged beyond range — the
-/// cautious reading, since beyond range means higher stress.
+/// [`ALIAS_RESIDUAL_RATIO`] × the median residual over orders ≥
+/// [`ALIAS_REFERENCE_MIN_ORDER`]) are flagged beyond range — the cautious reading, since
+/// beyond range means higher stress.
 pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, height: usize) {
     let valued = |p: usize| pass.flags[p].0 == 0 && pass.residual[p].is_finite();
     let mut sample: Vec<f32> = (0..pass.order.len())
         .step_by((pass.order.len() / 50_000).max(1))
-        .filter(|&p| valued(p))
+        .filter(|&p| valued(p) && pass.order[p] >= ALIAS_REFERENCE_MIN_ORDER)
         .map(|p| pass.residual[p])
         .collect();
     if sample.is_empty() {
