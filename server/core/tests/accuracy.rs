@@ -155,9 +155,17 @@ fn run(c: Conditions, specimen: &dyn OrderField, size: (u32, u32)) -> Score {
 }
 
 fn disc() -> DiscField {
+    disc_scaled(1.0)
+}
+
+/// The test disc drawn `scale` times larger (same load, same orders).
+fn disc_scaled(scale: f64) -> DiscField {
     DiscField::new(
-        PixelPoint { x: 180.0, y: 180.0 },
-        160.0,
+        PixelPoint {
+            x: 180.0 * scale,
+            y: 180.0 * scale,
+        },
+        160.0 * scale,
         DiscInCompression::new(40.0, THICKNESS, 700.0).unwrap(),
         FRINGE_VALUE,
     )
@@ -165,10 +173,18 @@ fn disc() -> DiscField {
 }
 
 fn plate() -> HoleField {
+    plate_scaled(1.0)
+}
+
+/// The test plate drawn `scale` times larger (same load, same orders).
+fn plate_scaled(scale: f64) -> HoleField {
     let law = StressOpticLaw::new(FRINGE_VALUE, THICKNESS).unwrap();
     HoleField::new(
-        PixelPoint { x: 200.0, y: 150.0 },
-        45.0,
+        PixelPoint {
+            x: 200.0 * scale,
+            y: 150.0 * scale,
+        },
+        45.0 * scale,
         PlateWithHole::new(6.0, law.stress_difference_mpa(1.2)).unwrap(),
         law,
     )
@@ -195,10 +211,25 @@ fn check(name: &str, c: Conditions) {
 }
 
 fn check_against(name: &str, c: Conditions, disc_limits: &Limits, plate_limits: &Limits) {
-    for (what, score, limits) in [
-        ("disc", run(c, &disc(), (360, 360)), disc_limits),
-        ("plate", run(c, &plate(), (400, 300)), plate_limits),
-    ] {
+    check_parts(
+        name,
+        c,
+        [
+            ("disc", &disc(), (360, 360), disc_limits),
+            ("plate", &plate(), (400, 300), plate_limits),
+        ],
+    );
+}
+
+/// Maps each part (name, field, photo size, limits) under conditions `c`, prints its score
+/// and checks it against its limits.
+fn check_parts(
+    name: &str,
+    c: Conditions,
+    parts: [(&str, &dyn OrderField, (u32, u32), &Limits); 2],
+) {
+    for (what, field, size, limits) in parts {
+        let score = run(c, field, size);
         println!(
             "{name:<24} {what:<5} scored {:>6}  MAE {:.4}  >0.5 {:.3}% (all slopes {:.3}%)  coverage {:.2}% (all slopes {:.2}%)",
             score.scored,
@@ -400,5 +431,45 @@ fn a_disc_loaded_far_past_the_table_is_flagged_beyond_range_not_read_as_its_top(
         band_share > 0.9,
         "only {:.1} % of the pixels with N ≤ 4 got a value",
         100.0 * band_share
+    );
+}
+
+/// Photos above one megapixel are labelled on block means and refined at full resolution,
+/// where pixels next to the mask's edge are interpolated from the valued blocks alone: the same
+/// parts drawn four times larger (1440 × 1440 disc, 1600 × 1200 plate) must meet the targets.
+#[test]
+fn photos_above_a_megapixel_mapped_on_block_means_meet_the_accuracy_targets() {
+    let c = Conditions {
+        light: LightSource::Halogen,
+        camera: CameraModel::Sensor,
+        noise: 1.0,
+        ..BASE
+    };
+    check_parts(
+        "block means",
+        c,
+        [
+            ("disc", &disc_scaled(4.0), (1440, 1440), &TARGETS),
+            ("plate", &plate_scaled(4.0), (1600, 1200), &TARGETS),
+        ],
+    );
+}
+
+/// JPEG's 4:2:0 chroma costs coverage where fringes lie a few pixels apart; drawn four times
+/// larger, the disc's fringes are four times wider and JPEG quality 90 meets the targets too.
+#[test]
+fn jpeg_photos_above_a_megapixel_meet_the_accuracy_targets() {
+    let c = Conditions {
+        noise: 1.0,
+        encoding: PhotoEncoding::Jpeg { quality: 90 },
+        ..BASE
+    };
+    check_parts(
+        "block means, jpeg 90",
+        c,
+        [
+            ("disc", &disc_scaled(4.0), (1440, 1440), &TARGETS),
+            ("plate", &plate_scaled(4.0), (1600, 1200), &TARGETS),
+        ],
     );
 }

@@ -398,6 +398,11 @@ fn statistics(pass: &Pass) -> MapStatistics {
     }
 }
 
+/// A full-resolution pixel next to blocks without a value is refined from the valued ones if
+/// they carry at least this share of its interpolation weight.
+const PARTIAL_WEIGHT: f32 = 0.25;
+/// ... searching this much further (fringes) around the value interpolated from them.
+const PARTIAL_REACH: f32 = 0.1;
 /// Photos up to this many pixels are labelled at full resolution; larger ones on block means.
 const FULL_RESOLUTION_LIMIT: u64 = 1_000_000;
 /// A first exposure fit this close to no correction needs no second round.
@@ -651,31 +656,40 @@ fn refine_full_resolution(
                     (y1 * cw + x0, (1.0 - tx) * ty),
                     (y1 * cw + x1, tx * ty),
                 ];
-                // Only where every block the value is interpolated from has one: next to a flagged
-                // block the field is too uncertain to refine.
-                if corners
+                // Next to a block beyond range the pixel is too (the cautious reading). Next to
+                // blocks without a value (the mask's edge, unreliable blocks) the value is
+                // interpolated from the valued blocks alone, searched a little wider.
+                let beyond = corners
                     .iter()
-                    .any(|(c, wgt)| *wgt > 0.0 && valued[*c].is_nan())
-                {
+                    .any(|(c, wgt)| *wgt > 0.0 && coarse.flags[*c].has(PixelFlags::BEYOND_RANGE));
+                let (mut sum, mut weight, mut lo, mut hi, mut best_margin) = (
+                    0.0,
+                    0.0,
+                    f32::INFINITY,
+                    f32::NEG_INFINITY,
+                    f32::NEG_INFINITY,
+                );
+                for &(c, wgt) in &corners {
+                    if wgt > 0.0 && !valued[c].is_nan() {
+                        sum += wgt * valued[c];
+                        weight += wgt;
+                        lo = lo.min(valued[c]);
+                        hi = hi.max(valued[c]);
+                        best_margin = best_margin.max(coarse.margin[c]);
+                    }
+                }
+                let partial = weight < 0.999;
+                if beyond || weight < PARTIAL_WEIGHT {
                     let nearest = nearest_row + if tx < 0.5 { x0 } else { x1 };
-                    flags[x].0 = if coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
+                    flags[x].0 = if beyond || coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
                         PixelFlags::BEYOND_RANGE
                     } else {
                         PixelFlags::UNRELIABLE
                     };
                     continue;
                 }
-                let (mut predicted, mut lo, mut hi, mut best_margin) =
-                    (0.0, f32::INFINITY, f32::NEG_INFINITY, f32::NEG_INFINITY);
-                for &(c, wgt) in &corners {
-                    if wgt > 0.0 {
-                        predicted += wgt * valued[c];
-                        lo = lo.min(valued[c]);
-                        hi = hi.max(valued[c]);
-                        best_margin = best_margin.max(coarse.margin[c]);
-                    }
-                }
-                let reach = 0.05 + (hi - lo);
+                let predicted = sum / weight;
+                let reach = 0.05 + (hi - lo) + if partial { PARTIAL_REACH } else { 0.0 };
                 let colour = colours[x];
                 // Both ends are ≥ 0: truncation is floor, and + 1 rounds up.
                 let from = ((predicted - reach).max(0.0) / fine_step) as usize;
