@@ -25,8 +25,10 @@ pub(super) const ALIAS_RESIDUAL_RATIO: f32 = 2.5;
 pub(super) const ALIAS_RESIDUAL_MIN: f32 = 2.5;
 /// Half-width of the window of the washed-out test, pixels.
 pub(super) const WASHED_OUT_WINDOW: usize = 3;
-/// Mean ΔE\*ab from the washed-out colour below which a neighbourhood counts as washed out.
+/// Largest ΔE\*ab between a washed-out neighbourhood's mean colour and that of high orders.
 pub(super) const WASHED_OUT_DISTANCE: f32 = 4.0;
+/// Largest mean ΔE\*ab of the single colours of a washed-out neighbourhood from that colour.
+pub(super) const WASHED_OUT_SPREAD: f32 = 10.0;
 /// Orders below this are not taken for washed-out high orders (fringes).
 pub(super) const WASHED_OUT_FROM_ORDER: f32 = 2.0;
 /// The photo's typical residual is taken over orders at least this high (fringes): dark
@@ -275,10 +277,11 @@ pub(super) fn window_means(
 
 /// Colours washed out to the mean colour of high orders (`white`) say little about the order:
 /// such a region is as likely far past the table, or a crowd of fringes finer than a pixel, as
-/// a true order of the table. Valued pixels of order ≥ [`WASHED_OUT_FROM_ORDER`] whose whole
-/// (2·[`WASHED_OUT_WINDOW`]+1)² neighbourhood lies within [`WASHED_OUT_DISTANCE`] ΔE\*ab of it
-/// on average are flagged beyond range — the cautious reading. A ramp that merely passes
-/// through a greyish table colour keeps its value: its neighbours are coloured.
+/// a true order of the table. Valued pixels of order ≥ [`WASHED_OUT_FROM_ORDER`] are flagged
+/// beyond range — the cautious reading — where, over their (2·[`WASHED_OUT_WINDOW`]+1)²
+/// neighbourhood, the mean colour lies within [`WASHED_OUT_DISTANCE`] ΔE\*ab of `white` (noise
+/// averages out) and the colours themselves stay within [`WASHED_OUT_SPREAD`] of it on average
+/// (a ramp through many vivid colours can average to grey; it keeps its values).
 pub(super) fn flag_washed_out(
     pass: &mut Pass,
     lab: &LabImage,
@@ -287,16 +290,23 @@ pub(super) fn flag_washed_out(
     width: usize,
     height: usize,
 ) {
+    let component = |f: fn(&Lab) -> f32| {
+        let values: Vec<f32> = lab.data.iter().map(f).collect();
+        window_means(&values, inside, width, height, WASHED_OUT_WINDOW)
+    };
+    let (l, a, b) = (component(|c| c.l), component(|c| c.a), component(|c| c.b));
     let distance: Vec<f32> = lab.data.par_iter().map(|c| delta_e_ab(*c, white)).collect();
-    let local = window_means(&distance, inside, width, height, WASHED_OUT_WINDOW);
+    let spread = window_means(&distance, inside, width, height, WASHED_OUT_WINDOW);
     pass.flags
         .par_iter_mut()
-        .zip(pass.order.par_iter())
-        .zip(local.par_iter())
-        .filter(|((f, o), d)| {
-            f.0 == 0 && **o >= WASHED_OUT_FROM_ORDER && **d <= WASHED_OUT_DISTANCE
+        .enumerate()
+        .filter(|(p, f)| {
+            f.0 == 0
+                && pass.order[*p] >= WASHED_OUT_FROM_ORDER
+                && spread[*p] <= WASHED_OUT_SPREAD
+                && delta_e_ab(Lab::new(l[*p], a[*p], b[*p]), white) <= WASHED_OUT_DISTANCE
         })
-        .for_each(|((f, _), _)| f.0 |= PixelFlags::BEYOND_RANGE);
+        .for_each(|(_, f)| f.0 |= PixelFlags::BEYOND_RANGE);
 }
 
 /// Near the end of the table colours cannot tell whether the order still rises: valued pixels

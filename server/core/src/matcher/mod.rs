@@ -287,15 +287,16 @@ fn clear_flagged(pass: &mut Pass) {
 }
 
 /// The colour orders far past the table wash out to, CIELAB (D65): the mean linear-light
-/// colour of the table's last fringe. Averaged over a whole fringe the dark-field transmission
-/// sin²(πNλ₀/λ) is ½ at every wavelength — which is also what a pixel spanning many fringes, or
-/// an order so high that the fringes of different wavelengths no longer line up, shows.
-/// `None` for tables shorter than [`WASHED_OUT_MIN_TABLE`].
+/// colour of the table over its last whole fringes (as many as it holds). Averaged over whole
+/// fringes the dark-field transmission sin²(πNλ₀/λ) tends to ½ at every wavelength — the more
+/// fringes, the closer — which is also what a pixel spanning many fringes, or an order so high
+/// that the fringes of different wavelengths no longer line up, shows. `None` for tables
+/// shorter than [`WASHED_OUT_MIN_TABLE`].
 fn washed_out_white(table: &CalibrationTable, max_order: f64) -> Option<Lab> {
     if max_order < WASHED_OUT_MIN_TABLE {
         return None;
     }
-    let steps = (1.0 / table.order_step).round() as usize;
+    let steps = (max_order.floor() / table.order_step).round() as usize;
     let sum = (0..=steps)
         .map(|k| linear_from_lab(table.colour_at(max_order - k as f64 * table.order_step)))
         .fold(LinSrgb::new(0.0, 0.0, 0.0), |a, b| a + b);
