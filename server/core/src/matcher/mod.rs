@@ -73,6 +73,9 @@ const BEYOND_COST: f32 = 6.0;
 const WASHED_OUT_MARGIN: f32 = 1.0;
 /// Tables shorter than this (fringes) do not reach far enough to tell the washed-out colour.
 const WASHED_OUT_MIN_TABLE: f64 = 1.5;
+/// How much darker (L\*) than the table's last fringe a pixel may be and still be read as
+/// beyond the table.
+const BEYOND_DARKER: f32 = 15.0;
 /// The *beyond range* cost is at least this multiple of the photo's median best match.
 const BEYOND_TO_TYPICAL: f32 = 4.0;
 /// Extra cost of a label that disagrees with a hint by more than [`HINT_TOLERANCE`] fringes.
@@ -169,6 +172,7 @@ fn solve_pass(
         // Far past the table the colours wash out to the table's mean colour over a fringe:
         // a pixel that looks like it is cheaper to read as beyond range than the flat cost.
         let white = washed_out_white(table, max_order);
+        let darkest = darkest_beyond(table, max_order);
         labels
             .par_iter_mut()
             .zip(lab.data.par_iter())
@@ -177,7 +181,11 @@ fn solve_pass(
                 let washed = white.map_or(f32::INFINITY, |w| {
                     search.weighted_distance(*c, w) + WASHED_OUT_MARGIN
                 });
-                l.cost[BEYOND] = scaled.min(washed);
+                l.cost[BEYOND] = if c.l < darkest {
+                    f32::INFINITY
+                } else {
+                    scaled.min(washed)
+                };
             });
     }
     for hint in &options.hints {
@@ -301,6 +309,17 @@ fn washed_out_white(table: &CalibrationTable, max_order: f64) -> Option<Lab> {
         .map(|k| linear_from_lab(table.colour_at(max_order - k as f64 * table.order_step)))
         .fold(LinSrgb::new(0.0, 0.0, 0.0), |a, b| a + b);
     Some(lab_from_linear(sum / (steps + 1) as f32))
+}
+
+/// Least CIELAB lightness L\* a pixel past the end of the table can have: past the table
+/// colours only grow paler, so nothing much darker than the table's last fringe is beyond it
+/// (dark zero-order areas darker than the calibration's own black stay with the table).
+fn darkest_beyond(table: &CalibrationTable, max_order: f64) -> f32 {
+    let steps = (1.0f64.min(max_order) / table.order_step).round() as usize;
+    (0..=steps)
+        .map(|k| table.colour_at(max_order - k as f64 * table.order_step).l)
+        .fold(f32::INFINITY, f32::min)
+        - BEYOND_DARKER
 }
 
 /// Summary figures of a finished pass.
