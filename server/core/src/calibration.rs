@@ -268,7 +268,7 @@ impl CalibrationTable {
             region
                 .validate()
                 .map_err(|e| CoreError::Table(format!("source.{e}")))?;
-            if !(edge_order.is_finite() && *edge_order > 0.0) || !residual_de2000.is_finite() {
+            if !(edge_order.is_finite() && *edge_order > 0.0 && residual_de2000.is_finite()) {
                 return fail("source.edge_order and source.residual_de2000 must be finite, edge_order positive".into());
             }
         }

@@ -277,6 +277,14 @@ fn csv(map: &OrderMap) -> Vec<u8> {
     out
 }
 
+/// NPY version 1.0 bytes of an unsigned 8-bit array of shape (rows, cols), C order — used for
+/// the per-pixel [`PixelFlags`] bits.
+pub fn npy_u8(values: &[u8], rows: usize, cols: usize) -> Vec<u8> {
+    let mut out = npy_header("|u1", rows, cols, values.len());
+    out.extend_from_slice(values);
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -310,12 +318,4 @@ mod tests {
         );
         assert!(OutputFormat::from_path("m.jpg").is_err());
     }
-}
-
-/// NPY version 1.0 bytes of an unsigned 8-bit array of shape (rows, cols), C order — used for
-/// the per-pixel [`PixelFlags`] bits.
-pub fn npy_u8(values: &[u8], rows: usize, cols: usize) -> Vec<u8> {
-    let mut out = npy_header("|u1", rows, cols, values.len());
-    out.extend_from_slice(values);
-    out
 }

@@ -223,9 +223,12 @@ fn check_against(name: &str, c: Conditions, disc_limits: &Limits, plate_limits: 
     );
 }
 
+/// A part to map: name, field, photo size (pixels) and the limits its score must meet.
+type Part<'a> = (&'a str, &'a dyn OrderField, (u32, u32), &'a Limits);
+
 /// Maps each part (name, field, photo size, limits) under conditions `c`, prints its score
 /// and checks it against its limits.
-fn check_parts(name: &str, c: Conditions, parts: &[(&str, &dyn OrderField, (u32, u32), &Limits)]) {
+fn check_parts(name: &str, c: Conditions, parts: &[Part]) {
     for &(what, field, size, limits) in parts {
         let score = run(c, field, size);
         println!(
@@ -358,78 +361,115 @@ fn quarter_wave_plates_exact_only_at_520_nm_meet_the_accuracy_targets() {
     );
 }
 
-/// Far past the end of the table the colours wash out to grey. A disc loaded to about ten
-/// fringes at its centre must come out flagged beyond range there, not read as the table's last
-/// fringe (an under-read by a factor of two or more), while its rim keeps its values.
+/// Past the end of the table the colours repeat in paler form and, far past it, wash out to
+/// grey. A disc loaded to 7 or 10 fringes at its centre (table up to 4.4) must come out flagged
+/// beyond range there, not read as the table's upper fringes (an under-read), while its rim
+/// keeps its values — also in JPEG, 15 % darker, with vignetting.
 #[test]
-fn a_disc_loaded_far_past_the_table_is_flagged_beyond_range_not_read_as_its_top() {
+fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
     // source: Timoshenko & Goodier, disc in diametral compression: centre σ1 − σ2 = 8P/(πDh),
-    // so N = 8P/(πD·f_σ) = 10.0 fringes for P = 1728 N, D = 40 mm, f_σ = 11 N/mm.
-    let disc = DiscField::new(
-        PixelPoint { x: 180.0, y: 180.0 },
-        160.0,
-        DiscInCompression::new(40.0, THICKNESS, 1728.0).unwrap(),
-        FRINGE_VALUE,
-    )
-    .unwrap();
-    let renderer = Renderer::new(RenderSetup {
-        light: LightSource::Halogen,
-        camera: CameraModel::Sensor,
-        plates: QuarterWavePlates::Ideal,
-        exposure: 0.9,
-    })
-    .unwrap();
-    let fx = PhotoEffects {
+    // so N = 8P/(πD·f_σ): 10.0 fringes for P = 1728 N and 6.9 for P = 1200 N, with
+    // D = 40 mm and f_σ = 11 N/mm.
+    let darker_jpeg = PhotoEffects {
+        blur_sigma_px: 0.7,
+        noise_sigma_codes: 1.5,
+        exposure: 0.85,
+        corner_brightness: 0.85,
+        seed: 9,
+    };
+    let clean = PhotoEffects {
         blur_sigma_px: 0.6,
         noise_sigma_codes: 1.0,
         seed: 4,
         ..PhotoEffects::default()
     };
-    let table = photographed_beam_table(
-        &renderer,
-        &fx,
-        PhotoEncoding::Png8,
-        CalibrationMetadata {
-            name: "far past the table".into(),
-            ..Default::default()
-        },
-    )
-    .unwrap();
-    let (specimen, truth, mask) = photo(&disc, &renderer, (360, 360), &fx, PhotoEncoding::Png8);
-    let map = map_orders(&specimen, &table, Some(&mask), &MapOptions::default()).unwrap();
-    let top = table.max_order() as f32;
-    let scored = mask.eroded(3);
-    let (mut past, mut past_valued, mut band, mut band_valued) = (0, 0, 0, 0);
-    for (i, t) in truth.iter().enumerate() {
-        if !scored.as_slice()[i] || !t.is_finite() {
-            continue;
+    for (name, load, light, encoding, fx) in [
+        (
+            "N 10, halogen, png",
+            1728.0,
+            LightSource::Halogen,
+            PhotoEncoding::Png8,
+            clean,
+        ),
+        (
+            "N 6.9, daylight, jpeg 92, 15 % darker, vignetting",
+            1200.0,
+            LightSource::Daylight,
+            PhotoEncoding::Jpeg { quality: 92 },
+            darker_jpeg,
+        ),
+    ] {
+        let disc = DiscField::new(
+            PixelPoint { x: 300.0, y: 300.0 },
+            280.0,
+            DiscInCompression::new(40.0, THICKNESS, load).unwrap(),
+            FRINGE_VALUE,
+        )
+        .unwrap();
+        let renderer = Renderer::new(RenderSetup {
+            light,
+            camera: CameraModel::Sensor,
+            plates: QuarterWavePlates::Ideal,
+            exposure: 0.9,
+        })
+        .unwrap();
+        let beam_fx = PhotoEffects {
+            exposure: 1.0,
+            corner_brightness: 1.0,
+            ..fx
+        };
+        let table = photographed_beam_table(
+            &renderer,
+            &beam_fx,
+            encoding,
+            CalibrationMetadata {
+                name: "past the table".into(),
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let (specimen, truth, mask) = photo(&disc, &renderer, (600, 600), &fx, encoding);
+        let map = map_orders(&specimen, &table, Some(&mask), &MapOptions::default()).unwrap();
+        let top = table.max_order() as f32;
+        let scored = mask.eroded(3);
+        let (mut past, mut past_valued, mut band, mut band_valued) = (0, 0, 0, 0);
+        for (i, t) in truth.iter().enumerate() {
+            if !scored.as_slice()[i] || !t.is_finite() {
+                continue;
+            }
+            let valued = map.order[i].is_finite();
+            if *t > top + 0.5 {
+                past += 1;
+                past_valued += usize::from(valued);
+            } else if *t <= 4.0 {
+                band += 1;
+                band_valued += usize::from(valued);
+            }
         }
-        let valued = map.order[i].is_finite();
-        if *t > top + 0.5 {
-            past += 1;
-            past_valued += usize::from(valued);
-        } else if *t <= 4.0 {
-            band += 1;
-            band_valued += usize::from(valued);
-        }
+        let past_share = past_valued as f64 / past as f64;
+        let band_share = band_valued as f64 / band as f64;
+        println!(
+            "{name}: more than 0.5 past the table {past} px, {:.2} % valued; N ≤ 4: {band} px, {:.2} % valued",
+            100.0 * past_share,
+            100.0 * band_share
+        );
+        assert!(
+            past > 20_000,
+            "{name}: too few pixels past the table ({past})"
+        );
+        // Measured 0.00 % and 3.2 %. Before the washed-out and unanchored-region rules a
+        // 360-px disc at N 10 had 93 % of them valued, and the second case 25–29 %.
+        assert!(
+            past_share < 0.05,
+            "{name}: {:.1} % of the pixels past the table got a value",
+            100.0 * past_share
+        );
+        assert!(
+            band_share > 0.95,
+            "{name}: only {:.1} % of the pixels with N ≤ 4 got a value",
+            100.0 * band_share
+        );
     }
-    let past_share = past_valued as f64 / past as f64;
-    let band_share = band_valued as f64 / band as f64;
-    println!("past the table: {past} px, {past_share:.4} valued; N ≤ 4: {band} px, {band_share:.4} valued");
-    assert!(
-        past > 30_000,
-        "the disc should be largely past the table ({past} px)"
-    );
-    assert!(
-        past_share < 0.02,
-        "{:.1} % of the pixels past the table got a value",
-        100.0 * past_share
-    );
-    assert!(
-        band_share > 0.9,
-        "only {:.1} % of the pixels with N ≤ 4 got a value",
-        100.0 * band_share
-    );
 }
 
 /// Photos above one megapixel are labelled on block means and refined at full resolution,

@@ -21,7 +21,7 @@ fn beam_truth() -> Vec<f64> {
         .flat_map(|y| {
             (0..W).map(move |x| {
                 let yc = f64::from(y) + 0.5;
-                if x < 20 || x >= 240 || yc < TOP || yc > BOTTOM {
+                if !(20..240).contains(&x) || !(TOP..=BOTTOM).contains(&yc) {
                     f64::NAN
                 } else {
                     EDGE * (yc - mid).abs() / (0.5 * (BOTTOM - TOP))

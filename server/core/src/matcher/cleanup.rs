@@ -37,6 +37,9 @@ pub(super) const WASHED_OUT_FROM_ORDER: f32 = 2.0;
 pub(super) const ALIAS_REFERENCE_MIN_ORDER: f32 = 0.5;
 /// How many pixel layers that rule may spread.
 pub(super) const TOP_GUARD_LAYERS: usize = 4;
+/// A region bordering on beyond-range pixels whose orders all lie within this many fringes of
+/// the table's top is taken as an alias of orders past the table.
+pub(super) const UNANCHORED_DEPTH: f32 = 1.5;
 /// Radius of the final order smoothing window, pixels.
 pub(super) const SMOOTH_RADIUS: usize = 2;
 /// Valued regions (connected without jumps) smaller than this share of the specimen are
@@ -55,7 +58,7 @@ pub(super) fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usi
         .par_chunks_mut(width)
         .enumerate()
         .for_each(|(y, row)| {
-            for x in 0..width {
+            for (x, flags) in row.iter_mut().enumerate() {
                 let p = y * width + x;
                 if !valued(p) {
                     continue;
@@ -65,7 +68,7 @@ pub(super) fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usi
                     .map(|q| (order[q] - order[p]).abs())
                     .fold(0f32, f32::max);
                 if steepest > 1.5 * gradient {
-                    row[x].0 |= PixelFlags::UNRELIABLE;
+                    flags.0 |= PixelFlags::UNRELIABLE;
                 }
             }
         });
@@ -76,30 +79,78 @@ pub(super) fn flag_steep_and_isolated(pass: &mut Pass, width: usize, height: usi
         .filter(|f| !f.has(PixelFlags::OUTSIDE_MASK))
         .count();
     let min_size = ((specimen as f64 * ISLAND_SHARE) as usize).max(ISLAND_MIN_PIXELS);
+    let small: Vec<usize> = valued_regions(pass, width, height, jump)
+        .into_iter()
+        .filter(|region| region.len() < min_size)
+        .flatten()
+        .collect();
+    for p in small {
+        pass.flags[p].0 |= PixelFlags::UNRELIABLE;
+    }
+}
+
+/// The valued regions of a pass: 4-connected valued pixels, joined where neighbours differ by
+/// at most `jump` fringes.
+pub(super) fn valued_regions(
+    pass: &Pass,
+    width: usize,
+    height: usize,
+    jump: f32,
+) -> Vec<Vec<usize>> {
+    let order = &pass.order;
+    let valued = |p: usize| pass.flags[p].0 == 0;
     let mut seen = vec![false; order.len()];
     let mut stack = Vec::new();
-    let mut island = Vec::new();
+    let mut regions = Vec::new();
     for start in 0..order.len() {
-        if seen[start] || pass.flags[start].0 != 0 {
+        if seen[start] || !valued(start) {
             continue;
         }
         seen[start] = true;
         stack.push(start);
-        island.clear();
+        let mut region = Vec::new();
         while let Some(p) = stack.pop() {
-            island.push(p);
+            region.push(p);
             for q in neighbours4(p % width, p / width, width, height) {
-                if !seen[q] && pass.flags[q].0 == 0 && (order[q] - order[p]).abs() <= jump {
+                if !seen[q] && valued(q) && (order[q] - order[p]).abs() <= jump {
                     seen[q] = true;
                     stack.push(q);
                 }
             }
         }
-        if island.len() < min_size {
-            for &p in &island {
-                pass.flags[p].0 |= PixelFlags::UNRELIABLE;
-            }
-        }
+        regions.push(region);
+    }
+    regions
+}
+
+/// A valued region that never comes down to the lower orders of the table and borders on
+/// *beyond range* pixels has nothing to anchor it: orders past the table alias into the
+/// table's upper fringes, and within closed loops of higher orders (a disc's centre, a contact
+/// zone) whole regions can read so. Regions whose lowest order lies within
+/// [`UNANCHORED_DEPTH`] fringes of the table's top and that touch beyond-range pixels are
+/// flagged beyond range too — the cautious reading.
+pub(super) fn flag_unanchored_high_regions(
+    pass: &mut Pass,
+    top: f32,
+    width: usize,
+    height: usize,
+    gradient: f32,
+) {
+    let flagged: Vec<usize> = valued_regions(pass, width, height, 2.5 * gradient)
+        .into_iter()
+        .filter(|region| {
+            region
+                .iter()
+                .all(|&p| pass.order[p] >= top - UNANCHORED_DEPTH)
+                && region.iter().any(|&p| {
+                    neighbours4(p % width, p / width, width, height)
+                        .any(|q| pass.flags[q].has(PixelFlags::BEYOND_RANGE))
+                })
+        })
+        .flatten()
+        .collect();
+    for p in flagged {
+        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
     }
 }
 

@@ -278,6 +278,7 @@ fn solve_pass(
             flag_washed_out(&mut pass, lab, white, inside, width, height);
         }
         flag_poor_high_matches(&mut pass, top, width, height);
+        flag_unanchored_high_regions(&mut pass, top, width, height, gradient);
         extend_beyond_range(&mut pass, top, width, height);
     }
     smooth(&mut pass, width, height, gradient);
