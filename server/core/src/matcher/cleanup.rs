@@ -128,10 +128,12 @@ pub(super) fn valued_regions(
 /// table's upper fringes, and within closed loops of higher orders (a disc's centre, a contact
 /// zone) whole regions can read so. Regions whose lowest order lies within
 /// [`UNANCHORED_DEPTH`] fringes of the table's top and that touch beyond-range pixels are
-/// flagged beyond range too — the cautious reading.
+/// flagged beyond range too — the cautious reading — unless they hold a hinted pixel
+/// (`hinted`, row-major indices): a hint of known order anchors its region.
 pub(super) fn flag_unanchored_high_regions(
     pass: &mut Pass,
     top: f32,
+    hinted: &[usize],
     width: usize,
     height: usize,
     gradient: f32,
@@ -141,7 +143,7 @@ pub(super) fn flag_unanchored_high_regions(
         .filter(|region| {
             region
                 .iter()
-                .all(|&p| pass.order[p] >= top - UNANCHORED_DEPTH)
+                .all(|&p| pass.order[p] >= top - UNANCHORED_DEPTH && !hinted.contains(&p))
                 && region.iter().any(|&p| {
                     neighbours4(p % width, p / width, width, height)
                         .any(|q| pass.flags[q].has(PixelFlags::BEYOND_RANGE))

@@ -188,12 +188,14 @@ fn solve_pass(
                 };
             });
     }
+    let mut hinted = Vec::new();
     for hint in &options.hints {
         if let Some((x, y)) = hint.at.pixel(lab.width, lab.height) {
             let p = y as usize * width + x as usize;
             if !inside[p] {
                 continue;
             }
+            hinted.push(p);
             let l = &mut labels[p];
             // Make sure the hinted order is a candidate, then penalise every label far from it.
             let (hint_order, hint_cost) = {
@@ -278,7 +280,7 @@ fn solve_pass(
             flag_washed_out(&mut pass, lab, white, inside, width, height);
         }
         flag_poor_high_matches(&mut pass, top, width, height);
-        flag_unanchored_high_regions(&mut pass, top, width, height, gradient);
+        flag_unanchored_high_regions(&mut pass, top, &hinted, width, height, gradient);
         extend_beyond_range(&mut pass, top, width, height);
     }
     smooth(&mut pass, width, height, gradient);
