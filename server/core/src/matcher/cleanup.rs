@@ -565,6 +565,47 @@ mod tests {
     }
 
     #[test]
+    fn upper_fringe_regions_next_to_beyond_range_are_flagged_unless_low_orders_or_a_hint_anchor_them(
+    ) {
+        // 12 × 4 pixels: columns 0–1 beyond range; columns 2–11 a gentle ramp.
+        let (width, height, top, gradient) = (12, 4, 4.4, 0.2);
+        let pass_with = |lowest: f32| {
+            let n = width * height;
+            let mut pass = Pass {
+                order: (0..n)
+                    .map(|p| lowest + 0.05 * (11 - p % width) as f32)
+                    .collect(),
+                residual: vec![1.0; n],
+                margin: vec![1.0; n],
+                flags: vec![PixelFlags::default(); n],
+            };
+            for y in 0..height {
+                for x in 0..2 {
+                    pass.flags[y * width + x].0 = PixelFlags::BEYOND_RANGE;
+                }
+            }
+            pass
+        };
+        let beyond = |pass: &Pass| {
+            (0..width * height)
+                .filter(|&p| p % width >= 2 && pass.flags[p].has(PixelFlags::BEYOND_RANGE))
+                .count()
+        };
+        // Orders 3.9–4.35 only: nothing anchors them.
+        let mut upper = pass_with(3.9);
+        flag_unanchored_high_regions(&mut upper, top, &[], width, height, gradient);
+        assert_eq!(beyond(&upper), 10 * height);
+        // The same with a hint inside.
+        let mut hinted = pass_with(3.9);
+        flag_unanchored_high_regions(&mut hinted, top, &[width + 6], width, height, gradient);
+        assert_eq!(beyond(&hinted), 0);
+        // A ramp that comes down to 2.0 is anchored by its low orders.
+        let mut anchored = pass_with(2.0);
+        flag_unanchored_high_regions(&mut anchored, top, &[], width, height, gradient);
+        assert_eq!(beyond(&anchored), 0);
+    }
+
+    #[test]
     fn separable_smoothing_matches_the_naive_window_mean() {
         use rand::{Rng, SeedableRng};
         let (width, height) = (70, 45);
