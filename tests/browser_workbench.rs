@@ -1,8 +1,9 @@
 //! The browser workbench in a real headless browser: starts the service in-process on
 //! 127.0.0.1 with a fresh SQLite database, writes the demo photos with `isotint demo`, then runs
 //! `node tests/browser/workbench.mjs BASE_URL DEMO_DIR`, which drives Debian's Chromium through
-//! playwright-core (calibrate from the beam photo, analyse the disc photo, hover, profile,
-//! download the NPY map).
+//! playwright-core (calibrate from the beam photo, estimate its edge order from the colours and
+//! see a refused estimate explained, analyse the disc photo, hover, profile, download the NPY
+//! map).
 //!
 //! Needs /usr/bin/chromium, node and `tests/browser/node_modules` (see [`INSTALL`]). Without
 //! them the test fails when the environment variable `CI` is set and is skipped otherwise.

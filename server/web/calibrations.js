@@ -12,6 +12,10 @@ export const CHANGED = 'isotint:calibrations-changed';
 
 const SOURCES = { beam_photo: 'beam photo', rendered: 'rendered from light source and camera data' };
 
+// The ways to give the order at the beam edges (the value of the "cf-load" radios) and the part of
+// the form each one shows.
+const LOAD_PANELS = { edge: 'cf-edge-fields', load: 'cf-load-fields', estimate: 'cf-estimate-caution' };
+
 // A link to another calibration (for "replaces" and "replaced by"), or undefined.
 function calibrationLink(id) {
   if (!id) return undefined;
@@ -192,8 +196,36 @@ function fillValues(tbody, entries) {
   );
 }
 
-// The "new calibration" form: photo, constant-moment zone, edge order or load, description, a
-// dry run that shows the fit, then saving.
+// Words for a confidence of the edge-order estimate: a fair one is marked as a warning.
+function confidenceNode(confidence) {
+  const span = document.createElement('span');
+  if (confidence === 'fair') {
+    span.className = 'warning';
+    span.textContent = 'fair: the runner-up is not far behind, so confirm the edge order against a known load';
+  } else {
+    span.textContent = confidence;
+  }
+  return span;
+}
+
+// The edge-order estimate of a check, if the service made one (else the part is hidden).
+function showEstimate(estimate) {
+  $('cf-estimate').hidden = !estimate;
+  if (!estimate) return;
+  const rival = estimate.runner_up;
+  fillDl($('cf-estimate-values'), [
+    ['Estimated edge order', fmt(estimate.edge_order, 3)],
+    ['Confidence', confidenceNode(estimate.confidence)],
+    ['Runner-up', rival
+      ? `edge order ${fmt(rival.edge_order, 3)}, fits ${fmt(estimate.cost_ratio, 1)} times worse`
+      : 'none found'],
+    ['Best-fitting reference', `light source ${estimate.light}, camera model ${estimate.camera} (mean ΔE*ab ${fmt(estimate.cost_de_ab)})`],
+  ]);
+  $('cf-estimate-statement').textContent = estimate.statement;
+}
+
+// The "new calibration" form: photo, constant-moment zone, edge order (given, from the load or
+// estimated from the colours), description, a dry run that shows the fit, then saving.
 class NewCalibrationForm {
   constructor() {
     this.el = $('cal-form');
@@ -312,10 +344,14 @@ class NewCalibrationForm {
     this.view.draw();
   }
 
+  // How the order at the beam edges is given: 'edge', 'load' or 'estimate'.
+  loadChoice() {
+    return this.el.querySelector('input[name="cf-load"]:checked').value;
+  }
+
   showLoadFields() {
-    const byLoad = this.el.querySelector('input[name="cf-load"]:checked').value === 'load';
-    $('cf-edge-fields').hidden = byLoad;
-    $('cf-load-fields').hidden = !byLoad;
+    const choice = this.loadChoice();
+    for (const [value, id] of Object.entries(LOAD_PANELS)) $(id).hidden = value !== choice;
   }
 
   // Any change after a dry run means the fit shown no longer matches: saving needs a new check.
@@ -335,10 +371,13 @@ class NewCalibrationForm {
       throw new Error('The zone needs right > left and bottom > top: drag a rectangle on the photo.');
     }
     const spec = { name, region, refine_edges: $('cf-refine').checked, dry_run: dryRun };
-    if (this.el.querySelector('input[name="cf-load"]:checked').value === 'load') {
+    const load = this.loadChoice();
+    if (load === 'load') {
       spec.moment_n_mm = requiredNumber($('cf-moment'), { positive: true });
       spec.depth_mm = requiredNumber($('cf-depth'), { positive: true });
       spec.fringe_value_n_per_mm = requiredNumber($('cf-fringe-value'), { positive: true });
+    } else if (load === 'estimate') {
+      spec.estimate_edge_order = true;
     } else {
       spec.edge_order = requiredNumber($('cf-edge-order'), { positive: true });
     }
@@ -413,6 +452,7 @@ class NewCalibrationForm {
       ['Edges moved by', shift ? `top ${fmt(shift.top_px, 1)} px, bottom ${fmt(shift.bottom_px, 1)} px` : ''],
       ['Implied material fringe value', report.fringe_value_n_per_mm != null ? `${fmt(report.fringe_value_n_per_mm, 2)} N/mm per fringe` : ''],
     ]);
+    showEstimate(report.edge_order_estimate);
     this.strip.show(table);
   }
 
