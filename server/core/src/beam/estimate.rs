@@ -359,11 +359,11 @@ pub(crate) fn estimate_from_rows(
         _ => "no other edge order fits in a separate minimum".to_string(),
     };
     let statement = format!(
-        "Edge order {:.2} estimated from the beam's colour sequence (best match: {} light, {} \
-         camera, mean ΔE*ab {:.2}); {rival}; confidence {}. This is {ESTIMATE_CAUTION}.",
+        "Edge order {:.2} estimated from the beam's colour sequence (best match: {}, {}, mean \
+         ΔE*ab {:.2}); {rival}; confidence {}. This is {ESTIMATE_CAUTION}.",
         best.edge_order,
-        setup.light.name(),
-        setup.camera.name(),
+        setup.light.description(),
+        setup.camera.description(),
         best.fit.cost,
         confidence.name()
     );

@@ -43,6 +43,14 @@ impl CameraModel {
     /// Every camera model, in a fixed order.
     pub const ALL: [CameraModel; 2] = [CameraModel::Colorimetric, CameraModel::Sensor];
 
+    /// A few words for people.
+    pub fn description(self) -> &'static str {
+        match self {
+            CameraModel::Colorimetric => "ideal colorimetric camera (CIE 1931 observer)",
+            CameraModel::Sensor => "typical colour sensor (Gaussian RGB channels)",
+        }
+    }
+
     /// Our short name, as stored in calibration tables: `cie1931` or `gaussian-sensor`.
     pub fn name(self) -> &'static str {
         match self {
