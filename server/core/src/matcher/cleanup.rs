@@ -159,20 +159,21 @@ pub(super) fn flag_unanchored_high_regions(
 /// Grows values into flagged pixels next to valued ones, layer by layer: a plane fitted to the
 /// valued pixels around predicts the order and its gradient G; the pixel's colour must then
 /// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
-/// fringes blur within a pixel, within a window of the prediction. What does not match stays
-/// flagged.
+/// fringes blur within a pixel, within a window of the prediction. Predictions above `ceiling`
+/// (fringes) are not grown. What does not match stays flagged.
 pub(super) fn repair_steep_edges(
     pass: &mut Pass,
     lab: &LabImage,
     table: &CalibrationTable,
     max_order: f64,
+    ceiling: f64,
     width: usize,
     height: usize,
 ) {
     let r = 2i64;
     for _ in 0..REPAIR_LAYERS {
-        let order = pass.order.clone();
-        let flags = pass.flags.clone();
+        // Read-only while a layer is worked out; its updates are applied afterwards.
+        let (order, flags) = (&pass.order, &pass.flags);
         let valued = |q: usize| flags[q].0 == 0;
         let updates: Vec<(usize, f32, f32)> = (0..order.len())
             .into_par_iter()
@@ -213,7 +214,7 @@ pub(super) fn repair_steep_edges(
                     [sn, sxn, syn],
                 )?;
                 let g = bx.hypot(by);
-                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > max_order - 0.05 {
+                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > ceiling {
                     return None;
                 }
                 let reach = 0.05 + 0.5 * g;

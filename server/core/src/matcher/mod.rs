@@ -275,13 +275,33 @@ fn solve_pass(
         );
     flag_steep_and_isolated(&mut pass, width, height, gradient);
     if stage == Stage::Final {
-        repair_steep_edges(&mut pass, lab, table, max_order, width, height);
+        repair_steep_edges(
+            &mut pass,
+            lab,
+            table,
+            max_order,
+            max_order - 0.05,
+            width,
+            height,
+        );
         if let Some(white) = washed_out_white(table, max_order) {
             flag_washed_out(&mut pass, lab, white, inside, width, height);
         }
         flag_poor_high_matches(&mut pass, top, width, height);
         flag_unanchored_high_regions(&mut pass, top, &hinted, width, height, gradient);
         extend_beyond_range(&mut pass, top, width, height);
+        // A second repair after the guards, for pixels the guards flagged that continue the
+        // lower orders around them: anchored by their valued neighbours, kept well below the
+        // table's top, where aliases cannot come from.
+        repair_steep_edges(
+            &mut pass,
+            lab,
+            table,
+            max_order,
+            max_order - SECOND_REPAIR_BELOW_TOP,
+            width,
+            height,
+        );
     }
     smooth(&mut pass, width, height, gradient);
     clear_flagged(&mut pass);
@@ -426,6 +446,9 @@ fn statistics(pass: &Pass) -> MapStatistics {
 const PARTIAL_WEIGHT: f32 = 0.25;
 /// ... searching this much further (fringes) around the value interpolated from them.
 const PARTIAL_REACH: f32 = 0.1;
+/// The repair after the beyond-range guards only grows orders at least this far (fringes)
+/// below the table's top.
+const SECOND_REPAIR_BELOW_TOP: f64 = 1.0;
 /// Photos up to this many pixels are labelled at full resolution; larger ones on block means.
 const FULL_RESOLUTION_LIMIT: u64 = 1_000_000;
 /// A first exposure fit this close to no correction needs no second round.
