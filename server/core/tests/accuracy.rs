@@ -288,11 +288,12 @@ fn fluorescent_tube_light_meets_the_accuracy_targets() {
     );
 }
 
-/// JPEG does not meet the coverage target on the disc yet: around its load points 4:2:0 chroma
-/// blurs the steep fringes and more pixels are flagged (coverage ≈ 96–97 %). The mean error
-/// and gross-error targets are met; the coverage limit records the level reached.
+/// The small JPEG disc does not meet the coverage target yet: around its load points the
+/// fringes lie a few pixels apart, 4:2:0 chroma blurs them and more pixels are flagged
+/// (coverage 98.4–98.7 %). The mean error and gross-error targets are met; the coverage limit
+/// records the level reached.
 const JPEG_DISC_REACHED: Limits = Limits {
-    coverage: 0.95,
+    coverage: 0.98,
     ..TARGETS
 };
 

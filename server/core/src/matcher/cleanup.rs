@@ -10,8 +10,21 @@ pub(super) const REPAIR_MAX_GRADIENT: f64 = 0.35;
 /// Footprint widths tried by the repair, pixels: one pixel, and two for the 2 × 2 colour
 /// blocks of JPEG's 4:2:0 chroma subsampling.
 pub(super) const REPAIR_FOOTPRINTS: [f64; 2] = [1.0, 2.0];
-/// Largest ΔE\*ab between a repaired pixel and its footprint-averaged table colour.
+/// How far the steep-edge repair may go.
+#[derive(Clone, Copy)]
+pub(super) struct RepairLimits {
+    /// Highest order grown, fringes.
+    pub(super) ceiling: f64,
+    /// Largest ΔE\*ab between a repaired pixel and its footprint-averaged table colour.
+    pub(super) residual: f32,
+}
+
+/// Largest ΔE\*ab of the first repair, before the beyond-range guards.
 pub(super) const REPAIR_RESIDUAL: f32 = 6.0;
+/// Largest ΔE\*ab of the second repair, after the guards: it grows only from valued
+/// neighbours and well below the table's top, where aliases cannot come from, so it may accept
+/// the poorer matches of compressed steep fringes.
+pub(super) const SECOND_REPAIR_RESIDUAL: f32 = 12.0;
 /// Orders this close to the top of the table (fringes) next to *beyond range* pixels are
 /// taken as beyond range too.
 pub(super) const TOP_GUARD: f32 = 0.25;
@@ -159,14 +172,14 @@ pub(super) fn flag_unanchored_high_regions(
 /// Grows values into flagged pixels next to valued ones, layer by layer: a plane fitted to the
 /// valued pixels around predicts the order and its gradient G; the pixel's colour must then
 /// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
-/// fringes blur within a pixel, within a window of the prediction. Predictions above `ceiling`
-/// (fringes) are not grown. What does not match stays flagged.
+/// fringes blur within a pixel, within a window of the prediction. Predictions above
+/// `limits.ceiling` are not grown; matches worse than `limits.residual` stay flagged.
 pub(super) fn repair_steep_edges(
     pass: &mut Pass,
     lab: &LabImage,
     table: &CalibrationTable,
     max_order: f64,
-    ceiling: f64,
+    limits: RepairLimits,
     width: usize,
     height: usize,
 ) {
@@ -214,7 +227,7 @@ pub(super) fn repair_steep_edges(
                     [sn, sxn, syn],
                 )?;
                 let g = bx.hypot(by);
-                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > ceiling {
+                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > limits.ceiling {
                     return None;
                 }
                 let reach = 0.05 + 0.5 * g;
@@ -239,7 +252,7 @@ pub(super) fn repair_steep_edges(
                         (n, delta_e_ab(colour, footprint(n, width)))
                     })
                     .min_by(|u, v| u.1.total_cmp(&v.1))?;
-                (best_d < REPAIR_RESIDUAL).then_some((p, best_n as f32, best_d))
+                (best_d < limits.residual).then_some((p, best_n as f32, best_d))
             })
             .collect();
         if updates.is_empty() {

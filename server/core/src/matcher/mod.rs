@@ -275,15 +275,11 @@ fn solve_pass(
         );
     flag_steep_and_isolated(&mut pass, width, height, gradient);
     if stage == Stage::Final {
-        repair_steep_edges(
-            &mut pass,
-            lab,
-            table,
-            max_order,
-            max_order - 0.05,
-            width,
-            height,
-        );
+        let first = RepairLimits {
+            ceiling: max_order - 0.05,
+            residual: REPAIR_RESIDUAL,
+        };
+        repair_steep_edges(&mut pass, lab, table, max_order, first, width, height);
         if let Some(white) = washed_out_white(table, max_order) {
             flag_washed_out(&mut pass, lab, white, inside, width, height);
         }
@@ -293,15 +289,11 @@ fn solve_pass(
         // A second repair after the guards, for pixels the guards flagged that continue the
         // lower orders around them: anchored by their valued neighbours, kept well below the
         // table's top, where aliases cannot come from.
-        repair_steep_edges(
-            &mut pass,
-            lab,
-            table,
-            max_order,
-            max_order - SECOND_REPAIR_BELOW_TOP,
-            width,
-            height,
-        );
+        let second = RepairLimits {
+            ceiling: max_order - SECOND_REPAIR_BELOW_TOP,
+            residual: SECOND_REPAIR_RESIDUAL,
+        };
+        repair_steep_edges(&mut pass, lab, table, max_order, second, width, height);
     }
     smooth(&mut pass, width, height, gradient);
     clear_flagged(&mut pass);
