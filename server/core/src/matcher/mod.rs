@@ -15,12 +15,13 @@
 //!    (`cleanup`): poor colour match, too small an ambiguity margin, too steep a field, jumps
 //!    and small islands make a pixel *unreliable*; the winning label *beyond range* flags it
 //!    as such. Values are then grown into steep edges against the table averaged over the
-//!    pixel footprint, high orders that match markedly worse than the rest of the photo (likely
-//!    aliases of orders past the table) and high orders next to beyond-range pixels are
-//!    flagged beyond range, and a 5 × 5 mean that keeps ramps exact smooths the result.
+//!    pixel footprint; the beyond-range guards follow (washed-out neighbourhoods, high orders
+//!    that match markedly worse than the rest of the photo, upper-fringe regions nothing
+//!    anchors, high orders next to beyond-range pixels); a second repair grows values back
+//!    well below the table's top, and a 5 × 5 mean that keeps ramps exact smooths the result.
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
 //!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
-//!    pass on a ≤ 0.5-megapixel image, in up to two rounds.
+//!    pass on a ≤ 0.15-megapixel image, in up to two rounds.
 //! 5. **Large photos** are labelled on block means (≤ 1 megapixel) and refined at full
 //!    resolution near the interpolated order.
 //!
@@ -142,6 +143,7 @@ fn solve_pass(
     let top = search.max_order() as f32;
     let gradient = options.max_gradient as f32;
     let beyond_order = top + 2.0 * gradient;
+    let white = washed_out_white(table, max_order);
 
     let mut labels: Vec<Labels> = lab
         .data
@@ -169,9 +171,8 @@ fn solve_pass(
         } else {
             beyond_cost.max(BEYOND_TO_TYPICAL * median_f32(&mut best))
         };
-        // Far past the table the colours wash out to the table's mean colour over a fringe:
-        // a pixel that looks like it is cheaper to read as beyond range than the flat cost.
-        let white = washed_out_white(table, max_order);
+        // Far past the table the colours wash out to grey (`white`): a pixel that looks like it
+        // is cheaper to read as beyond range than the flat cost.
         let darkest = darkest_beyond(table, max_order);
         labels
             .par_iter_mut()
@@ -280,7 +281,7 @@ fn solve_pass(
             residual: REPAIR_RESIDUAL,
         };
         repair_steep_edges(&mut pass, lab, table, max_order, first, width, height);
-        if let Some(white) = washed_out_white(table, max_order) {
+        if let Some(white) = white {
             flag_washed_out(&mut pass, lab, white, inside, width, height);
         }
         flag_poor_high_matches(&mut pass, top, width, height);
@@ -319,27 +320,37 @@ fn washed_out_white(table: &CalibrationTable, max_order: f64) -> Option<Lab> {
     if max_order < WASHED_OUT_MIN_TABLE {
         return None;
     }
-    let steps = (max_order.floor() / table.order_step).round() as usize;
-    let sum = (0..=steps)
-        .map(|k| linear_from_lab(table.colour_at(max_order - k as f64 * table.order_step)))
+    let colours: Vec<Lab> = last_fringes(table, max_order, max_order.floor()).collect();
+    let sum = colours
+        .iter()
+        .map(|c| linear_from_lab(*c))
         .fold(LinSrgb::new(0.0, 0.0, 0.0), |a, b| a + b);
-    Some(lab_from_linear(sum / (steps + 1) as f32))
+    Some(lab_from_linear(sum / colours.len() as f32))
 }
 
 /// Least CIELAB lightness L\* a pixel past the end of the table can have: past the table
 /// colours only grow paler, so nothing much darker than the table's last fringe is beyond it
 /// (dark zero-order areas darker than the calibration's own black stay with the table).
 fn darkest_beyond(table: &CalibrationTable, max_order: f64) -> f32 {
-    let steps = (1.0f64.min(max_order) / table.order_step).round() as usize;
-    (0..=steps)
-        .map(|k| table.colour_at(max_order - k as f64 * table.order_step).l)
+    last_fringes(table, max_order, 1.0f64.min(max_order))
+        .map(|c| c.l)
         .fold(f32::INFINITY, f32::min)
         - BEYOND_DARKER
 }
 
+/// The table's colours on its own grid from `max_order` down over `span` fringes.
+fn last_fringes(
+    table: &CalibrationTable,
+    max_order: f64,
+    span: f64,
+) -> impl Iterator<Item = Lab> + '_ {
+    let steps = (span / table.order_step).round() as usize;
+    (0..=steps).map(move |k| table.colour_at(max_order - k as f64 * table.order_step))
+}
+
 /// Summary figures of a finished pass.
 fn statistics(pass: &Pass) -> MapStatistics {
-    /// Sums over one chunk of pixels.
+    /// Sums over some of the pixels.
     #[derive(Default)]
     struct Part {
         specimen: u64,
@@ -351,6 +362,15 @@ fn statistics(pass: &Pass) -> MapStatistics {
         max: f64,
         res: f64,
     }
+    impl Part {
+        fn empty() -> Part {
+            Part {
+                min: f64::INFINITY,
+                max: f64::NEG_INFINITY,
+                ..Part::default()
+            }
+        }
+    }
     // Fixed chunks, summed in order: the figures do not depend on the thread count.
     const CHUNK: usize = 1 << 16;
     let parts: Vec<Part> = pass
@@ -359,11 +379,7 @@ fn statistics(pass: &Pass) -> MapStatistics {
         .zip(pass.residual.par_chunks(CHUNK))
         .zip(pass.flags.par_chunks(CHUNK))
         .map(|((order, residual), flags)| {
-            let mut part = Part {
-                min: f64::INFINITY,
-                max: f64::NEG_INFINITY,
-                ..Part::default()
-            };
+            let mut part = Part::empty();
             for ((o, r), f) in order.iter().zip(residual).zip(flags) {
                 part.specimen += u64::from(!f.has(PixelFlags::OUTSIDE_MASK));
                 part.beyond += u64::from(f.has(PixelFlags::BEYOND_RANGE));
@@ -380,11 +396,7 @@ fn statistics(pass: &Pass) -> MapStatistics {
             part
         })
         .collect();
-    let mut all = Part {
-        min: f64::INFINITY,
-        max: f64::NEG_INFINITY,
-        ..Part::default()
-    };
+    let mut all = Part::empty();
     for part in parts {
         all.specimen += part.specimen;
         all.beyond += part.beyond;
@@ -680,7 +692,6 @@ fn refine_full_resolution(
                     .map(|(x, c)| lab_from_linear(exposure.apply(*c, x, y, width, height))),
             );
             let (y0, y1, ty) = rows_at[y];
-            let nearest_row = if ty < 0.5 { y0 } else { y1 } * cw;
             for x in 0..w {
                 let i = y * w + x;
                 if mask.is_some_and(|m| !m.as_slice()[i]) {
@@ -718,8 +729,7 @@ fn refine_full_resolution(
                 }
                 let partial = weight < 0.999;
                 if beyond || weight < PARTIAL_WEIGHT {
-                    let nearest = nearest_row + if tx < 0.5 { x0 } else { x1 };
-                    flags[x].0 = if beyond || coarse.flags[nearest].has(PixelFlags::BEYOND_RANGE) {
+                    flags[x].0 = if beyond {
                         PixelFlags::BEYOND_RANGE
                     } else {
                         PixelFlags::UNRELIABLE
