@@ -7,9 +7,41 @@ use super::*;
 pub(super) const REPAIR_LAYERS: usize = 12;
 /// Steepest field the repair accepts, fringes per pixel.
 pub(super) const REPAIR_MAX_GRADIENT: f64 = 0.35;
-/// Footprint widths tried by the repair, pixels: one pixel, and two for the 2 × 2 colour
-/// blocks of JPEG's 4:2:0 chroma subsampling.
-pub(super) const REPAIR_FOOTPRINTS: [f64; 2] = [1.0, 2.0];
+/// How wide a stretch of the field (pixels, across the fringes) a pixel's colour averages:
+/// its lightness over one width, its chroma (a\*, b\*) over another.
+#[derive(Clone, Copy)]
+pub(super) struct Footprint {
+    pub(super) lightness: f64,
+    pub(super) chroma: f64,
+}
+
+/// Footprints every repair tries: one pixel, and two for the 2 × 2 colour blocks of JPEG's
+/// 4:2:0 chroma subsampling.
+pub(super) const PIXEL_FOOTPRINTS: [Footprint; 2] = [
+    Footprint {
+        lightness: 1.0,
+        chroma: 1.0,
+    },
+    Footprint {
+        lightness: 2.0,
+        chroma: 2.0,
+    },
+];
+/// JPEG's 4:2:0 chroma, stored on 2 × 2 blocks and interpolated back when decoded, averages
+/// the colour over about three pixels, while lightness keeps full resolution (two pixels with
+/// the lens blur). Tried by the second repair only, where orders are at least
+/// [`SUBSAMPLED_CHROMA_MIN_ORDER`] (below that colours are greys and chroma tells nothing)
+/// and the chroma footprint spans at most [`SUBSAMPLED_CHROMA_MAX_SPAN`].
+pub(super) const SUBSAMPLED_CHROMA: Footprint = Footprint {
+    lightness: 2.0,
+    chroma: 3.0,
+};
+/// Lowest predicted order (fringes) at which the subsampled-chroma footprint is tried.
+pub(super) const SUBSAMPLED_CHROMA_MIN_ORDER: f64 = 0.5;
+/// Widest stretch of the field (fringes) the subsampled-chroma footprint may average: wider
+/// mixes say too little about the order.
+pub(super) const SUBSAMPLED_CHROMA_MAX_SPAN: f64 = 0.6;
+
 /// How far the steep-edge repair may go.
 #[derive(Clone, Copy)]
 pub(super) struct RepairLimits {
@@ -17,6 +49,8 @@ pub(super) struct RepairLimits {
     pub(super) ceiling: f64,
     /// Largest ΔE\*ab between a repaired pixel and its footprint-averaged table colour.
     pub(super) residual: f32,
+    /// Whether [`SUBSAMPLED_CHROMA`] is tried besides the [`PIXEL_FOOTPRINTS`].
+    pub(super) subsampled_chroma: bool,
 }
 
 /// Largest ΔE\*ab of the first repair, before the beyond-range guards.
@@ -234,22 +268,30 @@ pub(super) fn repair_steep_edges(
                 let colour = lab.data[p];
                 let lo = ((a - reach).max(0.0) / table.order_step).floor() as usize;
                 let hi = ((a + reach).min(max_order) / table.order_step).ceil() as usize;
-                // Mean table colour over a footprint `width` pixels wide across the fringes.
-                let footprint = |n: f64, width: f64| {
+                // Mean table colour over a footprint across the fringes.
+                let averaged = |n: f64, footprint: Footprint| {
                     let mut acc = [0f32; 3];
                     for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
-                        let c = table.colour_at((n + g * width * u).clamp(0.0, max_order));
-                        acc[0] += c.l / 5.0;
+                        let at =
+                            |width: f64| table.colour_at((n + g * width * u).clamp(0.0, max_order));
+                        let (l, c) = (at(footprint.lightness), at(footprint.chroma));
+                        acc[0] += l.l / 5.0;
                         acc[1] += c.a / 5.0;
                         acc[2] += c.b / 5.0;
                     }
                     Lab::new(acc[0], acc[1], acc[2])
                 };
+                let subsampled = limits.subsampled_chroma
+                    && a >= SUBSAMPLED_CHROMA_MIN_ORDER
+                    && g * SUBSAMPLED_CHROMA.chroma <= SUBSAMPLED_CHROMA_MAX_SPAN;
+                let footprints = PIXEL_FOOTPRINTS
+                    .iter()
+                    .chain(subsampled.then_some(&SUBSAMPLED_CHROMA));
                 let (best_n, best_d) = (lo..=hi)
-                    .flat_map(|i| REPAIR_FOOTPRINTS.map(|width| (i, width)))
-                    .map(|(i, width)| {
+                    .flat_map(|i| footprints.clone().map(move |f| (i, *f)))
+                    .map(|(i, footprint)| {
                         let n = i as f64 * table.order_step;
-                        (n, delta_e_ab(colour, footprint(n, width)))
+                        (n, delta_e_ab(colour, averaged(n, footprint)))
                     })
                     .min_by(|u, v| u.1.total_cmp(&v.1))?;
                 (best_d < limits.residual).then_some((p, best_n as f32, best_d))
