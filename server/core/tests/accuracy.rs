@@ -328,6 +328,22 @@ fn vignetting_to_eighty_percent_in_the_corners_meets_the_accuracy_targets() {
     );
 }
 
+/// Both drifts at once: the corners of the specimen photo get 0.8 × 0.8 = 64 % of the
+/// calibration's light. Before the preliminary pass compared exposure-invariant chroma, the
+/// exposure fit found no vignetting here and 35 % of the plate read a fringe too high.
+#[test]
+fn a_photo_twenty_percent_darker_with_vignetting_meets_the_accuracy_targets() {
+    check(
+        "20% darker, vignetting",
+        Conditions {
+            specimen_exposure: 0.8,
+            corner_brightness: 0.8,
+            noise: 1.0,
+            ..BASE
+        },
+    );
+}
+
 #[test]
 fn quarter_wave_plates_exact_only_at_520_nm_meet_the_accuracy_targets() {
     check(
@@ -436,7 +452,7 @@ fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
             past > 20_000,
             "{name}: too few pixels past the table ({past})"
         );
-        // Measured 0.00 % and 3.2 %. Before the washed-out and unanchored-region rules a
+        // Measured 0.00 % and 0.62 %. Before the washed-out and unanchored-region rules a
         // 360-px disc at N 10 had 93 % of them valued, and the second case 25–29 %.
         assert!(
             past_share < 0.05,

@@ -11,8 +11,8 @@ pub(super) const REPAIR_MAX_GRADIENT: f64 = 0.35;
 /// its lightness over one width, its chroma (a\*, b\*) over another.
 #[derive(Clone, Copy)]
 pub(super) struct Footprint {
-    pub(super) lightness: f64,
-    pub(super) chroma: f64,
+    pub(super) lightness: f32,
+    pub(super) chroma: f32,
 }
 
 /// Footprints every repair tries: one pixel, and two for the 2 × 2 colour blocks of JPEG's
@@ -40,7 +40,7 @@ pub(super) const SUBSAMPLED_CHROMA: Footprint = Footprint {
 pub(super) const SUBSAMPLED_CHROMA_MIN_ORDER: f64 = 0.5;
 /// Widest stretch of the field (fringes) the subsampled-chroma footprint may average: wider
 /// mixes say too little about the order.
-pub(super) const SUBSAMPLED_CHROMA_MAX_SPAN: f64 = 0.6;
+pub(super) const SUBSAMPLED_CHROMA_MAX_SPAN: f32 = 0.6;
 
 /// How far the steep-edge repair may go.
 #[derive(Clone, Copy)]
@@ -211,21 +211,28 @@ pub(super) fn flag_unanchored_high_regions(
 pub(super) fn repair_steep_edges(
     pass: &mut Pass,
     lab: &LabImage,
-    table: &CalibrationTable,
-    max_order: f64,
+    fine: &SearchTable,
     limits: RepairLimits,
     width: usize,
     height: usize,
 ) {
     let r = 2i64;
+    let growable =
+        |flags: &[PixelFlags], p: usize| flags[p].0 != 0 && !flags[p].has(PixelFlags::OUTSIDE_MASK);
+    // The first layer tries every flagged pixel; later ones only those near a pixel the layer
+    // before gave a value: elsewhere nothing around has changed, nor would the outcome.
+    let mut candidates: Vec<usize> = (0..pass.order.len())
+        .into_par_iter()
+        .filter(|&p| growable(&pass.flags, p))
+        .collect();
+    let mut queued = vec![false; pass.order.len()];
     for _ in 0..REPAIR_LAYERS {
         // Read-only while a layer is worked out; its updates are applied afterwards.
         let (order, flags) = (&pass.order, &pass.flags);
         let valued = |q: usize| flags[q].0 == 0;
-        let updates: Vec<(usize, f32, f32)> = (0..order.len())
-            .into_par_iter()
-            .filter(|&p| !flags[p].has(PixelFlags::OUTSIDE_MASK) && !valued(p))
-            .filter_map(|p| {
+        let updates: Vec<(usize, f32, f32)> = candidates
+            .par_iter()
+            .filter_map(|&p| {
                 let (x, y) = ((p % width) as i64, (p / width) as i64);
                 // Least-squares plane n = a + bx·dx + by·dy through valued pixels around.
                 let (mut s1, mut sx, mut sy, mut sxx, mut syy, mut sxy) =
@@ -266,15 +273,20 @@ pub(super) fn repair_steep_edges(
                 }
                 let reach = 0.05 + 0.5 * g;
                 let colour = lab.data[p];
-                let lo = ((a - reach).max(0.0) / table.order_step).floor() as usize;
-                let hi = ((a + reach).min(max_order) / table.order_step).ceil() as usize;
+                let lo = ((a - reach).max(0.0) / fine.step).floor() as usize;
+                let hi = (((a + reach) / fine.step).ceil() as usize).min(fine.len() - 1);
+                let g = g as f32;
                 // Mean table colour over a footprint across the fringes.
-                let averaged = |n: f64, footprint: Footprint| {
+                let averaged = |n: f32, footprint: Footprint| {
                     let mut acc = [0f32; 3];
                     for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
-                        let at =
-                            |width: f64| table.colour_at((n + g * width * u).clamp(0.0, max_order));
-                        let (l, c) = (at(footprint.lightness), at(footprint.chroma));
+                        let at = |width: f32| fine.colour_at(n + g * width * u);
+                        let l = at(footprint.lightness);
+                        let c = if footprint.chroma == footprint.lightness {
+                            l
+                        } else {
+                            at(footprint.chroma)
+                        };
                         acc[0] += l.l / 5.0;
                         acc[1] += c.a / 5.0;
                         acc[2] += c.b / 5.0;
@@ -290,20 +302,36 @@ pub(super) fn repair_steep_edges(
                 let (best_n, best_d) = (lo..=hi)
                     .flat_map(|i| footprints.clone().map(move |f| (i, *f)))
                     .map(|(i, footprint)| {
-                        let n = i as f64 * table.order_step;
+                        let n = (i as f64 * fine.step) as f32;
                         (n, delta_e_ab(colour, averaged(n, footprint)))
                     })
                     .min_by(|u, v| u.1.total_cmp(&v.1))?;
-                (best_d < limits.residual).then_some((p, best_n as f32, best_d))
+                (best_d < limits.residual).then_some((p, best_n, best_d))
             })
             .collect();
         if updates.is_empty() {
             break;
         }
-        for (p, n, d) in updates {
+        for &(p, n, d) in &updates {
             pass.order[p] = n;
             pass.residual[p] = d;
             pass.flags[p] = PixelFlags::default();
+        }
+        candidates.clear();
+        for &(p, _, _) in &updates {
+            let (x, y) = ((p % width) as i64, (p / width) as i64);
+            for ny in (y - r).max(0)..=(y + r).min(height as i64 - 1) {
+                for nx in (x - r).max(0)..=(x + r).min(width as i64 - 1) {
+                    let q = ny as usize * width + nx as usize;
+                    if !queued[q] && growable(&pass.flags, q) {
+                        queued[q] = true;
+                        candidates.push(q);
+                    }
+                }
+            }
+        }
+        for &q in &candidates {
+            queued[q] = false;
         }
     }
 }

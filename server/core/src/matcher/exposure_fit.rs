@@ -2,6 +2,31 @@
 
 use super::*;
 
+/// Lightness (L\*) below which [`exposure_invariant`] stops scaling chroma up, so that the
+/// noise of near-black pixels is not magnified more than about three times.
+pub(super) const INVARIANT_MIN_LIGHTNESS: f32 = 20.0;
+
+/// CIELAB with a\* and b\* taken relative to lightness: a\*·116/(L\*+16), b\*·116/(L\*+16),
+/// L\* kept. Multiplying linear light by k multiplies L\*+16, a\* and b\* alike by k^(1/3)
+/// (CIELAB's cube-root segment, L\* above 8), so these a\*, b\* do not change with exposure
+/// or vignetting. The preliminary pass that feeds the exposure fit compares colours in this
+/// form; below [`INVARIANT_MIN_LIGHTNESS`] the scale stays at its value there.
+pub(super) fn exposure_invariant(c: Lab) -> Lab {
+    let scale = 116.0 / (c.l.max(INVARIANT_MIN_LIGHTNESS) + 16.0);
+    Lab::new(c.l, c.a * scale, c.b * scale)
+}
+
+/// `table` with every entry's colour put through [`exposure_invariant`].
+pub(super) fn exposure_invariant_table(table: &CalibrationTable) -> CalibrationTable {
+    let mut invariant = table.clone();
+    for entry in &mut invariant.entries {
+        let [l, a, b] = entry.lab;
+        let c = exposure_invariant(Lab::new(l, a, b));
+        entry.lab = [c.l, c.a, c.b];
+    }
+    invariant
+}
+
 /// Least CIELAB chroma of the table colour of a pixel used in the exposure fit.
 pub(super) const FIT_MIN_CHROMA: f32 = 20.0;
 /// Fits the exposure correction on confident pixels of a first pass.
@@ -110,4 +135,38 @@ pub(super) fn fit_exposure(
 pub(super) fn median_f32(v: &mut [f32]) -> f32 {
     let k = v.len() / 2;
     *v.select_nth_unstable_by(k, f32::total_cmp).1
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn exposure_invariant_chroma_does_not_change_when_linear_light_is_scaled() {
+        // source: CIE 15 definition of CIELAB: above Y/Yn = (6/29)³, L* + 16 = 116·(Y/Yn)^(1/3)
+        // and a*, b* are differences of cube roots, so scaling X, Y, Z by k scales all three
+        // by k^(1/3).
+        for c in [
+            LinSrgb::new(0.30f32, 0.12, 0.55),
+            LinSrgb::new(0.05, 0.40, 0.20),
+            LinSrgb::new(0.60, 0.45, 0.08),
+        ] {
+            let bright = exposure_invariant(lab_from_linear(c));
+            for k in [0.5f32, 0.8, 1.3] {
+                let scaled = exposure_invariant(lab_from_linear(c * k));
+                assert!(
+                    (scaled.a - bright.a).abs() < 0.05,
+                    "{k}: {scaled:?} vs {bright:?}"
+                );
+                assert!(
+                    (scaled.b - bright.b).abs() < 0.05,
+                    "{k}: {scaled:?} vs {bright:?}"
+                );
+                assert!(
+                    (scaled.l - bright.l).abs() > 1.0,
+                    "lightness itself changes"
+                );
+            }
+        }
+    }
 }

@@ -22,7 +22,9 @@
 //!    subsampled chroma, and a 5 × 5 mean that keeps ramps exact smooths the result.
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
 //!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
-//!    pass on a ≤ 0.15-megapixel image, in up to two rounds.
+//!    pass on a ≤ 0.15-megapixel image, in up to two rounds. That pass compares chroma
+//!    relative to lightness (`exposure_invariant`), which exposure and vignetting leave
+//!    unchanged, so that a photo both darker and vignetted still finds its orders.
 //! 5. **Large photos** are labelled on block means (≤ 1 megapixel) and refined at full
 //!    resolution near the interpolated order.
 //!
@@ -282,7 +284,7 @@ fn solve_pass(
             residual: REPAIR_RESIDUAL,
             subsampled_chroma: false,
         };
-        repair_steep_edges(&mut pass, lab, table, max_order, first, width, height);
+        repair_steep_edges(&mut pass, lab, &fine, first, width, height);
         if let Some(white) = white {
             flag_washed_out(&mut pass, lab, white, inside, width, height);
         }
@@ -293,13 +295,13 @@ fn solve_pass(
         // lower orders around them: anchored by their valued neighbours, kept well below the
         // table's top, where aliases cannot come from. Only this repair tries the footprint of
         // JPEG's subsampled chroma: before the guards it let aliases of orders past the table
-        // grow (6.7 % of them valued instead of 3.2 % in the accuracy suite's JPEG disc).
+        // grow (twice as many of them valued in the accuracy suite's JPEG disc).
         let second = RepairLimits {
             ceiling: max_order - SECOND_REPAIR_BELOW_TOP,
             residual: SECOND_REPAIR_RESIDUAL,
             subsampled_chroma: true,
         };
-        repair_steep_edges(&mut pass, lab, table, max_order, second, width, height);
+        repair_steep_edges(&mut pass, lab, &fine, second, width, height);
     }
     smooth(&mut pass, width, height, gradient);
     clear_flagged(&mut pass);
@@ -576,11 +578,16 @@ pub(crate) fn solve(
         let scaled = working.scale(options);
         // A second round only where the first found a real drift: a strong drift is only
         // partly corrected by the first fit.
+        let invariant_table = exposure_invariant_table(table);
         for _ in 0..2 {
+            let mut lab = working.lab(&exposure);
+            lab.data
+                .par_iter_mut()
+                .for_each(|c| *c = exposure_invariant(*c));
             let preliminary = solve_pass(
-                &working.lab(&exposure),
+                &lab,
                 &working.inside,
-                table,
+                &invariant_table,
                 max_order,
                 &scaled,
                 Stage::Preliminary,
