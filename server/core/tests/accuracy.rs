@@ -387,6 +387,14 @@ fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
             clean,
         ),
         (
+            // Under a tri-band tube the colours past the table stay vivid and match low orders.
+            "N 6.9, tri-band fluorescent, png",
+            1200.0,
+            LightSource::TriBand,
+            PhotoEncoding::Png8,
+            clean,
+        ),
+        (
             "N 6.9, daylight, jpeg 92, 15 % darker, vignetting",
             1200.0,
             LightSource::Daylight,

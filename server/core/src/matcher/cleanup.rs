@@ -203,6 +203,53 @@ pub(super) fn flag_unanchored_high_regions(
     }
 }
 
+/// Orders past the table lie inside closed loops where the order climbs through the table's
+/// top (a disc's centre, a contact zone); there, with spiky light sources especially, colours
+/// repeat vividly and whole regions can match low orders. A valued region that cannot be
+/// reached from the specimen's edge (the mask's boundary, holes included, or the image
+/// border) or from a hint without crossing *beyond range* pixels is such a region: it is
+/// flagged beyond range too — the cautious reading.
+pub(super) fn flag_enclosed_by_beyond_range(
+    pass: &mut Pass,
+    hinted: &[usize],
+    width: usize,
+    height: usize,
+) {
+    let flags = &pass.flags;
+    let passable = |p: usize| {
+        !flags[p].has(PixelFlags::OUTSIDE_MASK) && !flags[p].has(PixelFlags::BEYOND_RANGE)
+    };
+    let on_edge = |p: usize| {
+        let (x, y) = (p % width, p / width);
+        x == 0
+            || y == 0
+            || x + 1 == width
+            || y + 1 == height
+            || neighbours4(x, y, width, height).any(|q| flags[q].has(PixelFlags::OUTSIDE_MASK))
+    };
+    let mut reached = vec![false; flags.len()];
+    let mut stack: Vec<usize> = (0..flags.len())
+        .filter(|&p| passable(p) && on_edge(p))
+        .chain(hinted.iter().copied().filter(|&p| passable(p)))
+        .collect();
+    for &p in &stack {
+        reached[p] = true;
+    }
+    while let Some(p) = stack.pop() {
+        for q in neighbours4(p % width, p / width, width, height) {
+            if !reached[q] && passable(q) {
+                reached[q] = true;
+                stack.push(q);
+            }
+        }
+    }
+    for (f, reached) in pass.flags.iter_mut().zip(reached) {
+        if f.0 == 0 && !reached {
+            f.0 |= PixelFlags::BEYOND_RANGE;
+        }
+    }
+}
+
 /// Grows values into flagged pixels next to valued ones, layer by layer: a plane fitted to the
 /// valued pixels around predicts the order and its gradient G; the pixel's colour must then
 /// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
@@ -687,6 +734,57 @@ mod tests {
         let mut anchored = pass_with(2.0);
         flag_unanchored_high_regions(&mut anchored, top, &[], width, height, gradient);
         assert_eq!(beyond(&anchored), 0);
+    }
+
+    #[test]
+    fn valued_regions_cut_off_from_the_edge_by_beyond_range_pixels_are_flagged_unless_hinted() {
+        // 9 × 9 pixels, all inside the specimen: a ring of beyond-range pixels (the square
+        // between columns/rows 2 and 6) around a valued 3 × 3 core; valued outside the ring.
+        let (width, height) = (9, 9);
+        let ring = |p: usize| {
+            let (x, y) = (p % width, p / width);
+            (2..=6).contains(&x) && (2..=6).contains(&y) && (x == 2 || x == 6 || y == 2 || y == 6)
+        };
+        let core = |p: usize| {
+            let (x, y) = (p % width, p / width);
+            (3..=5).contains(&x) && (3..=5).contains(&y)
+        };
+        let pass_with_gap = |gap: bool| {
+            let n = width * height;
+            let mut pass = Pass {
+                order: vec![1.0; n],
+                residual: vec![1.0; n],
+                margin: vec![1.0; n],
+                flags: vec![PixelFlags::default(); n],
+            };
+            for p in (0..n).filter(|&p| ring(p)) {
+                pass.flags[p].0 = PixelFlags::BEYOND_RANGE;
+            }
+            if gap {
+                // An unreliable pixel in the ring opens a path that avoids beyond range.
+                pass.flags[2 * width + 4].0 = PixelFlags::UNRELIABLE;
+            }
+            pass
+        };
+        let flagged = |pass: &Pass| {
+            (0..width * height)
+                .filter(|&p| !ring(p) && pass.flags[p].has(PixelFlags::BEYOND_RANGE))
+                .collect::<Vec<_>>()
+        };
+        let mut closed = pass_with_gap(false);
+        flag_enclosed_by_beyond_range(&mut closed, &[], width, height);
+        assert_eq!(
+            flagged(&closed),
+            (0..81).filter(|&p| core(p)).collect::<Vec<_>>()
+        );
+        // A hint inside the core anchors it.
+        let mut hinted = pass_with_gap(false);
+        flag_enclosed_by_beyond_range(&mut hinted, &[4 * width + 4], width, height);
+        assert!(flagged(&hinted).is_empty());
+        // A gap of unreliable pixels reaches the core from the edge.
+        let mut open = pass_with_gap(true);
+        flag_enclosed_by_beyond_range(&mut open, &[], width, height);
+        assert!(flagged(&open).is_empty());
     }
 
     #[test]

@@ -19,7 +19,9 @@
 //!    that match markedly worse than the rest of the photo, upper-fringe regions nothing
 //!    anchors, high orders next to beyond-range pixels); a second repair grows values back
 //!    well below the table's top, also matching the wider colour footprint of JPEG's
-//!    subsampled chroma, and a 5 × 5 mean that keeps ramps exact smooths the result.
+//!    subsampled chroma; valued regions that beyond-range pixels cut off from the specimen's
+//!    edge are flagged beyond range; and a 5 × 5 mean that keeps ramps exact smooths the
+//!    result.
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
 //!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
 //!    pass on a ≤ 0.15-megapixel image, in up to two rounds. That pass compares chroma
@@ -302,6 +304,7 @@ fn solve_pass(
             subsampled_chroma: true,
         };
         repair_steep_edges(&mut pass, lab, &fine, second, width, height);
+        flag_enclosed_by_beyond_range(&mut pass, &hinted, width, height);
     }
     smooth(&mut pass, width, height, gradient);
     clear_flagged(&mut pass);
