@@ -395,6 +395,25 @@ fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
             clean,
         ),
         (
+            // Just past the table: the centre reads like the table's last fringe.
+            "N 5.2, daylight, jpeg 90",
+            900.0,
+            LightSource::Daylight,
+            PhotoEncoding::Jpeg { quality: 90 },
+            PhotoEffects {
+                exposure: 1.0,
+                corner_brightness: 1.0,
+                ..darker_jpeg
+            },
+        ),
+        (
+            "N 6.9, tri-band fluorescent, jpeg 90, 15 % darker, vignetting",
+            1200.0,
+            LightSource::TriBand,
+            PhotoEncoding::Jpeg { quality: 90 },
+            darker_jpeg,
+        ),
+        (
             "N 6.9, daylight, jpeg 92, 15 % darker, vignetting",
             1200.0,
             LightSource::Daylight,
