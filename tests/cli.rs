@@ -97,6 +97,11 @@ fn the_demo_calibration_maps_the_disc_close_to_the_closed_form_orders() {
         &out_file,
     ]));
     assert!(printed.contains("valued pixels"), "{printed}");
+    // The demo disc's centre is loaded past the table (orders 5–7 against 4.4).
+    assert!(
+        printed.contains("caution") && printed.contains("beyond this calibration's last order"),
+        "{printed}"
+    );
     let (rows, cols, orders) = read_npy_f32(&std::fs::read(&out_file).unwrap()).unwrap();
     let (_, _, truth) = read_npy_f32(&std::fs::read(path("disc-true-order.npy")).unwrap()).unwrap();
     assert_eq!(orders.len(), rows * cols);

@@ -189,10 +189,17 @@ async fn a_disc_mapped_with_a_beam_calibration_matches_the_closed_form_orders() 
     assert_eq!(v["width"], disc.width);
     assert_eq!(v["calibration_id"], id.as_str());
     assert!(v["statistics"]["valued_pixels"].as_u64().unwrap() > 10_000);
+    // Next to the load points the disc's orders run past the table: the answer says so.
+    let caution = v["caution"].as_str().expect("a range caution");
+    assert!(
+        caution.contains("beyond this calibration's last order"),
+        "{caution}"
+    );
     let links = &v["links"];
     let again = get(&svc.app, links["self"].as_str().unwrap()).await;
     assert_eq!(again.status, StatusCode::OK);
     assert_eq!(again.json()["id"], v["id"]);
+    assert_eq!(again.json()["caution"], v["caution"]);
     let (_, _, stored) = npy(&get(&svc.app, links["npy"].as_str().unwrap()).await);
     assert_eq!(stored.len(), orders.len());
     let same = stored

@@ -199,6 +199,7 @@ fn small_map() -> OrderMap {
             max_order: 3.5,
             mean_order: 1.8125,
             mean_residual: f64::NAN,
+            table_max_order: 4.4,
         },
     }
 }

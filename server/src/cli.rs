@@ -417,12 +417,15 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// The lines `isotint map` prints about a map.
+/// The lines `isotint map` prints about a map, with its range caution if it has one.
 pub fn statistics_text(s: &MapStatistics) -> String {
+    let caution = s
+        .range_caution()
+        .map_or(String::new(), |c| format!("  caution             {c}\n"));
     format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
          unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {:.3}\n  \
-         mean residual       {:.2} (ΔE*ab)\n",
+         mean residual       {:.2} (ΔE*ab)\n{caution}",
         s.specimen_pixels,
         s.valued_pixels,
         100.0 * s.beyond_range_share,

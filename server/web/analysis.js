@@ -492,6 +492,9 @@ export class AnalysisPage {
     ctx.putImageData(image, 0, 0);
     this.result = { width, height, order: orders.data, flags: flags.data, canvas, top, id: answer.id };
 
+    const caution = $('an-caution');
+    caution.textContent = answer.caution ?? '';
+    caution.hidden = !answer.caution;
     const st = answer.statistics;
     const share = (v) => `${fmt(v * 100, 1)} %`;
     fillDl($('an-stats'), [

@@ -259,6 +259,10 @@ async function main() {
       await shownOrFail(page, '#an-results', '#an-error', 'the analysis');
       await page.locator('#an-legend').waitFor({ state: 'visible' });
       await page.getByText(/^Map ready/).waitFor();
+      // The demo disc's centre is loaded past the calibration: the result says so.
+      const caution = page.locator('#an-caution');
+      check(await caution.isVisible(), 'no range caution over a disc loaded past the calibration');
+      check(/beyond this calibration's last order/.test(await caution.textContent()), 'the range caution does not name the calibration\'s range');
     });
 
     await step('hovering the map shows the fringe order (or names the flag) at the cursor', async () => {

@@ -122,6 +122,40 @@ pub struct MapStatistics {
     pub mean_order: f64,
     /// Mean ΔE\*ab between valued pixels and their matched table colour.
     pub mean_residual: f64,
+    /// Highest order the map could read, fringes: the table's last order, or
+    /// [`MapOptions::max_order`] where that is lower (NaN for results stored before it was
+    /// recorded).
+    pub table_max_order: f64,
+}
+
+/// Orders within this many fringes of [`MapStatistics::table_max_order`] may be aliases of
+/// orders past the table, whose colours repeat in paler form.
+pub const NEAR_TABLE_TOP: f64 = 1.0;
+
+impl MapStatistics {
+    /// A caution when part of the specimen lies past the calibration's range or the orders come
+    /// within [`NEAR_TABLE_TOP`] of its last order: there the stress may be higher than read.
+    pub fn range_caution(&self) -> Option<String> {
+        let beyond = self.beyond_range_share > 0.0;
+        let near_top = self.max_order > self.table_max_order - NEAR_TABLE_TOP;
+        let top = self.table_max_order;
+        match (beyond, near_top) {
+            (false, false) => None,
+            (true, _) => Some(format!(
+                "{:.1} % of the specimen lies beyond this calibration's last order ({top:.2}): \
+                 the stress there is higher than the map can tell, and values up to a fringe \
+                 below that order next to those zones may be aliases of higher orders. \
+                 Calibrate to a higher edge order before judging them.",
+                100.0 * self.beyond_range_share
+            )),
+            (false, true) => Some(format!(
+                "Orders reach {:.2}, within a fringe of this calibration's last order \
+                 ({top:.2}): near contacts and load points such values may be aliases of \
+                 higher orders. Calibrate to a higher edge order before judging them.",
+                self.max_order
+            )),
+        }
+    }
 }
 
 /// Result of [`map_orders`]: row-major per-pixel arrays, pixel (x, y) at `y * width + x`.
@@ -169,4 +203,43 @@ pub fn map_orders(
         }
     }
     crate::matcher::solve(photo, table, mask, options)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn statistics(beyond_range_share: f64, max_order: f64) -> MapStatistics {
+        MapStatistics {
+            specimen_pixels: 1000,
+            valued_pixels: 900,
+            beyond_range_share,
+            unreliable_share: 0.0,
+            min_order: 0.0,
+            max_order,
+            mean_order: 1.0,
+            mean_residual: 1.0,
+            table_max_order: 4.4,
+        }
+    }
+
+    #[test]
+    fn a_range_caution_is_given_past_the_table_or_within_a_fringe_of_its_top_and_not_otherwise() {
+        assert_eq!(statistics(0.0, 3.3).range_caution(), None);
+        let near = statistics(0.0, 3.5).range_caution().expect("near the top");
+        assert!(
+            near.contains("within a fringe") && near.contains("4.40"),
+            "{near}"
+        );
+        let past = statistics(0.012, 4.3)
+            .range_caution()
+            .expect("past the table");
+        assert!(past.contains("1.2 %") && past.contains("beyond"), "{past}");
+        // Results stored before the table's top was recorded: only the beyond-range share counts.
+        let old = MapStatistics {
+            table_max_order: f64::NAN,
+            ..statistics(0.0, 4.3)
+        };
+        assert_eq!(old.range_caution(), None);
+    }
 }

@@ -21,7 +21,7 @@ use super::form::{parse_json, path_id, Form};
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId, OrderMapId};
 use crate::pipeline;
-use crate::storage::order_maps::{self as store, OrderMapRow};
+use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
 /// Routes of this module.
 pub fn router() -> OpenApiRouter<AppState> {
@@ -91,6 +91,9 @@ pub struct OrderMapResource {
     /// Summary figures (NaN figures are null).
     #[schema(value_type = Object)]
     pub statistics: serde_json::Value,
+    /// A caution, when part of the specimen lies past the calibration's range or its orders
+    /// come within a fringe of the calibration's last order (possible aliases of higher orders).
+    pub caution: Option<String>,
     /// Exposure correction applied.
     #[schema(value_type = Object)]
     pub exposure: ExposureCorrection,
@@ -119,6 +122,7 @@ impl From<OrderMapRow> for OrderMapResource {
             width: r.width,
             height: r.height,
             calibration_id: r.calibration_id,
+            caution: statistics_from_json(&r.statistics).range_caution(),
             statistics: r.statistics,
             exposure: r.exposure,
             created_at: rfc3339(r.created_at),

@@ -150,7 +150,8 @@ fn figure(statistics: &serde_json::Value, key: &str) -> f64 {
         .unwrap_or(f64::NAN)
 }
 
-fn statistics_from_json(s: &serde_json::Value) -> MapStatistics {
+/// The summary figures of a stored map, from their JSON (missing or null figures are NaN).
+pub fn statistics_from_json(s: &serde_json::Value) -> MapStatistics {
     let count = |key: &str| s.get(key).and_then(serde_json::Value::as_u64).unwrap_or(0);
     MapStatistics {
         specimen_pixels: count("specimen_pixels"),
@@ -161,6 +162,7 @@ fn statistics_from_json(s: &serde_json::Value) -> MapStatistics {
         max_order: figure(s, "max_order"),
         mean_order: figure(s, "mean_order"),
         mean_residual: figure(s, "mean_residual"),
+        table_max_order: figure(s, "table_max_order"),
     }
 }
 

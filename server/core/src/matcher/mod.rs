@@ -362,7 +362,8 @@ fn last_fringes(
 }
 
 /// Summary figures of a finished pass.
-fn statistics(pass: &Pass) -> MapStatistics {
+/// Summary figures of a finished pass; `max_order` is the highest order it could read.
+fn statistics(pass: &Pass, max_order: f64) -> MapStatistics {
     /// Sums over some of the pixels.
     #[derive(Default)]
     struct Part {
@@ -455,6 +456,7 @@ fn statistics(pass: &Pass) -> MapStatistics {
         } else {
             f64::NAN
         },
+        table_max_order: max_order,
     }
 }
 
@@ -635,7 +637,7 @@ pub(crate) fn solve(
             options.max_gradient as f32,
         )
     };
-    let statistics = statistics(&pass);
+    let statistics = statistics(&pass, max_order);
     Ok(OrderMap {
         width: photo.width(),
         height: photo.height(),
