@@ -142,11 +142,15 @@ impl MapStatistics {
         match (beyond, near_top) {
             (false, false) => None,
             (true, _) => Some(format!(
-                "{:.1} % of the specimen lies beyond this calibration's last order ({top:.2}): \
+                "{} of the specimen lies beyond this calibration's last order ({top:.2}): \
                  the stress there is higher than the map can tell, and values up to a fringe \
                  below that order next to those zones may be aliases of higher orders. \
                  Calibrate to a higher edge order before judging them.",
-                100.0 * self.beyond_range_share
+                if self.beyond_range_share < 0.001 {
+                    "Less than 0.1 %".to_string()
+                } else {
+                    format!("{:.1} %", 100.0 * self.beyond_range_share)
+                }
             )),
             (false, true) => Some(format!(
                 "Orders reach {:.2}, within a fringe of this calibration's last order \
@@ -235,6 +239,10 @@ mod tests {
             .range_caution()
             .expect("past the table");
         assert!(past.contains("1.2 %") && past.contains("beyond"), "{past}");
+        let speck = statistics(0.0002, 2.0)
+            .range_caution()
+            .expect("a small zone past it");
+        assert!(speck.starts_with("Less than 0.1 %"), "{speck}");
         // Results stored before the table's top was recorded: only the beyond-range share counts.
         let old = MapStatistics {
             table_max_order: f64::NAN,
