@@ -28,7 +28,7 @@ const SENSOR_CHANNELS: [(f64, f64); 3] = [(600.0, 32.0), (535.0, 38.0), (460.0, 
 
 /// A camera model.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
-#[serde(rename_all = "kebab-case")]
+#[serde(into = "String", try_from = "String")]
 pub enum CameraModel {
     /// An ideal colorimetric camera: CIE 1931 2° observer → XYZ → linear sRGB by the
     /// IEC 61966-2-1 matrix.
@@ -174,4 +174,20 @@ fn fit_sensor_matrix() -> Matrix3<f64> {
         .try_inverse()
         .expect("the training colours span all three channels");
     target_raw * inverse
+}
+
+/// Serialised as [`CameraModel::name`], read back with [`CameraModel::from_name`]: one spelling
+/// everywhere (calibration tables, scenario files, requests).
+impl From<CameraModel> for String {
+    fn from(value: CameraModel) -> String {
+        value.name().to_string()
+    }
+}
+
+impl TryFrom<String> for CameraModel {
+    type Error = CoreError;
+
+    fn try_from(name: String) -> CoreResult<CameraModel> {
+        CameraModel::from_name(&name)
+    }
 }

@@ -11,7 +11,7 @@ use crate::error::{CoreError, CoreResult};
 
 /// A white light source behind the polariscope.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
-#[serde(rename_all = "kebab-case")]
+#[serde(into = "String", try_from = "String")]
 pub enum LightSource {
     /// Average daylight, CIE D65 (6500 K); a smooth spectrum.
     Daylight,
@@ -106,4 +106,20 @@ pub(crate) fn cmf(nm: usize) -> [f64; 3] {
         .xyz_at_wavelength(nm)
         .expect("wavelength inside 380–780 nm")
         .to_array()
+}
+
+/// Serialised as [`LightSource::name`], read back with [`LightSource::from_name`]: one spelling
+/// everywhere (calibration tables, scenario files, requests).
+impl From<LightSource> for String {
+    fn from(value: LightSource) -> String {
+        value.name().to_string()
+    }
+}
+
+impl TryFrom<String> for LightSource {
+    type Error = CoreError;
+
+    fn try_from(name: String) -> CoreResult<LightSource> {
+        LightSource::from_name(&name)
+    }
 }

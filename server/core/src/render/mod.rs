@@ -62,3 +62,33 @@ pub fn order_from_retardation(retardation_nm: f64) -> f64 {
 pub(crate) fn wavelengths() -> impl Iterator<Item = f64> {
     WAVELENGTHS_NM.map(|nm| nm as f64)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn light_sources_and_cameras_are_written_by_their_short_names_and_read_by_any_known_one() {
+        for light in LightSource::ALL {
+            let json = serde_json::to_value(light).unwrap();
+            assert_eq!(json, light.name());
+            assert_eq!(serde_json::from_value::<LightSource>(json).unwrap(), light);
+        }
+        for camera in CameraModel::ALL {
+            let json = serde_json::to_value(camera).unwrap();
+            assert_eq!(json, camera.name());
+            assert_eq!(serde_json::from_value::<CameraModel>(json).unwrap(), camera);
+        }
+        // Older spellings still read.
+        let read = |s: &str| serde_json::from_value::<LightSource>(s.into());
+        assert_eq!(read("daylight").unwrap(), LightSource::Daylight);
+        assert_eq!(read("F11").unwrap(), LightSource::TriBand);
+        assert_eq!(
+            serde_json::from_value::<CameraModel>("sensor".into()).unwrap(),
+            CameraModel::Sensor
+        );
+        // An unknown name is refused with a message naming the known ones.
+        let refused = read("sodium").unwrap_err().to_string();
+        assert!(refused.contains("d65, halogen"), "{refused}");
+    }
+}
