@@ -176,18 +176,4 @@ fn fit_sensor_matrix() -> Matrix3<f64> {
     target_raw * inverse
 }
 
-/// Serialised as [`CameraModel::name`], read back with [`CameraModel::from_name`]: one spelling
-/// everywhere (calibration tables, scenario files, requests).
-impl From<CameraModel> for String {
-    fn from(value: CameraModel) -> String {
-        value.name().to_string()
-    }
-}
-
-impl TryFrom<String> for CameraModel {
-    type Error = CoreError;
-
-    fn try_from(name: String) -> CoreResult<CameraModel> {
-        CameraModel::from_name(&name)
-    }
-}
+serde_by_name!(CameraModel);

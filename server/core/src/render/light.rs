@@ -108,18 +108,4 @@ pub(crate) fn cmf(nm: usize) -> [f64; 3] {
         .to_array()
 }
 
-/// Serialised as [`LightSource::name`], read back with [`LightSource::from_name`]: one spelling
-/// everywhere (calibration tables, scenario files, requests).
-impl From<LightSource> for String {
-    fn from(value: LightSource) -> String {
-        value.name().to_string()
-    }
-}
-
-impl TryFrom<String> for LightSource {
-    type Error = CoreError;
-
-    fn try_from(name: String) -> CoreResult<LightSource> {
-        LightSource::from_name(&name)
-    }
-}
+serde_by_name!(LightSource);

@@ -14,6 +14,26 @@
 //! Angles are radians from +x towards +y (down) in pixel coordinates; pixel (x, y) covers
 //! [x, x+1) × [y, y+1).
 
+/// Serialisation of a named renderer choice through its `name()` and `from_name()`: one
+/// spelling everywhere (calibration tables, scenario files, requests), older ones still read.
+macro_rules! serde_by_name {
+    ($t:ty) => {
+        impl From<$t> for String {
+            fn from(value: $t) -> String {
+                value.name().to_string()
+            }
+        }
+
+        impl TryFrom<String> for $t {
+            type Error = $crate::error::CoreError;
+
+            fn try_from(name: String) -> $crate::error::CoreResult<$t> {
+                <$t>::from_name(&name)
+            }
+        }
+    };
+}
+
 pub mod calibrate;
 pub mod camera;
 pub mod demo;
