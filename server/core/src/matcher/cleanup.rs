@@ -413,8 +413,8 @@ pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, he
 }
 
 /// Means of `values` over (2r+1)² windows clipped at the image edges, counting only pixels
-/// where `counted` holds; NaN where a window counts none. Integral images make each window
-/// O(1).
+/// where `counted` holds; NaN where a window counts none. Separable: window sums and counts
+/// along each row, then down the columns, both in parallel.
 pub(super) fn window_means(
     values: &[f32],
     counted: &[bool],
@@ -422,38 +422,31 @@ pub(super) fn window_means(
     height: usize,
     r: usize,
 ) -> Vec<f32> {
-    let (w1, h1) = (width + 1, height + 1);
-    let mut sum = vec![0f64; w1 * h1];
-    let mut count = vec![0u32; w1 * h1];
-    for y in 0..height {
-        let (mut row_sum, mut row_count) = (0f64, 0u32);
-        for x in 0..width {
-            let p = y * width + x;
-            if counted[p] {
-                row_sum += f64::from(values[p]);
-                row_count += 1;
+    let span =
+        |centre: usize, length: usize| centre.saturating_sub(r)..(centre + r + 1).min(length);
+    let mut row_sums: Vec<(f32, u32)> = par_filled(values.len(), (0.0, 0));
+    row_sums
+        .par_chunks_mut(width)
+        .zip(values.par_chunks(width))
+        .zip(counted.par_chunks(width))
+        .for_each(|((out, v), k)| {
+            for (x, o) in out.iter_mut().enumerate() {
+                *o = span(x, width)
+                    .filter(|&i| k[i])
+                    .fold((0.0, 0), |(s, n), i| (s + v[i], n + 1));
             }
-            sum[(y + 1) * w1 + x + 1] = sum[y * w1 + x + 1] + row_sum;
-            count[(y + 1) * w1 + x + 1] = count[y * w1 + x + 1] + row_count;
-        }
-    }
+        });
     (0..values.len())
         .into_par_iter()
         .map(|p| {
             let (x, y) = (p % width, p / width);
-            let (x0, y0, x1, y1) = (
-                x.saturating_sub(r),
-                y.saturating_sub(r),
-                (x + r + 1).min(width),
-                (y + r + 1).min(height),
-            );
-            let at = |xx: usize, yy: usize| yy * w1 + xx;
-            let s = sum[at(x1, y1)] - sum[at(x0, y1)] - sum[at(x1, y0)] + sum[at(x0, y0)];
-            let n = count[at(x1, y1)] + count[at(x0, y0)] - count[at(x0, y1)] - count[at(x1, y0)];
+            let (s, n) = span(y, height)
+                .map(|yy| row_sums[yy * width + x])
+                .fold((0.0, 0), |(s, n), (rs, rn)| (s + rs, n + rn));
             if n == 0 {
                 f32::NAN
             } else {
-                (s / f64::from(n)) as f32
+                s / n as f32
             }
         })
         .collect()
@@ -573,35 +566,17 @@ pub(super) fn neighbours4(
     .map(move |(nx, ny)| ny * width + nx)
 }
 
-/// Smaller of two values, one instruction: NaN handling is left to the caller (`smooth`
-/// rejects every window whose sum is NaN).
-#[inline(always)]
-fn fast_min(a: f32, b: f32) -> f32 {
-    if b < a {
-        b
-    } else {
-        a
-    }
-}
-
-/// Larger of two values; see [`fast_min`].
-#[inline(always)]
-fn fast_max(a: f32, b: f32) -> f32 {
-    if b > a {
-        b
-    } else {
-        a
-    }
-}
-
 /// Averages each valued pixel with its (2r+1)² neighbourhood, r = [`SMOOTH_RADIUS`], where all
 /// of it is valued and lies within a few gradients of the centre (a symmetric mean keeps
-/// linear ramps exact and leaves edges of the valued area alone).
-///
-/// Separable: window sums, minima and maxima along rows, then down columns, in strips of
-/// rows processed in parallel.
-pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32) {
-    const STRIP: usize = 32;
+/// linear ramps exact and leaves edges of the valued area alone). Only pixels where
+/// `selected` holds are smoothed (all of them for `None`); rows run in parallel.
+pub(super) fn smooth(
+    pass: &mut Pass,
+    width: usize,
+    height: usize,
+    gradient: f32,
+    selected: Option<&[bool]>,
+) {
     let r = SMOOTH_RADIUS;
     if width <= 2 * r || height <= 2 * r {
         return;
@@ -611,55 +586,27 @@ pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32
     let (order, flags) = (&pass.order, &pass.flags);
     let mut smoothed: Vec<f32> = order.par_iter().copied().collect();
     smoothed
-        .par_chunks_mut(width * STRIP)
+        .par_chunks_mut(width)
         .enumerate()
-        .for_each(|(k, strip)| {
-            let first = k * STRIP;
-            let rows = strip.len() / width;
-            let (lo, hi) = (first.saturating_sub(r), (first + rows + r).min(height));
-            let n = (hi - lo) * width;
-            // Values of rows lo..hi, NaN where flagged: a flagged pixel makes the sum of every
-            // window holding it NaN.
-            let values: Vec<f32> = (lo * width..hi * width)
-                .map(|p| if flags[p].0 == 0 { order[p] } else { f32::NAN })
-                .collect();
-            // Row-window sums, minima and maxima, valid for x in r..width - r.
-            let (mut sum, mut min, mut max) = (vec![0f32; n], vec![0f32; n], vec![0f32; n]);
-            for row in 0..hi - lo {
-                let v = &values[row * width..(row + 1) * width];
-                let span = row * width + r..(row + 1) * width - r;
-                let (sum, min, max) = (
-                    &mut sum[span.clone()],
-                    &mut min[span.clone()],
-                    &mut max[span],
-                );
-                for (x, ((s, lo_v), hi_v)) in sum
-                    .iter_mut()
-                    .zip(min.iter_mut())
-                    .zip(max.iter_mut())
-                    .enumerate()
-                {
-                    let window = &v[x..x + 2 * r + 1];
-                    *s = window.iter().sum();
-                    *lo_v = window.iter().copied().fold(f32::INFINITY, fast_min);
-                    *hi_v = window.iter().copied().fold(f32::NEG_INFINITY, fast_max);
+        .skip(r)
+        .take(height - 2 * r)
+        .for_each(|(y, out)| {
+            for (x, o) in out.iter_mut().enumerate().take(width - r).skip(r) {
+                let p = y * width + x;
+                if flags[p].0 != 0 || selected.is_some_and(|s| !s[p]) {
+                    continue;
                 }
-            }
-            for y in first.max(r)..(first + rows).min(height - r) {
-                let out = &mut strip[(y - first) * width..(y - first + 1) * width];
-                for x in r..width - r {
-                    let centre = values[(y - lo) * width + x];
-                    let (mut s, mut low, mut high) = (0.0, f32::INFINITY, f32::NEG_INFINITY);
-                    for ny in y - r..=y + r {
-                        let q = (ny - lo) * width + x;
-                        s += sum[q];
-                        low = fast_min(low, min[q]);
-                        high = fast_max(high, max[q]);
-                    }
-                    // NaN (a flagged pixel in the window, or at the centre) fails every test.
-                    if high - centre <= limit && centre - low <= limit && !s.is_nan() {
-                        out[x] = s / count;
-                    }
+                let centre = order[p];
+                let mut sum = 0.0;
+                let whole = (y - r..=y + r).all(|ny| {
+                    let row = ny * width;
+                    (row + x - r..=row + x + r).all(|q| {
+                        sum += order[q];
+                        flags[q].0 == 0 && (order[q] - centre).abs() <= limit
+                    })
+                });
+                if whole {
+                    *o = sum / count;
                 }
             }
         });
@@ -669,31 +616,6 @@ pub(super) fn smooth(pass: &mut Pass, width: usize, height: usize, gradient: f32
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    /// Naive reference: the whole (2r+1)² window visited for every pixel.
-    fn smooth_naively(pass: &Pass, width: usize, height: usize, gradient: f32) -> Vec<f32> {
-        let r = SMOOTH_RADIUS;
-        let limit = 2.0 * gradient * r as f32;
-        let mut out = pass.order.clone();
-        for y in r..height - r {
-            for x in r..width - r {
-                let p = y * width + x;
-                if pass.flags[p].0 != 0 {
-                    continue;
-                }
-                let window =
-                    (y - r..=y + r).flat_map(|ny| (x - r..=x + r).map(move |nx| ny * width + nx));
-                if window
-                    .clone()
-                    .all(|q| pass.flags[q].0 == 0 && (pass.order[q] - pass.order[p]).abs() <= limit)
-                {
-                    out[p] = window.map(|q| pass.order[q]).sum::<f32>()
-                        / ((2 * r + 1) * (2 * r + 1)) as f32;
-                }
-            }
-        }
-        out
-    }
 
     #[test]
     fn upper_fringe_regions_next_to_beyond_range_are_flagged_unless_low_orders_or_a_hint_anchor_them(
@@ -788,50 +710,106 @@ mod tests {
     }
 
     #[test]
-    fn separable_smoothing_matches_the_naive_window_mean() {
+    fn window_means_match_the_naive_mean_over_each_clipped_window() {
         use rand::{Rng, SeedableRng};
-        let (width, height) = (70, 45);
-        let mut rng = rand::rngs::StdRng::seed_from_u64(7);
-        let n = width * height;
-        // A ramp with noise, a step (which must stay sharp), and scattered flagged pixels.
-        let order: Vec<f32> = (0..n)
+        let (width, height, r) = (23, 17, 3);
+        let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+        let values: Vec<f32> = (0..width * height)
+            .map(|_| rng.random_range(-50.0..50.0))
+            .collect();
+        // Every pixel counted except a block and a scatter; one window counts nothing.
+        let counted: Vec<bool> = (0..width * height)
             .map(|p| {
-                let (x, y) = ((p % width) as f32, (p / width) as f32);
-                0.03 * x
-                    + 0.01 * y
-                    + if x > 40.0 { 1.5 } else { 0.0 }
-                    + rng.random_range(-0.02..0.02)
+                let (x, y) = (p % width, p / width);
+                !(x >= 14 && y >= 8) && rng.random_range(0..5) > 0
             })
             .collect();
-        let flags = (0..n)
-            .map(|_| {
-                PixelFlags(if rng.random_bool(0.01) {
-                    PixelFlags::UNRELIABLE
+        let fast = window_means(&values, &counted, width, height, r);
+        for y in 0..height {
+            for x in 0..width {
+                let (mut sum, mut n) = (0.0f64, 0);
+                for yy in y.saturating_sub(r)..(y + r + 1).min(height) {
+                    for xx in x.saturating_sub(r)..(x + r + 1).min(width) {
+                        if counted[yy * width + xx] {
+                            sum += f64::from(values[yy * width + xx]);
+                            n += 1;
+                        }
+                    }
+                }
+                let got = fast[y * width + x];
+                if n == 0 {
+                    assert!(got.is_nan(), "({x}, {y}) counts nothing but got {got}");
                 } else {
-                    0
-                })
-            })
-            .collect();
-        let mut pass = Pass {
-            order,
-            residual: vec![0.0; n],
-            margin: vec![0.0; n],
-            flags,
-        };
-        let input = pass.order.clone();
-        let expected = smooth_naively(&pass, width, height, 0.2);
-        smooth(&mut pass, width, height, 0.2);
-        for (e, o) in expected.iter().zip(&pass.order) {
-            assert!((e - o).abs() < 1e-5, "{e} vs {o}");
+                    let want = sum / f64::from(n);
+                    assert!(
+                        (f64::from(got) - want).abs() < 1e-4,
+                        "({x}, {y}): {got} vs {want}"
+                    );
+                }
+            }
         }
-        // Not vacuous: most pixels were averaged, and the step at x = 40/41 stayed sharp.
-        let smoothed = input
-            .iter()
-            .zip(&pass.order)
-            .filter(|(i, o)| i != o)
-            .count();
-        assert!(smoothed > n / 2, "only {smoothed} of {n} pixels smoothed");
-        let p = 20 * width + 41;
-        assert_eq!(pass.order[p], input[p]);
+        assert!(
+            fast.iter().any(|m| m.is_nan()),
+            "the test should hold an empty window"
+        );
+    }
+
+    #[test]
+    fn smoothing_averages_whole_windows_keeps_ramps_and_leaves_steps_flags_and_unselected_pixels_alone(
+    ) {
+        // A 13 × 13 ramp 0.1 x + 0.05 y with a bump of 0.5 at (4, 4), a step of 3 fringes
+        // from x = 10 on and a flagged pixel at (4, 10); gradient 0.25, so a window may span
+        // 2 · 0.25 · 2 = 1 fringe around its centre.
+        let (width, height, gradient) = (13, 13, 0.25);
+        let ramp = |x: usize, y: usize| 0.1 * x as f32 + 0.05 * y as f32;
+        let build = || {
+            let n = width * height;
+            let mut pass = Pass {
+                order: (0..n)
+                    .map(|p| {
+                        let (x, y) = (p % width, p / width);
+                        ramp(x, y)
+                            + if (x, y) == (4, 4) { 0.5 } else { 0.0 }
+                            + if x >= 10 { 3.0 } else { 0.0 }
+                    })
+                    .collect(),
+                residual: vec![0.0; n],
+                margin: vec![0.0; n],
+                flags: vec![PixelFlags::default(); n],
+            };
+            pass.flags[10 * width + 4].0 = PixelFlags::UNRELIABLE;
+            pass
+        };
+        let mut pass = build();
+        let input = pass.order.clone();
+        smooth(&mut pass, width, height, gradient, None);
+        let near =
+            |x: usize, y: usize, cx: usize, cy: usize| x.abs_diff(cx) <= 2 && y.abs_diff(cy) <= 2;
+        for y in 0..height {
+            for x in 0..width {
+                let p = y * width + x;
+                let border = x < 2 || y < 2 || x >= width - 2 || y >= height - 2;
+                let crosses_step = (8..=11).contains(&x);
+                let expected = if border || crosses_step || near(x, y, 4, 10) {
+                    input[p] // not a whole window, a jump, or a flagged pixel in it
+                } else if near(x, y, 4, 4) {
+                    ramp(x, y) + 0.5 / 25.0 // the bump shared over 25 pixels
+                } else {
+                    ramp(x, y) + if x >= 10 { 3.0 } else { 0.0 } // ramps stay exact
+                };
+                assert!(
+                    (pass.order[p] - expected).abs() < 1e-5,
+                    "({x}, {y}): {} instead of {expected}",
+                    pass.order[p]
+                );
+            }
+        }
+        // Only the selected pixels (x < 4) change.
+        let mut pass = build();
+        let selected: Vec<bool> = (0..width * height).map(|p| p % width < 4).collect();
+        smooth(&mut pass, width, height, gradient, Some(&selected));
+        assert!((pass.order[4 * width + 3] - (ramp(3, 4) + 0.02)).abs() < 1e-5);
+        assert_eq!(pass.order[4 * width + 4], input[4 * width + 4]);
+        assert_eq!(pass.order[4 * width + 5], input[4 * width + 5]);
     }
 }

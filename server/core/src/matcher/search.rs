@@ -182,16 +182,57 @@ pub(super) fn candidates(
     scratch: &mut Vec<f32>,
 ) -> Labels {
     search.distances_sq(c, 0, search.len() - 1, scratch);
-    // Entry i is a local minimum when it is no worse than i - 1 and better than i + 1.
+    // Entry i is a local minimum when it is no worse than i - 1 and better than i + 1 (the
+    // curve is taken as infinite past both ends). The best CANDIDATES minima are kept in
+    // ascending order of distance; the test against the worst kept one comes first, as after
+    // the first few minima it turns most entries away.
     let d = scratch.as_slice();
-    let n = d.len();
     let mut best: [(f32, usize); CANDIDATES] = [(f32::INFINITY, usize::MAX); CANDIDATES];
-    for i in 0..n {
-        let left = if i == 0 { f32::INFINITY } else { d[i - 1] };
-        let right = if i + 1 == n { f32::INFINITY } else { d[i + 1] };
-        if d[i] <= left && d[i] < right && d[i] < best[CANDIDATES - 1].0 {
-            best[CANDIDATES - 1] = (d[i], i);
-            best.sort_by(|x, y| x.0.total_cmp(&y.0));
+    fn keep(best: &mut [(f32, usize); CANDIDATES], v: f32, i: usize) {
+        let mut k = CANDIDATES - 1;
+        while k > 0 && best[k - 1].0 > v {
+            best[k] = best[k - 1];
+            k -= 1;
+        }
+        best[k] = (v, i);
+    }
+    match d {
+        [] => {}
+        [only] => keep(&mut best, *only, 0),
+        [first, second, ..] => {
+            if first < second {
+                keep(&mut best, *first, 0);
+            }
+            // Interior entries in chunks of LANES: a branch-free test per chunk (which the
+            // compiler vectorises), entry by entry only in chunks that hold a minimum.
+            const LANES: usize = 8;
+            let is_kept_minimum =
+                |v: f32, left: f32, right: f32, worst: f32| (v < worst) & (v <= left) & (v < right);
+            let mut i = 1;
+            while i + LANES < d.len() {
+                let w: &[f32; LANES + 2] = d[i - 1..i + LANES + 1].try_into().unwrap();
+                let worst = best[CANDIDATES - 1].0;
+                let any = (0..LANES).fold(false, |any, j| {
+                    any | is_kept_minimum(w[j + 1], w[j], w[j + 2], worst)
+                });
+                if any {
+                    for j in 0..LANES {
+                        if is_kept_minimum(w[j + 1], w[j], w[j + 2], best[CANDIDATES - 1].0) {
+                            keep(&mut best, w[j + 1], i + j);
+                        }
+                    }
+                }
+                i += LANES;
+            }
+            for i in i..d.len() - 1 {
+                if is_kept_minimum(d[i], d[i - 1], d[i + 1], best[CANDIDATES - 1].0) {
+                    keep(&mut best, d[i], i);
+                }
+            }
+            let (last, before) = (d[d.len() - 1], d[d.len() - 2]);
+            if last <= before && last < best[CANDIDATES - 1].0 {
+                keep(&mut best, last, d.len() - 1);
+            }
         }
     }
     let mut labels = NO_LABELS;
@@ -211,6 +252,71 @@ pub(super) fn candidates(
 mod tests {
     use super::*;
     use crate::render::{rendered_table, CameraModel, LightSource, QuarterWavePlates};
+
+    #[test]
+    fn candidates_are_the_best_local_minima_found_by_a_plain_scan() {
+        use rand::{Rng, SeedableRng};
+        // Naive reference: every entry tested on its own, the kept minima re-sorted each time.
+        fn minima_naively(d: &[f32]) -> Vec<(f32, usize)> {
+            let mut best = vec![(f32::INFINITY, usize::MAX); CANDIDATES];
+            for i in 0..d.len() {
+                let left = if i == 0 { f32::INFINITY } else { d[i - 1] };
+                let right = d.get(i + 1).copied().unwrap_or(f32::INFINITY);
+                if d[i] <= left && d[i] < right && d[i] < best[CANDIDATES - 1].0 {
+                    best[CANDIDATES - 1] = (d[i], i);
+                    best.sort_by(|x, y| x.0.total_cmp(&y.0));
+                }
+            }
+            best
+        }
+        let table = rendered_table(
+            LightSource::Daylight,
+            CameraModel::Colorimetric,
+            QuarterWavePlates::Ideal,
+            4.4,
+            0.01,
+            crate::CalibrationMetadata {
+                name: "candidates".into(),
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let mut rng = rand::rngs::StdRng::seed_from_u64(5);
+        // Table lengths that leave every remainder after the chunks of eight.
+        for max_order in [0.08, 0.16, 0.3, 1.0, 2.5, 4.4] {
+            let search = SearchTable::new(&table, SEARCH_STEP, max_order, LIGHTNESS_WEIGHT);
+            for k in 0..500 {
+                // Table colours with noise (several close minima), and arbitrary colours.
+                let c = if k % 2 == 0 {
+                    let t = table.colour_at(rng.random_range(0.0..max_order));
+                    Lab::new(
+                        t.l + rng.random_range(-3.0..3.0),
+                        t.a + rng.random_range(-3.0..3.0),
+                        t.b + rng.random_range(-3.0..3.0),
+                    )
+                } else {
+                    Lab::new(
+                        rng.random_range(0.0..100.0),
+                        rng.random_range(-60.0..60.0),
+                        rng.random_range(-60.0..60.0),
+                    )
+                };
+                let labels = candidates(&search, c, 9.0, 3.0, &mut Vec::new());
+                let mut d = Vec::new();
+                search.distances_sq(c, 0, search.len() - 1, &mut d);
+                for (slot, (dist, i)) in minima_naively(&d).into_iter().enumerate() {
+                    if i == usize::MAX {
+                        assert!(labels.order[slot].is_nan(), "slot {slot} should be empty");
+                        continue;
+                    }
+                    let (order, value) = search.parabolic(c, i, dist);
+                    assert_eq!(labels.order[slot], order as f32, "N {max_order}, {c:?}");
+                    assert_eq!(labels.cost[slot], value.min(COST_CAP));
+                }
+                assert_eq!((labels.order[BEYOND], labels.cost[BEYOND]), (9.0, 3.0));
+            }
+        }
+    }
 
     #[test]
     fn flattened_table_colours_match_the_tables_own_interpolation() {
