@@ -113,44 +113,51 @@ pub(super) fn aggregate(
         (-1, gradient * std::f32::consts::SQRT_2),
     ];
     const NO_PATH: [f32; LABELS] = [f32::NAN; LABELS];
+    // Pixels of a row per parallel task: a row split in a few pieces, each enough work to
+    // outweigh handing it to a thread.
+    const PIECE: usize = 256;
+    let mut previous: Vec<[[f32; LABELS]; 3]> = vec![[NO_PATH; 3]; width];
+    let mut current = previous.clone();
     for downward in [true, false] {
-        let mut previous: Vec<[[f32; LABELS]; 3]> = vec![[NO_PATH; 3]; width];
+        previous.fill([NO_PATH; 3]);
         for k in 0..height {
             let y = if downward { k } else { height - 1 - k };
             let before_y = if downward { y.wrapping_sub(1) } else { y + 1 };
-            let current: Vec<[[f32; LABELS]; 3]> = (0..width)
-                .into_par_iter()
-                .map(|x| {
-                    let p = y * width + x;
-                    if !inside[p] {
-                        return [NO_PATH; 3];
+            let last = &previous;
+            current
+                .par_chunks_mut(PIECE)
+                .zip(total[y * width..(y + 1) * width].par_chunks_mut(PIECE))
+                .enumerate()
+                .for_each(|(piece, (out, sums))| {
+                    for (j, (out, sum)) in out.iter_mut().zip(sums).enumerate() {
+                        let x = piece * PIECE + j;
+                        let p = y * width + x;
+                        *out = [NO_PATH; 3];
+                        if !inside[p] {
+                            continue;
+                        }
+                        for (d, &(dx, step_gradient)) in sweeps.iter().enumerate() {
+                            let px = x as i64 - dx;
+                            let before = (k > 0
+                                && px >= 0
+                                && (px as usize) < width
+                                && !last[px as usize][d][0].is_nan())
+                            .then(|| {
+                                (
+                                    &last[px as usize][d],
+                                    &labels[before_y * width + px as usize],
+                                )
+                            });
+                            out[d] = path_step(&labels[p], before, step_gradient, top);
+                            if !out[d][0].is_nan() {
+                                for (t, v) in sum.iter_mut().zip(&out[d]) {
+                                    *t += v;
+                                }
+                            }
+                        }
                     }
-                    let mut out = [NO_PATH; 3];
-                    for (d, &(dx, step_gradient)) in sweeps.iter().enumerate() {
-                        let px = x as i64 - dx;
-                        let before = (k > 0
-                            && px >= 0
-                            && (px as usize) < width
-                            && !previous[px as usize][d][0].is_nan())
-                        .then(|| {
-                            (
-                                &previous[px as usize][d],
-                                &labels[before_y * width + px as usize],
-                            )
-                        });
-                        out[d] = path_step(&labels[p], before, step_gradient, top);
-                    }
-                    out
-                })
-                .collect();
-            for (slot, paths) in total[y * width..(y + 1) * width].iter_mut().zip(&current) {
-                for path in paths.iter().filter(|path| !path[0].is_nan()) {
-                    for (t, v) in slot.iter_mut().zip(path) {
-                        *t += v;
-                    }
-                }
-            }
-            previous = current;
+                });
+            std::mem::swap(&mut previous, &mut current);
         }
     }
     total

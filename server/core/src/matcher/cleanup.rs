@@ -413,8 +413,8 @@ pub(super) fn flag_poor_high_matches(pass: &mut Pass, top: f32, width: usize, he
 }
 
 /// Means of `values` over (2r+1)² windows clipped at the image edges, counting only pixels
-/// where `counted` holds; NaN where a window counts none. Separable: window sums and counts
-/// along each row, then down the columns, both in parallel.
+/// where `counted` holds; NaN where a window counts none. Separable running sums (in `f64`):
+/// along each row, then down strips of rows, both in parallel.
 pub(super) fn window_means(
     values: &[f32],
     counted: &[bool],
@@ -422,34 +422,72 @@ pub(super) fn window_means(
     height: usize,
     r: usize,
 ) -> Vec<f32> {
-    let span =
-        |centre: usize, length: usize| centre.saturating_sub(r)..(centre + r + 1).min(length);
-    let mut row_sums: Vec<(f32, u32)> = par_filled(values.len(), (0.0, 0));
+    const STRIP: usize = 64;
+    // Row pass: the window [x - r, x + r] slides one pixel at a time.
+    let mut row_sums: Vec<(f64, u32)> = par_filled(values.len(), (0.0, 0));
     row_sums
         .par_chunks_mut(width)
         .zip(values.par_chunks(width))
         .zip(counted.par_chunks(width))
         .for_each(|((out, v), k)| {
+            let term = |i: usize| if k[i] { (f64::from(v[i]), 1) } else { (0.0, 0) };
+            let (mut s, mut n) = (0.0, 0);
+            for i in 0..r.min(width) {
+                let (tv, tn) = term(i);
+                (s, n) = (s + tv, n + tn);
+            }
             for (x, o) in out.iter_mut().enumerate() {
-                *o = span(x, width)
-                    .filter(|&i| k[i])
-                    .fold((0.0, 0), |(s, n), i| (s + v[i], n + 1));
+                if x + r < width {
+                    let (tv, tn) = term(x + r);
+                    (s, n) = (s + tv, n + tn);
+                }
+                if x > r {
+                    let (tv, tn) = term(x - r - 1);
+                    (s, n) = (s - tv, n - tn);
+                }
+                *o = (s, n);
             }
         });
-    (0..values.len())
-        .into_par_iter()
-        .map(|p| {
-            let (x, y) = (p % width, p / width);
-            let (s, n) = span(y, height)
-                .map(|yy| row_sums[yy * width + x])
-                .fold((0.0, 0), |(s, n), (rs, rn)| (s + rs, n + rn));
-            if n == 0 {
-                f32::NAN
-            } else {
-                s / n as f32
+    // Column pass: per strip of rows, running sums of whole rows of `row_sums`.
+    let mut means = par_filled(values.len(), f32::NAN);
+    means
+        .par_chunks_mut(width * STRIP)
+        .enumerate()
+        .for_each(|(k, strip)| {
+            let first = k * STRIP;
+            let row = |y: usize| &row_sums[y * width..(y + 1) * width];
+            let add = |acc: &mut [(f64, u32)], y: usize| {
+                for (a, (s, n)) in acc.iter_mut().zip(row(y)) {
+                    *a = (a.0 + s, a.1 + n);
+                }
+            };
+            let remove = |acc: &mut [(f64, u32)], y: usize| {
+                for (a, (s, n)) in acc.iter_mut().zip(row(y)) {
+                    *a = (a.0 - s, a.1 - n);
+                }
+            };
+            let mut acc = vec![(0.0f64, 0u32); width];
+            for (out, y) in strip.chunks_mut(width).zip(first..) {
+                if y == first {
+                    for yy in first.saturating_sub(r)..(first + r + 1).min(height) {
+                        add(&mut acc, yy);
+                    }
+                } else {
+                    if y + r < height {
+                        add(&mut acc, y + r);
+                    }
+                    if y > r {
+                        remove(&mut acc, y - r - 1);
+                    }
+                }
+                for (o, (s, n)) in out.iter_mut().zip(&acc) {
+                    if *n > 0 {
+                        *o = (s / f64::from(*n)) as f32;
+                    }
+                }
             }
-        })
-        .collect()
+        });
+    means
 }
 
 /// Colours washed out to the mean colour of high orders (`white`) say little about the order:
@@ -599,10 +637,10 @@ pub(super) fn smooth(
                 let centre = order[p];
                 let mut sum = 0.0;
                 let whole = (y - r..=y + r).all(|ny| {
-                    let row = ny * width;
-                    (row + x - r..=row + x + r).all(|q| {
-                        sum += order[q];
-                        flags[q].0 == 0 && (order[q] - centre).abs() <= limit
+                    let span = ny * width + x - r..=ny * width + x + r;
+                    order[span.clone()].iter().zip(&flags[span]).all(|(v, f)| {
+                        sum += v;
+                        f.0 == 0 && (v - centre).abs() <= limit
                     })
                 });
                 if whole {
@@ -712,7 +750,8 @@ mod tests {
     #[test]
     fn window_means_match_the_naive_mean_over_each_clipped_window() {
         use rand::{Rng, SeedableRng};
-        let (width, height, r) = (23, 17, 3);
+        // Taller than one strip of the column pass (64 rows), so strips meet twice.
+        let (width, height, r) = (23, 150, 3);
         let mut rng = rand::rngs::StdRng::seed_from_u64(11);
         let values: Vec<f32> = (0..width * height)
             .map(|_| rng.random_range(-50.0..50.0))
