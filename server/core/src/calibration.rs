@@ -72,9 +72,21 @@ pub enum TableSource {
         light: String,
         /// Camera model name as the renderer knows it.
         camera: String,
-        /// Wavelength (nm) at which the quarter-wave plates are exact.
-        plate_design_nm: f64,
+        /// Wavelength (nm) at which the quarter-wave plates are exact; absent for ideal plates
+        /// (exact at every wavelength). Tables written before this field was optional say 0
+        /// for ideal plates, which reads as absent.
+        #[serde(
+            default,
+            skip_serializing_if = "Option::is_none",
+            deserialize_with = "design_wavelength"
+        )]
+        plate_design_nm: Option<f64>,
     },
+}
+
+/// Reads `plate_design_nm`, taking the 0 that older tables wrote for ideal plates as absent.
+fn design_wavelength<'de, D: serde::Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
+    Ok(Option::<f64>::deserialize(d)?.filter(|nm| *nm != 0.0))
 }
 
 /// One grid point of a table.
@@ -298,7 +310,7 @@ mod tests {
             TableSource::Rendered {
                 light: "d65".into(),
                 camera: "cie1931".into(),
-                plate_design_nm: 560.0,
+                plate_design_nm: Some(560.0),
             },
             entries,
         )
@@ -310,6 +322,25 @@ mod tests {
         let t = sample();
         let back = CalibrationTable::from_json(t.to_json().as_bytes()).unwrap();
         assert_eq!(t, back);
+    }
+
+    #[test]
+    fn rendered_tables_for_ideal_plates_carry_no_design_wavelength_and_older_zeros_read_as_none() {
+        let mut t = sample();
+        t.source = TableSource::Rendered {
+            light: "d65".into(),
+            camera: "cie1931".into(),
+            plate_design_nm: None,
+        };
+        let json = t.to_json();
+        assert!(!json.contains("plate_design_nm"), "{json}");
+        assert_eq!(CalibrationTable::from_json(json.as_bytes()).unwrap(), t);
+        let older = json.replace(
+            "\"camera\": \"cie1931\"",
+            "\"camera\": \"cie1931\",\n    \"plate_design_nm\": 0.0",
+        );
+        assert!(older.contains("plate_design_nm"), "{older}");
+        assert_eq!(CalibrationTable::from_json(older.as_bytes()).unwrap(), t);
     }
 
     #[test]

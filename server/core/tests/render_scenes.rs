@@ -188,7 +188,7 @@ fn a_rendered_table_is_valid_starts_black_and_names_its_setup() {
         TableSource::Rendered {
             light: "tri-band".into(),
             camera: "gaussian-sensor".into(),
-            plate_design_nm: 560.0
+            plate_design_nm: Some(560.0)
         }
     );
     // Mismatched plates: the colour depends on the isoclinic, which shows as spread.

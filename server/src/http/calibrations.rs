@@ -159,6 +159,10 @@ pub struct ImportQuery {
 /// or `edge_order` + `moment_n_mm` + `depth_mm` (then the fringe value is reported), or
 /// `estimate_edge_order: true` alone (the edge order is estimated from the beam's colour
 /// sequence and reported in `report.edge_order_estimate`).
+///
+/// The metadata fields (`name`, `material`, …) are spelled out here rather than flattened from
+/// the core's `CalibrationMetadata`: serde cannot refuse unknown fields of a struct with a
+/// flattened part, and a misspelt field must be refused, not dropped.
 #[derive(Debug, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BeamRequest {

@@ -64,8 +64,8 @@ const SPREAD_ANGLES: usize = 16;
 /// A calibration table computed by the renderer: for every order 0, step, 2·step, … ≤
 /// `max_order` the CIELAB (D65) colour of the 8-bit-gamut-clipped linear sRGB that the camera
 /// gives at exposure 1, averaged over isoclinic angles. `spread` is the standard deviation
-/// over isoclinic angles (zero for ideal plates), `samples` is 0. `plate_design_nm` in the
-/// source is 0 for ideal plates.
+/// over isoclinic angles (zero for ideal plates), `samples` is 0. The source carries no
+/// `plate_design_nm` for ideal plates.
 pub fn rendered_table(
     light: LightSource,
     camera: CameraModel,
@@ -130,7 +130,7 @@ pub fn rendered_table(
         TableSource::Rendered {
             light: light.name().to_string(),
             camera: camera.name().to_string(),
-            plate_design_nm: plates.design_nm().unwrap_or(0.0),
+            plate_design_nm: plates.design_nm(),
         },
         entries,
     )

@@ -43,7 +43,7 @@ pub fn table(max_order: f64) -> CalibrationTable {
         TableSource::Rendered {
             light: "synthetic".into(),
             camera: "synthetic".into(),
-            plate_design_nm: 575.0,
+            plate_design_nm: Some(575.0),
         },
         entries,
     )
