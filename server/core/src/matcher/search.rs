@@ -198,7 +198,11 @@ pub(super) fn candidates(
     }
     match d {
         [] => {}
-        [only] => keep(&mut best, *only, 0),
+        [only] => {
+            if *only < f32::INFINITY {
+                keep(&mut best, *only, 0);
+            }
+        }
         [first, second, ..] => {
             if first < second {
                 keep(&mut best, *first, 0);
