@@ -456,33 +456,30 @@ pub(super) fn window_means(
         .for_each(|(k, strip)| {
             let first = k * STRIP;
             let row = |y: usize| &row_sums[y * width..(y + 1) * width];
-            let add = |acc: &mut [(f64, u32)], y: usize| {
+            // Adds row y's sums and counts to the running column sums (sign 1) or takes them out
+            // (sign -1); counts are carried as f64, exact for whole numbers.
+            let slide = |acc: &mut [(f64, f64)], y: usize, sign: f64| {
                 for (a, (s, n)) in acc.iter_mut().zip(row(y)) {
-                    *a = (a.0 + s, a.1 + n);
+                    *a = (a.0 + sign * s, a.1 + sign * f64::from(*n));
                 }
             };
-            let remove = |acc: &mut [(f64, u32)], y: usize| {
-                for (a, (s, n)) in acc.iter_mut().zip(row(y)) {
-                    *a = (a.0 - s, a.1 - n);
-                }
-            };
-            let mut acc = vec![(0.0f64, 0u32); width];
+            let mut acc = vec![(0.0, 0.0); width];
             for (out, y) in strip.chunks_mut(width).zip(first..) {
                 if y == first {
                     for yy in first.saturating_sub(r)..(first + r + 1).min(height) {
-                        add(&mut acc, yy);
+                        slide(&mut acc, yy, 1.0);
                     }
                 } else {
                     if y + r < height {
-                        add(&mut acc, y + r);
+                        slide(&mut acc, y + r, 1.0);
                     }
                     if y > r {
-                        remove(&mut acc, y - r - 1);
+                        slide(&mut acc, y - r - 1, -1.0);
                     }
                 }
                 for (o, (s, n)) in out.iter_mut().zip(&acc) {
-                    if *n > 0 {
-                        *o = (s / f64::from(*n)) as f32;
+                    if *n > 0.0 {
+                        *o = (s / n) as f32;
                     }
                 }
             }
