@@ -472,7 +472,8 @@ const SECOND_REPAIR_BELOW_TOP: f64 = 1.0;
 /// Where the valued blocks around a full-resolution pixel differ by at most this (fringes),
 /// the pixel takes the order interpolated from them: the block means already average its
 /// colour noise, and its own colour would add it back. On the 12-megapixel benchmark (JPEG
-/// q90, stride 4) searching every pixel gave MAE 0.0029, this 0.0017 at 0.03 % less coverage.
+/// q90, stride 4) searching every pixel gave MAE 0.0029 and coverage 99.15 %, this 0.0018
+/// and 99.12 %.
 const GENTLE_BLOCK_SPREAD: f32 = 0.1;
 /// Photos up to this many pixels are labelled at full resolution; larger ones on block means.
 const FULL_RESOLUTION_LIMIT: u64 = 1_000_000;
