@@ -362,7 +362,6 @@ fn last_fringes(
     (0..=steps).map(move |k| table.colour_at(max_order - k as f64 * table.order_step))
 }
 
-/// Summary figures of a finished pass.
 /// Summary figures of a finished pass; `max_order` is the highest order it could read.
 fn statistics(pass: &Pass, max_order: f64) -> MapStatistics {
     /// Sums over some of the pixels.
