@@ -317,6 +317,61 @@ pub fn srgb8_from_lab(c: Lab) -> Srgb<u8> {
     Srgb::<f32>::from_linear(clipped).into_format::<u8>()
 }
 
+/// JFIF Y'CbCr of gamma-encoded sRGB, all components on a 0–1 scale (Cb and Cr centred on 0,
+/// ±0.5 at most): the space a JPEG stores, where its chroma subsampling averages colour.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct YCbCr {
+    /// Luma Y'.
+    pub y: f32,
+    /// Blue-difference chroma.
+    pub cb: f32,
+    /// Red-difference chroma.
+    pub cr: f32,
+}
+
+impl YCbCr {
+    /// From gamma-encoded sRGB components on a 0–1 scale (JFIF / ITU-R BT.601 full range).
+    pub fn from_srgb(c: Srgb<f32>) -> YCbCr {
+        let (r, g, b) = (c.red, c.green, c.blue);
+        YCbCr {
+            y: 0.299 * r + 0.587 * g + 0.114 * b,
+            cb: -0.168_736 * r - 0.331_264 * g + 0.5 * b,
+            cr: 0.5 * r - 0.418_688 * g - 0.081_312 * b,
+        }
+    }
+
+    /// Back to gamma-encoded sRGB on a 0–1 scale (not clipped).
+    pub fn to_srgb(self) -> Srgb<f32> {
+        Srgb::new(
+            self.y + 1.402 * self.cr,
+            self.y - 0.344_136 * self.cb - 0.714_136 * self.cr,
+            self.y + 1.772 * self.cb,
+        )
+    }
+
+    /// From CIELAB (D65), clipped to the sRGB gamut.
+    pub fn from_lab(c: Lab) -> YCbCr {
+        let lin = linear_from_lab(c);
+        let clipped = LinSrgb::new(
+            lin.red.clamp(0.0, 1.0),
+            lin.green.clamp(0.0, 1.0),
+            lin.blue.clamp(0.0, 1.0),
+        );
+        YCbCr::from_srgb(Srgb::from_linear(clipped))
+    }
+
+    /// To CIELAB (D65), clipped to the sRGB gamut.
+    pub fn to_lab(self) -> Lab {
+        let s = self.to_srgb();
+        let clipped = Srgb::new(
+            s.red.clamp(0.0, 1.0),
+            s.green.clamp(0.0, 1.0),
+            s.blue.clamp(0.0, 1.0),
+        );
+        lab_from_linear(clipped.into_linear())
+    }
+}
+
 /// ΔE\*ab: Euclidean distance in CIELAB.
 pub fn delta_e_ab(a: Lab, b: Lab) -> f32 {
     let (dl, da, db) = (a.l - b.l, a.a - b.a, a.b - b.b);
@@ -360,5 +415,35 @@ mod tests {
             let b = lut16()[v as usize * 257];
             assert!((a - b).abs() < 1e-6, "{v}: {a} vs {b}");
         }
+    }
+
+    #[test]
+    fn ycbcr_follows_the_jfif_equations_and_round_trips() {
+        // source: ITU-T T.871 (JFIF), clause 7: Y = 0.299 R + 0.587 G + 0.114 B,
+        // Cb = −0.1687 R − 0.3313 G + 0.5 B + 128, Cr = 0.5 R − 0.4187 G − 0.0813 B + 128,
+        // on 8-bit codes (coefficients quoted to four places there).
+        let cases: [([u8; 3], [f32; 3]); 5] = [
+            ([255, 0, 0], [76.245, 84.97, 255.5]),
+            ([0, 255, 0], [149.685, 43.52, 21.23]),
+            ([0, 0, 255], [29.07, 255.5, 107.27]),
+            ([255, 255, 255], [255.0, 128.0, 128.0]),
+            ([0, 0, 0], [0.0, 128.0, 128.0]),
+        ];
+        for (rgb, [y, cb, cr]) in cases {
+            let c = Srgb::new(rgb[0], rgb[1], rgb[2]).into_format::<f32>();
+            let ycc = YCbCr::from_srgb(c);
+            let codes = [255.0 * ycc.y, 255.0 * ycc.cb + 128.0, 255.0 * ycc.cr + 128.0];
+            for (got, want) in codes.iter().zip([y, cb, cr]) {
+                assert!((got - want).abs() < 0.05, "{rgb:?}: {codes:?}");
+            }
+            let back = ycc.to_srgb();
+            for (a, b) in [(back.red, c.red), (back.green, c.green), (back.blue, c.blue)] {
+                assert!((a - b).abs() < 1e-5, "{rgb:?} back as {back:?}");
+            }
+        }
+        // Through CIELAB: an in-gamut colour comes back within 0.01 ΔE*ab.
+        let lab = Lab::new(60.0, 30.0, -20.0);
+        let again = YCbCr::from_lab(lab).to_lab();
+        assert!(delta_e_ab(lab, again) < 0.01, "{again:?}");
     }
 }

@@ -18,6 +18,7 @@ use serde::{Deserialize, Serialize};
 
 use super::renderer::clip;
 use super::scene::LinearImage;
+use crate::colour::YCbCr;
 use crate::error::{CoreError, CoreResult};
 use crate::exposure::radius_sq;
 use crate::geometry::Mask;
@@ -253,14 +254,7 @@ pub fn develop(
 /// luma. The JPEG encoder subsamples chroma by taking one pixel per block; averaging first
 /// makes its 4:2:0 output centred on the block, as camera encoders produce it.
 fn average_chroma_blocks(rgb: &mut [u8], width: usize, height: usize) {
-    let ycc = |p: &[u8]| {
-        let (r, g, b) = (f32::from(p[0]), f32::from(p[1]), f32::from(p[2]));
-        (
-            0.299 * r + 0.587 * g + 0.114 * b,
-            -0.168_736 * r - 0.331_264 * g + 0.5 * b,
-            0.5 * r - 0.418_688 * g - 0.081_312 * b,
-        )
-    };
+    let ycc = |p: &[u8]| YCbCr::from_srgb(Srgb::new(p[0], p[1], p[2]).into_format());
     for by in (0..height).step_by(2) {
         for bx in (0..width).step_by(2) {
             let pixels: Vec<usize> = [(0, 0), (1, 0), (0, 1), (1, 1)]
@@ -270,18 +264,18 @@ fn average_chroma_blocks(rgb: &mut [u8], width: usize, height: usize) {
                 .collect();
             let n = pixels.len() as f32;
             let (cb, cr) = pixels.iter().fold((0.0, 0.0), |acc, &i| {
-                let (_, cb, cr) = ycc(&rgb[i..i + 3]);
-                (acc.0 + cb / n, acc.1 + cr / n)
+                let c = ycc(&rgb[i..i + 3]);
+                (acc.0 + c.cb / n, acc.1 + c.cr / n)
             });
             for &i in &pixels {
-                let (y, _, _) = ycc(&rgb[i..i + 3]);
-                let out = [
-                    y + 1.402 * cr,
-                    y - 0.344_136 * cb - 0.714_136 * cr,
-                    y + 1.772 * cb,
-                ];
-                for (slot, v) in rgb[i..i + 3].iter_mut().zip(out) {
-                    *slot = v.round().clamp(0.0, 255.0) as u8;
+                let out = YCbCr {
+                    y: ycc(&rgb[i..i + 3]).y,
+                    cb,
+                    cr,
+                }
+                .to_srgb();
+                for (slot, v) in rgb[i..i + 3].iter_mut().zip([out.red, out.green, out.blue]) {
+                    *slot = (255.0 * v).round().clamp(0.0, 255.0) as u8;
                 }
             }
         }
