@@ -4,12 +4,12 @@
 //!
 //! Scored where the true order is ≤ 4 and the pixel lies ≥ 3 px inside the specimen mask.
 //! Targets: mean absolute error ≤ 0.02 fringe, share of pixels off by more than 0.5 fringe
-//! ≤ 0.1 %, coverage (valued / scored) ≥ 99 %. Mean error and gross errors are asserted over
-//! all scored pixels; coverage where the true field is no steeper than the solver's maximum
-//! gradient (0.2 fringe per pixel, fringes 5 px apart), with the figure over all slopes
-//! printed beside it. Next to the disc's load points the field reaches several fringes per
-//! pixel and colours wash out to pale mixtures: there the solver is meant to flag, and mostly
-//! does.
+//! ≤ 0.1 %, coverage (valued / scored) ≥ 99 %, all three asserted over all scored pixels.
+//! Beside them the gross share and coverage where the true field is no steeper than the
+//! solver's maximum gradient (0.2 fringe per pixel, fringes 5 px apart) are printed. Next to
+//! the disc's load points the field reaches several fringes per pixel and colours wash out to
+//! pale mixtures: there the solver is meant to flag what it cannot fit, and the window fit
+//! (fringes down to about 3 px apart) gives the rest a value.
 //! Ground truth: disc in diametral compression (Timoshenko & Goodier closed form) and plate
 //! with a circular hole under tension (Kirsch solution), via `render::fields`.
 
@@ -239,9 +239,9 @@ fn check_parts(name: &str, c: Conditions, parts: &[Part]) {
             score.gross_share_all
         );
         assert!(
-            score.coverage >= COVERAGE_TARGET,
-            "{name} {what}: coverage {}",
-            score.coverage
+            score.coverage_all >= COVERAGE_TARGET,
+            "{name} {what}: coverage {} over all slopes",
+            score.coverage_all
         );
     }
 }
@@ -277,8 +277,8 @@ fn fluorescent_tube_light_meets_the_accuracy_targets() {
 }
 
 /// JPEG stores colour on 2 × 2 blocks (4:2:0): around the disc's load points, where fringes
-/// lie a few pixels apart, colours blur across fringes. Before the repair matched the
-/// subsampled chroma footprint the small disc reached only 98.4–98.7 % coverage.
+/// lie a few pixels apart, colours blur across fringes. Before the window fit modelled the
+/// subsampled chroma the small disc reached only 98.4–98.7 % coverage over all slopes.
 #[test]
 fn jpeg_quality_95_with_chroma_subsampling_meets_the_accuracy_targets() {
     check(
@@ -479,15 +479,16 @@ fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
             past > 20_000,
             "{name}: too few pixels past the table ({past})"
         );
-        // Measured 0.00 % and 0.62 %. Before the washed-out and unanchored-region rules a
-        // 360-px disc at N 10 had 93 % of them valued, and the second case 25–29 %.
+        // Measured 0.00 % in all five cases, and 99.44–99.68 % of the pixels with N ≤ 4
+        // valued. Before the washed-out and unanchored-region rules a 360-px disc at N 10 had
+        // 93 % of them valued, and the second case 25–29 %.
         assert!(
             past_share < 0.05,
             "{name}: {:.1} % of the pixels past the table got a value",
             100.0 * past_share
         );
         assert!(
-            band_share > 0.95,
+            band_share >= COVERAGE_TARGET,
             "{name}: only {:.1} % of the pixels with N ≤ 4 got a value",
             100.0 * band_share
         );

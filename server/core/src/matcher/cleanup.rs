@@ -250,111 +250,78 @@ pub(super) fn flag_enclosed_by_beyond_range(
     }
 }
 
-/// Grows values into flagged pixels next to valued ones, layer by layer: a plane fitted to the
-/// valued pixels around predicts the order and its gradient G; the pixel's colour must then
-/// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
-/// fringes blur within a pixel, within a window of the prediction. Predictions above
-/// `limits.ceiling` are not grown; matches worse than `limits.residual` stay flagged.
-pub(super) fn repair_steep_edges(
-    pass: &mut Pass,
-    lab: &LabImage,
-    fine: &SearchTable,
-    limits: RepairLimits,
+/// Half-width of the window the repairs fit planes of orders in, pixels.
+pub(super) const REPAIR_RADIUS: i64 = 2;
+
+/// Least-squares plane n = a + bx·dx + by·dy (fringes; dx, dy in pixels from (x, y)) through
+/// the valued pixels of the (2·[`REPAIR_RADIUS`]+1)² window around (x, y): `(a, bx, by)`, or
+/// `None` with fewer than four valued pixels or a degenerate layout.
+pub(super) fn fit_plane(
+    pass: &Pass,
+    x: i64,
+    y: i64,
     width: usize,
     height: usize,
+) -> Option<(f64, f64, f64)> {
+    let r = REPAIR_RADIUS;
+    let (mut s1, mut sx, mut sy, mut sxx, mut syy, mut sxy) = (0.0f64, 0.0, 0.0, 0.0, 0.0, 0.0);
+    let (mut sn, mut sxn, mut syn) = (0.0f64, 0.0, 0.0);
+    for dy in -r..=r {
+        for dx in -r..=r {
+            let (nx, ny) = (x + dx, y + dy);
+            if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
+                continue;
+            }
+            let q = ny as usize * width + nx as usize;
+            if pass.flags[q].0 != 0 {
+                continue;
+            }
+            let (fx, fy, n) = (dx as f64, dy as f64, f64::from(pass.order[q]));
+            s1 += 1.0;
+            sx += fx;
+            sy += fy;
+            sxx += fx * fx;
+            syy += fy * fy;
+            sxy += fx * fy;
+            sn += n;
+            sxn += fx * n;
+            syn += fy * n;
+        }
+    }
+    if s1 < 4.0 {
+        return None;
+    }
+    solve3(
+        [[s1, sx, sy], [sx, sxx, sxy], [sy, sxy, syy]],
+        [sn, sxn, syn],
+    )
+}
+
+/// Grows values into flagged specimen pixels next to valued ones, layer by layer (at most
+/// [`REPAIR_LAYERS`]): `value(pass, p)` proposes `(order, residual)` for flagged pixel `p`
+/// from the pass as the layer found it, and a layer's proposals are applied together. The
+/// first layer tries every flagged pixel; later ones only those within [`REPAIR_RADIUS`] of a
+/// pixel the layer before gave a value: elsewhere nothing around has changed, nor would the
+/// outcome.
+pub(super) fn grow_layers(
+    pass: &mut Pass,
+    width: usize,
+    height: usize,
+    value: impl Fn(&Pass, usize) -> Option<(f32, f32)> + Sync,
 ) {
-    let r = 2i64;
+    let r = REPAIR_RADIUS;
     let growable =
         |flags: &[PixelFlags], p: usize| flags[p].0 != 0 && !flags[p].has(PixelFlags::OUTSIDE_MASK);
-    // The first layer tries every flagged pixel; later ones only those near a pixel the layer
-    // before gave a value: elsewhere nothing around has changed, nor would the outcome.
     let mut candidates: Vec<usize> = (0..pass.order.len())
         .into_par_iter()
         .filter(|&p| growable(&pass.flags, p))
         .collect();
     let mut queued = vec![false; pass.order.len()];
     for _ in 0..REPAIR_LAYERS {
-        // Read-only while a layer is worked out; its updates are applied afterwards.
-        let (order, flags) = (&pass.order, &pass.flags);
-        let valued = |q: usize| flags[q].0 == 0;
+        let current = &*pass;
         let updates: Vec<(usize, f32, f32)> = candidates
             .par_iter()
-            .filter_map(|&p| {
-                let (x, y) = ((p % width) as i64, (p / width) as i64);
-                // Least-squares plane n = a + bx·dx + by·dy through valued pixels around.
-                let (mut s1, mut sx, mut sy, mut sxx, mut syy, mut sxy) =
-                    (0.0f64, 0.0, 0.0, 0.0, 0.0, 0.0);
-                let (mut sn, mut sxn, mut syn) = (0.0f64, 0.0, 0.0);
-                for dy in -r..=r {
-                    for dx in -r..=r {
-                        let (nx, ny) = (x + dx, y + dy);
-                        if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
-                            continue;
-                        }
-                        let q = ny as usize * width + nx as usize;
-                        if !valued(q) {
-                            continue;
-                        }
-                        let (fx, fy, n) = (dx as f64, dy as f64, f64::from(order[q]));
-                        s1 += 1.0;
-                        sx += fx;
-                        sy += fy;
-                        sxx += fx * fx;
-                        syy += fy * fy;
-                        sxy += fx * fy;
-                        sn += n;
-                        sxn += fx * n;
-                        syn += fy * n;
-                    }
-                }
-                if s1 < 4.0 {
-                    return None;
-                }
-                let (a, bx, by) = solve3(
-                    [[s1, sx, sy], [sx, sxx, sxy], [sy, sxy, syy]],
-                    [sn, sxn, syn],
-                )?;
-                let g = bx.hypot(by);
-                if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > limits.ceiling {
-                    return None;
-                }
-                let reach = 0.05 + 0.5 * g;
-                let colour = lab.data[p];
-                let lo = ((a - reach).max(0.0) / fine.step).floor() as usize;
-                let hi = (((a + reach) / fine.step).ceil() as usize).min(fine.len() - 1);
-                let g = g as f32;
-                // Mean table colour over a footprint across the fringes.
-                let averaged = |n: f32, footprint: Footprint| {
-                    let mut acc = [0f32; 3];
-                    for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
-                        let at = |width: f32| fine.colour_at(n + g * width * u);
-                        let l = at(footprint.lightness);
-                        let c = if footprint.chroma == footprint.lightness {
-                            l
-                        } else {
-                            at(footprint.chroma)
-                        };
-                        acc[0] += l.l / 5.0;
-                        acc[1] += c.a / 5.0;
-                        acc[2] += c.b / 5.0;
-                    }
-                    Lab::new(acc[0], acc[1], acc[2])
-                };
-                let subsampled = limits.subsampled_chroma
-                    && a >= SUBSAMPLED_CHROMA_MIN_ORDER
-                    && g * SUBSAMPLED_CHROMA.chroma <= SUBSAMPLED_CHROMA_MAX_SPAN;
-                let footprints = PIXEL_FOOTPRINTS
-                    .iter()
-                    .chain(subsampled.then_some(&SUBSAMPLED_CHROMA));
-                let (best_n, best_d) = (lo..=hi)
-                    .flat_map(|i| footprints.clone().map(move |f| (i, *f)))
-                    .map(|(i, footprint)| {
-                        let n = (i as f64 * fine.step) as f32;
-                        (n, delta_e_ab(colour, averaged(n, footprint)))
-                    })
-                    .min_by(|u, v| u.1.total_cmp(&v.1))?;
-                (best_d < limits.residual).then_some((p, best_n, best_d))
-            })
+            .filter_map(|&p| value(current, p).map(|(n, d)| (p, n, d)))
             .collect();
         if updates.is_empty() {
             break;
@@ -381,6 +348,65 @@ pub(super) fn repair_steep_edges(
             queued[q] = false;
         }
     }
+}
+
+/// Grows values into flagged pixels next to valued ones ([`grow_layers`]): a plane fitted to
+/// the valued pixels around predicts the order and its gradient G; the pixel's colour must then
+/// match the table *averaged over the pixel footprint* (± G/2 around the order), since steep
+/// fringes blur within a pixel, within a window of the prediction. Predictions above
+/// `limits.ceiling` are not grown; matches worse than `limits.residual` stay flagged.
+pub(super) fn repair_steep_edges(
+    pass: &mut Pass,
+    lab: &LabImage,
+    fine: &SearchTable,
+    limits: RepairLimits,
+    width: usize,
+    height: usize,
+) {
+    grow_layers(pass, width, height, |pass, p| {
+        let (x, y) = ((p % width) as i64, (p / width) as i64);
+        let (a, bx, by) = fit_plane(pass, x, y, width, height)?;
+        let g = bx.hypot(by);
+        if g > REPAIR_MAX_GRADIENT || a < 0.0 || a > limits.ceiling {
+            return None;
+        }
+        let reach = 0.05 + 0.5 * g;
+        let colour = lab.data[p];
+        let lo = ((a - reach).max(0.0) / fine.step).floor() as usize;
+        let hi = (((a + reach) / fine.step).ceil() as usize).min(fine.len() - 1);
+        let g = g as f32;
+        // Mean table colour over a footprint across the fringes.
+        let averaged = |n: f32, footprint: Footprint| {
+            let mut acc = [0f32; 3];
+            for u in [-0.5, -0.25, 0.0, 0.25, 0.5] {
+                let at = |width: f32| fine.colour_at(n + g * width * u);
+                let l = at(footprint.lightness);
+                let c = if footprint.chroma == footprint.lightness {
+                    l
+                } else {
+                    at(footprint.chroma)
+                };
+                acc[0] += l.l / 5.0;
+                acc[1] += c.a / 5.0;
+                acc[2] += c.b / 5.0;
+            }
+            Lab::new(acc[0], acc[1], acc[2])
+        };
+        let subsampled = limits.subsampled_chroma
+            && a >= SUBSAMPLED_CHROMA_MIN_ORDER
+            && g * SUBSAMPLED_CHROMA.chroma <= SUBSAMPLED_CHROMA_MAX_SPAN;
+        let footprints = PIXEL_FOOTPRINTS
+            .iter()
+            .chain(subsampled.then_some(&SUBSAMPLED_CHROMA));
+        let (best_n, best_d) = (lo..=hi)
+            .flat_map(|i| footprints.clone().map(move |f| (i, *f)))
+            .map(|(i, footprint)| {
+                let n = (i as f64 * fine.step) as f32;
+                (n, delta_e_ab(colour, averaged(n, footprint)))
+            })
+            .min_by(|u, v| u.1.total_cmp(&v.1))?;
+        (best_d < limits.residual).then_some((best_n, best_d))
+    });
 }
 
 /// Past the end of the table colours repeat in paler form, so a region of orders near the

@@ -19,9 +19,11 @@
 //!    that match markedly worse than the rest of the photo, upper-fringe regions nothing
 //!    anchors, high orders next to beyond-range pixels); a second repair grows values back
 //!    well below the table's top, also matching the wider colour footprint of JPEG's
-//!    subsampled chroma; valued regions that beyond-range pixels cut off from the specimen's
-//!    edge are flagged beyond range; and a 5 × 5 mean that keeps ramps exact smooths the
-//!    result.
+//!    subsampled chroma; a window fit (`window_fit`) grows values further into steep flanks
+//!    by fitting a plane of orders to each 5 × 5 window against the table blurred as a
+//!    camera blurs steep fringes; valued regions that beyond-range pixels cut off from the
+//!    specimen's edge are flagged beyond range; and a 5 × 5 mean that keeps ramps exact
+//!    smooths the result.
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
 //!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
 //!    pass on a ≤ 0.15-megapixel image, in up to two rounds. That pass compares chroma
@@ -52,11 +54,13 @@ mod aggregate;
 mod cleanup;
 mod exposure_fit;
 mod search;
+mod window_fit;
 
 use aggregate::*;
 use cleanup::*;
 use exposure_fit::*;
 use search::*;
+use window_fit::*;
 
 /// Weight of ΔL\* in the search distance (a\* and b\* have weight 1).
 const LIGHTNESS_WEIGHT: f32 = 0.6;
@@ -129,8 +133,10 @@ pub(super) fn par_filled<T: Copy + Send + Sync>(n: usize, value: T) -> Vec<T> {
     v
 }
 
+/// One labelling of `lab`, whose pixels are block means of `stride` × `stride` photo pixels.
 fn solve_pass(
     lab: &LabImage,
+    stride: u32,
     inside: &[bool],
     table: &CalibrationTable,
     max_order: f64,
@@ -308,6 +314,13 @@ fn solve_pass(
             subsampled_chroma: true,
         };
         repair_steep_edges(&mut pass, lab, &fine, second, width, height);
+        repair_by_window_fit(
+            &mut pass,
+            lab,
+            &BlurredTables::new(&fine, stride),
+            width,
+            height,
+        );
         flag_enclosed_by_beyond_range(&mut pass, &hinted, width, height);
     }
     smooth(&mut pass, width, height, gradient, None);
@@ -600,6 +613,7 @@ pub(crate) fn solve(
                 .for_each(|c| *c = exposure_invariant(*c));
             let preliminary = solve_pass(
                 &lab,
+                working.stride,
                 &working.inside,
                 &invariant_table,
                 max_order,
@@ -622,6 +636,7 @@ pub(crate) fn solve(
     let working = Working::new(photo, mask, FULL_RESOLUTION_LIMIT);
     let pass = solve_pass(
         &working.lab(&exposure),
+        working.stride,
         &working.inside,
         table,
         max_order,
