@@ -42,6 +42,12 @@ struct Conditions {
     specimen_exposure: f32,
     /// Corner brightness of the specimen photo (vignetting).
     corner_brightness: f32,
+    /// Lens blur of the specimen photo, Gaussian σ in pixels.
+    blur: f32,
+    /// Lens blur of the calibration beam's photo, Gaussian σ in pixels.
+    beam_blur: f32,
+    /// Added to the noise seeds of both photos.
+    seed: u64,
 }
 
 const BASE: Conditions = Conditions {
@@ -52,6 +58,9 @@ const BASE: Conditions = Conditions {
     encoding: PhotoEncoding::Png8,
     specimen_exposure: 1.0,
     corner_brightness: 1.0,
+    blur: 0.6,
+    beam_blur: 0.6,
+    seed: 0,
 };
 
 struct Score {
@@ -96,9 +105,9 @@ fn run(c: Conditions, specimen: &dyn OrderField, size: (u32, u32)) -> Score {
     })
     .unwrap();
     let beam_fx = PhotoEffects {
-        blur_sigma_px: 0.6,
+        blur_sigma_px: c.beam_blur,
         noise_sigma_codes: c.noise,
-        seed: 1,
+        seed: 1 + c.seed,
         ..PhotoEffects::default()
     };
     let table = photographed_beam_table(
@@ -113,11 +122,11 @@ fn run(c: Conditions, specimen: &dyn OrderField, size: (u32, u32)) -> Score {
     .unwrap();
 
     let fx = PhotoEffects {
-        blur_sigma_px: 0.6,
+        blur_sigma_px: c.blur,
         noise_sigma_codes: c.noise,
         exposure: c.specimen_exposure,
         corner_brightness: c.corner_brightness,
-        seed: 2,
+        seed: 2 + c.seed,
     };
     let (specimen_photo, truth, mask) = photo(specimen, &renderer, size, &fx, c.encoding);
     let map = map_orders(&specimen_photo, &table, Some(&mask), &MapOptions::default()).unwrap();
@@ -567,4 +576,231 @@ fn a_bending_beam_with_zero_order_ends_meets_the_accuracy_targets() {
         };
         check_parts(name, c, &[("beam", &beam, (800, 400))]);
     }
+}
+
+/// Conditions outside the suite above, on the 360-px disc, discs of 300 and 480 px and the
+/// plate, scored the same way. They hold the limits the README states: no run reads more than
+/// 0.3 % of its pixels half a fringe wrong or misses the mean error; with lens blur up to 1 px
+/// at most 3 of the 56 runs miss a target (measured 3: the 300-px disc, whose load-point flanks
+/// are steepest); at 1.4 px coverage stays above 90 % (measured 91.9 % at worst, the plate).
+#[test]
+fn a_sweep_of_further_conditions_stays_within_the_stated_limits() {
+    let jpeg = |quality| PhotoEncoding::Jpeg { quality };
+    let noisy = Conditions { noise: 1.0, ..BASE };
+    let sharp_enough: [(&str, Conditions); 14] = [
+        (
+            "jpeg 80",
+            Conditions {
+                encoding: jpeg(80),
+                ..noisy
+            },
+        ),
+        (
+            "jpeg 85",
+            Conditions {
+                encoding: jpeg(85),
+                ..noisy
+            },
+        ),
+        (
+            "jpeg 90, other noise",
+            Conditions {
+                encoding: jpeg(90),
+                seed: 3,
+                ..noisy
+            },
+        ),
+        (
+            "jpeg 90, sensor, noise 1.5",
+            Conditions {
+                encoding: jpeg(90),
+                camera: CameraModel::Sensor,
+                noise: 1.5,
+                seed: 7,
+                ..BASE
+            },
+        ),
+        (
+            "tri-band, jpeg 90",
+            Conditions {
+                light: LightSource::TriBand,
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+        (
+            "cool-white, sensor, jpeg 92",
+            Conditions {
+                light: LightSource::CoolWhite,
+                camera: CameraModel::Sensor,
+                encoding: jpeg(92),
+                ..noisy
+            },
+        ),
+        (
+            "halogen, plates 520 nm, jpeg 90",
+            Conditions {
+                light: LightSource::Halogen,
+                plates_design_nm: Some(520.0),
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+        (
+            "15 % darker, corners 85 %, jpeg 90",
+            Conditions {
+                specimen_exposure: 0.85,
+                corner_brightness: 0.85,
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+        (
+            "10 % darker, sensor, jpeg 95",
+            Conditions {
+                specimen_exposure: 0.9,
+                camera: CameraModel::Sensor,
+                encoding: jpeg(95),
+                ..noisy
+            },
+        ),
+        (
+            "halogen, sensor, 20 % darker, corners 80 %, jpeg 90",
+            Conditions {
+                light: LightSource::Halogen,
+                camera: CameraModel::Sensor,
+                specimen_exposure: 0.8,
+                corner_brightness: 0.8,
+                noise: 2.0,
+                encoding: jpeg(90),
+                ..BASE
+            },
+        ),
+        (
+            "blur 0.3 px",
+            Conditions {
+                blur: 0.3,
+                beam_blur: 0.3,
+                ..noisy
+            },
+        ),
+        (
+            "blur 0.3 px, jpeg 90",
+            Conditions {
+                blur: 0.3,
+                beam_blur: 0.3,
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+        (
+            "blur 1 px",
+            Conditions {
+                blur: 1.0,
+                beam_blur: 1.0,
+                ..noisy
+            },
+        ),
+        (
+            "blur 1 px, jpeg 90",
+            Conditions {
+                blur: 1.0,
+                beam_blur: 1.0,
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+    ];
+    let blurred: [(&str, Conditions); 6] = [
+        (
+            "blur 1.4 px",
+            Conditions {
+                blur: 1.4,
+                beam_blur: 1.4,
+                ..noisy
+            },
+        ),
+        (
+            "blur 1.4 px, jpeg 90",
+            Conditions {
+                blur: 1.4,
+                beam_blur: 1.4,
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+        (
+            "blur 1.4 px, jpeg 95",
+            Conditions {
+                blur: 1.4,
+                beam_blur: 1.4,
+                encoding: jpeg(95),
+                ..noisy
+            },
+        ),
+        ("blur 1.4 px, beam 0.6", Conditions { blur: 1.4, ..noisy }),
+        (
+            "blur 1.4 px, beam 0.6, jpeg 90",
+            Conditions {
+                blur: 1.4,
+                encoding: jpeg(90),
+                ..noisy
+            },
+        ),
+        (
+            "blur 0.6 px, beam 1.4",
+            Conditions {
+                beam_blur: 1.4,
+                ..noisy
+            },
+        ),
+    ];
+    let parts: [Part; 4] = [
+        ("disc", &disc(), (360, 360)),
+        ("disc 300", &disc_scaled(300.0 / 360.0), (300, 300)),
+        ("disc 480", &disc_scaled(480.0 / 360.0), (480, 480)),
+        ("plate", &plate(), (400, 300)),
+    ];
+    let mut misses = [0, 0];
+    for (set, conditions) in [&sharp_enough[..], &blurred[..]].iter().enumerate() {
+        for &(name, c) in *conditions {
+            for &(what, field, size) in &parts {
+                let score = run(c, field, size);
+                let met = score.mae <= MAE_TARGET
+                    && score.gross_share_all <= GROSS_SHARE_TARGET
+                    && score.coverage_all >= COVERAGE_TARGET;
+                misses[set] += usize::from(!met);
+                println!(
+                    "{name:<52} {what:<8} MAE {:.4}  >0.5 {:.3}%  coverage {:.2}%{}",
+                    score.mae,
+                    100.0 * score.gross_share_all,
+                    100.0 * score.coverage_all,
+                    if met { "" } else { "  (misses a target)" }
+                );
+                assert!(score.mae <= MAE_TARGET, "{name} {what}: MAE {}", score.mae);
+                assert!(
+                    score.gross_share_all <= 0.003,
+                    "{name} {what}: gross share {}",
+                    score.gross_share_all
+                );
+                assert!(
+                    score.coverage_all >= 0.9,
+                    "{name} {what}: coverage {}",
+                    score.coverage_all
+                );
+            }
+        }
+    }
+    println!(
+        "missed a target: {} of {} runs with blur up to 1 px, {} of {} at 1.4 px",
+        misses[0],
+        sharp_enough.len() * parts.len(),
+        misses[1],
+        blurred.len() * parts.len()
+    );
+    assert!(
+        misses[0] <= 3,
+        "{} runs with blur up to 1 px missed",
+        misses[0]
+    );
 }
