@@ -432,12 +432,20 @@ mod tests {
         for (rgb, [y, cb, cr]) in cases {
             let c = Srgb::new(rgb[0], rgb[1], rgb[2]).into_format::<f32>();
             let ycc = YCbCr::from_srgb(c);
-            let codes = [255.0 * ycc.y, 255.0 * ycc.cb + 128.0, 255.0 * ycc.cr + 128.0];
+            let codes = [
+                255.0 * ycc.y,
+                255.0 * ycc.cb + 128.0,
+                255.0 * ycc.cr + 128.0,
+            ];
             for (got, want) in codes.iter().zip([y, cb, cr]) {
                 assert!((got - want).abs() < 0.05, "{rgb:?}: {codes:?}");
             }
             let back = ycc.to_srgb();
-            for (a, b) in [(back.red, c.red), (back.green, c.green), (back.blue, c.blue)] {
+            for (a, b) in [
+                (back.red, c.red),
+                (back.green, c.green),
+                (back.blue, c.blue),
+            ] {
                 assert!((a - b).abs() < 1e-5, "{rgb:?} back as {back:?}");
             }
         }
