@@ -253,6 +253,24 @@ pub(super) fn flag_enclosed_by_beyond_range(
 /// Half-width of the window the repairs fit planes of orders in, pixels.
 pub(super) const REPAIR_RADIUS: i64 = 2;
 
+/// The pixels of the (2·[`REPAIR_RADIUS`]+1)² window around (x, y) that lie in the image, as
+/// `(dx, dy, index)`, row by row.
+pub(super) fn repair_window(
+    x: i64,
+    y: i64,
+    width: usize,
+    height: usize,
+) -> impl Iterator<Item = (i64, i64, usize)> {
+    let r = REPAIR_RADIUS;
+    (-r..=r)
+        .flat_map(move |dy| (-r..=r).map(move |dx| (dx, dy)))
+        .filter(move |&(dx, dy)| {
+            let (nx, ny) = (x + dx, y + dy);
+            nx >= 0 && ny >= 0 && nx < width as i64 && ny < height as i64
+        })
+        .map(move |(dx, dy)| (dx, dy, (y + dy) as usize * width + (x + dx) as usize))
+}
+
 /// Least-squares plane n = a + bx·dx + by·dy (fringes; dx, dy in pixels from (x, y)) through
 /// the valued pixels of the (2·[`REPAIR_RADIUS`]+1)² window around (x, y): `(a, bx, by)`, or
 /// `None` with fewer than four valued pixels or a degenerate layout.
@@ -263,30 +281,22 @@ pub(super) fn fit_plane(
     width: usize,
     height: usize,
 ) -> Option<(f64, f64, f64)> {
-    let r = REPAIR_RADIUS;
     let (mut s1, mut sx, mut sy, mut sxx, mut syy, mut sxy) = (0.0f64, 0.0, 0.0, 0.0, 0.0, 0.0);
     let (mut sn, mut sxn, mut syn) = (0.0f64, 0.0, 0.0);
-    for dy in -r..=r {
-        for dx in -r..=r {
-            let (nx, ny) = (x + dx, y + dy);
-            if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
-                continue;
-            }
-            let q = ny as usize * width + nx as usize;
-            if pass.flags[q].0 != 0 {
-                continue;
-            }
-            let (fx, fy, n) = (dx as f64, dy as f64, f64::from(pass.order[q]));
-            s1 += 1.0;
-            sx += fx;
-            sy += fy;
-            sxx += fx * fx;
-            syy += fy * fy;
-            sxy += fx * fy;
-            sn += n;
-            sxn += fx * n;
-            syn += fy * n;
+    for (dx, dy, q) in repair_window(x, y, width, height) {
+        if pass.flags[q].0 != 0 {
+            continue;
         }
+        let (fx, fy, n) = (dx as f64, dy as f64, f64::from(pass.order[q]));
+        s1 += 1.0;
+        sx += fx;
+        sy += fy;
+        sxx += fx * fx;
+        syy += fy * fy;
+        sxy += fx * fy;
+        sn += n;
+        sxn += fx * n;
+        syn += fy * n;
     }
     if s1 < 4.0 {
         return None;

@@ -133,6 +133,25 @@ pub(super) fn par_filled<T: Copy + Send + Sync>(n: usize, value: T) -> Vec<T> {
     v
 }
 
+/// The renderer's daylight table (colorimetric camera, ideal plates) up to 4.4 fringes on a
+/// 0.01-fringe grid, for the solver's unit tests.
+#[cfg(test)]
+fn daylight_test_table(name: &str) -> CalibrationTable {
+    use crate::render::{rendered_table, CameraModel, LightSource, QuarterWavePlates};
+    rendered_table(
+        LightSource::Daylight,
+        CameraModel::Colorimetric,
+        QuarterWavePlates::Ideal,
+        4.4,
+        0.01,
+        crate::CalibrationMetadata {
+            name: name.into(),
+            ..Default::default()
+        },
+    )
+    .unwrap()
+}
+
 /// One labelling of `lab`, whose pixels are block means of `stride` × `stride` photo pixels.
 fn solve_pass(
     lab: &LabImage,

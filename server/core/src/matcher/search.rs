@@ -273,18 +273,7 @@ mod tests {
             }
             best
         }
-        let table = rendered_table(
-            LightSource::Daylight,
-            CameraModel::Colorimetric,
-            QuarterWavePlates::Ideal,
-            4.4,
-            0.01,
-            crate::CalibrationMetadata {
-                name: "candidates".into(),
-                ..Default::default()
-            },
-        )
-        .unwrap();
+        let table = daylight_test_table("candidates");
         let mut rng = rand::rngs::StdRng::seed_from_u64(5);
         // Table lengths that leave every remainder after the chunks of eight.
         for max_order in [0.08, 0.16, 0.3, 1.0, 2.5, 4.4] {

@@ -183,7 +183,6 @@ pub(super) fn repair_by_window_fit(
     width: usize,
     height: usize,
 ) {
-    let r = REPAIR_RADIUS;
     let top = tables.top();
     let ceiling = top - WINDOW_BELOW_TOP as f32;
     let blurs = CAMERA_BLURS.len();
@@ -201,24 +200,17 @@ pub(super) fn repair_by_window_fit(
         let mut colours = Vec::with_capacity(25);
         let mut known = Vec::with_capacity(25);
         let mut towards_beyond = 0.0;
-        for dy in -r..=r {
-            for dx in -r..=r {
-                let (nx, ny) = (x + dx, y + dy);
-                if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
-                    continue;
-                }
-                let q = ny as usize * width + nx as usize;
-                let flags = pass.flags[q];
-                if flags.has(PixelFlags::OUTSIDE_MASK) {
-                    continue;
-                }
-                let t = ux * dx as f32 + uy * dy as f32;
-                colours.push((t, lab.data[q]));
-                if flags.0 == 0 {
-                    known.push((t, pass.order[q]));
-                } else if flags.has(PixelFlags::BEYOND_RANGE) {
-                    towards_beyond += t;
-                }
+        for (dx, dy, q) in repair_window(x, y, width, height) {
+            let flags = pass.flags[q];
+            if flags.has(PixelFlags::OUTSIDE_MASK) {
+                continue;
+            }
+            let t = ux * dx as f32 + uy * dy as f32;
+            colours.push((t, lab.data[q]));
+            if flags.0 == 0 {
+                known.push((t, pass.order[q]));
+            } else if flags.has(PixelFlags::BEYOND_RANGE) {
+                towards_beyond += t;
             }
         }
         if colours.len() < MIN_WINDOW_PIXELS || towards_beyond < 0.0 {
@@ -297,7 +289,6 @@ pub(super) fn repair_by_window_fit(
 mod tests {
     use super::*;
     use crate::colour::lab_from_linear;
-    use crate::render::{rendered_table, CameraModel, LightSource, QuarterWavePlates};
 
     /// A 15 × 12 photo of a ramp across x, of order `start` at x = 0 changing by `slope`
     /// fringes per pixel: each pixel's colour is the table's, in linear light,
@@ -352,18 +343,7 @@ mod tests {
     fn a_steep_blurred_ramp_is_regrown_to_its_true_orders_up_to_below_the_tables_top() {
         // source: closed-form test field (a linear ramp); colours from the renderer's
         // daylight table, blurred in linear light as a lens does (common practice, no source).
-        let table = rendered_table(
-            LightSource::Daylight,
-            CameraModel::Colorimetric,
-            QuarterWavePlates::Ideal,
-            4.4,
-            0.01,
-            crate::CalibrationMetadata {
-                name: "window fit".into(),
-                ..Default::default()
-            },
-        )
-        .unwrap();
+        let table = daylight_test_table("window fit");
         let fine = SearchTable::new(&table, table.order_step, 4.4, REFINE_LIGHTNESS_WEIGHT);
         let tables = BlurredTables::new(&fine, 1);
         let ceiling = 4.4 - WINDOW_BELOW_TOP as f32;
@@ -371,20 +351,24 @@ mod tests {
         // the right one must grow; nearer, windows hold too few pixels, or pixels of the
         // corners left flagged.
         let full_window = |p: usize| (2..10).contains(&(p / 15)) && p % 15 <= 12;
-        // Rising towards pixels beyond range (orders 1.1–3.9): grown to within 0.05 fringe,
-        // up to the ceiling.
+        // Grown where the window is full, and within 0.05 fringe of the truth, below the
+        // ceiling, wherever grown.
+        let check = |pass: &Pass, truth: &[f32]| {
+            for (p, &t) in truth.iter().enumerate() {
+                let o = pass.order[p];
+                if full_window(p) {
+                    assert_eq!(pass.flags[p].0, 0, "pixel {p} (order {t}) not grown");
+                }
+                if !o.is_nan() {
+                    assert!((o - t).abs() < 0.05, "pixel {p}: {o} for {t}");
+                    assert!(o <= ceiling, "pixel {p}: {o} above the ceiling");
+                }
+            }
+        };
+        // Rising towards pixels beyond range (orders 1.1–3.9): grown.
         let (mut rising, lab, truth) = ramp(&table, 1.0, 0.2, PixelFlags::BEYOND_RANGE);
         repair_by_window_fit(&mut rising, &lab, &tables, 15, 12);
-        for (p, &t) in truth.iter().enumerate() {
-            let o = rising.order[p];
-            if full_window(p) {
-                assert_eq!(rising.flags[p].0, 0, "pixel {p} (order {t}) not grown");
-            }
-            if !o.is_nan() {
-                assert!((o - t).abs() < 0.05, "pixel {p}: {o} for {t}");
-                assert!(o <= ceiling, "pixel {p}: {o} above the ceiling");
-            }
-        }
+        check(&rising, &truth);
         // Falling towards them (orders 3.9 down to 1.1): nothing grows, since orders past the
         // table cannot lie where the orders fall ...
         let (mut falling, lab, _) = ramp(&table, 4.0, -0.2, PixelFlags::BEYOND_RANGE);
@@ -393,14 +377,6 @@ mod tests {
         // ... while the same ramp flagged merely unreliable is grown.
         let (mut unsure, lab, truth) = ramp(&table, 4.0, -0.2, PixelFlags::UNRELIABLE);
         repair_by_window_fit(&mut unsure, &lab, &tables, 15, 12);
-        for (p, &t) in truth.iter().enumerate() {
-            let o = unsure.order[p];
-            if full_window(p) {
-                assert_eq!(unsure.flags[p].0, 0, "pixel {p} (order {t}) not grown");
-            }
-            if !o.is_nan() {
-                assert!((o - t).abs() < 0.05, "pixel {p}: {o} for {t}");
-            }
-        }
+        check(&unsure, &truth);
     }
 }
