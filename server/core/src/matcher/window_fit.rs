@@ -42,9 +42,11 @@ const CAMERA_BLURS: [CameraBlur; 2] = [
         chroma: 0.97,
     },
 ];
+/// σ of a pixel's own width (a 1-pixel box), pixels: the least lens blur of a working pixel.
+const PIXEL_SIGMA: f32 = 0.29;
 /// Orders grown stay this far (fringes) below the table's top, where orders past the table
 /// alias in.
-const WINDOW_BELOW_TOP: f64 = 0.3;
+const WINDOW_BELOW_TOP: f32 = 0.3;
 /// A fit is taken within this many fringes of the order the valued neighbours extrapolate to.
 const WINDOW_REACH: f32 = 0.4;
 /// ... and must beat every fit at least [`RIVAL_SEPARATION`] fringes away from it, within
@@ -64,9 +66,10 @@ const CONTINUITY_WEIGHT: f32 = 5.0;
 const MIN_WINDOW_PIXELS: usize = 15;
 /// Below this gradient (fringes per pixel) the valued neighbours give no direction.
 const MIN_DIRECTION_GRADIENT: f64 = 0.06;
-/// Order step of the fit (fringes): rivals are scored on a grid [`COARSE_STEPS`] times
-/// coarser, and the best of them refined on this one.
+/// Order step of the fit (fringes).
 const FIT_STEP: f32 = 0.02;
+/// Rivals are scored on a grid this many times coarser than [`FIT_STEP`], and the best of
+/// them refined on the fine one.
 const COARSE_STEPS: usize = 3;
 
 /// The table as a camera sees steep fringes: for every gradient level and camera blur, the
@@ -162,9 +165,6 @@ fn blurred_across_orders(values: &[[f32; 3]], step: f32, sigma: f32) -> Vec<[f32
         .collect()
 }
 
-/// σ of a pixel's own width (a 1-pixel box), pixels.
-const PIXEL_SIGMA: f32 = 0.29;
-
 /// Grows values into flagged pixels next to valued ones ([`grow_layers`]) by fitting the
 /// window around each: the valued pixels give a plane of orders, hence the direction the order
 /// rises in and a first order and gradient; planes along that direction (orders on a
@@ -184,7 +184,7 @@ pub(super) fn repair_by_window_fit(
     height: usize,
 ) {
     let top = tables.top();
-    let ceiling = top - WINDOW_BELOW_TOP as f32;
+    let ceiling = top - WINDOW_BELOW_TOP;
     let blurs = CAMERA_BLURS.len();
     grow_layers(pass, width, height, |pass, p| {
         let (x, y) = ((p % width) as i64, (p / width) as i64);
@@ -346,7 +346,7 @@ mod tests {
         let table = daylight_test_table("window fit");
         let fine = SearchTable::new(&table, table.order_step, 4.4, REFINE_LIGHTNESS_WEIGHT);
         let tables = BlurredTables::new(&fine, 1);
-        let ceiling = 4.4 - WINDOW_BELOW_TOP as f32;
+        let ceiling = 4.4 - WINDOW_BELOW_TOP;
         // Pixels two rows or more from the top and bottom edges and two columns or more from
         // the right one must grow; nearer, windows hold too few pixels, or pixels of the
         // corners left flagged.
