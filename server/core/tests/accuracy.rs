@@ -488,7 +488,7 @@ fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
             past > 20_000,
             "{name}: too few pixels past the table ({past})"
         );
-        // Measured 0.00 % in all five cases, and 99.44–99.68 % of the pixels with N ≤ 4
+        // Measured 0.00 % in all five cases, and 99.44–99.66 % of the pixels with N ≤ 4
         // valued. Before the washed-out and unanchored-region rules a 360-px disc at N 10 had
         // 93 % of them valued, and the second case 25–29 %.
         assert!(

@@ -248,12 +248,14 @@ pub(super) fn repair_by_window_fit(
             best
         };
         let admissible = |n: f32| (n - a).abs() <= WINDOW_REACH && n <= ceiling;
-        let by_score = |u: &(f32, (f32, usize)), v: &(f32, (f32, usize))| u.1 .0.total_cmp(&v.1 .0);
+        // (order, (score, gradient level)), compared by score.
+        type Scored = (f32, (f32, usize));
+        let by_score = |u: &Scored, v: &Scored| u.1 .0.total_cmp(&v.1 .0);
         // Rivals on the coarse grid; the best of them refined on the fine one.
         let coarse = FIT_STEP * COARSE_STEPS as f32;
         let first = ((a - RIVAL_REACH).max(0.0) / coarse).ceil() as usize;
         let last = ((a + RIVAL_REACH).min(top) / coarse).floor() as usize;
-        let rivals: Vec<(f32, (f32, usize))> = (first..=last)
+        let rivals: Vec<Scored> = (first..=last)
             .map(|i| i as f32 * coarse)
             .map(|n| (n, score(n)))
             .collect();
