@@ -358,6 +358,12 @@ async fn bad_map_options_and_unknown_ids_are_refused() {
         assert_eq!(reply.status, StatusCode::NOT_FOUND, "{uri}");
         reply.error_message();
     }
+    let reply = get(
+        &svc.app,
+        "/api/v1/order-maps/6f1c2f52-1b7e-4a5e-9d55-0f7c8b1a2e3d/tiff",
+    )
+    .await;
+    refused(&reply, StatusCode::NOT_FOUND, "format");
     let reply = post(
         &svc.app,
         "/api/v1/calibrations/nonsense/archive",

@@ -1,5 +1,7 @@
 //! The command line as a lab uses it: `demo`, then `calibrate` and `map` on its files.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 use std::sync::OnceLock;
@@ -183,6 +185,27 @@ fn calibrate_estimates_the_edge_order_from_the_demo_beam_and_says_to_confirm_it(
     );
 }
 
+/// `isotint map` of the demo plate with a hole (its mask and a hint), the photo read from
+/// `photo`, the orders written to `out`, with `extra` arguments.
+fn map_plate(photo: &str, out: &str, extra: &[&str]) -> Output {
+    let (calibration, mask) = (path("calibration.json"), path("plate-hole-mask.png"));
+    let mut args = vec![
+        "map",
+        "--calibration",
+        &calibration,
+        "--photo",
+        photo,
+        "--mask",
+        &mask,
+        "--hint",
+        "400.5,100.5,1.0",
+        "--out",
+        out,
+    ];
+    args.extend_from_slice(extra);
+    isotint(&args)
+}
+
 #[test]
 fn every_output_format_is_chosen_by_extension() {
     for (name, magic) in [
@@ -192,23 +215,77 @@ fn every_output_format_is_chosen_by_extension() {
         ("plate.csv", &b"x,y,order"[..]),
     ] {
         let out_file = path(name);
-        ok(isotint(&[
-            "map",
-            "--calibration",
-            &path("calibration.json"),
-            "--photo",
+        ok(map_plate(
             &path("plate-hole.png"),
-            "--mask",
-            &path("plate-hole-mask.png"),
-            "--hint",
-            "400.5,100.5,1.0",
-            "--no-exposure-compensation",
-            "--out",
             &out_file,
-        ]));
+            &["--no-exposure-compensation"],
+        ));
         let bytes = std::fs::read(&out_file).unwrap();
         assert!(bytes.starts_with(magic), "{name}");
     }
+}
+
+#[test]
+fn map_writes_the_order_uncertainty_as_npy_with_nan_wherever_the_order_is_nan() {
+    let (out_file, uncertainty_file) = (path("plate-orders.npy"), path("plate-uncertainty.npy"));
+    let printed = ok(map_plate(
+        &path("plate-hole.png"),
+        &out_file,
+        &["--uncertainty-out", &uncertainty_file],
+    ));
+    assert!(printed.contains(&uncertainty_file), "{printed}");
+    let (rows, cols, orders) = read_npy_f32(&std::fs::read(&out_file).unwrap()).unwrap();
+    let (u_rows, u_cols, uncertainty) =
+        read_npy_f32(&std::fs::read(&uncertainty_file).unwrap()).unwrap();
+    assert_eq!(
+        (u_rows, u_cols),
+        (rows, cols),
+        "the uncertainty has the map's shape"
+    );
+    assert!(
+        orders.iter().any(|o| o.is_nan()),
+        "the plate has pixels without a value"
+    );
+    common::assert_no_uncertainty_without_an_order(&orders, &uncertainty);
+}
+
+#[test]
+fn map_refuses_to_write_an_output_over_its_photo_and_names_the_flag() {
+    let dir = tempfile::tempdir().unwrap();
+    let photo = dir.path().join("plate.png");
+    std::fs::copy(path("plate-hole.png"), &photo).unwrap();
+    let photo = photo.to_str().unwrap();
+    let elsewhere = dir.path().join("orders.npy");
+    let elsewhere = elsewhere.to_str().unwrap();
+    let cases = [
+        (
+            "--uncertainty-out",
+            map_plate(photo, elsewhere, &["--uncertainty-out", photo]),
+        ),
+        ("--out", map_plate(photo, photo, &[])),
+    ];
+    for (flag, output) in cases {
+        assert!(!output.status.success(), "{flag} over the photo succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(
+            stderr.contains(flag) && stderr.contains("--photo"),
+            "{flag}: {stderr}"
+        );
+    }
+    assert_eq!(
+        std::fs::read(photo).unwrap(),
+        std::fs::read(path("plate-hole.png")).unwrap(),
+        "the photo is untouched"
+    );
+    assert!(!Path::new(elsewhere).exists(), "nothing was written");
+
+    let output = map_plate(photo, elsewhere, &["--uncertainty-out", "sigma.png"]);
+    assert!(!output.status.success());
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        stderr.contains("--uncertainty-out") && stderr.contains(".npy"),
+        "{stderr}"
+    );
 }
 
 #[test]

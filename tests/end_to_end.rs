@@ -7,7 +7,8 @@ use std::time::Duration;
 
 use axum::http::StatusCode;
 use common::{
-    beam_photo, disc_photo, get, region_json, service, service_with, Form, Reply, BEAM_EDGE_ORDER,
+    beam_photo, disc_photo, get, import_id, region_json, service, service_with, table, Form,
+    RenderedPhoto, Reply, BEAM_EDGE_ORDER,
 };
 use isotint::config::ServiceConfig;
 use isotint_core::export::read_npy_f32;
@@ -66,6 +67,25 @@ fn score(orders: &[f32], truth: &[f32], mask_png: &[u8]) -> (f64, f64) {
     (sum / valued.max(1) as f64, valued as f64 / scored as f64)
 }
 
+/// The form that maps the rendered `disc`, with its mask, with calibration `id`.
+fn disc_form(id: &str, disc: &RenderedPhoto) -> Form {
+    Form::new()
+        .file("photo", "disc.png", "image/png", disc.png.clone())
+        .text("calibration", id)
+        .file("mask", "disc-mask.png", "image/png", disc.mask_png.clone())
+}
+
+/// The JSON answer of a request that must have created something (201).
+fn created(reply: &Reply) -> serde_json::Value {
+    assert_eq!(
+        reply.status,
+        StatusCode::CREATED,
+        "{}",
+        String::from_utf8_lossy(&reply.body)
+    );
+    reply.json()
+}
+
 fn npy(reply: &Reply) -> (usize, usize, Vec<f32>) {
     assert_eq!(
         reply.status,
@@ -74,6 +94,32 @@ fn npy(reply: &Reply) -> (usize, usize, Vec<f32>) {
         String::from_utf8_lossy(&reply.body)
     );
     read_npy_f32(&reply.body).unwrap()
+}
+
+/// Maps the rendered disc (with its mask) with a rendered table through a fresh service and
+/// stores the map; returns the service and the order map's JSON description.
+async fn stored_disc_map() -> (common::TestService, serde_json::Value) {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let reply = disc_form(&id, &disc_photo())
+        .post(&svc.app, "/api/v1/order-maps")
+        .await;
+    let v = created(&reply);
+    (svc, v)
+}
+
+/// A stored map's orders and uncertainties, both checked to be NPY float32 of its size.
+async fn orders_and_uncertainty(app: &axum::Router, v: &serde_json::Value) -> (Vec<f32>, Vec<f32>) {
+    let size = (
+        v["height"].as_u64().unwrap() as usize,
+        v["width"].as_u64().unwrap() as usize,
+    );
+    let (rows, cols, orders) = npy(&get(app, v["links"]["npy"].as_str().unwrap()).await);
+    assert_eq!((rows, cols), size);
+    let (rows, cols, uncertainty) =
+        npy(&get(app, v["links"]["uncertainty"].as_str().unwrap()).await);
+    assert_eq!((rows, cols), size, "the uncertainty has the map's shape");
+    (orders, uncertainty)
 }
 
 /// A dry run on the rendered beam with `spec` (region and `dry_run` added); the JSON answer.
@@ -155,10 +201,7 @@ async fn a_disc_mapped_with_a_beam_calibration_matches_the_closed_form_orders() 
     let disc = disc_photo();
 
     // One round trip: the NPY comes back directly.
-    let reply = Form::new()
-        .file("photo", "disc.png", "image/png", disc.png.clone())
-        .text("calibration", &id)
-        .file("mask", "disc-mask.png", "image/png", disc.mask_png.clone())
+    let reply = disc_form(&id, &disc)
         .post(&svc.app, "/api/v1/order-maps?format=npy")
         .await;
     let (rows, cols, orders) = npy(&reply);
@@ -172,20 +215,11 @@ async fn a_disc_mapped_with_a_beam_calibration_matches_the_closed_form_orders() 
     assert!(coverage >= 0.97, "coverage {coverage}");
 
     // Stored: JSON description, then every file by link.
-    let reply = Form::new()
-        .file("photo", "disc.png", "image/png", disc.png.clone())
-        .text("calibration", &id)
-        .file("mask", "disc-mask.png", "image/png", disc.mask_png.clone())
+    let reply = disc_form(&id, &disc)
         .json("options", &json!({"exposure_compensation": true}))
         .post(&svc.app, "/api/v1/order-maps")
         .await;
-    assert_eq!(
-        reply.status,
-        StatusCode::CREATED,
-        "{}",
-        String::from_utf8_lossy(&reply.body)
-    );
-    let v = reply.json();
+    let v = created(&reply);
     assert_eq!(v["width"], disc.width);
     assert_eq!(v["calibration_id"], id.as_str());
     assert!(v["statistics"]["valued_pixels"].as_u64().unwrap() > 10_000);
@@ -265,5 +299,79 @@ async fn an_expired_order_map_answers_410_and_is_purged() {
             .await
             .status,
         StatusCode::NOT_FOUND
+    );
+}
+
+#[tokio::test]
+async fn the_uncertainty_of_a_stored_map_is_an_npy_of_its_size_with_nan_wherever_the_order_is_nan()
+{
+    let (svc, v) = stored_disc_map().await;
+    let link = v["links"]["uncertainty"]
+        .as_str()
+        .expect("an uncertainty link");
+    assert_eq!(
+        link,
+        format!(
+            "/api/v1/order-maps/{}/uncertainty",
+            v["id"].as_str().unwrap()
+        )
+    );
+    let reply = get(&svc.app, link).await;
+    assert_eq!(reply.headers["content-type"], "application/octet-stream");
+    let disposition = reply.headers["content-disposition"].to_str().unwrap();
+    assert!(disposition.ends_with("-uncertainty.npy\""), "{disposition}");
+
+    let (orders, uncertainty) = orders_and_uncertainty(&svc.app, &v).await;
+    let no_value = orders.iter().filter(|o| o.is_nan()).count();
+    assert!(
+        no_value > 1000,
+        "the disc map has pixels without a value: {no_value}"
+    );
+    common::assert_no_uncertainty_without_an_order(&orders, &uncertainty);
+
+    let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
+    let described = &doc["components"]["schemas"]["OrderMapLinks"]["properties"]["uncertainty"];
+    assert!(
+        described["description"]
+            .as_str()
+            .unwrap_or_default()
+            .contains("1 σ"),
+        "{described}"
+    );
+}
+
+#[tokio::test]
+async fn a_one_shot_uncertainty_request_answers_the_npy_a_stored_map_serves() {
+    let (svc, v) = stored_disc_map().await;
+    let (_, stored) = orders_and_uncertainty(&svc.app, &v).await;
+    let disc = disc_photo();
+    let reply = disc_form(v["calibration_id"].as_str().unwrap(), &disc)
+        .post(&svc.app, "/api/v1/order-maps?format=uncertainty")
+        .await;
+    let (rows, cols, direct) = npy(&reply);
+    assert_eq!((rows, cols), (disc.height as usize, disc.width as usize));
+    let same = stored
+        .iter()
+        .zip(&direct)
+        .all(|(a, b)| a.to_bits() == b.to_bits() || (a.is_nan() && b.is_nan()));
+    assert!(same, "the one-shot uncertainty equals the stored one");
+}
+
+/// Fails while the core leaves the uncertainty all NaN: every pixel with an order must carry
+/// a finite standard uncertainty.
+#[tokio::test]
+async fn every_valued_pixel_of_a_stored_map_has_a_finite_uncertainty() {
+    let (svc, v) = stored_disc_map().await;
+    let (orders, uncertainty) = orders_and_uncertainty(&svc.app, &v).await;
+    let valued = orders.iter().filter(|o| o.is_finite()).count();
+    assert!(valued > 10_000, "too few valued pixels: {valued}");
+    let without = orders
+        .iter()
+        .zip(&uncertainty)
+        .filter(|(o, u)| o.is_finite() && !(u.is_finite() && **u >= 0.0))
+        .count();
+    assert_eq!(
+        without, 0,
+        "{without} of {valued} valued pixels have no finite σ ≥ 0"
     );
 }

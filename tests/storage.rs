@@ -7,13 +7,36 @@ use std::future::Future;
 use std::time::Duration;
 
 use isotint::calibration_sets::import_dir;
-use isotint::domain::CalibrationId;
+use isotint::domain::{CalibrationId, OrderMapId};
 use isotint::storage::calibrations::{self, ListFilter};
 use isotint::storage::{order_maps, Backend, Storage, StorageError};
+use isotint_core::export::read_npy_f32;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::{OrderMap, PixelFlags};
 use time::OffsetDateTime;
+
+/// Runs `check` with the URL of a fresh, empty SQLite database and of the backend it names,
+/// then of a fresh PostgreSQL database if one is configured.
+async fn on_every_empty_database<F, Fut>(check: F)
+where
+    F: Fn(String, Backend) -> Fut,
+    Fut: Future<Output = ()>,
+{
+    let dir = tempfile::tempdir().unwrap();
+    let url = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("s.sqlite").display()
+    );
+    check(url, Backend::Sqlite).await;
+    match common::PostgresDatabase::create().await {
+        Some(db) => {
+            check(db.url.clone(), Backend::Postgres).await;
+            db.drop_database().await;
+        }
+        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
+    }
+}
 
 /// Runs `check` on a fresh SQLite database, then on a fresh PostgreSQL database if one is
 /// configured.
@@ -22,25 +45,14 @@ where
     F: Fn(Storage) -> Fut,
     Fut: Future<Output = ()>,
 {
-    let dir = tempfile::tempdir().unwrap();
-    let url = format!(
-        "sqlite://{}?mode=rwc",
-        dir.path().join("s.sqlite").display()
-    );
-    let sqlite = Storage::connect(&url).await.unwrap();
-    assert_eq!(sqlite.backend(), Backend::Sqlite);
-    check(sqlite.clone()).await;
-    sqlite.close().await;
-    match common::PostgresDatabase::create().await {
-        Some(db) => {
-            let pg = Storage::connect(&db.url).await.unwrap();
-            assert_eq!(pg.backend(), Backend::Postgres);
-            check(pg.clone()).await;
-            pg.close().await;
-            db.drop_database().await;
-        }
-        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
-    }
+    let check = &check;
+    on_every_empty_database(|url, backend| async move {
+        let storage = Storage::connect(&url).await.unwrap();
+        assert_eq!(storage.backend(), backend);
+        check(storage.clone()).await;
+        storage.close().await;
+    })
+    .await;
 }
 
 /// Stores a rendered table named `name`.
@@ -189,6 +201,7 @@ fn small_map() -> OrderMap {
             PixelFlags(0),
             PixelFlags(PixelFlags::UNRELIABLE),
         ],
+        uncertainty: vec![0.02, 0.05, f32::NAN, 0.125, 0.5, f32::NAN],
         exposure: ExposureCorrection::NONE,
         statistics: MapStatistics {
             specimen_pixels: 5,
@@ -219,6 +232,8 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
         assert_eq!(back.order[1], 1.25);
         assert!(back.order[2].is_nan());
         assert_eq!(back.flags[5], PixelFlags(PixelFlags::UNRELIABLE));
+        assert_eq!(back.uncertainty[3], 0.125);
+        assert!(back.uncertainty[5].is_nan());
         assert_eq!(back.statistics.max_order, 3.5);
         assert!(back.statistics.mean_residual.is_nan());
         assert!(meta.statistics["mean_residual"].is_null());
@@ -235,6 +250,87 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
             order_maps::get(&storage, row.id).await,
             Err(StorageError::NotFound { .. })
         ));
+    })
+    .await;
+}
+
+#[tokio::test]
+async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_backend() {
+    on_every_empty_database(|url, _| async move {
+        // The schema as it was before `0002_order_map_uncertainty.sql`: the first migration only.
+        let first = tempfile::tempdir().unwrap();
+        std::fs::copy(
+            concat!(env!("CARGO_MANIFEST_DIR"), "/migrations/0001_initial.sql"),
+            first.path().join("0001_initial.sql"),
+        )
+        .unwrap();
+        sqlx::any::install_default_drivers();
+        let pool = sqlx::AnyPool::connect(&url).await.unwrap();
+        sqlx::migrate::Migrator::new(first.path())
+            .await
+            .unwrap()
+            .run(&pool)
+            .await
+            .unwrap();
+        let (calibration, map) = (CalibrationId::random(), OrderMapId::random());
+        let statistics = serde_json::to_string(&small_map().statistics).unwrap();
+        let exposure = serde_json::to_string(&ExposureCorrection::NONE).unwrap();
+        sqlx::query(
+            "INSERT INTO calibrations (id, name, material, light_source, camera, metadata_json, \
+             table_json, source_kind, order_step, max_order, created_at_ms, stored_at_ms, \
+             content_sha256) VALUES ($1, 'Old strip', '', '', '', '{}', '{}', 'rendered', 0.01, \
+             4.0, 0, 0, 'old')",
+        )
+        .bind(calibration.to_string())
+        .execute(&pool)
+        .await
+        .unwrap();
+        let orders: Vec<u8> = small_map()
+            .order
+            .iter()
+            .flat_map(|v| v.to_le_bytes())
+            .collect();
+        sqlx::query(
+            "INSERT INTO order_maps (id, calibration_id, created_at_ms, expires_at_ms, width, \
+             height, statistics_json, exposure_json, orders, residuals, margins, flags) \
+             VALUES ($1, $2, 0, $3, 3, 2, $4, $5, $6, $6, $6, $7)",
+        )
+        .bind(map.to_string())
+        .bind(calibration.to_string())
+        .bind(isotint::domain::unix_ms(
+            OffsetDateTime::now_utc() + time::Duration::hours(1),
+        ))
+        .bind(statistics)
+        .bind(exposure)
+        .bind(orders)
+        .bind(vec![0u8; 6])
+        .execute(&pool)
+        .await
+        .unwrap();
+        pool.close().await;
+
+        // Connecting applies the later migrations to the stored map.
+        let storage = Storage::connect(&url).await.unwrap();
+        let (_, back) = order_maps::load(&storage, map).await.unwrap();
+        assert_eq!(back.order[1], 1.25);
+        assert_eq!(back.uncertainty.len(), 6);
+        assert!(
+            back.uncertainty.iter().all(|u| u.is_nan()),
+            "{:?}",
+            back.uncertainty
+        );
+
+        // Through the API its uncertainty file is all NaN too.
+        let app = isotint::http::app(isotint::http::AppState::new(
+            storage.clone(),
+            isotint::config::ServiceConfig::default(),
+        ));
+        let reply = common::get(&app, &format!("/api/v1/order-maps/{map}/uncertainty")).await;
+        assert_eq!(reply.status, axum::http::StatusCode::OK);
+        let (rows, cols, values) = read_npy_f32(&reply.body).unwrap();
+        assert_eq!((rows, cols), (2, 3));
+        assert!(values.iter().all(|u| u.is_nan()), "{values:?}");
+        storage.close().await;
     })
     .await;
 }

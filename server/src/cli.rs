@@ -212,6 +212,10 @@ pub struct MapArgs {
     /// (16-bit, N × 1000), .preview.png (false colour), .csv.
     #[arg(long)]
     pub out: PathBuf,
+    /// Also write the standard uncertainty (1 σ) of each pixel's order, fringes, to this .npy
+    /// file (float32, NaN = no value).
+    #[arg(long)]
+    pub uncertainty_out: Option<PathBuf>,
 }
 
 /// Options of `isotint demo`.
@@ -377,9 +381,57 @@ pub fn report_text(r: &BeamReport) -> String {
     out
 }
 
+/// Whether `a` and `b` name the same existing file (false when either does not exist).
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    }
+}
+
+/// Refuses an output path of `isotint map` (given with `flag`) that is one of its input files.
+fn refuse_overwriting_inputs(args: &MapArgs, flag: &str, out: &Path) -> anyhow::Result<()> {
+    let inputs = [
+        ("--photo", Some(&args.photo)),
+        ("--mask", args.mask.as_ref()),
+        ("--calibration", Some(&args.calibration)),
+    ];
+    for (input, path) in inputs {
+        if path.is_some_and(|p| same_file(p, out)) {
+            anyhow::bail!(
+                "{flag} {} is the {input} file; refusing to overwrite an input",
+                out.display()
+            );
+        }
+    }
+    Ok(())
+}
+
+/// Checks the output paths of `isotint map` before any work: neither is an input file, the
+/// uncertainty goes to a .npy file of its own. Returns the format of the orders' file.
+fn output_format(args: &MapArgs) -> anyhow::Result<OutputFormat> {
+    refuse_overwriting_inputs(args, "--out", &args.out)?;
+    let format = OutputFormat::from_path(&args.out.to_string_lossy())?;
+    if let Some(u) = &args.uncertainty_out {
+        refuse_overwriting_inputs(args, "--uncertainty-out", u)?;
+        if !u.to_string_lossy().to_ascii_lowercase().ends_with(".npy") {
+            anyhow::bail!(
+                "--uncertainty-out {}: the uncertainty is written as NPY; use a .npy file",
+                u.display()
+            );
+        }
+        if u == &args.out || same_file(u, &args.out) {
+            anyhow::bail!(
+                "--uncertainty-out {} is the --out file; give the uncertainty its own file",
+                u.display()
+            );
+        }
+    }
+    Ok(format)
+}
+
 fn map(args: &MapArgs) -> anyhow::Result<()> {
-    let out = args.out.to_string_lossy();
-    let format = OutputFormat::from_path(&out)?;
+    let format = output_format(args)?;
     let table = CalibrationTable::from_json(&read(&args.calibration, "calibration")?)
         .with_context(|| {
             format!(
@@ -413,6 +465,15 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         format.name(),
         args.out.display()
     );
+    if let Some(u) = &args.uncertainty_out {
+        write(u, &pipeline::uncertainty_npy(&map))?;
+        println!(
+            "{}×{} order uncertainty (1 σ, npy) written to {}",
+            map.width,
+            map.height,
+            u.display()
+        );
+    }
     print!("{}", statistics_text(&map.statistics));
     Ok(())
 }

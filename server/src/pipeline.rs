@@ -3,6 +3,7 @@
 //! `tokio::task::spawn_blocking`.
 
 use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
+use isotint_core::export;
 use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
 
 /// Decodes a beam photo and builds a calibration table from it.
@@ -26,4 +27,11 @@ pub fn map(
     let photo = Photo::decode(photo, limits)?;
     let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
     isotint_core::map_orders(&photo, table, mask.as_ref(), options)
+}
+
+/// The map's standard uncertainty (1 σ) of the order, fringes, as NPY float32 of shape
+/// (height, width), NaN where there is no value: the `uncertainty` file of the API and the CLI's
+/// `--uncertainty-out`.
+pub fn uncertainty_npy(map: &OrderMap) -> Vec<u8> {
+    export::npy_f32(&map.uncertainty, map.height as usize, map.width as usize)
 }

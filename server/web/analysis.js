@@ -25,6 +25,11 @@ const LEGEND_WIDTH = 180;
 // Screen distance (CSS pixels) within which a click closes the outline on its first corner.
 const CLOSE_DISTANCE = 10;
 
+// " ± σ" with `digits` decimals, or nothing while the uncertainty is unknown (NaN).
+function plusMinus(sigma, digits) {
+  return Number.isFinite(sigma) ? ` ± ${fmt(sigma, digits)}` : '';
+}
+
 export class AnalysisPage {
   constructor() {
     // Room is kept beside the picture for the colour bar, so that both layers share one size.
@@ -39,7 +44,7 @@ export class AnalysisPage {
     this.outline = { points: [], closed: false };
     this.hints = [];
     this.line = null; // {a, b}
-    this.result = null; // {width, height, order, flags, canvas, top, links}
+    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id}
     this.wantedCalibration = '';
 
     this.view.overlay = (ctx, toScreen) => this.paintOverlay(ctx, toScreen);
@@ -287,14 +292,15 @@ export class AnalysisPage {
     return f > 0 && h > 0 ? f / h : null;
   }
 
-  // The map's values at an image point: {x, y, order, flag} with pixel indices.
+  // The map's values at an image point: {x, y, order, sigma, flag} with pixel indices; sigma is
+  // the order's standard uncertainty (1 σ, fringes), NaN where there is none.
   sample(p) {
     const r = this.result;
     const x = Math.floor(p.x);
     const y = Math.floor(p.y);
-    if (!r || x < 0 || y < 0 || x >= r.width || y >= r.height) return { x, y, order: NaN, flag: undefined };
+    if (!r || x < 0 || y < 0 || x >= r.width || y >= r.height) return { x, y, order: NaN, sigma: NaN, flag: undefined };
     const i = y * r.width + x;
-    return { x, y, order: r.order[i], flag: flagOf(r.flags[i]) };
+    return { x, y, order: r.order[i], sigma: r.uncertainty[i], flag: flagOf(r.flags[i]) };
   }
 
   inspect(p) {
@@ -303,9 +309,9 @@ export class AnalysisPage {
     let text = `Pixel (${s.x}, ${s.y})`;
     if (this.result) {
       if (Number.isFinite(s.order)) {
-        text += `: fringe order ${fmt(s.order, 3)}`;
+        text += `: fringe order ${fmt(s.order, 3)}${plusMinus(s.sigma, 3)}`;
         const k = this.stressPerOrder();
-        if (k !== null) text += `, σ1 − σ2 = ${fmt(s.order * k, 2)} MPa`;
+        if (k !== null) text += `, σ1 − σ2 = ${fmt(s.order * k, 2)}${plusMinus(s.sigma * k, 2)} MPa`;
         if (s.flag) text += ` (${s.flag.text})`;
       } else {
         text += `: ${s.flag ? s.flag.text : 'no value'}`;
@@ -332,16 +338,19 @@ export class AnalysisPage {
     for (let i = 0; i < n; i += 1) {
       const t = i / (n - 1);
       const s = this.sample({ x: a.x + t * (b.x - a.x), y: a.y + t * (b.y - a.y) });
-      samples.push({ distance: t * length, order: s.order });
+      samples.push({ distance: t * length, order: s.order, sigma: s.sigma });
     }
     figure.hidden = false;
-    const valued = samples.filter((s) => Number.isFinite(s.order)).map((s) => s.order);
+    const valuedSamples = samples.filter((s) => Number.isFinite(s.order));
+    const valued = valuedSamples.map((s) => s.order);
     const k = this.stressPerOrder();
+    // The highest sample, whose σ1 − σ2 the caption quotes with its uncertainty.
+    const peak = valuedSamples.reduce((best, s) => (s.order > best.order ? s : best), valuedSamples[0]);
     $('an-profile-caption').textContent =
       `Fringe order along the line from (${fmt(a.x, 0)}, ${fmt(a.y, 0)}) to (${fmt(b.x, 0)}, ${fmt(b.y, 0)}), ${fmt(length, 0)} px: ` +
       (valued.length
         ? `from ${fmt(Math.min(...valued))} to ${fmt(Math.max(...valued))}` +
-          (k !== null ? ` (σ1 − σ2 up to ${fmt(Math.max(...valued) * k, 1)} MPa)` : '')
+          (k !== null ? ` (σ1 − σ2 up to ${fmt(peak.order * k, 1)}${plusMinus(peak.sigma * k, 1)} MPa)` : '')
         : 'no values on this line');
     const canvas = $('an-profile');
     canvas.setAttribute('aria-label', $('an-profile-caption').textContent);
@@ -456,8 +465,9 @@ export class AnalysisPage {
       const answer = await api.createOrderMap(form, (f) => this.progress.report(f));
       this.progress.report(null);
       $('an-progress-text').textContent = 'Fetching the map…';
-      const [orders, flags] = await Promise.all([getBytes(answer.links.npy), getBytes(answer.links.flags)]);
-      this.showResult(answer, parseNpy(orders), parseNpy(flags));
+      const files = await Promise.all([answer.links.npy, answer.links.flags, answer.links.uncertainty].map(getBytes));
+      const [orders, flags, uncertainty] = files.map(parseNpy);
+      this.showResult(answer, orders, flags, uncertainty);
       this.progress.done(`Map ready: ${answer.width} × ${answer.height} px.`);
     } catch (e) {
       this.progress.done();
@@ -467,9 +477,10 @@ export class AnalysisPage {
     }
   }
 
-  showResult(answer, orders, flags) {
+  showResult(answer, orders, flags, uncertainty) {
     const [height, width] = orders.shape;
-    if (width !== answer.width || height !== answer.height || flags.shape[0] !== height || flags.shape[1] !== width) {
+    const sameSize = (npy) => npy.shape[0] === height && npy.shape[1] === width;
+    if (width !== answer.width || height !== answer.height || !sameSize(flags) || !sameSize(uncertainty)) {
       throw new Error(`The map files do not match the reported size ${answer.width} × ${answer.height}.`);
     }
     const top = scaleTop(answer.statistics.max_order);
@@ -490,7 +501,7 @@ export class AnalysisPage {
       px[o + 3] = 255;
     }
     ctx.putImageData(image, 0, 0);
-    this.result = { width, height, order: orders.data, flags: flags.data, canvas, top, id: answer.id };
+    this.result = { width, height, order: orders.data, uncertainty: uncertainty.data, flags: flags.data, canvas, top, id: answer.id };
 
     const caution = $('an-caution');
     caution.textContent = answer.caution ?? '';
@@ -506,7 +517,7 @@ export class AnalysisPage {
       ['Exposure gain (R, G, B)', answer.exposure?.gain?.map((g) => fmt(g, 2)).join(', ')],
     ]);
     const base = `order-map-${answer.id}`;
-    for (const [key, suffix] of [['npy', '.npy'], ['png16', '-16bit.png'], ['csv', '.csv'], ['preview', '-preview.png']]) {
+    for (const [key, suffix] of [['npy', '.npy'], ['png16', '-16bit.png'], ['csv', '.csv'], ['preview', '-preview.png'], ['uncertainty', '-uncertainty.npy']]) {
       const link = $(`an-dl-${key}`);
       link.href = answer.links[key];
       link.download = base + suffix;

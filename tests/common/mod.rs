@@ -419,3 +419,16 @@ fn push_chunk(out: &mut Vec<u8>, kind: &[u8; 4], data: &[u8]) {
     crc_input.extend_from_slice(data);
     out.extend_from_slice(&crc32fast::hash(&crc_input).to_be_bytes());
 }
+
+/// Asserts that a map's standard uncertainties (1 σ, fringes) fit its orders: NaN wherever the
+/// order is NaN, never negative. Holds whether or not the core has filled the uncertainty yet.
+pub fn assert_no_uncertainty_without_an_order(orders: &[f32], uncertainty: &[f32]) {
+    assert_eq!(orders.len(), uncertainty.len());
+    for (i, (o, u)) in orders.iter().zip(uncertainty).enumerate() {
+        assert!(
+            !o.is_nan() || u.is_nan(),
+            "pixel {i} has no order but σ = {u}"
+        );
+        assert!(u.is_nan() || *u >= 0.0, "pixel {i} has σ = {u}");
+    }
+}

@@ -178,6 +178,8 @@ pub struct OrderMap {
     pub margin: Vec<f32>,
     /// Flags per pixel.
     pub flags: Vec<PixelFlags>,
+    /// Standard uncertainty (1 σ) of the order, fringes; NaN where there is no value.
+    pub uncertainty: Vec<f32>,
     /// The exposure correction that was applied.
     pub exposure: ExposureCorrection,
     /// Summary figures.

@@ -1,5 +1,5 @@
 //! `/api/v1/order-maps`: map a specimen photo with a stored calibration; fetch stored results
-//! as JSON or as files (npy, png16, preview, csv, flags) until they expire.
+//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags) until they expire.
 
 use axum::extract::multipart::MultipartRejection;
 use axum::extract::rejection::QueryRejection;
@@ -19,7 +19,7 @@ use utoipa_axum::routes;
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
 use super::AppState;
-use crate::domain::{rfc3339, CalibrationId, OrderMapId};
+use crate::domain::{rfc3339, shorten, CalibrationId, OrderMapId};
 use crate::pipeline;
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
@@ -35,7 +35,8 @@ pub fn router() -> OpenApiRouter<AppState> {
 #[derive(Debug, Deserialize, IntoParams)]
 #[into_params(parameter_in = Query)]
 pub struct CreateQuery {
-    /// `npy`, `png16`, `preview` or `csv`: answer with that file instead of storing the map.
+    /// `npy`, `png16`, `preview`, `csv`, `uncertainty` (1 σ of the order, fringes, NPY float32,
+    /// NaN = no value) or `flags`: answer with that file instead of storing the map.
     pub format: Option<String>,
 }
 
@@ -71,6 +72,9 @@ pub struct OrderMapLinks {
     pub preview: String,
     /// CSV `x,y,order,residual,flags`.
     pub csv: String,
+    /// Standard uncertainty (1 σ) of the order, fringes, NPY float32 (height, width), NaN = no
+    /// value.
+    pub uncertainty: String,
     /// Per-pixel flag bits, NPY uint8.
     pub flags: String,
 }
@@ -115,6 +119,7 @@ impl From<OrderMapRow> for OrderMapResource {
                 png16: link("png16"),
                 preview: link("preview"),
                 csv: link("csv"),
+                uncertainty: link("uncertainty"),
                 flags: link("flags"),
                 self_link: base.clone(),
             },
@@ -135,27 +140,34 @@ impl From<OrderMapRow> for OrderMapResource {
 #[derive(Debug, Clone, Copy)]
 enum Representation {
     Orders(OutputFormat),
+    Uncertainty,
     Flags,
 }
 
 impl Representation {
-    fn parse(name: &str) -> Result<Self, ApiError> {
-        if name == "flags" {
-            return Ok(Representation::Flags);
+    /// Parses a `format` name: one of the orders' output formats, `uncertainty` or `flags`.
+    fn parse(name: &str) -> CoreResult<Self> {
+        match name {
+            "uncertainty" => Ok(Representation::Uncertainty),
+            "flags" => Ok(Representation::Flags),
+            _ => OutputFormat::from_name(name)
+                .map(Representation::Orders)
+                .map_err(|_| {
+                    CoreError::invalid(
+                        "format",
+                        format!(
+                            "{:?} is not one of npy, png16, preview, csv, uncertainty, flags",
+                            shorten(name, 40)
+                        ),
+                    )
+                }),
         }
-        OutputFormat::from_name(name)
-            .map(Representation::Orders)
-            .map_err(|_| {
-                ApiError::NotFound(format!(
-                    "{:?} is not a file of an order map; use npy, png16, preview, csv or flags",
-                    crate::domain::shorten(name, 40)
-                ))
-            })
     }
 
     fn encode(self, map: &OrderMap) -> CoreResult<Vec<u8>> {
         match self {
             Representation::Orders(format) => export::encode(map, format),
+            Representation::Uncertainty => Ok(pipeline::uncertainty_npy(map)),
             Representation::Flags => {
                 let bits: Vec<u8> = map.flags.iter().map(|f| f.0).collect();
                 Ok(export::npy_u8(
@@ -170,13 +182,14 @@ impl Representation {
     fn content_type(self) -> &'static str {
         match self {
             Representation::Orders(format) => format.content_type(),
-            Representation::Flags => OutputFormat::Npy.content_type(),
+            Representation::Uncertainty | Representation::Flags => OutputFormat::Npy.content_type(),
         }
     }
 
     fn file_name(self, stem: &str) -> String {
         match self {
             Representation::Orders(format) => format!("{stem}.{}", format.extension()),
+            Representation::Uncertainty => format!("{stem}-uncertainty.npy"),
             Representation::Flags => format!("{stem}-flags.npy"),
         }
     }
@@ -232,7 +245,7 @@ async fn create_order_map(
     let format = query
         .format
         .as_deref()
-        .map(|f| OutputFormat::from_name(f).map(Representation::Orders))
+        .map(Representation::parse)
         .transpose()?;
     let admission = state.jobs.admit()?;
     let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
@@ -282,11 +295,12 @@ async fn get_order_map(
     Ok(Json(row.into()))
 }
 
-/// A stored order map as a file: `npy`, `png16`, `preview`, `csv` or `flags` (NPY uint8 of
+/// A stored order map as a file: `npy`, `png16`, `preview`, `csv`, `uncertainty` (NPY float32
+/// of the order's standard uncertainty, 1 σ in fringes, NaN = no value) or `flags` (NPY uint8 of
 /// the flag bits: 1 outside mask, 2 beyond range, 4 unreliable).
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id"),
-           ("file" = String, Path, description = "npy, png16, preview, csv or flags")),
+           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty or flags")),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 404, body = ErrorBody), (status = 410, body = ErrorBody)))]
@@ -295,7 +309,8 @@ async fn get_order_map_file(
     Path((id, file)): Path<(String, String)>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
-    let representation = Representation::parse(&file)?;
+    let representation =
+        Representation::parse(&file).map_err(|e| ApiError::NotFound(e.to_string()))?;
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
     let (_, map) = store::load(&state.storage, id).await?;

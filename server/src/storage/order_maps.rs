@@ -1,6 +1,7 @@
 //! Order-map results, stored in the database (so that any replica can serve them) until they
-//! expire. Per-pixel arrays are BLOBs: little-endian float32 for orders, residuals and margins,
-//! one byte per pixel for flags.
+//! expire. Per-pixel arrays are BLOBs: little-endian float32 for orders, residuals, margins and
+//! uncertainties, one byte per pixel for flags. Maps stored before the uncertainty column
+//! existed (NULL there) read back with an all-NaN uncertainty.
 
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
@@ -95,8 +96,8 @@ pub async fn insert(
     let flags: Vec<u8> = map.flags.iter().map(|f| f.0).collect();
     sqlx::query(
         "INSERT INTO order_maps (id, calibration_id, created_at_ms, expires_at_ms, width, height, \
-         statistics_json, exposure_json, orders, residuals, margins, flags) \
-         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12)",
+         statistics_json, exposure_json, orders, residuals, margins, flags, uncertainties) \
+         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)",
     )
     .bind(id.to_string())
     .bind(calibration_id.to_string())
@@ -110,6 +111,7 @@ pub async fn insert(
     .bind(f32_bytes(&map.residual))
     .bind(f32_bytes(&map.margin))
     .bind(flags)
+    .bind(f32_bytes(&map.uncertainty))
     .execute(storage.pool())
     .await?;
     Ok(OrderMapRow {
@@ -169,7 +171,8 @@ pub fn statistics_from_json(s: &serde_json::Value) -> MapStatistics {
 /// The whole stored map, pixel arrays included, ready for `export::encode`.
 pub async fn load(storage: &Storage, id: OrderMapId) -> StorageResult<(OrderMapRow, OrderMap)> {
     let sql = format!(
-        "SELECT {META_COLUMNS}, orders, residuals, margins, flags FROM order_maps WHERE id = $1"
+        "SELECT {META_COLUMNS}, orders, residuals, margins, flags, uncertainties FROM order_maps \
+         WHERE id = $1"
     );
     let row = sqlx::query(&sql)
         .bind(id.to_string())
@@ -193,6 +196,10 @@ pub async fn load(storage: &Storage, id: OrderMapId) -> StorageResult<(OrderMapR
         residual: f32_values("residuals", &blob("residuals")?, pixels)?,
         margin: f32_values("margins", &blob("margins")?, pixels)?,
         flags: flags.into_iter().map(PixelFlags).collect(),
+        uncertainty: match row.try_get::<Option<Vec<u8>>, _>("uncertainties")? {
+            Some(bytes) => f32_values("uncertainties", &bytes, pixels)?,
+            None => vec![f32::NAN; pixels],
+        },
         exposure: meta.exposure,
         statistics: statistics_from_json(&meta.statistics),
     };

@@ -688,6 +688,45 @@ pub(super) fn smooth(
 mod tests {
     use super::*;
 
+    /// A 9 × 5 field of winners: label 0 at order `rim` everywhere but a 3 × 1 block of
+    /// *beyond range* in the middle.
+    fn beyond_block(rim: f32) -> (Vec<usize>, Vec<Labels>) {
+        let (w, h) = (9, 5);
+        let mut winners = vec![0; w * h];
+        for x in 3..6 {
+            winners[2 * w + x] = BEYOND;
+        }
+        let mut label = NO_LABELS;
+        label.order[0] = rim;
+        (winners, vec![label; w * h])
+    }
+
+    #[test]
+    fn beyond_range_is_ruled_out_only_inside_a_rim_well_below_the_table_top() {
+        // Orders are continuous: a region past a 4.4-fringe table must be ringed by orders
+        // near 4.4. source: common practice, no source.
+        let (winners, labels) = beyond_block(1.7);
+        let ruled_out = beyond_ruled_out(&winners, &labels, 4.4, 9, 5);
+        let expected: Vec<bool> = winners.iter().map(|&k| k == BEYOND).collect();
+        assert_eq!(ruled_out, expected);
+        // A rim at 3.6 lies within a fringe of the top: the region keeps its label.
+        let (winners, labels) = beyond_block(3.6);
+        assert!(!beyond_ruled_out(&winners, &labels, 4.4, 9, 5)
+            .iter()
+            .any(|&r| r));
+    }
+
+    #[test]
+    fn a_pixel_darker_than_the_tables_zero_order_reads_as_it() {
+        let black = Lab::new(14.6, -0.6, -9.2);
+        assert_eq!(
+            super::super::floored_at_black(Lab::new(0.0, 0.0, 0.0), black),
+            black
+        );
+        let grey = Lab::new(20.0, 0.0, 0.0);
+        assert_eq!(super::super::floored_at_black(grey, black), grey);
+    }
+
     #[test]
     fn upper_fringe_regions_next_to_beyond_range_are_flagged_unless_low_orders_or_a_hint_anchor_them(
     ) {
@@ -885,3 +924,66 @@ mod tests {
         assert_eq!(pass.order[4 * width + 5], input[4 * width + 5]);
     }
 }
+
+/// Orders are continuous: a region past the table's top is ringed by orders that climb to
+/// that top. A region of pixels whose aggregated winner is *beyond range* (`winners`, label
+/// indices) and whose rim of other winners lies wholly more than [`BEYOND_RIM_BELOW_TOP`]
+/// below the top cannot be past the table: its colours (pale second- and third-order tints
+/// under some lights and plates, or tints shifted by chromatic plates where the isoclinic
+/// turns) merely resemble the washed-out ones. Returns, per pixel, whether *beyond range* is
+/// ruled out there. Regions with fewer than [`BEYOND_RIM_MIN_PIXELS`] rim pixels keep the
+/// label (the cautious reading).
+pub(super) fn beyond_ruled_out(
+    winners: &[usize],
+    labels: &[Labels],
+    top: f32,
+    width: usize,
+    height: usize,
+) -> Vec<bool> {
+    let n = winners.len();
+    let beyond = |p: usize| winners[p] == BEYOND;
+    let mut ruled_out = vec![false; n];
+    let mut seen = vec![false; n];
+    let mut on_rim = vec![false; n];
+    let mut stack = Vec::new();
+    for start in 0..n {
+        if seen[start] || !beyond(start) {
+            continue;
+        }
+        seen[start] = true;
+        stack.push(start);
+        let (mut region, mut rim) = (Vec::new(), Vec::new());
+        while let Some(p) = stack.pop() {
+            region.push(p);
+            for q in neighbours8(p % width, p / width, width, height) {
+                if beyond(q) {
+                    if !seen[q] {
+                        seen[q] = true;
+                        stack.push(q);
+                    }
+                } else if winners[q] < BEYOND && !on_rim[q] {
+                    on_rim[q] = true;
+                    rim.push(q);
+                }
+            }
+        }
+        let high = rim
+            .iter()
+            .any(|&q| labels[q].order[winners[q]] >= top - BEYOND_RIM_BELOW_TOP);
+        for &q in &rim {
+            on_rim[q] = false;
+        }
+        if rim.len() >= BEYOND_RIM_MIN_PIXELS && !high {
+            for p in region {
+                ruled_out[p] = true;
+            }
+        }
+    }
+    ruled_out
+}
+
+/// See [`beyond_ruled_out`]: how far below the table's top (fringes) every rim pixel of a
+/// beyond-range region must lie for the label to be ruled out.
+pub(super) const BEYOND_RIM_BELOW_TOP: f32 = 1.0;
+/// See [`beyond_ruled_out`].
+pub(super) const BEYOND_RIM_MIN_PIXELS: usize = 8;

@@ -107,15 +107,27 @@ pub(super) fn fit_exposure(
         0.0
     };
     // Channel gains: ratio of sums over the pixels whose ratio lies near the median, leaving
-    // out dark and nearly clipped channel values, after removing the radial term.
-    let mut gain = [1f32; 3];
-    for (c, g) in gain.iter_mut().enumerate() {
+    // out dark and nearly clipped channel values, after removing the radial term. Separate
+    // gains per channel (white balance) are fitted only where the confident pixels span
+    // several hues; on a narrow range of orders (a uniform field) they would turn one fringe
+    // colour into another, so there one common gain (exposure) is fitted on all channels.
+    let white_balance = order_span(&confident, pass) >= WHITE_BALANCE_MIN_SPAN;
+    let channel_value = |c: usize, v: LinSrgb<f32>| match c {
+        0 => v.red,
+        1 => v.green,
+        2 => v.blue,
+        _ => v.red + v.green + v.blue,
+    };
+    let fit_gain = |c: usize| -> Option<f32> {
+        // Channel c, or all three summed (c = 3).
+        let scale = if c == 3 { 3.0 } else { 1.0 };
         let pairs: Vec<(f32, f32)> = samples
             .iter()
             .filter_map(|(o, e, r2)| {
-                let (ov, ev) = ([o.red, o.green, o.blue][c], [e.red, e.green, e.blue][c]);
+                let (ov, ev) = (channel_value(c, *o), channel_value(c, *e));
                 let ov = ov * (1.0 + vignetting * r2);
-                (ov > 0.02 && ov < 0.9 && ev > 0.02 && ev < 0.95).then_some((ov, ev))
+                (ov > 0.02 * scale && ov < 0.9 * scale && ev > 0.02 * scale && ev < 0.95 * scale)
+                    .then_some((ov, ev))
             })
             .collect();
         if pairs.len() < 50 {
@@ -127,9 +139,33 @@ pub(super) fn fit_exposure(
             .iter()
             .filter(|(o, e)| (e / o / centre - 1.0).abs() < 0.15)
             .fold((0.0, 0.0), |acc, (o, e)| (acc.0 + o, acc.1 + e));
-        *g = (se / so).clamp(0.5, 2.0);
-    }
+        Some((se / so).clamp(0.5, 2.0))
+    };
+    let gain = if white_balance {
+        [fit_gain(0)?, fit_gain(1)?, fit_gain(2)?]
+    } else {
+        [fit_gain(3)?; 3]
+    };
     Some(ExposureCorrection { gain, vignetting })
+}
+
+/// Least spread of the confident pixels' orders (10th to 90th percentile, fringes) for a fit
+/// of separate channel gains. Measured on the generated scenes (`render::scenarios`): with
+/// channel gains fitted on every photo, a notched plate lit by a warm white LED (seed 22 of
+/// the CI draw) had blue gained by 1.46, 25.4 % of its pixels a fringe off and 37.5 %
+/// coverage; with this rule 10.6 % and 96.6 %. A uniform field 21 % darker than its
+/// calibration (seed 11) reads 0.9 fringe low either way: its one colour is ambiguous.
+const WHITE_BALANCE_MIN_SPAN: f32 = 0.5;
+
+/// Spread of the orders of `pixels`: 10th to 90th percentile, fringes.
+fn order_span(pixels: &[usize], pass: &Pass) -> f32 {
+    let mut orders: Vec<f32> = pixels.iter().map(|&p| pass.order[p]).collect();
+    if orders.is_empty() {
+        return 0.0;
+    }
+    orders.sort_by(f32::total_cmp);
+    let at = |q: f32| orders[((orders.len() - 1) as f32 * q) as usize];
+    at(0.9) - at(0.1)
 }
 
 pub(super) fn median_f32(v: &mut [f32]) -> f32 {

@@ -11,8 +11,9 @@
 //!    anything larger is a jump. Evidence from far away (unambiguous low orders, the dark
 //!    zero-order regions inside the specimen, hints) travels along every path, so no single
 //!    seed decides a region.
-//! 3. **Local refinement** of the winning candidate on the table's own grid, then flags
-//!    (`cleanup`): poor colour match, too small an ambiguity margin, too steep a field, jumps
+//! 3. **Local refinement** of the winning candidate on the table's own grid (*beyond range*
+//!    is ruled out inside a rim of orders wholly a fringe below the table's top), then flags
+//!    (`cleanup`): too small an ambiguity margin, too steep a field, jumps
 //!    and small islands make a pixel *unreliable*; the winning label *beyond range* flags it
 //!    as such. Values are then grown into steep edges against the table averaged over the
 //!    pixel footprint; the beyond-range guards follow (washed-out neighbourhoods, high orders
@@ -54,12 +55,14 @@ mod aggregate;
 mod cleanup;
 mod exposure_fit;
 mod search;
+mod uncertainty;
 mod window_fit;
 
 use aggregate::*;
 use cleanup::*;
 use exposure_fit::*;
 use search::*;
+use uncertainty::*;
 use window_fit::*;
 
 /// Weight of ΔL\* in the search distance (a\* and b\* have weight 1).
@@ -99,10 +102,11 @@ const HINT_TOLERANCE: f64 = 0.2;
 /// Largest maximum gradient used on block means, fringes per working pixel: steeper would
 /// let a chain jump to the next colour repeat unpenalised.
 const COARSE_MAX_GRADIENT: f64 = 0.45;
-/// A pixel whose best colour match is worse than this (ΔE\*ab) is unreliable.
-const RESIDUAL_LIMIT: f32 = 10.0;
 /// Aggregated ambiguity margin (ΔE units per direction) below which a pixel is unreliable.
 const MARGIN_LIMIT: f32 = 0.35;
+
+/// Winner label of a pixel outside the specimen.
+const NO_WINNER: usize = usize::MAX;
 
 /// One solver pass on a CIELAB image.
 struct Pass {
@@ -256,6 +260,28 @@ fn solve_pass(
     }
 
     let total = aggregate(&labels, inside, width, height, gradient, top);
+    // Winning label per pixel (NO_WINNER outside the specimen).
+    let winner = |s: &[f32; LABELS], allowed: &dyn Fn(usize) -> bool| {
+        (0..LABELS)
+            .filter(|k| s[*k].is_finite() && allowed(*k))
+            .min_by(|a, b| s[*a].total_cmp(&s[*b]))
+    };
+    let winners: Vec<usize> = total
+        .par_iter()
+        .zip(inside.par_iter())
+        .map(|(s, &ins)| {
+            if ins {
+                winner(s, &|_| true).unwrap_or(BEYOND)
+            } else {
+                NO_WINNER
+            }
+        })
+        .collect();
+    let no_beyond = if stage == Stage::Final {
+        beyond_ruled_out(&winners, &labels, top, width, height)
+    } else {
+        vec![false; winners.len()]
+    };
 
     let n = lab.data.len();
     let mut pass = Pass::empty(n);
@@ -276,14 +302,16 @@ fn solve_pass(
                 }
                 let s = &total[p];
                 let l = &labels[p];
-                let best = (0..LABELS)
-                    .filter(|k| s[*k].is_finite())
-                    .min_by(|a, b| s[*a].total_cmp(&s[*b]))
-                    .unwrap_or(BEYOND);
+                let best = if no_beyond[p] {
+                    winner(s, &|k| k != BEYOND).unwrap_or(BEYOND)
+                } else {
+                    winners[p]
+                };
                 let chosen = l.order[best];
                 let rival = (0..LABELS)
                     .filter(|k| {
                         s[*k].is_finite()
+                            && !(no_beyond[p] && *k == BEYOND)
                             && (l.order[*k].min(beyond_order) - chosen.min(beyond_order)).abs()
                                 > 0.5
                     })
@@ -303,7 +331,7 @@ fn solve_pass(
                 );
                 *order = refined as f32;
                 *residual = delta_e_ab(lab.data[p], fine.colour_at(refined as f32));
-                if *residual > RESIDUAL_LIMIT || *margin < MARGIN_LIMIT {
+                if *margin < MARGIN_LIMIT {
                     flags.0 |= PixelFlags::UNRELIABLE;
                 }
             },
@@ -372,6 +400,28 @@ fn washed_out_white(table: &CalibrationTable, max_order: f64) -> Option<Lab> {
         .map(|c| linear_from_lab(*c))
         .fold(LinSrgb::new(0.0, 0.0, 0.0), |a, b| a + b);
     Some(lab_from_linear(sum / colours.len() as f32))
+}
+
+/// The darkest colour of `table`'s first fringe: its zero order, as this calibration's photo
+/// shows it (lens blur across the beam's neutral axis and plate leakage lift it above black).
+fn table_black(table: &CalibrationTable) -> Lab {
+    let steps = (1.0f64.min(table.max_order()) / table.order_step).round() as usize;
+    (0..=steps)
+        .map(|k| table.colour_at(k as f64 * table.order_step))
+        .min_by(|a, b| a.l.total_cmp(&b.l))
+        .unwrap_or(Lab::new(0.0, 0.0, 0.0))
+}
+
+/// A pixel at least as dark as the table's zero order (`black`) reads as that colour: in a
+/// dark field nothing but the zero order is darker, and near black CIELAB magnifies small
+/// differences of light (an 8-bit black pixel lay 15 ΔE\*ab from a calibration black of
+/// L\* 15, which flagged every pixel of a beam's unloaded ends as unreliable).
+fn floored_at_black(c: Lab, black: Lab) -> Lab {
+    if c.l <= black.l {
+        black
+    } else {
+        c
+    }
 }
 
 /// Least CIELAB lightness L\* a pixel past the end of the table can have: past the table
@@ -583,15 +633,16 @@ impl Working {
         }
     }
 
-    /// CIELAB (D65) of every working pixel after `correction`.
-    fn lab(&self, correction: &ExposureCorrection) -> LabImage {
+    /// CIELAB (D65) of every working pixel after `correction`, floored at `black`.
+    fn lab(&self, correction: &ExposureCorrection, black: Lab) -> LabImage {
         let w = self.width as usize;
         let data = self
             .linear
             .par_iter()
             .enumerate()
             .map(|(i, c)| {
-                lab_from_linear(correction.apply(*c, i % w, i / w, self.width, self.height))
+                let corrected = correction.apply(*c, i % w, i / w, self.width, self.height);
+                floored_at_black(lab_from_linear(corrected), black)
             })
             .collect();
         LabImage {
@@ -618,6 +669,7 @@ pub(crate) fn solve(
             format!("{max_order} leaves too little of the table to match against"),
         ));
     }
+    let black = table_black(table);
     let mut exposure = ExposureCorrection::NONE;
     if options.exposure_compensation {
         let working = Working::new(photo, mask, PRELIMINARY_LIMIT);
@@ -626,7 +678,7 @@ pub(crate) fn solve(
         // partly corrected by the first fit.
         let invariant_table = exposure_invariant_table(table);
         for _ in 0..2 {
-            let mut lab = working.lab(&exposure);
+            let mut lab = working.lab(&exposure, black);
             lab.data
                 .par_iter_mut()
                 .for_each(|c| *c = exposure_invariant(*c));
@@ -654,7 +706,7 @@ pub(crate) fn solve(
     }
     let working = Working::new(photo, mask, FULL_RESOLUTION_LIMIT);
     let pass = solve_pass(
-        &working.lab(&exposure),
+        &working.lab(&exposure, black),
         working.stride,
         &working.inside,
         table,
@@ -678,12 +730,14 @@ pub(crate) fn solve(
         )
     };
     let statistics = statistics(&pass, max_order);
+    let uncertainty = order_uncertainty(&pass, table, max_order);
     Ok(OrderMap {
         width: photo.width(),
         height: photo.height(),
         order: pass.order,
         residual: pass.residual,
         margin: pass.margin,
+        uncertainty,
         flags: pass.flags,
         exposure,
         statistics,
@@ -709,6 +763,7 @@ fn refine_full_resolution(
     let s = stride as usize;
     let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
     let fine = SearchTable::new(table, table.order_step, max_order, REFINE_LIGHTNESS_WEIGHT);
+    let black = table_black(table);
     let (fine_step, top) = (fine.step as f32, max_order as f32);
     let n = w * h;
     let mut pass = Pass::empty(n);
@@ -750,12 +805,12 @@ fn refine_full_resolution(
             photo.linear_row(y as u32, linear);
             // The whole row first, in one simple loop the compiler can vectorise.
             colours.clear();
-            colours.extend(
-                linear
-                    .iter()
-                    .enumerate()
-                    .map(|(x, c)| lab_from_linear(exposure.apply(*c, x, y, width, height))),
-            );
+            colours.extend(linear.iter().enumerate().map(|(x, c)| {
+                floored_at_black(
+                    lab_from_linear(exposure.apply(*c, x, y, width, height)),
+                    black,
+                )
+            }));
             let (y0, y1, ty) = rows_at[y];
             for x in 0..w {
                 let i = y * w + x;
@@ -817,9 +872,6 @@ fn refine_full_resolution(
                 order[x] = value;
                 residual[x] = miss;
                 margin[x] = best_margin;
-                if miss > RESIDUAL_LIMIT {
-                    flags[x].0 = PixelFlags::UNRELIABLE;
-                }
             }
         },
     );

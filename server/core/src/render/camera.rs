@@ -83,23 +83,14 @@ impl CameraModel {
                     .map(|nm| apply(&xyz_to_srgb(), cmf(nm)))
                     .collect()
             }),
-            CameraModel::Sensor => SENSOR.get_or_init(|| {
-                let matrix = fit_sensor_matrix();
-                sensor_sensitivities().map(|s| apply(&matrix, s)).collect()
-            }),
+            CameraModel::Sensor => SENSOR.get_or_init(|| gaussian_camera_weights(SENSOR_CHANNELS)),
         }
     }
 
     /// Per-wavelength linear-sRGB weights S(λ)·w(λ) under `light`, white balanced so that they
     /// sum to (1, 1, 1).
     pub(crate) fn balanced_weights(self, light: LightSource) -> Vec<[f64; 3]> {
-        let spectrum = light.spectrum();
-        let white = raw_response(self.weights(), spectrum, |_| 1.0);
-        self.weights()
-            .iter()
-            .zip(spectrum)
-            .map(|(w, s)| std::array::from_fn(|k| s * w[k] / white[k]))
-            .collect()
+        white_balanced(self.weights(), light.spectrum())
     }
 
     /// Linear sRGB of `light` after the spectral transmission `transmission(λ nm)` (0–1), white
@@ -145,10 +136,31 @@ fn raw_response(
     sum
 }
 
-/// The Gaussian sensor's raw channel sensitivities per wavelength (peak 1).
-fn sensor_sensitivities() -> impl Iterator<Item = [f64; 3]> {
-    wavelengths().map(|lambda| {
-        SENSOR_CHANNELS.map(|(peak, sigma)| (-0.5 * ((lambda - peak) / sigma).powi(2)).exp())
+/// Per-wavelength weights S(λ)·w(λ) of camera `weights` (linear sRGB, 380–780 nm at 1 nm)
+/// under the light `spectrum`, white balanced so that they sum to (1, 1, 1).
+pub fn white_balanced(weights: &[[f64; 3]], spectrum: &[f64; SPECTRUM_SAMPLES]) -> Vec<[f64; 3]> {
+    let white = raw_response(weights, spectrum, |_| 1.0);
+    weights
+        .iter()
+        .zip(spectrum)
+        .map(|(w, s)| std::array::from_fn(|k| s * w[k] / white[k]))
+        .collect()
+}
+
+/// Linear-sRGB weights per wavelength (380–780 nm at 1 nm, before white balance) of a camera
+/// with Gaussian red, green and blue channels `(peak nm, standard deviation nm)` and a 3×3
+/// matrix to linear sRGB fitted by least squares as for [`CameraModel::Sensor`].
+pub fn gaussian_camera_weights(channels: [(f64, f64); 3]) -> Vec<[f64; 3]> {
+    let matrix = fit_sensor_matrix(channels);
+    gaussian_sensitivities(channels)
+        .map(|s| apply(&matrix, s))
+        .collect()
+}
+
+/// Raw sensitivities per wavelength (peak 1) of Gaussian channels `(peak nm, σ nm)`.
+fn gaussian_sensitivities(channels: [(f64, f64); 3]) -> impl Iterator<Item = [f64; 3]> {
+    wavelengths().map(move |lambda| {
+        channels.map(|(peak, sigma)| (-0.5 * ((lambda - peak) / sigma).powi(2)).exp())
     })
 }
 
@@ -156,8 +168,8 @@ fn sensor_sensitivities() -> impl Iterator<Item = [f64; 3]> {
 /// through an ideal dark-field polariscope at retardations 0–3000 nm (every 20 nm) plus the
 /// open light, with the colorimetric camera's linear sRGB as target. These are exactly the
 /// colours the camera is used for.
-fn fit_sensor_matrix() -> Matrix3<f64> {
-    let raw_weights: Vec<[f64; 3]> = sensor_sensitivities().collect();
+fn fit_sensor_matrix(channels: [(f64, f64); 3]) -> Matrix3<f64> {
+    let raw_weights: Vec<[f64; 3]> = gaussian_sensitivities(channels).collect();
     let target_weights = CameraModel::Colorimetric.weights();
     let spectrum = LightSource::Daylight.spectrum();
     let mut raw_raw = Matrix3::zeros();

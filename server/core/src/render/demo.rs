@@ -180,6 +180,7 @@ fn encoding_label(encoding: PhotoEncoding) -> String {
         PhotoEncoding::Png8 => "8-bit sRGB PNG".into(),
         PhotoEncoding::Png16 => "16-bit sRGB PNG".into(),
         PhotoEncoding::Jpeg { quality } => format!("JPEG quality {quality}, 4:2:0"),
+        PhotoEncoding::JpegFullChroma { quality } => format!("JPEG quality {quality}, 4:4:4"),
     }
 }
 

@@ -103,6 +103,12 @@ pub enum PhotoEncoding {
         /// Quality 1–100.
         quality: u8,
     },
+    /// Baseline JPEG, 8 bits, YCbCr with chroma at full resolution (4:4:4), as some cameras
+    /// write at their highest quality.
+    JpegFullChroma {
+        /// Quality 1–100.
+        quality: u8,
+    },
 }
 
 impl PhotoEncoding {
@@ -110,7 +116,7 @@ impl PhotoEncoding {
     pub fn extension(self) -> &'static str {
         match self {
             PhotoEncoding::Png8 | PhotoEncoding::Png16 => "png",
-            PhotoEncoding::Jpeg { .. } => "jpg",
+            PhotoEncoding::Jpeg { .. } | PhotoEncoding::JpegFullChroma { .. } => "jpg",
         }
     }
 }
@@ -221,7 +227,8 @@ pub fn develop(
             let buffer = ImageBuffer::<Rgb<u16>, _>::from_raw(w, h, raw).expect("length matches");
             png(DynamicImage::ImageRgb16(buffer))
         }
-        PhotoEncoding::Jpeg { quality } => {
+        PhotoEncoding::Jpeg { quality } | PhotoEncoding::JpegFullChroma { quality } => {
+            let subsampled = matches!(encoding, PhotoEncoding::Jpeg { .. });
             if !(1..=100).contains(&quality) {
                 return Err(CoreError::invalid(
                     "quality",
@@ -238,10 +245,14 @@ pub fn develop(
                 }
             };
             let mut rgb = eight()?;
-            average_chroma_blocks(&mut rgb, w as usize, h as usize);
             let mut out = Vec::new();
             let mut encoder = Encoder::new(&mut out, quality);
-            encoder.set_sampling_factor(SamplingFactor::R_4_2_0);
+            if subsampled {
+                average_chroma_blocks(&mut rgb, w as usize, h as usize);
+                encoder.set_sampling_factor(SamplingFactor::R_4_2_0);
+            } else {
+                encoder.set_sampling_factor(SamplingFactor::R_4_4_4);
+            }
             encoder
                 .encode(&rgb, w16, h16, ColorType::Rgb)
                 .map_err(|e| CoreError::Encode(e.to_string()))?;

@@ -235,3 +235,73 @@ impl OrderField for HoleField {
         Some(FieldSample::from_stress(stress, &self.law))
     }
 }
+
+/// A uniform field: the same order and isoclinic everywhere inside `area` (a plate in uniform
+/// tension, photographed away from its grips).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct UniformField {
+    /// The plate in the photo, pixel-edge coordinates.
+    pub area: PixelRect,
+    /// Fringe order everywhere on the plate.
+    pub order: f64,
+    /// Direction of σ1, radians from +x towards +y.
+    pub isoclinic_rad: f64,
+}
+
+impl OrderField for UniformField {
+    fn sample(&self, x: f64, y: f64) -> Option<FieldSample> {
+        let a = &self.area;
+        (x >= a.left && x < a.right && y >= a.top && y < a.bottom).then_some(FieldSample {
+            order: self.order,
+            isoclinic_rad: self.isoclinic_rad,
+        })
+    }
+}
+
+/// A thick ring under internal pressure. Closed form of Lamé (Timoshenko & Goodier, Theory of
+/// Elasticity, §28): σ_θ − σ_r = 2p·a²b² / ((b² − a²)·r²), so the order falls as 1/r² from
+/// `inner_order` at the bore; σ1 is circumferential.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct RingField {
+    /// Ring centre, pixel-edge coordinates.
+    pub centre: PixelPoint,
+    /// Bore radius a, pixels.
+    pub inner_radius_px: f64,
+    /// Outer radius b, pixels.
+    pub outer_radius_px: f64,
+    /// Fringe order at the bore.
+    pub inner_order: f64,
+}
+
+impl OrderField for RingField {
+    fn sample(&self, x: f64, y: f64) -> Option<FieldSample> {
+        let (dx, dy) = (x - self.centre.x, y - self.centre.y);
+        let r2 = dx * dx + dy * dy;
+        let (a, b) = (self.inner_radius_px, self.outer_radius_px);
+        if r2 < a * a || r2 >= b * b {
+            return None;
+        }
+        Some(FieldSample {
+            order: self.inner_order * a * a / r2,
+            isoclinic_rad: dy.atan2(dx) + FRAC_PI_2,
+        })
+    }
+}
+
+/// A test field for a notch root: the Kirsch field of [`HoleField`] kept only right of the
+/// vertical line through the hole centre, so the plate's left edge carries a semicircular
+/// notch whose root (beside the hole, order 3 × the remote one) is the peak. Not the exact
+/// edge-notch solution (the cut line carries Kirsch's stresses, and the exact peak factor is
+/// about 3.07, Peterson's Stress Concentration Factors, from memory); it has the features a
+/// mapper meets at a fillet or notch: a free edge, a steep rise to a peak, a gentle far field.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct EdgeNotchField(pub HoleField);
+
+impl OrderField for EdgeNotchField {
+    fn sample(&self, x: f64, y: f64) -> Option<FieldSample> {
+        if x < self.0.centre.x {
+            return None;
+        }
+        self.0.sample(x, y)
+    }
+}

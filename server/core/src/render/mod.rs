@@ -42,6 +42,7 @@ pub mod fields;
 pub mod light;
 pub mod polariscope;
 mod renderer;
+pub mod scenarios;
 pub mod scene;
 
 pub use calibrate::{
@@ -50,10 +51,13 @@ pub use calibrate::{
 };
 pub use camera::CameraModel;
 pub use effects::{develop, develop_srgb8, PhotoEffects, PhotoEncoding};
-pub use fields::{BendingBeamField, DiscField, FieldSample, HoleField, OrderField};
+pub use fields::{
+    BendingBeamField, DiscField, EdgeNotchField, FieldSample, HoleField, OrderField, RingField,
+    UniformField,
+};
 pub use light::LightSource;
 pub use polariscope::QuarterWavePlates;
-pub use renderer::{RenderSetup, Renderer, MAX_RENDERED_ORDER};
+pub use renderer::{RenderSetup, Renderer, SpectralSetup, MAX_RENDERED_ORDER};
 pub use scene::{render_scene, LinearImage, RenderedScene};
 
 /// Wavelength at which one fringe order equals one wavelength of retardation, nm.

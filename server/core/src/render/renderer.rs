@@ -9,7 +9,7 @@ use serde::{Deserialize, Serialize};
 use super::camera::CameraModel;
 use super::light::LightSource;
 use super::polariscope::QuarterWavePlates;
-use super::{retardation_nm, wavelengths};
+use super::{retardation_nm, wavelengths, REFERENCE_WAVELENGTH_NM, SPECTRUM_SAMPLES};
 use crate::error::{CoreError, CoreResult};
 
 /// Largest fringe order tabulated; beyond it colours are the fully washed-out mean.
@@ -46,11 +46,40 @@ impl Default for RenderSetup {
     }
 }
 
-/// Colour of every retardation for one [`RenderSetup`], tabulated every 2 nm up to
+/// Everything that fixes the colour of a retardation, as spectra: what [`RenderSetup`] names,
+/// or any light, camera and specimen material drawn by [`super::scenarios`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct SpectralSetup {
+    /// Per-wavelength linear-sRGB weights of light × camera (380, 381, …, 780 nm), white
+    /// balanced so that they sum to (1, 1, 1): full transmission renders as white.
+    pub balanced_weights: Vec<[f64; 3]>,
+    /// Quarter-wave plates.
+    pub plates: QuarterWavePlates,
+    /// Birefringence dispersion of the specimen material: the retardation at wavelength λ is
+    /// R(λ) = R · (1 + d · ((λ_ref/λ)² − 1)), R = N · λ_ref ([`super::REFERENCE_WAVELENGTH_NM`]).
+    /// 0 = none; polymers show a few hundredths to about a tenth (more retardation in blue).
+    pub dispersion: f64,
+    /// Exposure factor on linear light: full transmission renders as linear (e, e, e).
+    pub exposure: f64,
+}
+
+impl From<RenderSetup> for SpectralSetup {
+    fn from(setup: RenderSetup) -> SpectralSetup {
+        SpectralSetup {
+            balanced_weights: setup.camera.balanced_weights(setup.light),
+            plates: setup.plates,
+            dispersion: 0.0,
+            exposure: setup.exposure,
+        }
+    }
+}
+
+/// Colour of every retardation for one [`SpectralSetup`], tabulated every 2 nm up to
 /// [`MAX_RENDERED_ORDER`]. Build once, then look up many samples (cheap, thread-safe).
 #[derive(Debug, Clone)]
 pub struct Renderer {
-    setup: RenderSetup,
+    /// Exposure factor on linear light.
+    exposure: f64,
     /// Per retardation step, the linear-sRGB coefficient of each θ basis function (exposure 1).
     rows: Vec<[[f32; 3]; BASIS]>,
     /// The same for infinite retardation (cos δ and sin δ averaged out).
@@ -63,7 +92,8 @@ pub struct Renderer {
 /// sin δ/2 terms.
 #[derive(Clone, Copy)]
 struct WavelengthWeights {
-    lambda: f64,
+    /// Phase per nm of retardation at this wavelength, 2π/λ with dispersion, rad/nm.
+    phase_per_nm: f64,
     constant: [f64; 3],
     with_cos: [f64; 3],
     quartic: [[f64; 3]; 2],
@@ -71,9 +101,14 @@ struct WavelengthWeights {
 }
 
 impl Renderer {
+    /// Builds the colour table of a named setup; see [`Renderer::spectral`].
+    pub fn new(setup: RenderSetup) -> CoreResult<Renderer> {
+        Renderer::spectral(&setup.into())
+    }
+
     /// Builds the colour table: 401 wavelengths × 5751 retardations, about 0.1 s in release
     /// mode on two cores. Build once per setup and share.
-    pub fn new(setup: RenderSetup) -> CoreResult<Renderer> {
+    pub fn spectral(setup: &SpectralSetup) -> CoreResult<Renderer> {
         if !(setup.exposure.is_finite() && setup.exposure > 0.0) {
             return Err(CoreError::invalid(
                 "exposure",
@@ -83,13 +118,31 @@ impl Renderer {
         if let Some(design) = setup.plates.design_nm() {
             QuarterWavePlates::designed(design)?;
         }
+        if setup.balanced_weights.len() != SPECTRUM_SAMPLES {
+            return Err(CoreError::invalid(
+                "balanced_weights",
+                format!(
+                    "needs {SPECTRUM_SAMPLES} wavelengths, got {}",
+                    setup.balanced_weights.len()
+                ),
+            ));
+        }
+        if !(setup.dispersion.is_finite() && setup.dispersion.abs() <= 0.5) {
+            return Err(CoreError::invalid(
+                "dispersion",
+                format!("must lie in −0.5–0.5, got {}", setup.dispersion),
+            ));
+        }
+        let dispersion = setup.dispersion;
         let per_lambda: Vec<WavelengthWeights> = wavelengths()
-            .zip(setup.camera.balanced_weights(setup.light))
+            .zip(setup.balanced_weights.iter().copied())
             .map(|(lambda, wk)| {
                 let t = setup.plates.terms(lambda);
                 let scaled = |c: f64| wk.map(|v| v * c);
                 WavelengthWeights {
-                    lambda,
+                    // Dispersion scales the phase 2πR/λ at this wavelength.
+                    phase_per_nm: 2.0 * PI / lambda
+                        * (1.0 + dispersion * ((REFERENCE_WAVELENGTH_NM / lambda).powi(2) - 1.0)),
                     constant: scaled(t.m0),
                     with_cos: scaled(t.m1),
                     quartic: [scaled(0.5 * t.q1), scaled(0.5 * t.q2)],
@@ -102,22 +155,17 @@ impl Renderer {
             .into_par_iter()
             .map(|i| {
                 let r = i as f64 * RETARDATION_STEP_NM;
-                row(&per_lambda, |lambda| (2.0 * PI * r / lambda).sin_cos())
+                row(&per_lambda, |phase_per_nm| (phase_per_nm * r).sin_cos())
             })
             .collect();
         let washout = row(&per_lambda, |_| (0.0, 0.0));
         let isotropic = setup.plates.design_nm().is_none();
         Ok(Renderer {
-            setup,
+            exposure: setup.exposure,
             rows,
             washout,
             isotropic,
         })
-    }
-
-    /// The setup this table was built for.
-    pub fn setup(&self) -> &RenderSetup {
-        &self.setup
     }
 
     /// Linear-sRGB colour (exposure applied, not clipped) of fringe order `order` with the
@@ -136,7 +184,7 @@ impl Renderer {
                 }
             }
         }
-        let e = self.setup.exposure as f32;
+        let e = self.exposure as f32;
         LinSrgb::new(c[0] * e, c[1] * e, c[2] * e)
     }
 
@@ -144,7 +192,7 @@ impl Renderer {
     /// Equal to [`Renderer::linear`] for ideal plates.
     pub fn linear_isoclinic_mean(&self, order: f64) -> LinSrgb<f32> {
         let c = self.interpolated(order)[0];
-        let e = self.setup.exposure as f32;
+        let e = self.exposure as f32;
         LinSrgb::new(c[0] * e, c[1] * e, c[2] * e)
     }
 
@@ -166,12 +214,12 @@ impl Renderer {
 }
 
 /// One table row: Σ over wavelengths of the basis coefficients at the (sin δ, cos δ) that
-/// `phase(λ)` gives.
+/// `phase(phase_per_nm)` gives.
 #[allow(clippy::needless_range_loop)] // five accumulators share the channel index
 fn row(per_lambda: &[WavelengthWeights], phase: impl Fn(f64) -> (f64, f64)) -> [[f32; 3]; BASIS] {
     let mut acc = [[0.0f64; 3]; BASIS];
     for w in per_lambda {
-        let (sd, cd) = phase(w.lambda);
+        let (sd, cd) = phase(w.phase_per_nm);
         let one_minus = 1.0 - cd;
         for k in 0..3 {
             acc[0][k] += w.constant[k] + w.with_cos[k] * cd;
