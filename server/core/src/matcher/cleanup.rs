@@ -684,6 +684,69 @@ pub(super) fn smooth(
     pass.order = smoothed;
 }
 
+/// Orders are continuous: a region past the table's top is ringed by orders that climb to
+/// that top. A region of pixels whose aggregated winner is *beyond range* (`winners`, label
+/// indices) and whose rim of other winners lies wholly more than [`BEYOND_RIM_BELOW_TOP`]
+/// below the top cannot be past the table: its colours (pale second- and third-order tints
+/// under some lights and plates, or tints shifted by chromatic plates where the isoclinic
+/// turns) merely resemble the washed-out ones. Returns, per pixel, whether *beyond range* is
+/// ruled out there. Regions with fewer than [`BEYOND_RIM_MIN_PIXELS`] rim pixels keep the
+/// label (the cautious reading).
+pub(super) fn beyond_ruled_out(
+    winners: &[usize],
+    labels: &[Labels],
+    top: f32,
+    width: usize,
+    height: usize,
+) -> Vec<bool> {
+    let n = winners.len();
+    let beyond = |p: usize| winners[p] == BEYOND;
+    let mut ruled_out = vec![false; n];
+    let mut seen = vec![false; n];
+    let mut on_rim = vec![false; n];
+    let mut stack = Vec::new();
+    for start in 0..n {
+        if seen[start] || !beyond(start) {
+            continue;
+        }
+        seen[start] = true;
+        stack.push(start);
+        let (mut region, mut rim) = (Vec::new(), Vec::new());
+        while let Some(p) = stack.pop() {
+            region.push(p);
+            for q in neighbours8(p % width, p / width, width, height) {
+                if beyond(q) {
+                    if !seen[q] {
+                        seen[q] = true;
+                        stack.push(q);
+                    }
+                } else if winners[q] < BEYOND && !on_rim[q] {
+                    on_rim[q] = true;
+                    rim.push(q);
+                }
+            }
+        }
+        let high = rim
+            .iter()
+            .any(|&q| labels[q].order[winners[q]] >= top - BEYOND_RIM_BELOW_TOP);
+        for &q in &rim {
+            on_rim[q] = false;
+        }
+        if rim.len() >= BEYOND_RIM_MIN_PIXELS && !high {
+            for p in region {
+                ruled_out[p] = true;
+            }
+        }
+    }
+    ruled_out
+}
+
+/// See [`beyond_ruled_out`]: how far below the table's top (fringes) every rim pixel of a
+/// beyond-range region must lie for the label to be ruled out.
+pub(super) const BEYOND_RIM_BELOW_TOP: f32 = 1.0;
+/// See [`beyond_ruled_out`].
+pub(super) const BEYOND_RIM_MIN_PIXELS: usize = 8;
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -924,66 +987,3 @@ mod tests {
         assert_eq!(pass.order[4 * width + 5], input[4 * width + 5]);
     }
 }
-
-/// Orders are continuous: a region past the table's top is ringed by orders that climb to
-/// that top. A region of pixels whose aggregated winner is *beyond range* (`winners`, label
-/// indices) and whose rim of other winners lies wholly more than [`BEYOND_RIM_BELOW_TOP`]
-/// below the top cannot be past the table: its colours (pale second- and third-order tints
-/// under some lights and plates, or tints shifted by chromatic plates where the isoclinic
-/// turns) merely resemble the washed-out ones. Returns, per pixel, whether *beyond range* is
-/// ruled out there. Regions with fewer than [`BEYOND_RIM_MIN_PIXELS`] rim pixels keep the
-/// label (the cautious reading).
-pub(super) fn beyond_ruled_out(
-    winners: &[usize],
-    labels: &[Labels],
-    top: f32,
-    width: usize,
-    height: usize,
-) -> Vec<bool> {
-    let n = winners.len();
-    let beyond = |p: usize| winners[p] == BEYOND;
-    let mut ruled_out = vec![false; n];
-    let mut seen = vec![false; n];
-    let mut on_rim = vec![false; n];
-    let mut stack = Vec::new();
-    for start in 0..n {
-        if seen[start] || !beyond(start) {
-            continue;
-        }
-        seen[start] = true;
-        stack.push(start);
-        let (mut region, mut rim) = (Vec::new(), Vec::new());
-        while let Some(p) = stack.pop() {
-            region.push(p);
-            for q in neighbours8(p % width, p / width, width, height) {
-                if beyond(q) {
-                    if !seen[q] {
-                        seen[q] = true;
-                        stack.push(q);
-                    }
-                } else if winners[q] < BEYOND && !on_rim[q] {
-                    on_rim[q] = true;
-                    rim.push(q);
-                }
-            }
-        }
-        let high = rim
-            .iter()
-            .any(|&q| labels[q].order[winners[q]] >= top - BEYOND_RIM_BELOW_TOP);
-        for &q in &rim {
-            on_rim[q] = false;
-        }
-        if rim.len() >= BEYOND_RIM_MIN_PIXELS && !high {
-            for p in region {
-                ruled_out[p] = true;
-            }
-        }
-    }
-    ruled_out
-}
-
-/// See [`beyond_ruled_out`]: how far below the table's top (fringes) every rim pixel of a
-/// beyond-range region must lie for the label to be ruled out.
-pub(super) const BEYOND_RIM_BELOW_TOP: f32 = 1.0;
-/// See [`beyond_ruled_out`].
-pub(super) const BEYOND_RIM_MIN_PIXELS: usize = 8;
