@@ -727,6 +727,7 @@ pub(crate) fn solve(
             table,
             max_order,
             options.max_gradient as f32,
+            black,
         )
     };
     let statistics = statistics(&pass, max_order);
@@ -758,12 +759,12 @@ fn refine_full_resolution(
     table: &CalibrationTable,
     max_order: f64,
     gradient: f32,
+    black: Lab,
 ) -> Pass {
     let (w, h) = (photo.width() as usize, photo.height() as usize);
     let s = stride as usize;
     let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
     let fine = SearchTable::new(table, table.order_step, max_order, REFINE_LIGHTNESS_WEIGHT);
-    let black = table_black(table);
     let (fine_step, top) = (fine.step as f32, max_order as f32);
     let n = w * h;
     let mut pass = Pass::empty(n);

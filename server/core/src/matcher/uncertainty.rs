@@ -27,12 +27,14 @@ const FLOOR: f32 = 0.004;
 pub(super) fn order_uncertainty(pass: &Pass, table: &CalibrationTable, max_order: f64) -> Vec<f32> {
     let step = table.order_step;
     let count = (max_order / step).floor() as usize + 1;
-    let slope: Vec<f32> = (0..count)
+    // Per table entry, (MISS_TO_SIGMA / slope)²: the colour term's factor on the squared miss.
+    let colour_factor: Vec<f32> = (0..count)
         .map(|i| {
             let n = i as f64 * step;
             let (lo, hi) = ((n - SLOPE_SPAN).max(0.0), (n + SLOPE_SPAN).min(max_order));
             let d = delta_e_ab(table.colour_at(lo), table.colour_at(hi));
-            (d / (hi - lo) as f32).max(MIN_SLOPE)
+            let slope = (d / (hi - lo) as f32).max(MIN_SLOPE);
+            (MISS_TO_SIGMA / slope).powi(2)
         })
         .collect();
     let mut residuals: Vec<f32> = pass
@@ -43,24 +45,25 @@ pub(super) fn order_uncertainty(pass: &Pass, table: &CalibrationTable, max_order
         .filter(|(o, r)| o.is_finite() && r.is_finite())
         .map(|(_, r)| *r)
         .collect();
-    let typical = if residuals.is_empty() {
+    let typical_sq = if residuals.is_empty() {
         0.0
     } else {
-        median_f32(&mut residuals)
+        median_f32(&mut residuals).powi(2)
     };
     let inverse_step = (1.0 / step) as f32;
-    pass.order
-        .par_iter()
+    let mut sigma = par_filled(pass.order.len(), f32::NAN);
+    sigma
+        .par_iter_mut()
+        .zip(pass.order.par_iter())
         .zip(pass.residual.par_iter())
-        .map(|(&o, &r)| {
-            if !o.is_finite() {
-                return f32::NAN;
-            }
+        .filter(|((_, o), _)| o.is_finite())
+        .for_each(|((sigma, &o), &r)| {
             // o ≥ 0: truncation is floor.
             let i = ((o * inverse_step + 0.5) as usize).min(count - 1);
-            let miss = r.max(0.0).hypot(typical);
-            let from_colour = MISS_TO_SIGMA * miss / slope[i];
-            from_colour.hypot(CALIBRATION_RELATIVE * o).hypot(FLOOR)
-        })
-        .collect()
+            let miss_sq = r.max(0.0).powi(2) + typical_sq;
+            let relative = CALIBRATION_RELATIVE * o;
+            // The three terms are independent: their squares add.
+            *sigma = (colour_factor[i] * miss_sq + relative * relative + FLOOR * FLOOR).sqrt();
+        });
+    sigma
 }

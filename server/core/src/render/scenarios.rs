@@ -146,17 +146,6 @@ pub enum DrawnSpecimen {
 }
 
 impl DrawnSpecimen {
-    fn field(&self) -> &dyn OrderField {
-        match self {
-            DrawnSpecimen::Beam(f) => f,
-            DrawnSpecimen::Uniform(f) => f,
-            DrawnSpecimen::Plate(f) => f,
-            DrawnSpecimen::Disc(f) => f,
-            DrawnSpecimen::Ring(f) => f,
-            DrawnSpecimen::Notch(f) => f,
-        }
-    }
-
     /// A short name: `beam`, `uniform`, `plate`, `disc`, `ring` or `notch`.
     pub fn name(&self) -> &'static str {
         match self {
@@ -428,7 +417,7 @@ impl Scenario {
             },
         )?;
         let scene = render_scene(
-            self.specimen.field(),
+            &self.specimen,
             &renderer,
             self.width,
             self.height,
@@ -456,7 +445,14 @@ impl Scenario {
 
 impl OrderField for DrawnSpecimen {
     fn sample(&self, x: f64, y: f64) -> Option<FieldSample> {
-        self.field().sample(x, y)
+        match self {
+            DrawnSpecimen::Beam(f) => f.sample(x, y),
+            DrawnSpecimen::Uniform(f) => f.sample(x, y),
+            DrawnSpecimen::Plate(f) => f.sample(x, y),
+            DrawnSpecimen::Disc(f) => f.sample(x, y),
+            DrawnSpecimen::Ring(f) => f.sample(x, y),
+            DrawnSpecimen::Notch(f) => f.sample(x, y),
+        }
     }
 }
 
