@@ -369,6 +369,7 @@ fn solve_pass(
             height,
         );
         flag_enclosed_by_beyond_range(&mut pass, &hinted, width, height);
+        flag_plateaus_at_beyond_range(&mut pass, top, width, height);
     }
     smooth(&mut pass, width, height, gradient, None);
     clear_flagged(&mut pass);
