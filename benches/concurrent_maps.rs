@@ -37,6 +37,7 @@ fn inputs() -> (Vec<u8>, String) {
         light: LightSource::Daylight,
         camera: CameraModel::Colorimetric,
         plates: QuarterWavePlates::Ideal,
+        dispersion: 0.0,
         exposure: 0.9,
     };
     let disc = DiscField::new(

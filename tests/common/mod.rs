@@ -315,6 +315,7 @@ pub fn renderer() -> Renderer {
         light: LightSource::Daylight,
         camera: CameraModel::Colorimetric,
         plates: QuarterWavePlates::Ideal,
+        dispersion: 0.0,
         exposure: 0.9,
     })
     .unwrap()

@@ -63,6 +63,7 @@ fn prepare(photo: &Path, calibration: &Path, truth: &Path) {
         light: LightSource::Halogen,
         camera: CameraModel::Sensor,
         plates: QuarterWavePlates::Ideal,
+        dispersion: 0.0,
         exposure: 0.9,
     };
     let renderer = Renderer::new(setup).unwrap();

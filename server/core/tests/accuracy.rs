@@ -101,6 +101,7 @@ fn run(c: Conditions, specimen: &dyn OrderField, size: (u32, u32)) -> Score {
         light: c.light,
         camera: c.camera,
         plates,
+        dispersion: 0.0,
         exposure: 0.9,
     })
     .unwrap();
@@ -441,6 +442,7 @@ fn discs_loaded_past_the_table_are_flagged_beyond_range_not_read_as_its_top() {
             light,
             camera: CameraModel::Sensor,
             plates: QuarterWavePlates::Ideal,
+            dispersion: 0.0,
             exposure: 0.9,
         })
         .unwrap();

@@ -69,6 +69,7 @@ fn beam_photo(shot: Shot, edge_order: f64) -> (Photo, PixelRect) {
             .map_or(QuarterWavePlates::Ideal, |nm| {
                 QuarterWavePlates::designed(nm).unwrap()
             }),
+        dispersion: 0.0,
         exposure: 0.9,
     })
     .unwrap();

@@ -186,3 +186,67 @@ fn three_hundred_held_out_scenes_report_their_distribution() {
         );
     }
 }
+
+/// The edge-order estimate on each scene's calibration beam (edge order 4.5, lit, filmed and
+/// filed as the scene draws it): relative errors, or the refusal. Prints one line per seed and
+/// returns (seed, error or None when refused).
+fn estimate_beams(seeds: impl Iterator<Item = u64>) -> Vec<(u64, Option<f64>)> {
+    use isotint_core::beam::estimate::{default_references, estimate_edge_order};
+    use isotint_core::render::PHOTOGRAPHED_BEAM_EDGE_ORDER as TRUTH;
+    let references = default_references();
+    seeds
+        .map(|seed| {
+            let scenario = Scenario::draw(seed).unwrap();
+            let (photo, region) = scenario.beam_photo().unwrap();
+            let result = estimate_edge_order(&photo, &region, &references);
+            let error = result.as_ref().ok().map(|e| (e.edge_order - TRUTH) / TRUTH);
+            match &result {
+                Ok(e) => println!(
+                    "{}\n      edge order {:.3} ({:+.2} %), cost {:.2}, {}",
+                    scenario.summary(),
+                    e.edge_order,
+                    100.0 * (e.edge_order - TRUTH) / TRUTH,
+                    e.cost_de_ab,
+                    e.confidence.name()
+                ),
+                Err(refused) => println!("{}\n      refused: {refused}", scenario.summary()),
+            }
+            (seed, error)
+        })
+        .collect()
+}
+
+/// Prints refusals, the share within 2 % and the median and worst error; returns (refused,
+/// within 2 %, estimated).
+fn summarise_estimates(rows: &[(u64, Option<f64>)]) -> (usize, usize, usize) {
+    let refused = rows.iter().filter(|(_, e)| e.is_none()).count();
+    let mut errors: Vec<f64> = rows.iter().filter_map(|(_, e)| e.map(f64::abs)).collect();
+    errors.sort_by(f64::total_cmp);
+    let within = errors.iter().filter(|e| **e <= EDGE_ORDER_ERROR).count();
+    println!(
+        "refused {refused} of {}; within 2 %: {within} of {}; median |error| {:.2} %, worst {:.2} %",
+        rows.len(),
+        errors.len(),
+        100.0 * errors.get(errors.len() / 2).copied().unwrap_or(f64::NAN),
+        100.0 * errors.last().copied().unwrap_or(f64::NAN),
+    );
+    (refused, within, errors.len())
+}
+
+/// The target for the edge-order estimate on drawn beams: relative error.
+const EDGE_ORDER_ERROR: f64 = 0.02;
+
+#[test]
+fn the_edge_order_estimate_reads_every_drawn_calibration_beam_within_two_percent() {
+    // source: closed-form pure bending, N linear through the depth from 0 to N_edge = 4.5
+    // (the rendered field).
+    let (refused, within, estimated) = summarise_estimates(&estimate_beams(1..=40));
+    assert_eq!(refused, 0);
+    assert_eq!(within, estimated);
+}
+
+#[test]
+#[ignore = "about four minutes in release mode; figures in docs/validation.md"]
+fn the_edge_order_estimate_on_three_hundred_held_out_beams() {
+    summarise_estimates(&estimate_beams(1001..=1300));
+}

@@ -85,6 +85,7 @@ fn zero_order_renders_black() {
                     light,
                     camera,
                     plates,
+                    dispersion: 0.0,
                     exposure: 1.0,
                 })
                 .unwrap();

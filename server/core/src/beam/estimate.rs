@@ -19,8 +19,9 @@
 //! It refuses (naming `estimate_edge_order`): fewer than [`MIN_ESTIMATE_ROWS`] rows; rows next
 //! to the mid-line that are not dark ([`MAX_MID_LINE_CONTRAST`]); a sequence too short to carry
 //! hue (best N_edge below [`MIN_EDGE_ORDER`]); a best fit at the top of the range
-//! ([`TOP_REFUSED`]); no reference that fits ([`MAX_FIT_COST`]); a runner-up that fits almost as
-//! well ([`MIN_COST_RATIO`]).
+//! ([`TOP_REFUSED`]); a runner-up that fits almost as well ([`MIN_COST_RATIO`]). A poor fit
+//! ([`POOR_FIT_COST`]) is not refused — its minimum can still be the right one — but it is
+//! never called clear, and the statement says that no reference matches the colours well.
 
 use std::sync::{Arc, Mutex, OnceLock};
 
@@ -52,9 +53,11 @@ pub const MIN_COST_RATIO: f64 = 1.5;
 /// From this cost ratio on the estimate is called clear (below it, fair).
 pub const CLEAR_COST_RATIO: f64 = 2.5;
 
-/// Largest accepted cost of the estimate, mean ΔE\*ab: above it no reference sequence fits the
-/// rows and the region is probably not a beam in pure bending.
-pub const MAX_FIT_COST: f64 = 20.0;
+/// Above this cost, mean ΔE\*ab, no reference sequence matches the rows well (a light, camera
+/// or plates unlike every reference, or a region that is not a beam in pure bending): the
+/// estimate is at most `fair` and says so. Refusing such fits lost 3 of 300 held-out drawn
+/// beams whose best fits lay within 1.6 % of the truth (costs 20.4–25.4).
+pub const POOR_FIT_COST: f64 = 20.0;
 
 /// An estimate above this share of [`SEARCH_RANGE`]`.1` is refused: the cost is still falling
 /// at the end of the range, so the true minimum may lie beyond it.
@@ -213,18 +216,29 @@ impl EstimateConfidence {
     }
 }
 
-/// The reference setups used unless told otherwise: every light source × every camera model,
-/// ideal plates, exposure 1.
+/// Birefringence dispersions of the reference setups (see
+/// [`crate::render::SpectralSetup::dispersion`]): none, and the range polymers show. On the
+/// drawn calibration beams of the generated scenes (dispersion 0–0.12), references without
+/// dispersion read the edge order up to 3 % high (33 of 40 within 2 %); with none drawn, all
+/// 40 lay within 2 %.
+const REFERENCE_DISPERSIONS: [f64; 3] = [0.0, 0.05, 0.1];
+
+/// The reference setups used unless told otherwise: every light source × every camera model
+/// × every dispersion of [`REFERENCE_DISPERSIONS`], ideal plates, exposure 1.
 pub fn default_references() -> Vec<RenderSetup> {
     LightSource::ALL
         .iter()
-        .flat_map(|&light| {
-            CameraModel::ALL.iter().map(move |&camera| RenderSetup {
-                light,
-                camera,
-                plates: QuarterWavePlates::Ideal,
-                exposure: 1.0,
-            })
+        .flat_map(|&light| CameraModel::ALL.iter().map(move |&camera| (light, camera)))
+        .flat_map(|(light, camera)| {
+            REFERENCE_DISPERSIONS
+                .iter()
+                .map(move |&dispersion| RenderSetup {
+                    light,
+                    camera,
+                    plates: QuarterWavePlates::Ideal,
+                    dispersion,
+                    exposure: 1.0,
+                })
         })
         .collect()
 }
@@ -326,14 +340,6 @@ pub(crate) fn estimate_from_rows(
             best.edge_order
         )));
     }
-    if best.fit.cost > MAX_FIT_COST {
-        return Err(refusal(format!(
-            "no reference colour sequence fits the rows (best mean ΔE*ab {:.1} at N_edge ≈ \
-             {:.2}, limit {MAX_FIT_COST}); is the region the constant-moment zone of a beam in \
-             four-point bending, edge to edge?",
-            best.fit.cost, best.edge_order
-        )));
-    }
     // A perfect fit (zero cost) beats any runner-up with a positive cost.
     let cost_ratio = runner_up.map(|r| r.cost_de_ab / best.fit.cost.max(1e-9));
     if let (Some(r), Some(ratio)) = (runner_up, cost_ratio) {
@@ -346,7 +352,9 @@ pub(crate) fn estimate_from_rows(
             )));
         }
     }
+    let poor_fit = best.fit.cost > POOR_FIT_COST;
     let confidence = match cost_ratio {
+        _ if poor_fit => EstimateConfidence::Fair,
         Some(ratio) if ratio < CLEAR_COST_RATIO => EstimateConfidence::Fair,
         _ => EstimateConfidence::Clear,
     };
@@ -358,9 +366,17 @@ pub(crate) fn estimate_from_rows(
         ),
         _ => "no other edge order fits in a separate minimum".to_string(),
     };
+    let fit = if poor_fit {
+        format!(
+            "; no reference matches the colours well (above {POOR_FIT_COST} ΔE*ab: a light, \
+             camera or plates unlike the references, or a region not in pure bending)"
+        )
+    } else {
+        String::new()
+    };
     let statement = format!(
         "Edge order {:.2} estimated from the beam's colour sequence (best match: {}, {}, mean \
-         ΔE*ab {:.2}); {rival}; confidence {}. This is {ESTIMATE_CAUTION}.",
+         ΔE*ab {:.2}{fit}); {rival}; confidence {}. This is {ESTIMATE_CAUTION}.",
         best.edge_order,
         setup.light.description(),
         setup.camera.description(),

@@ -22,24 +22,24 @@ use crate::colour::{DecodeLimits, Photo};
 use crate::error::{CoreError, CoreResult};
 use crate::geometry::{PixelPoint, PixelRect};
 
-/// A table measured the way a lab measures one, on a rendered *photo* of a beam in
-/// four-point bending (1000 × 400 px; beam edges at y = 80 and 320, inner loads at x = 280
-/// and 720, supports at 50 and 950; edge order 4.5), taken with `renderer`, `effects` and
-/// `encoding`. The constant-moment zone is used 20 px in from each inner load. Unlike
-/// [`rendered_table`] it includes what the photo pipeline does to colours (blur, noise,
-/// gamut clipping, compression).
-pub fn photographed_beam_table(
+/// Edge order of the beam in [`photographed_beam`], fringes.
+pub const PHOTOGRAPHED_BEAM_EDGE_ORDER: f64 = 4.5;
+
+/// A rendered *photo* of a beam in four-point bending (1000 × 400 px; beam edges at y = 80
+/// and 320, inner loads at x = 280 and 720, supports at 50 and 950; edge order
+/// [`PHOTOGRAPHED_BEAM_EDGE_ORDER`]), taken with `renderer`, `effects` and `encoding`, and the
+/// region a lab would calibrate on: the constant-moment zone 20 px in from each inner load,
+/// edge to edge (pixel-edge coordinates).
+pub fn photographed_beam(
     renderer: &Renderer,
     effects: &PhotoEffects,
     encoding: PhotoEncoding,
-    metadata: CalibrationMetadata,
-) -> CoreResult<CalibrationTable> {
-    const EDGE_ORDER: f64 = 4.5;
+) -> CoreResult<(Photo, PixelRect)> {
     let beam = BendingBeamField::new(
         PixelRect::new(20.0, 80.0, 980.0, 320.0)?,
         (50.0, 950.0),
         (280.0, 720.0),
-        EDGE_ORDER,
+        PHOTOGRAPHED_BEAM_EDGE_ORDER,
     )?;
     let scene = render_scene(&beam, renderer, 1000, 400, 3)?;
     let photo = Photo::decode(
@@ -47,9 +47,23 @@ pub fn photographed_beam_table(
         &DecodeLimits::default(),
     )?;
     let zone = beam.constant_moment_zone();
+    let region = PixelRect::new(zone.left + 20.0, zone.top, zone.right - 20.0, zone.bottom)?;
+    Ok((photo, region))
+}
+
+/// A table measured the way a lab measures one, on [`photographed_beam`] with its known edge
+/// order. Unlike [`rendered_table`] it includes what the photo pipeline does to colours (blur,
+/// noise, gamut clipping, compression).
+pub fn photographed_beam_table(
+    renderer: &Renderer,
+    effects: &PhotoEffects,
+    encoding: PhotoEncoding,
+    metadata: CalibrationMetadata,
+) -> CoreResult<CalibrationTable> {
+    let (photo, region) = photographed_beam(renderer, effects, encoding)?;
     let spec = BeamSpec {
-        region: PixelRect::new(zone.left + 20.0, zone.top, zone.right - 20.0, zone.bottom)?,
-        load: EdgeLoad::EdgeOrder(EDGE_ORDER),
+        region,
+        load: EdgeLoad::EdgeOrder(PHOTOGRAPHED_BEAM_EDGE_ORDER),
         refine_edges: false,
         order_step: 0.01,
         metadata,
@@ -91,6 +105,7 @@ pub fn rendered_table(
         light,
         camera,
         plates,
+        dispersion: 0.0,
         exposure: 1.0,
     })?;
     let count = (max_order / order_step + 1e-9).floor() as usize;

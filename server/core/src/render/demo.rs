@@ -191,6 +191,7 @@ impl DemoScenario {
             light: LightSource::Halogen,
             camera: CameraModel::Sensor,
             plates: QuarterWavePlates::designed(560.0)?,
+            dispersion: 0.0,
             exposure: 0.9,
         };
         let renderer = Renderer::new(setup)?;

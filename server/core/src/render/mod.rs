@@ -46,8 +46,8 @@ pub mod scenarios;
 pub mod scene;
 
 pub use calibrate::{
-    check_order_limit, load_preview, photographed_beam_table, rendered_table, OrderLimitCheck,
-    PreviewSwatch,
+    check_order_limit, load_preview, photographed_beam, photographed_beam_table, rendered_table,
+    OrderLimitCheck, PreviewSwatch, PHOTOGRAPHED_BEAM_EDGE_ORDER,
 };
 pub use camera::CameraModel;
 pub use effects::{develop, develop_srgb8, PhotoEffects, PhotoEncoding};

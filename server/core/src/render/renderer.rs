@@ -30,17 +30,21 @@ pub struct RenderSetup {
     pub camera: CameraModel,
     /// Quarter-wave plates.
     pub plates: QuarterWavePlates,
+    /// Birefringence dispersion of the material (see [`SpectralSetup::dispersion`]); 0 = none.
+    #[serde(default)]
+    pub dispersion: f64,
     /// Exposure factor on linear light: full transmission renders as linear (e, e, e).
     pub exposure: f64,
 }
 
 impl Default for RenderSetup {
-    /// Daylight, colorimetric camera, ideal plates, exposure 1.
+    /// Daylight, colorimetric camera, ideal plates, no dispersion, exposure 1.
     fn default() -> Self {
         RenderSetup {
             light: LightSource::Daylight,
             camera: CameraModel::Colorimetric,
             plates: QuarterWavePlates::Ideal,
+            dispersion: 0.0,
             exposure: 1.0,
         }
     }
@@ -68,7 +72,7 @@ impl From<RenderSetup> for SpectralSetup {
         SpectralSetup {
             balanced_weights: setup.camera.balanced_weights(setup.light),
             plates: setup.plates,
-            dispersion: 0.0,
+            dispersion: setup.dispersion,
             exposure: setup.exposure,
         }
     }

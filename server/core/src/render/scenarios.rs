@@ -30,7 +30,7 @@ use super::fields::{
 use super::polariscope::QuarterWavePlates;
 use super::renderer::{Renderer, SpectralSetup};
 use super::scene::render_scene;
-use super::{photographed_beam_table, SPECTRUM_SAMPLES};
+use super::{photographed_beam, photographed_beam_table, SPECTRUM_SAMPLES};
 use crate::calibration::{CalibrationMetadata, CalibrationTable};
 use crate::colour::{DecodeLimits, Photo};
 use crate::error::{CoreError, CoreResult};
@@ -389,10 +389,10 @@ impl Scenario {
         )
     }
 
-    /// Photographs the calibration beam and the specimen.
-    pub fn render(&self) -> CoreResult<RenderedScenario> {
+    /// The renderer of this scene's light, camera, plates, material and beam exposure.
+    fn renderer(&self) -> CoreResult<Renderer> {
         let spectrum = self.light.spectrum()?;
-        let renderer = Renderer::spectral(&SpectralSetup {
+        Renderer::spectral(&SpectralSetup {
             balanced_weights: white_balanced(
                 &gaussian_camera_weights(self.camera_channels),
                 &spectrum,
@@ -400,16 +400,31 @@ impl Scenario {
             plates: QuarterWavePlates::designed(self.plate_design_nm)?,
             dispersion: self.dispersion,
             exposure: self.beam_exposure,
-        })?;
-        let beam_fx = PhotoEffects {
+        })
+    }
+
+    /// Blur and noise of the calibration beam's photo.
+    fn beam_effects(&self) -> PhotoEffects {
+        PhotoEffects {
             blur_sigma_px: self.beam_blur_px,
             noise_sigma_codes: self.noise_codes,
             seed: self.seed.wrapping_mul(2),
             ..PhotoEffects::default()
-        };
+        }
+    }
+
+    /// The calibration beam's photo ([`super::photographed_beam`], edge order
+    /// [`super::PHOTOGRAPHED_BEAM_EDGE_ORDER`]) and its constant-moment zone.
+    pub fn beam_photo(&self) -> CoreResult<(Photo, PixelRect)> {
+        photographed_beam(&self.renderer()?, &self.beam_effects(), self.encoding)
+    }
+
+    /// Photographs the calibration beam and the specimen.
+    pub fn render(&self) -> CoreResult<RenderedScenario> {
+        let renderer = self.renderer()?;
         let table = photographed_beam_table(
             &renderer,
-            &beam_fx,
+            &self.beam_effects(),
             self.encoding,
             CalibrationMetadata {
                 name: format!("scenario {} beam", self.seed),
