@@ -23,7 +23,8 @@
 //!    subsampled chroma; a window fit (`window_fit`) grows values further into steep flanks
 //!    by fitting a plane of orders to each 5 × 5 window against the table blurred as a
 //!    camera blurs steep fringes; valued regions that beyond-range pixels cut off from the
-//!    specimen's edge are flagged beyond range; and a 5 × 5 mean that keeps ramps exact
+//!    specimen's edge, and flat plateaus against a beyond-range region confirmed by a near-top
+//!    rim, are flagged beyond range; and a 5 × 5 mean that keeps ramps exact
 //!    smooths the result.
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
 //!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
