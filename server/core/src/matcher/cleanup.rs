@@ -203,21 +203,26 @@ pub(super) fn flag_unanchored_high_regions(
     }
 }
 
-/// Orders past the table lie inside closed loops where the order climbs through the table's
-/// top (a disc's centre, a contact zone); there, with spiky light sources especially, colours
-/// repeat vividly and whole regions can match low orders. A valued region that cannot be
-/// reached from the specimen's edge (the mask's boundary, holes included, or the image
-/// border) or from a hint without crossing *beyond range* pixels is such a region: it is
-/// flagged beyond range too — the cautious reading.
-pub(super) fn flag_enclosed_by_beyond_range(
+/// Orders are continuous, and every specimen meets its edge (the mask's boundary, holes
+/// included, or the image border) at orders the table reads well: an edge is free or loaded,
+/// never enclosed by orders past the table. A valued region — valued pixels joined where
+/// 4-neighbours differ by at most `jump` fringes — that holds no pixel on the edge and no
+/// hinted pixel (`hinted`, row-major indices) is cut off from everything that anchors its
+/// orders: in closed loops past the table (a disc's contact zone, a notch root) colours
+/// repeat and whole regions match the table's upper fringes, reached from the edge only
+/// across *beyond range*, unreliable pixels or jumps. Such a region is flagged beyond range
+/// when it touches a beyond-range pixel (the cautious reading), unreliable otherwise.
+pub(super) fn flag_cut_off_regions(
     pass: &mut Pass,
     hinted: &[usize],
     width: usize,
     height: usize,
+    jump: f32,
 ) {
+    let regions = valued_regions(pass, width, height, jump);
     let flags = &pass.flags;
-    let passable = |p: usize| {
-        !flags[p].has(PixelFlags::OUTSIDE_MASK) && !flags[p].has(PixelFlags::BEYOND_RANGE)
+    let touches = |p: usize, bits: u8| {
+        neighbours4(p % width, p / width, width, height).any(|q| flags[q].has(bits))
     };
     let on_edge = |p: usize| {
         let (x, y) = (p % width, p / width);
@@ -225,28 +230,82 @@ pub(super) fn flag_enclosed_by_beyond_range(
             || y == 0
             || x + 1 == width
             || y + 1 == height
-            || neighbours4(x, y, width, height).any(|q| flags[q].has(PixelFlags::OUTSIDE_MASK))
+            || touches(p, PixelFlags::OUTSIDE_MASK)
     };
-    let mut reached = vec![false; flags.len()];
-    let mut stack: Vec<usize> = (0..flags.len())
-        .filter(|&p| passable(p) && on_edge(p))
-        .chain(hinted.iter().copied().filter(|&p| passable(p)))
+    let cut_off: Vec<(Vec<usize>, u8)> = regions
+        .into_iter()
+        .filter(|region| !region.iter().any(|&p| on_edge(p) || hinted.contains(&p)))
+        .map(|region| {
+            let flag = if region.iter().any(|&p| touches(p, PixelFlags::BEYOND_RANGE)) {
+                PixelFlags::BEYOND_RANGE
+            } else {
+                PixelFlags::UNRELIABLE
+            };
+            (region, flag)
+        })
         .collect();
-    for &p in &stack {
-        reached[p] = true;
-    }
-    while let Some(p) = stack.pop() {
-        for q in neighbours4(p % width, p / width, width, height) {
-            if !reached[q] && passable(q) {
-                reached[q] = true;
-                stack.push(q);
-            }
+    for (region, flag) in cut_off {
+        for p in region {
+            pass.flags[p].0 |= flag;
         }
     }
-    for (f, reached) in pass.flags.iter_mut().zip(reached) {
-        if f.0 == 0 && !reached {
-            f.0 |= PixelFlags::BEYOND_RANGE;
+}
+
+/// Pixels within this many pixels of the mask's edge (0 = touching it) form the edge band of
+/// [`flag_edge_band_near_beyond_range`]: three pixels cover about 2.5 σ of the widest blur the
+/// generated scenes draw (1.2 px).
+pub(super) const EDGE_BAND: usize = 2;
+
+/// In the edge band (pixels within [`EDGE_BAND`] of a pixel outside the mask) the camera mixes
+/// the specimen's colour with the dark background, and a mixed colour past the table's top
+/// reads as a plausible lower order (a ring's bore, truth 5, read 3.5–4.1). The stress on a
+/// free edge is the largest in its neighbourhood more often than not, so where a *beyond
+/// range* pixel lies within [`EDGE_BAND`] + 1 pixels of a valued edge-band pixel, that pixel is
+/// flagged beyond range too: the cautious reading. Runs at full resolution, last.
+pub(super) fn flag_edge_band_near_beyond_range(pass: &mut Pass, width: usize, height: usize) {
+    let flags = &pass.flags;
+    // Distance to the mask's outside, in 4-connected steps, up to EDGE_BAND (one byte a pixel).
+    let mut depth = par_filled(flags.len(), u8::MAX);
+    let mut layer: Vec<usize> = (0..flags.len())
+        .into_par_iter()
+        .filter(|&p| {
+            !flags[p].has(PixelFlags::OUTSIDE_MASK)
+                && neighbours4(p % width, p / width, width, height)
+                    .any(|q| flags[q].has(PixelFlags::OUTSIDE_MASK))
+        })
+        .collect();
+    for d in 0..=EDGE_BAND as u8 {
+        for &p in &layer {
+            depth[p] = d;
         }
+        layer = layer
+            .iter()
+            .flat_map(|&p| neighbours4(p % width, p / width, width, height))
+            .filter(|&q| depth[q] == u8::MAX && !flags[q].has(PixelFlags::OUTSIDE_MASK))
+            .collect();
+        layer.sort_unstable();
+        layer.dedup();
+    }
+    let reach = EDGE_BAND as i64 + 1;
+    let near_beyond = |p: usize| {
+        let (x, y) = ((p % width) as i64, (p / width) as i64);
+        (y - reach..=y + reach)
+            .filter(|&ny| (0..height as i64).contains(&ny))
+            .any(|ny| {
+                (x - reach..=x + reach)
+                    .filter(|&nx| (0..width as i64).contains(&nx))
+                    .any(|nx| {
+                        flags[ny as usize * width + nx as usize].has(PixelFlags::BEYOND_RANGE)
+                    })
+            })
+    };
+    let flagged: Vec<usize> = (0..flags.len())
+        .into_par_iter()
+        .filter(|&p| depth[p] != u8::MAX && flags[p].0 == 0 && near_beyond(p))
+        .collect();
+    for p in flagged {
+        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
+        pass.order[p] = f32::NAN;
     }
 }
 
@@ -973,55 +1032,96 @@ mod tests {
         assert_eq!(beyond(&anchored), 0);
     }
 
-    #[test]
-    fn valued_regions_cut_off_from_the_edge_by_beyond_range_pixels_are_flagged_unless_hinted() {
-        // 9 × 9 pixels, all inside the specimen: a ring of beyond-range pixels (the square
-        // between columns/rows 2 and 6) around a valued 3 × 3 core; valued outside the ring.
+    /// A 9 × 9 specimen (all inside the mask) valued at order 1: a ring of beyond-range pixels
+    /// (the square between columns/rows 2 and 6) around a valued 3 × 3 core, whose pixel
+    /// (4, 4) reads `core_centre`; `gap` replaces the ring's pixel (4, 2) by a valued pixel
+    /// of order 1 or, for `Some(PixelFlags::UNRELIABLE)`, an unreliable one.
+    fn ringed_core(gap: Option<u8>, opening: f32) -> (Pass, usize, usize) {
         let (width, height) = (9, 9);
-        let ring = |p: usize| {
-            let (x, y) = (p % width, p / width);
-            (2..=6).contains(&x) && (2..=6).contains(&y) && (x == 2 || x == 6 || y == 2 || y == 6)
+        let n = width * height;
+        let mut pass = Pass {
+            order: vec![1.0; n],
+            residual: vec![1.0; n],
+            margin: vec![1.0; n],
+            flags: vec![PixelFlags::default(); n],
         };
-        let core = |p: usize| {
+        for p in 0..n {
             let (x, y) = (p % width, p / width);
-            (3..=5).contains(&x) && (3..=5).contains(&y)
-        };
-        let pass_with_gap = |gap: bool| {
-            let n = width * height;
-            let mut pass = Pass {
-                order: vec![1.0; n],
-                residual: vec![1.0; n],
-                margin: vec![1.0; n],
-                flags: vec![PixelFlags::default(); n],
-            };
-            for p in (0..n).filter(|&p| ring(p)) {
+            if (2..=6).contains(&x)
+                && (2..=6).contains(&y)
+                && (x == 2 || x == 6 || y == 2 || y == 6)
+            {
                 pass.flags[p].0 = PixelFlags::BEYOND_RANGE;
             }
-            if gap {
-                // An unreliable pixel in the ring opens a path that avoids beyond range.
-                pass.flags[2 * width + 4].0 = PixelFlags::UNRELIABLE;
-            }
+        }
+        if let Some(bits) = gap {
+            pass.flags[2 * width + 4].0 = bits;
+            pass.order[2 * width + 4] = opening;
+        }
+        (pass, width, height)
+    }
+
+    /// The core's pixels (3..=5 × 3..=5) that carry `bits`.
+    fn core_flagged(pass: &Pass, width: usize, bits: u8) -> usize {
+        (3..=5)
+            .flat_map(|y| (3..=5).map(move |x| y * width + x))
+            .filter(|&p| pass.flags[p].has(bits))
+            .count()
+    }
+
+    #[test]
+    fn valued_regions_cut_off_from_the_edge_are_flagged_unless_hinted_or_joined_without_a_jump() {
+        let jump = 0.3;
+        // Ringed by beyond range: flagged beyond range.
+        let (mut closed, width, height) = ringed_core(None, 0.0);
+        flag_cut_off_regions(&mut closed, &[], width, height, jump);
+        assert_eq!(core_flagged(&closed, width, PixelFlags::BEYOND_RANGE), 9);
+        // A hint inside the core anchors it.
+        let (mut hinted, width, height) = ringed_core(None, 0.0);
+        flag_cut_off_regions(&mut hinted, &[4 * width + 4], width, height, jump);
+        assert_eq!(core_flagged(&hinted, width, u8::MAX), 0);
+        // A gap of unreliable pixels does not anchor it: their orders are unknown.
+        let (mut unreliable, width, height) = ringed_core(Some(PixelFlags::UNRELIABLE), 1.0);
+        flag_cut_off_regions(&mut unreliable, &[], width, height, jump);
+        assert_eq!(
+            core_flagged(&unreliable, width, PixelFlags::BEYOND_RANGE),
+            9
+        );
+        // A valued gap that continues the orders joins the core to the edge.
+        let (mut open, width, height) = ringed_core(Some(0), 1.0);
+        flag_cut_off_regions(&mut open, &[], width, height, jump);
+        assert_eq!(core_flagged(&open, width, u8::MAX), 0);
+        // A valued gap with a jump of 0.5 on both sides does not.
+        let (mut jumped, width, height) = ringed_core(Some(0), 1.5);
+        flag_cut_off_regions(&mut jumped, &[], width, height, jump);
+        assert_eq!(core_flagged(&jumped, width, PixelFlags::BEYOND_RANGE), 9);
+    }
+
+    #[test]
+    fn edge_band_pixels_near_beyond_range_are_flagged_and_deeper_ones_are_not() {
+        // One row of 12 pixels: outside the mask at x = 0, valued at x = 1..=10, beyond range
+        // at x = 11. The band is x = 1..=3 (depths 0..=2); a beyond-range pixel within 3
+        // pixels of x = 1..=3 exists only for x ≥ 8, so nothing is flagged...
+        let width = 12;
+        let pass_with_beyond_at = |b: usize| {
+            let mut pass = Pass::empty(width);
+            pass.order.iter_mut().for_each(|o| *o = 2.0);
+            pass.flags[0].0 = PixelFlags::OUTSIDE_MASK;
+            pass.flags[b].0 = PixelFlags::BEYOND_RANGE;
             pass
         };
-        let flagged = |pass: &Pass| {
-            (0..width * height)
-                .filter(|&p| !ring(p) && pass.flags[p].has(PixelFlags::BEYOND_RANGE))
-                .collect::<Vec<_>>()
-        };
-        let mut closed = pass_with_gap(false);
-        flag_enclosed_by_beyond_range(&mut closed, &[], width, height);
-        assert_eq!(
-            flagged(&closed),
-            (0..81).filter(|&p| core(p)).collect::<Vec<_>>()
-        );
-        // A hint inside the core anchors it.
-        let mut hinted = pass_with_gap(false);
-        flag_enclosed_by_beyond_range(&mut hinted, &[4 * width + 4], width, height);
-        assert!(flagged(&hinted).is_empty());
-        // A gap of unreliable pixels reaches the core from the edge.
-        let mut open = pass_with_gap(true);
-        flag_enclosed_by_beyond_range(&mut open, &[], width, height);
-        assert!(flagged(&open).is_empty());
+        let mut far = pass_with_beyond_at(11);
+        flag_edge_band_near_beyond_range(&mut far, width, 1);
+        assert!(far.flags[1..11].iter().all(|f| f.0 == 0));
+        // ... while beyond range at x = 5 reaches the band pixels x = 2 and 3 (within 3), not
+        // x = 1 (4 away), and never the deeper pixels x = 4 and 6.
+        let mut near = pass_with_beyond_at(5);
+        flag_edge_band_near_beyond_range(&mut near, width, 1);
+        let flagged: Vec<usize> = (0..width)
+            .filter(|&p| p != 5 && near.flags[p].has(PixelFlags::BEYOND_RANGE))
+            .collect();
+        assert_eq!(flagged, vec![2, 3]);
+        assert!(near.order[2].is_nan() && near.order[1] == 2.0 && near.order[4] == 2.0);
     }
 
     #[test]

@@ -22,10 +22,12 @@
 //!    well below the table's top, also matching the wider colour footprint of JPEG's
 //!    subsampled chroma; a window fit (`window_fit`) grows values further into steep flanks
 //!    by fitting a plane of orders to each 5 × 5 window against the table blurred as a
-//!    camera blurs steep fringes; valued regions that beyond-range pixels cut off from the
-//!    specimen's edge, and flat plateaus against a beyond-range region confirmed by a near-top
-//!    rim, are flagged beyond range; and a 5 × 5 mean that keeps ramps exact
-//!    smooths the result.
+//!    camera blurs steep fringes; flat plateaus against a beyond-range region confirmed by a
+//!    near-top rim are flagged beyond range, then valued regions joined to neither the
+//!    specimen's edge nor a hint without a jump (`flag_cut_off_regions`); and a 5 × 5 mean
+//!    that keeps ramps exact smooths the result. Last, at full resolution, the edge band
+//!    (pixels mixed with the dark background) near beyond-range pixels is flagged beyond
+//!    range too (`flag_edge_band_near_beyond_range`).
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
 //!    vignetting term on linear light are fitted on vivid, confident pixels of a preliminary
 //!    pass on a ≤ 0.15-megapixel image, in up to two rounds. That pass compares chroma
@@ -369,8 +371,8 @@ fn solve_pass(
             width,
             height,
         );
-        flag_enclosed_by_beyond_range(&mut pass, &hinted, width, height);
         flag_plateaus_at_beyond_range(&mut pass, top, width, height);
+        flag_cut_off_regions(&mut pass, &hinted, width, height, 1.5 * gradient);
     }
     smooth(&mut pass, width, height, gradient, None);
     clear_flagged(&mut pass);
@@ -716,7 +718,7 @@ pub(crate) fn solve(
         &working.scale(options),
         Stage::Final,
     );
-    let pass = if working.stride == 1 {
+    let mut pass = if working.stride == 1 {
         pass
     } else {
         drop(working.linear);
@@ -732,6 +734,7 @@ pub(crate) fn solve(
             black,
         )
     };
+    flag_edge_band_near_beyond_range(&mut pass, photo.width() as usize, photo.height() as usize);
     let statistics = statistics(&pass, max_order);
     let uncertainty = order_uncertainty(&pass, table, max_order);
     Ok(OrderMap {
