@@ -385,3 +385,83 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
         assert!(stderr.contains(needle), "{args:?}: {stderr}");
     }
 }
+
+/// A running `isotint serve`, ended (by its process id) when dropped.
+struct Served {
+    child: std::process::Child,
+    /// Its log, kept open so that it can go on logging.
+    _stdout: std::io::BufReader<std::process::ChildStdout>,
+    /// Where it listens.
+    address: String,
+    /// Its JSON log lines up to "listening".
+    log: Vec<Value>,
+}
+
+impl Drop for Served {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+/// Starts `isotint serve` in `dir` (no calibration-sets folder there) on `database`, on a free
+/// port, and waits until it listens.
+fn serve_in(dir: &Path, database: &str) -> Served {
+    use std::io::BufRead;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_isotint"))
+        .args(["serve", "--bind", "127.0.0.1:0", "--database", database])
+        .args(["--log-format", "json"])
+        .current_dir(dir)
+        .env("RUST_LOG", "info")
+        .env_remove("ISOTINT_CALIBRATION_SETS")
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .expect("isotint serve starts");
+    let mut stdout = std::io::BufReader::new(child.stdout.take().unwrap());
+    let mut log = Vec::new();
+    let mut line = String::new();
+    while stdout.read_line(&mut line).unwrap() > 0 {
+        let entry: Value = serde_json::from_str(&line).unwrap();
+        line.clear();
+        if entry["fields"]["message"] == "listening" {
+            let address = entry["fields"]["address"].as_str().unwrap().to_string();
+            return Served {
+                child,
+                _stdout: stdout,
+                address,
+                log,
+            };
+        }
+        log.push(entry);
+    }
+    panic!("isotint serve stopped before listening: {log:?}");
+}
+
+#[tokio::test]
+async fn a_service_started_from_any_directory_offers_the_built_in_demo_calibration_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let database = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("lab.sqlite").display()
+    );
+    let mut ids = Vec::new();
+    for (start, imported) in [(1, 1), (2, 0)] {
+        let served = serve_in(dir.path(), &database);
+        let built_in = served
+            .log
+            .iter()
+            .find(|l| {
+                l["fields"]["message"] == "calibration sets imported"
+                    && l["fields"]["from"] == "built into the binary"
+            })
+            .unwrap_or_else(|| panic!("start {start}: no import line in {:?}", served.log));
+        assert_eq!(built_in["fields"]["imported"], imported, "start {start}");
+        let url = format!("http://{}/api/v1/calibrations", served.address);
+        let listed: Value = reqwest::get(&url).await.unwrap().json().await.unwrap();
+        let listed = listed["calibrations"].as_array().unwrap();
+        assert_eq!(listed.len(), 1, "start {start}: {listed:?}");
+        assert_eq!(listed[0]["name"], "Demo beam, four-point bending");
+        ids.push(listed[0]["id"].clone());
+    }
+    assert_eq!(ids[0], ids[1], "the second start keeps the first copy");
+}

@@ -76,7 +76,8 @@ pub struct ServeArgs {
         default_value = "sqlite://isotint.sqlite?mode=rwc"
     )]
     pub database: String,
-    /// Directory whose *.json calibration files are imported (once each) at start.
+    /// Directory whose *.json calibration files are imported (once each) at start, besides the
+    /// demo set built into the binary.
     #[arg(
         long,
         env = "ISOTINT_CALIBRATION_SETS",
