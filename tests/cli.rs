@@ -101,6 +101,11 @@ fn the_demo_calibration_maps_the_disc_close_to_the_closed_form_orders() {
         &out_file,
     ]));
     assert!(printed.contains("valued pixels"), "{printed}");
+    let residual = printed
+        .lines()
+        .find(|l| l.contains("mean residual"))
+        .unwrap();
+    assert!(residual.ends_with(" ΔE*ab"), "{residual}");
     // The demo disc's centre is loaded past the table (orders 5–7 against 4.4).
     assert!(
         printed.contains("caution") && printed.contains("beyond this calibration's last order"),
@@ -158,7 +163,8 @@ fn calibrate_reports_the_fringe_value_implied_by_edge_order_moment_and_depth() {
     let (reported, line) = reported(&printed, "fringe value");
     assert!((reported - expected).abs() < 1e-6 * expected, "{line}");
     assert!(printed.contains("edge shift"), "{printed}");
-    assert!(printed.contains("residual"), "{printed}");
+    let residual = printed.lines().find(|l| l.contains("residual")).unwrap();
+    assert!(residual.ends_with(" ΔE00 (CIEDE2000)"), "{residual}");
     let table: Value = serde_json::from_slice(&std::fs::read(&out_file).unwrap()).unwrap();
     assert_eq!(table["metadata"]["name"], "CLI beam");
     assert_eq!(table["source"]["kind"], "beam_photo");
@@ -607,7 +613,8 @@ fn serve_in(dir: &Path, database: &str) -> Served {
         }
         log.push(entry);
     }
-    panic!("isotint serve stopped before listening: {log:?}");
+    let status = child.wait();
+    panic!("isotint serve stopped before listening ({status:?}): {log:?}");
 }
 
 #[tokio::test]

@@ -416,7 +416,7 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
 pub fn report_text(r: &BeamReport) -> String {
     let mut out = format!(
         "  edge order          {:.3} fringes\n  max order in table  {:.3} fringes\n  \
-         residual            mean {:.2}, p95 {:.2} (CIEDE2000)\n  \
+         residual            mean {:.2}, p95 {:.2} ΔE00 (CIEDE2000)\n  \
          rows                {} used, {} edge rows skipped, {} outlier rows, {:.1} % outlier pixels\n",
         r.edge_order,
         r.max_order,
@@ -572,7 +572,7 @@ pub fn statistics_text(s: &MapStatistics) -> String {
     format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
          unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {:.3}\n  \
-         mean residual       {:.2} (ΔE*ab)\n{caution}",
+         mean residual       {:.2} ΔE*ab\n{caution}",
         s.specimen_pixels,
         s.valued_pixels,
         100.0 * s.beyond_range_share,
