@@ -33,6 +33,7 @@ pub struct Cli {
         long,
         global = true,
         env = "ISOTINT_LOG_FORMAT",
+        hide_env_values = true,
         default_value = "text"
     )]
     pub log_format: LogFormat,
@@ -68,12 +69,18 @@ pub enum Command {
 #[derive(Debug, Args)]
 pub struct ServeArgs {
     /// Address to listen on.
-    #[arg(long, env = "ISOTINT_BIND", default_value = "127.0.0.1:8080")]
+    #[arg(
+        long,
+        env = "ISOTINT_BIND",
+        hide_env_values = true,
+        default_value = "127.0.0.1:8080"
+    )]
     pub bind: SocketAddr,
     /// Database URL: sqlite://FILE?mode=rwc (created if missing) or postgres://….
     #[arg(
         long,
         env = "ISOTINT_DATABASE_URL",
+        hide_env_values = true,
         default_value = "sqlite://isotint.sqlite?mode=rwc"
     )]
     pub database: String,
@@ -82,29 +89,50 @@ pub struct ServeArgs {
     #[arg(
         long,
         env = "ISOTINT_CALIBRATION_SETS",
+        hide_env_values = true,
         default_value = "calibration-sets"
     )]
     pub calibration_sets: PathBuf,
     /// Largest accepted request body, MiB.
-    #[arg(long, env = "ISOTINT_UPLOAD_LIMIT_MIB", default_value_t = 64)]
+    #[arg(
+        long,
+        env = "ISOTINT_UPLOAD_LIMIT_MIB",
+        hide_env_values = true,
+        default_value_t = 64
+    )]
     pub upload_limit_mib: usize,
     /// Calibration and map jobs that run at once.
-    #[arg(long, env = "ISOTINT_MAX_JOBS", default_value_t = 2)]
+    #[arg(
+        long,
+        env = "ISOTINT_MAX_JOBS",
+        hide_env_values = true,
+        default_value_t = 2
+    )]
     pub max_jobs: usize,
     /// Jobs that may wait for a slot; further requests get 503 with Retry-After.
-    #[arg(long, env = "ISOTINT_JOB_QUEUE", default_value_t = 4)]
+    #[arg(
+        long,
+        env = "ISOTINT_JOB_QUEUE",
+        hide_env_values = true,
+        default_value_t = 4
+    )]
     pub job_queue: usize,
     /// Time limit of one request (e.g. 90s, 2m).
-    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", default_value = "120s", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", hide_env_values = true, default_value = "120s", value_parser = humantime::parse_duration)]
     pub request_timeout: Duration,
     /// How long stored order maps are served (e.g. 24h, 30m).
-    #[arg(long, env = "ISOTINT_RETENTION", default_value = "24h", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_RETENTION", hide_env_values = true, default_value = "24h", value_parser = humantime::parse_duration)]
     pub retention: Duration,
     /// How often expired order maps are deleted.
-    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", default_value = "5m", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", hide_env_values = true, default_value = "5m", value_parser = humantime::parse_duration)]
     pub purge_interval: Duration,
     /// Largest accepted photo, pixels in all (checked on the header, before decoding).
-    #[arg(long, env = "ISOTINT_MAX_IMAGE_PIXELS", default_value_t = 50_000_000)]
+    #[arg(
+        long,
+        env = "ISOTINT_MAX_IMAGE_PIXELS",
+        hide_env_values = true,
+        default_value_t = 50_000_000
+    )]
     pub max_image_pixels: u64,
 }
 
