@@ -6,6 +6,8 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 use std::sync::OnceLock;
 
+use clap::Parser;
+use isotint::cli::{self, Cli, LogFormat};
 use isotint_core::export::read_npy_f32;
 use isotint_core::{DecodeLimits, Mask};
 use serde_json::Value;
@@ -99,6 +101,11 @@ fn the_demo_calibration_maps_the_disc_close_to_the_closed_form_orders() {
         &out_file,
     ]));
     assert!(printed.contains("valued pixels"), "{printed}");
+    let residual = printed
+        .lines()
+        .find(|l| l.contains("mean residual"))
+        .unwrap();
+    assert!(residual.ends_with(" ΔE*ab"), "{residual}");
     // The demo disc's centre is loaded past the table (orders 5–7 against 4.4).
     assert!(
         printed.contains("caution") && printed.contains("beyond this calibration's last order"),
@@ -143,9 +150,9 @@ fn calibrate_reports_the_fringe_value_implied_by_edge_order_moment_and_depth() {
         &[
             "--edge-order",
             &edge_order.to_string(),
-            "--moment",
+            "--moment-n-mm",
             &s["beam"]["moment_n_mm"].to_string(),
-            "--depth",
+            "--depth-mm",
             &s["beam"]["depth_mm"].to_string(),
             "--name",
             "CLI beam",
@@ -156,7 +163,8 @@ fn calibrate_reports_the_fringe_value_implied_by_edge_order_moment_and_depth() {
     let (reported, line) = reported(&printed, "fringe value");
     assert!((reported - expected).abs() < 1e-6 * expected, "{line}");
     assert!(printed.contains("edge shift"), "{printed}");
-    assert!(printed.contains("residual"), "{printed}");
+    let residual = printed.lines().find(|l| l.contains("residual")).unwrap();
+    assert!(residual.ends_with(" ΔE00 (CIEDE2000)"), "{residual}");
     let table: Value = serde_json::from_slice(&std::fs::read(&out_file).unwrap()).unwrap();
     assert_eq!(table["metadata"]["name"], "CLI beam");
     assert_eq!(table["source"]["kind"], "beam_photo");
@@ -289,11 +297,115 @@ fn map_refuses_to_write_an_output_over_its_photo_and_names_the_flag() {
 }
 
 #[test]
+fn calibrate_refuses_to_write_its_table_over_its_photo_and_names_both_flags() {
+    let dir = tempfile::tempdir().unwrap();
+    let photo = dir.path().join("beam.png");
+    std::fs::copy(path("beam.png"), &photo).unwrap();
+    let photo = photo.to_str().unwrap();
+    let output = isotint(&[
+        "calibrate",
+        "--photo",
+        photo,
+        "--region",
+        "302,80,698,320",
+        "--edge-order",
+        "4.5",
+        "--out",
+        photo,
+    ]);
+    assert!(!output.status.success(), "--out over the photo succeeded");
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        stderr.contains("--out") && stderr.contains("--photo"),
+        "{stderr}"
+    );
+    assert_eq!(
+        std::fs::read(photo).unwrap(),
+        std::fs::read(path("beam.png")).unwrap(),
+        "the photo is untouched"
+    );
+}
+
+/// `isotint calibrate` with a region inside any photo and `load` flags, writing to a fresh
+/// directory: what it says on stderr when it fails.
+fn calibrate_error(photo: &str, region: &str, load: &[&str]) -> String {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("c.json");
+    let mut args = vec![
+        "calibrate",
+        "--photo",
+        photo,
+        "--region",
+        region,
+        "--out",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(load);
+    let output = isotint(&args);
+    assert!(!output.status.success(), "{args:?} succeeded");
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
+#[test]
+fn calibrate_errors_name_the_flags_the_user_typed_never_the_api_fields() {
+    let cases: [(&[&str], &str, &[&str]); 5] = [
+        (&["--edge-order", "-2"], "invalid --edge-order", &[]),
+        (
+            &["--edge-order", "2", "--estimate-edge-order"],
+            "invalid --estimate-edge-order",
+            &["--edge-order"],
+        ),
+        (
+            &["--depth-mm", "24"],
+            "invalid --edge-order",
+            &["--moment-n-mm", "--depth-mm", "--fringe-value-n-per-mm"],
+        ),
+        (
+            &[
+                "--moment-n-mm",
+                "-4536",
+                "--depth-mm",
+                "24",
+                "--fringe-value-n-per-mm",
+                "10.5",
+            ],
+            "invalid --moment-n-mm",
+            &[],
+        ),
+        (
+            &["--edge-order", "2", "--thickness-mm", "0"],
+            "invalid --thickness-mm",
+            &[],
+        ),
+    ];
+    for (load, named, also) in cases {
+        let stderr = calibrate_error("p.png", "0,0,9,9", load);
+        assert!(stderr.contains(named), "{load:?}: {stderr}");
+        for flag in also {
+            assert!(
+                stderr.contains(flag),
+                "{load:?} should name {flag}: {stderr}"
+            );
+        }
+        assert!(
+            !stderr.contains('_'),
+            "{load:?} names an API field: {stderr}"
+        );
+    }
+    // A photo that decodes, with the region outside it: the core's message names the flag.
+    let stderr = calibrate_error(&path("beam.png"), "0,0,2000,400", &["--edge-order", "4.5"]);
+    assert!(
+        stderr.contains("invalid --region: 0,0,2000,400 lies outside the 1000×400 photo"),
+        "{stderr}"
+    );
+}
+
+#[test]
 fn bad_command_line_input_fails_with_a_message_naming_it() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("c.json");
     let out = out.to_str().unwrap();
-    let cases: [(&[&str], &str); 6] = [
+    let cases: [(&[&str], &str); 4] = [
         (
             &[
                 "calibrate",
@@ -306,36 +418,7 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
                 "--out",
                 out,
             ],
-            "region",
-        ),
-        (
-            &[
-                "calibrate",
-                "--photo",
-                "p.png",
-                "--region",
-                "0,0,9,9",
-                "--edge-order",
-                "-2",
-                "--out",
-                out,
-            ],
-            "edge_order",
-        ),
-        (
-            &[
-                "calibrate",
-                "--photo",
-                "p.png",
-                "--region",
-                "0,0,9,9",
-                "--edge-order",
-                "2",
-                "--estimate-edge-order",
-                "--out",
-                out,
-            ],
-            "estimate_edge_order",
+            "--region",
         ),
         (
             &[
@@ -361,7 +444,7 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
                 "--out",
                 "orders.jpg",
             ],
-            ".npy",
+            "invalid --out",
         ),
         (
             &[
@@ -384,4 +467,183 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
         let stderr = String::from_utf8_lossy(&output.stderr);
         assert!(stderr.contains(needle), "{args:?}: {stderr}");
     }
+}
+
+#[test]
+fn map_errors_from_the_core_name_the_flag() {
+    let output = map_plate(
+        &path("plate-hole.png"),
+        &path("never.npy"),
+        &["--max-gradient", "2"],
+    );
+    assert!(!output.status.success());
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        stderr.contains("invalid --max-gradient: must lie in (0, 1] fringe per pixel, got 2"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn no_help_text_shows_an_empty_default_or_environment_value() {
+    for command in [&[][..], &["serve"], &["calibrate"], &["map"], &["demo"]] {
+        let mut args = command.to_vec();
+        args.push("--help");
+        let help = ok(isotint(&args));
+        assert!(
+            !help.contains("[default: ]")
+                && !help.contains("[default: \"\"]")
+                && !help.contains("=]"),
+            "{args:?}: {help}"
+        );
+    }
+}
+
+#[test]
+fn calibrate_help_gives_each_quantity_its_unit_and_hides_the_old_spellings() {
+    let help = ok(isotint(&["calibrate", "--help"]));
+    for flag in [
+        "--moment-n-mm",
+        "--depth-mm",
+        "--fringe-value-n-per-mm",
+        "--thickness-mm",
+    ] {
+        assert!(help.contains(flag), "{flag}: {help}");
+    }
+    for old in ["--moment ", "--depth ", "--fringe-value "] {
+        assert!(!help.contains(old), "{old}: {help}");
+    }
+}
+
+#[test]
+fn old_flag_spellings_still_parse_as_the_unit_suffixed_flags() {
+    let parse = |load: [&str; 6]| {
+        let mut args = vec![
+            "isotint",
+            "calibrate",
+            "--photo",
+            "b.png",
+            "--region",
+            "0,0,9,9",
+            "--out",
+            "c.json",
+        ];
+        args.extend(load);
+        match Cli::try_parse_from(args).unwrap().command {
+            cli::Command::Calibrate(a) => (a.moment_n_mm, a.depth_mm, a.fringe_value_n_per_mm),
+            other => panic!("{other:?}"),
+        }
+    };
+    let expected = (Some(4536.0), Some(24.0), Some(10.5));
+    let old = [
+        "--moment",
+        "4536",
+        "--depth",
+        "24",
+        "--fringe-value",
+        "10.5",
+    ];
+    let new = [
+        "--moment-n-mm",
+        "4536",
+        "--depth-mm",
+        "24",
+        "--fringe-value-n-per-mm",
+        "10.5",
+    ];
+    assert_eq!(parse(old), expected);
+    assert_eq!(parse(new), expected);
+}
+
+#[test]
+fn the_log_format_is_one_global_option_taken_before_or_after_the_command() {
+    let before = ["isotint", "--log-format", "json", "demo", "--out", "d"];
+    let after = ["isotint", "demo", "--out", "d", "--log-format", "json"];
+    for args in [&before[..], &after[..]] {
+        let cli = Cli::try_parse_from(args).unwrap();
+        assert!(matches!(cli.log_format, LogFormat::Json), "{args:?}");
+    }
+    let top = ok(isotint(&["--help"]));
+    assert!(top.contains("--log-format"), "{top}");
+}
+
+/// A running `isotint serve`, ended (by its process id) when dropped.
+struct Served {
+    child: std::process::Child,
+    /// Its log, kept open so that it can go on logging.
+    _stdout: std::io::BufReader<std::process::ChildStdout>,
+    /// Where it listens.
+    address: String,
+    /// Its JSON log lines up to "listening".
+    log: Vec<Value>,
+}
+
+impl Drop for Served {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+/// Starts `isotint serve` in `dir` (no calibration-sets folder there) on `database`, on a free
+/// port, and waits until it listens.
+fn serve_in(dir: &Path, database: &str) -> Served {
+    use std::io::BufRead;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_isotint"))
+        .args(["serve", "--bind", "127.0.0.1:0", "--database", database])
+        .args(["--log-format", "json"])
+        .current_dir(dir)
+        .env("RUST_LOG", "info")
+        .env_remove("ISOTINT_CALIBRATION_SETS")
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .expect("isotint serve starts");
+    let mut stdout = std::io::BufReader::new(child.stdout.take().unwrap());
+    let mut log = Vec::new();
+    let mut line = String::new();
+    while stdout.read_line(&mut line).unwrap() > 0 {
+        let entry: Value = serde_json::from_str(&line).unwrap();
+        line.clear();
+        if entry["fields"]["message"] == "listening" {
+            let address = entry["fields"]["address"].as_str().unwrap().to_string();
+            return Served {
+                child,
+                _stdout: stdout,
+                address,
+                log,
+            };
+        }
+        log.push(entry);
+    }
+    let status = child.wait();
+    panic!("isotint serve stopped before listening ({status:?}): {log:?}");
+}
+
+#[tokio::test]
+async fn a_service_started_from_any_directory_offers_the_built_in_demo_calibration_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let database = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("lab.sqlite").display()
+    );
+    let mut ids = Vec::new();
+    for (start, imported) in [(1, 1), (2, 0)] {
+        let served = serve_in(dir.path(), &database);
+        let built_in = served
+            .log
+            .iter()
+            .find(|l| {
+                l["fields"]["message"] == "calibration sets imported"
+                    && l["fields"]["from"] == "built into the binary"
+            })
+            .unwrap_or_else(|| panic!("start {start}: no import line in {:?}", served.log));
+        assert_eq!(built_in["fields"]["imported"], imported, "start {start}");
+        let url = format!("http://{}/api/v1/calibrations", served.address);
+        let listed: Value = reqwest::get(&url).await.unwrap().json().await.unwrap();
+        let listed = listed["calibrations"].as_array().unwrap();
+        assert_eq!(listed.len(), 1, "start {start}: {listed:?}");
+        assert_eq!(listed[0]["name"], "Demo beam, four-point bending");
+        ids.push(listed[0]["id"].clone());
+    }
+    assert_eq!(ids[0], ids[1], "the second start keeps the first copy");
 }

@@ -6,7 +6,7 @@ mod common;
 use std::future::Future;
 use std::time::Duration;
 
-use isotint::calibration_sets::import_dir;
+use isotint::calibration_sets::{import_built_in, import_dir, BUILT_IN};
 use isotint::domain::{CalibrationId, OrderMapId};
 use isotint::storage::calibrations::{self, ListFilter};
 use isotint::storage::{order_maps, Backend, Storage, StorageError};
@@ -182,6 +182,36 @@ async fn importing_the_calibration_sets_twice_stores_each_file_once_on_every_bac
             .await
             .unwrap();
         assert_eq!(missing.imported, 0);
+    })
+    .await;
+}
+
+#[tokio::test]
+async fn the_built_in_demo_set_is_stored_once_and_a_folder_adds_only_what_is_new_on_every_backend()
+{
+    on_every_backend(|storage| async move {
+        let first = import_built_in(&storage).await.unwrap();
+        assert_eq!((first.imported, first.already_known), (1, 0));
+        let again = import_built_in(&storage).await.unwrap();
+        assert_eq!((again.imported, again.already_known), (0, 1));
+
+        let dir = tempfile::tempdir().unwrap();
+        let (name, bytes) = BUILT_IN[0];
+        std::fs::write(dir.path().join(name), bytes).unwrap();
+        std::fs::write(
+            dir.path().join("lab.json"),
+            common::table("Lab set").to_json(),
+        )
+        .unwrap();
+        let folder = import_dir(&storage, dir.path()).await.unwrap();
+        assert_eq!((folder.imported, folder.already_known), (1, 1));
+
+        let listed = calibrations::list(&storage, &ListFilter::default())
+            .await
+            .unwrap();
+        let mut names: Vec<&str> = listed.iter().map(|r| r.metadata.name.as_str()).collect();
+        names.sort_unstable();
+        assert_eq!(names, ["Demo beam, four-point bending", "Lab set"]);
     })
     .await;
 }

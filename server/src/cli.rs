@@ -13,7 +13,8 @@ use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
 use isotint_core::{
-    CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, OrderHint, PixelRect,
+    CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
+    OrderHint, PixelRect,
 };
 
 use crate::config::ServiceConfig;
@@ -32,6 +33,7 @@ pub struct Cli {
         long,
         global = true,
         env = "ISOTINT_LOG_FORMAT",
+        hide_env_values = true,
         default_value = "text"
     )]
     pub log_format: LogFormat,
@@ -67,42 +69,70 @@ pub enum Command {
 #[derive(Debug, Args)]
 pub struct ServeArgs {
     /// Address to listen on.
-    #[arg(long, env = "ISOTINT_BIND", default_value = "127.0.0.1:8080")]
+    #[arg(
+        long,
+        env = "ISOTINT_BIND",
+        hide_env_values = true,
+        default_value = "127.0.0.1:8080"
+    )]
     pub bind: SocketAddr,
     /// Database URL: sqlite://FILE?mode=rwc (created if missing) or postgres://….
     #[arg(
         long,
         env = "ISOTINT_DATABASE_URL",
+        hide_env_values = true,
         default_value = "sqlite://isotint.sqlite?mode=rwc"
     )]
     pub database: String,
-    /// Directory whose *.json calibration files are imported (once each) at start.
+    /// Directory whose *.json calibration files are imported (once each) at start, besides the
+    /// demo set built into the binary.
     #[arg(
         long,
         env = "ISOTINT_CALIBRATION_SETS",
+        hide_env_values = true,
         default_value = "calibration-sets"
     )]
     pub calibration_sets: PathBuf,
     /// Largest accepted request body, MiB.
-    #[arg(long, env = "ISOTINT_UPLOAD_LIMIT_MIB", default_value_t = 64)]
+    #[arg(
+        long,
+        env = "ISOTINT_UPLOAD_LIMIT_MIB",
+        hide_env_values = true,
+        default_value_t = 64
+    )]
     pub upload_limit_mib: usize,
     /// Calibration and map jobs that run at once.
-    #[arg(long, env = "ISOTINT_MAX_JOBS", default_value_t = 2)]
+    #[arg(
+        long,
+        env = "ISOTINT_MAX_JOBS",
+        hide_env_values = true,
+        default_value_t = 2
+    )]
     pub max_jobs: usize,
     /// Jobs that may wait for a slot; further requests get 503 with Retry-After.
-    #[arg(long, env = "ISOTINT_JOB_QUEUE", default_value_t = 4)]
+    #[arg(
+        long,
+        env = "ISOTINT_JOB_QUEUE",
+        hide_env_values = true,
+        default_value_t = 4
+    )]
     pub job_queue: usize,
     /// Time limit of one request (e.g. 90s, 2m).
-    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", default_value = "120s", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", hide_env_values = true, default_value = "120s", value_parser = humantime::parse_duration)]
     pub request_timeout: Duration,
     /// How long stored order maps are served (e.g. 24h, 30m).
-    #[arg(long, env = "ISOTINT_RETENTION", default_value = "24h", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_RETENTION", hide_env_values = true, default_value = "24h", value_parser = humantime::parse_duration)]
     pub retention: Duration,
     /// How often expired order maps are deleted.
-    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", default_value = "5m", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", hide_env_values = true, default_value = "5m", value_parser = humantime::parse_duration)]
     pub purge_interval: Duration,
     /// Largest accepted photo, pixels in all (checked on the header, before decoding).
-    #[arg(long, env = "ISOTINT_MAX_IMAGE_PIXELS", default_value_t = 50_000_000)]
+    #[arg(
+        long,
+        env = "ISOTINT_MAX_IMAGE_PIXELS",
+        hide_env_values = true,
+        default_value_t = 50_000_000
+    )]
     pub max_image_pixels: u64,
 }
 
@@ -139,19 +169,19 @@ pub struct CalibrateArgs {
     /// Fringe order at the beam edges (dimensionless).
     #[arg(long)]
     pub edge_order: Option<f64>,
-    /// Bending moment in the constant-moment zone, N·mm (with --depth and --fringe-value, or
-    /// with --edge-order and --depth to report the fringe value).
-    #[arg(long)]
-    pub moment: Option<f64>,
+    /// Bending moment in the constant-moment zone, N·mm (with --depth-mm and
+    /// --fringe-value-n-per-mm, or with --edge-order and --depth-mm to report the fringe value).
+    #[arg(long, alias = "moment")]
+    pub moment_n_mm: Option<f64>,
     /// Beam depth (edge to edge), mm.
-    #[arg(long)]
-    pub depth: Option<f64>,
+    #[arg(long, alias = "depth")]
+    pub depth_mm: Option<f64>,
     /// Material fringe value f_σ, N/mm per fringe.
-    #[arg(long)]
-    pub fringe_value: Option<f64>,
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: Option<f64>,
     /// Estimate the edge order from the beam's own colour sequence instead of giving it or the
-    /// load (alone, without --edge-order, --moment, --depth, --fringe-value). An estimate:
-    /// confirm it against a known load where possible.
+    /// load (alone, without --edge-order, --moment-n-mm, --depth-mm, --fringe-value-n-per-mm).
+    /// An estimate: confirm it against a known load where possible.
     #[arg(long)]
     pub estimate_edge_order: bool,
     /// Name of the calibration (default: the photo's file name).
@@ -164,20 +194,20 @@ pub struct CalibrateArgs {
     #[arg(long, default_value_t = DEFAULT_ORDER_STEP)]
     pub order_step: f64,
     /// Model or coating material.
-    #[arg(long, default_value = "")]
-    pub material: String,
+    #[arg(long)]
+    pub material: Option<String>,
     /// Specimen thickness, mm.
     #[arg(long)]
     pub thickness_mm: Option<f64>,
     /// Light source, e.g. "halogen 3200 K".
-    #[arg(long, default_value = "")]
-    pub light_source: String,
+    #[arg(long)]
+    pub light_source: Option<String>,
     /// Camera and exposure settings.
-    #[arg(long, default_value = "")]
-    pub camera: String,
+    #[arg(long)]
+    pub camera: Option<String>,
     /// Free text.
-    #[arg(long, default_value = "")]
-    pub notes: String,
+    #[arg(long)]
+    pub notes: Option<String>,
     /// Where to write the calibration file (JSON).
     #[arg(long)]
     pub out: PathBuf,
@@ -250,6 +280,81 @@ fn parse_hint(text: &str) -> Result<OrderHint, String> {
     })
 }
 
+/// The API field names of the core's and the service's messages, each with the flag that
+/// carries it on the command line.
+const FIELD_FLAGS: &[(&str, &str)] = &[
+    ("edge_order", "--edge-order"),
+    ("moment_n_mm", "--moment-n-mm"),
+    ("depth_mm", "--depth-mm"),
+    ("fringe_value_n_per_mm", "--fringe-value-n-per-mm"),
+    ("estimate_edge_order", "--estimate-edge-order"),
+    ("region", "--region"),
+    ("order_step", "--order-step"),
+    ("name", "--name"),
+    ("material", "--material"),
+    ("thickness_mm", "--thickness-mm"),
+    ("light_source", "--light-source"),
+    ("camera", "--camera"),
+    ("notes", "--notes"),
+    ("photo", "--photo"),
+    ("mask", "--mask"),
+    ("calibration", "--calibration"),
+    ("max_order", "--max-order"),
+    ("max_gradient", "--max-gradient"),
+    ("hints", "--hint"),
+    ("out", "--out"),
+];
+
+/// The flag that carries an API field (the field itself if no flag does).
+fn flag_of(field: &str) -> &str {
+    FIELD_FLAGS
+        .iter()
+        .find(|(f, _)| *f == field)
+        .map_or(field, |(_, flag)| flag)
+}
+
+/// `text` with every API field name written in `snake_case` replaced by its flag (plain words
+/// such as "photo" stay words).
+fn with_flags(text: &str) -> String {
+    fn push_word(word: &mut String, out: &mut String) {
+        out.push_str(if word.contains('_') {
+            flag_of(word)
+        } else {
+            word
+        });
+        word.clear();
+    }
+    let mut out = String::with_capacity(text.len() + 16);
+    let mut word = String::new();
+    for c in text.chars() {
+        if c.is_ascii_alphanumeric() || c == '_' {
+            word.push(c);
+        } else {
+            push_word(&mut word, &mut out);
+            out.push(c);
+        }
+    }
+    push_word(&mut word, &mut out);
+    out
+}
+
+/// Core results as the command line reports them: an invalid value names the flag the user
+/// typed, not the API field.
+trait InFlags<T> {
+    fn in_flags(self) -> anyhow::Result<T>;
+}
+
+impl<T> InFlags<T> for CoreResult<T> {
+    fn in_flags(self) -> anyhow::Result<T> {
+        self.map_err(|e| match e {
+            CoreError::Invalid { field, message } => {
+                anyhow::anyhow!("invalid {}: {}", flag_of(field), with_flags(&message))
+            }
+            other => other.into(),
+        })
+    }
+}
+
 fn init_tracing(format: LogFormat) {
     let filter = tracing_subscriber::EnvFilter::try_from_default_env()
         .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,sqlx=warn"));
@@ -292,13 +397,15 @@ fn write(path: &Path, bytes: &[u8]) -> anyhow::Result<()> {
 }
 
 fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
+    refuse_overwriting(&[("--photo", Some(&args.photo))], "--out", &args.out)?;
     let load = EdgeLoad::from_fields(EdgeLoadFields {
         edge_order: args.edge_order,
-        moment_n_mm: args.moment,
-        depth_mm: args.depth,
-        fringe_value_n_per_mm: args.fringe_value,
+        moment_n_mm: args.moment_n_mm,
+        depth_mm: args.depth_mm,
+        fringe_value_n_per_mm: args.fringe_value_n_per_mm,
         estimate_edge_order: args.estimate_edge_order,
-    })?;
+    })
+    .in_flags()?;
     let name = args.name.clone().unwrap_or_else(|| {
         args.photo
             .file_stem()
@@ -307,11 +414,11 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
     });
     let metadata = CalibrationMetadata {
         name,
-        material: args.material.clone(),
+        material: args.material.clone().unwrap_or_default(),
         thickness_mm: args.thickness_mm,
-        light_source: args.light_source.clone(),
-        camera: args.camera.clone(),
-        notes: args.notes.clone(),
+        light_source: args.light_source.clone().unwrap_or_default(),
+        camera: args.camera.clone().unwrap_or_default(),
+        notes: args.notes.clone().unwrap_or_default(),
     };
     let spec = beam_spec(
         args.region,
@@ -319,9 +426,10 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
         args.refine_edges,
         Some(args.order_step),
         metadata,
-    )?;
+    )
+    .in_flags()?;
     let photo = read(&args.photo, "photo")?;
-    let calibration = pipeline::calibrate(&photo, &spec, &DecodeLimits::default())?;
+    let calibration = pipeline::calibrate(&photo, &spec, &DecodeLimits::default()).in_flags()?;
     write(&args.out, calibration.table.to_json().as_bytes())?;
     println!(
         "calibration {:?} written to {}",
@@ -336,7 +444,7 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
 pub fn report_text(r: &BeamReport) -> String {
     let mut out = format!(
         "  edge order          {:.3} fringes\n  max order in table  {:.3} fringes\n  \
-         residual            mean {:.2}, p95 {:.2} (CIEDE2000)\n  \
+         residual            mean {:.2}, p95 {:.2} ΔE00 (CIEDE2000)\n  \
          rows                {} used, {} edge rows skipped, {} outlier rows, {:.1} % outlier pixels\n",
         r.edge_order,
         r.max_order,
@@ -389,13 +497,13 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// Refuses an output path of `isotint map` (given with `flag`) that is one of its input files.
-fn refuse_overwriting_inputs(args: &MapArgs, flag: &str, out: &Path) -> anyhow::Result<()> {
-    let inputs = [
-        ("--photo", Some(&args.photo)),
-        ("--mask", args.mask.as_ref()),
-        ("--calibration", Some(&args.calibration)),
-    ];
+/// Refuses an output path (given with `flag`) that is one of the command's input files, each
+/// given as (its flag, its path if any).
+fn refuse_overwriting(
+    inputs: &[(&str, Option<&PathBuf>)],
+    flag: &str,
+    out: &Path,
+) -> anyhow::Result<()> {
     for (input, path) in inputs {
         if path.is_some_and(|p| same_file(p, out)) {
             anyhow::bail!(
@@ -410,10 +518,15 @@ fn refuse_overwriting_inputs(args: &MapArgs, flag: &str, out: &Path) -> anyhow::
 /// Checks the output paths of `isotint map` before any work: neither is an input file, the
 /// uncertainty goes to a .npy file of its own. Returns the format of the orders' file.
 fn output_format(args: &MapArgs) -> anyhow::Result<OutputFormat> {
-    refuse_overwriting_inputs(args, "--out", &args.out)?;
-    let format = OutputFormat::from_path(&args.out.to_string_lossy())?;
+    let inputs = [
+        ("--photo", Some(&args.photo)),
+        ("--mask", args.mask.as_ref()),
+        ("--calibration", Some(&args.calibration)),
+    ];
+    refuse_overwriting(&inputs, "--out", &args.out)?;
+    let format = OutputFormat::from_path(&args.out.to_string_lossy()).in_flags()?;
     if let Some(u) = &args.uncertainty_out {
-        refuse_overwriting_inputs(args, "--uncertainty-out", u)?;
+        refuse_overwriting(&inputs, "--uncertainty-out", u)?;
         if !u.to_string_lossy().to_ascii_lowercase().ends_with(".npy") {
             anyhow::bail!(
                 "--uncertainty-out {}: the uncertainty is written as NPY; use a .npy file",
@@ -456,8 +569,9 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         &table,
         &options,
         &DecodeLimits::default(),
-    )?;
-    write(&args.out, &export::encode(&map, format)?)?;
+    )
+    .in_flags()?;
+    write(&args.out, &export::encode(&map, format).in_flags()?)?;
     println!(
         "{}×{} order map ({}) written to {}",
         map.width,
@@ -486,7 +600,7 @@ pub fn statistics_text(s: &MapStatistics) -> String {
     format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
          unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {:.3}\n  \
-         mean residual       {:.2} (ΔE*ab)\n{caution}",
+         mean residual       {:.2} ΔE*ab\n{caution}",
         s.specimen_pixels,
         s.valued_pixels,
         100.0 * s.beyond_range_share,

@@ -22,7 +22,8 @@ pub struct ServiceConfig {
     pub purge_interval: Duration,
     /// Header checks applied before any photo or mask is decoded.
     pub decode_limits: DecodeLimits,
-    /// Directory whose `*.json` calibration files are imported at start.
+    /// Directory whose `*.json` calibration files are imported at start, after the sets built
+    /// into the binary.
     pub calibration_sets: Option<PathBuf>,
 }
 

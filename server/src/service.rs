@@ -1,5 +1,5 @@
-//! Running the HTTP service: open the database, import calibration sets, serve until SIGTERM
-//! or Ctrl-C, purge expired order maps in the background.
+//! Running the HTTP service: open the database, import the built-in and the folder's
+//! calibration sets, serve until SIGTERM or Ctrl-C, purge expired order maps in the background.
 
 use std::net::SocketAddr;
 use std::time::Duration;
@@ -9,13 +9,13 @@ use time::OffsetDateTime;
 use tokio::net::TcpListener;
 use tokio::task::JoinHandle;
 
-use crate::calibration_sets::import_dir;
+use crate::calibration_sets::import_at_start;
 use crate::config::ServiceConfig;
 use crate::http::{app, AppState};
 use crate::storage::{order_maps, Storage};
 
-/// Opens `database_url`, imports the calibration sets, and serves on `bind` until a shutdown
-/// signal arrives; in-flight requests finish first.
+/// Opens `database_url`, imports the built-in and the folder's calibration sets, and serves on
+/// `bind` until a shutdown signal arrives; in-flight requests finish first.
 pub async fn run(
     bind: SocketAddr,
     database_url: &str,
@@ -25,18 +25,9 @@ pub async fn run(
         .await
         .context("could not open the database")?;
     tracing::info!(database = storage.backend().name(), "database ready");
-    if let Some(dir) = &config.calibration_sets {
-        let summary = import_dir(&storage, dir)
-            .await
-            .context("could not import the calibration sets")?;
-        tracing::info!(
-            dir = %dir.display(),
-            imported = summary.imported,
-            already_known = summary.already_known,
-            refused = summary.refused.len(),
-            "calibration sets imported"
-        );
-    }
+    import_at_start(&storage, config.calibration_sets.as_deref())
+        .await
+        .context("could not import the calibration sets")?;
     let purger = spawn_purger(storage.clone(), config.purge_interval);
     let state = AppState::new(storage.clone(), config);
     let listener = TcpListener::bind(bind)

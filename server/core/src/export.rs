@@ -5,7 +5,7 @@ use std::io::Write;
 use image::{ImageEncoder, Rgb, RgbImage};
 
 use crate::error::{CoreError, CoreResult};
-use crate::order_map::{OrderMap, PixelFlags};
+use crate::order_map::{MapStatistics, OrderMap, PixelFlags};
 
 /// Scale of the 16-bit PNG: grey value = round(order × 1000); N = value / 1000.
 pub const PNG16_SCALE: f32 = 1000.0;
@@ -19,7 +19,8 @@ pub enum OutputFormat {
     Npy,
     /// 16-bit grey PNG, value = round(N × 1000), 65535 = no value.
     Png16,
-    /// False-colour PNG with a colour bar (for people, not for measurement).
+    /// False-colour PNG with a colour bar numbered in fringe orders from 0 to the table's last
+    /// order (for people, not for measurement).
     Preview,
     /// CSV with header `x,y,order,residual,flags`, one line per pixel, empty order = no value.
     Csv,
@@ -213,17 +214,105 @@ fn scale_colour(t: f64) -> [u8; 3] {
         .as_array()
 }
 
-fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
-    let (w, h) = (map.width, map.height);
-    let bar_w = (w / 12).clamp(24, 120);
-    let gap = bar_w / 3;
-    let top = map.statistics.max_order.max(0.0);
-    let top = if top.is_finite() && top > 0.0 {
-        top.ceil()
+/// Height and width of one character of the preview's text, pixels (an 8 × 8 bitmap font).
+const GLYPH_PX: u32 = 8;
+
+/// Title of the preview's colour bar, written upwards beside its numbers.
+pub const COLOUR_BAR_TITLE: &str = "fringe order";
+
+/// One number of the preview's colour bar.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BarLabel {
+    /// The order it marks, fringes.
+    pub order: f64,
+    /// The bar's pixel row it marks, counted from the bar's first (top) row.
+    pub row: u32,
+    /// The number as written.
+    pub text: String,
+}
+
+/// The numbers of a colour bar `rows` pixels high that runs from order 0 on its last row to
+/// `top` fringes on its first: `top` itself, and the multiples of the smallest step of 0.1, 0.2,
+/// 0.5, 1, 2, 5, 10 or 20 fringes that lies at least five text heights apart, but not one within
+/// 1.5 text heights of `top`. Listed from order 0 up.
+pub fn colour_bar_labels(top: f64, rows: u32) -> Vec<BarLabel> {
+    let span = f64::from(rows.max(2) - 1);
+    let row_of = |order: f64| ((1.0 - order / top) * span).round() as u32;
+    let px_per_fringe = span / top;
+    let step = [0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0]
+        .into_iter()
+        .find(|s| s * px_per_fringe >= 5.0 * f64::from(GLYPH_PX))
+        .unwrap_or(top);
+    let label = |order: f64| BarLabel {
+        order,
+        row: row_of(order),
+        text: number_text(order),
+    };
+    let mut labels: Vec<BarLabel> = (0..)
+        .map(|i| f64::from(i) * step)
+        .take_while(|order| (top - order) * px_per_fringe >= 1.5 * f64::from(GLYPH_PX))
+        .map(label)
+        .collect();
+    labels.push(label(top));
+    labels
+}
+
+/// A number as the colour bar writes it: at most two decimals, no trailing zeros.
+fn number_text(value: f64) -> String {
+    let text = format!("{value:.2}");
+    text.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
+/// Writes `text` in black with its top-left corner at (x, y); upright, or turned to read
+/// upwards with (x, y) its bottom-left corner.
+fn draw_text(img: &mut RgbImage, text: &str, x: u32, y: u32, upwards: bool) {
+    for (i, c) in text.chars().enumerate() {
+        let glyph = font8x8::legacy::BASIC_LEGACY[usize::from(c as u8 & 0x7f)];
+        let offset = i as u32 * GLYPH_PX;
+        for (gy, bits) in (0..GLYPH_PX).zip(glyph) {
+            for gx in (0..GLYPH_PX).filter(|gx| bits >> gx & 1 == 1) {
+                let (px, py) = if upwards {
+                    (x + gy, y - offset - gx)
+                } else {
+                    (x + offset + gx, y + gy)
+                };
+                if px < img.width() && py < img.height() {
+                    img.put_pixel(px, py, Rgb([0, 0, 0]));
+                }
+            }
+        }
+    }
+}
+
+/// The order at the top of the preview's colour bar, fringes: the highest order the map could
+/// read (the table's last order); for results stored without it, the map's highest order
+/// rounded up.
+fn bar_top(s: &MapStatistics) -> f64 {
+    if s.table_max_order.is_finite() && s.table_max_order > 0.0 {
+        s.table_max_order
+    } else if s.max_order.is_finite() && s.max_order > 0.0 {
+        s.max_order.ceil()
     } else {
         1.0
-    };
-    let mut img = RgbImage::from_pixel(w + gap + bar_w, h, Rgb([255, 255, 255]));
+    }
+}
+
+fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
+    let (w, h) = (map.width, map.height);
+    let top = bar_top(&map.statistics);
+    // Beside the map: a gap, the bar, its ticks and numbers, the title written upwards. The
+    // picture is at least tall enough for the title; the bar leaves half a text height at each
+    // end so that the end numbers fit.
+    let bar_w = (w / 12).clamp(24, 120);
+    let bar_x = w + bar_w / 3;
+    let margin = GLYPH_PX / 2;
+    let height = h.max((COLOUR_BAR_TITLE.len() as u32 + 1) * GLYPH_PX);
+    let labels = colour_bar_labels(top, height - 2 * margin);
+    let label_x = bar_x + bar_w + GLYPH_PX / 2;
+    let widest = labels.iter().map(|l| l.text.len()).max().unwrap_or(1) as u32;
+    let title_x = label_x + (widest + 1) * GLYPH_PX;
+    let width = title_x + GLYPH_PX + margin;
+    let mut img = RgbImage::from_pixel(width, height, Rgb([255, 255, 255]));
     for y in 0..h {
         for x in 0..w {
             let i = (y * w + x) as usize;
@@ -236,20 +325,28 @@ fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
             });
             img.put_pixel(x, y, Rgb(c));
         }
-        let t = 1.0 - f64::from(y) / f64::from(h.max(2) - 1);
-        let bar = scale_colour(t);
-        // Whole orders are marked by a black tick across the bar.
-        let order_here = t * top;
-        let tick = ((order_here - order_here.round()).abs() * f64::from(h) / top) < 0.5;
-        for x in w + gap..w + gap + bar_w {
-            let c = if tick && x < w + gap + bar_w / 2 {
-                [0, 0, 0]
-            } else {
-                bar
-            };
-            img.put_pixel(x, y, Rgb(c));
+    }
+    let bar_rows = height - 2 * margin;
+    for row in 0..bar_rows {
+        let colour = Rgb(scale_colour(1.0 - f64::from(row) / f64::from(bar_rows - 1)));
+        for x in bar_x..bar_x + bar_w {
+            img.put_pixel(x, margin + row, colour);
         }
     }
+    for label in &labels {
+        for x in bar_x + bar_w * 3 / 4..label_x - 1 {
+            img.put_pixel(x, margin + label.row, Rgb([0, 0, 0]));
+        }
+        draw_text(&mut img, &label.text, label_x, label.row, false);
+    }
+    let title_px = COLOUR_BAR_TITLE.len() as u32 * GLYPH_PX;
+    draw_text(
+        &mut img,
+        COLOUR_BAR_TITLE,
+        title_x,
+        (height + title_px) / 2 - 1,
+        true,
+    );
     let mut out = Vec::new();
     image::codecs::png::PngEncoder::new(&mut out)
         .write_image(
@@ -300,6 +397,90 @@ mod tests {
         assert_eq!((r, c), (2, 3));
         assert_eq!(back[1], 1.5);
         assert!(back[2].is_nan());
+    }
+
+    #[test]
+    fn the_colour_bar_is_numbered_from_zero_to_the_tables_last_order() {
+        let labelled = |top, rows| -> Vec<(f64, u32, String)> {
+            colour_bar_labels(top, rows)
+                .into_iter()
+                .map(|l| (l.order, l.row, l.text))
+                .collect()
+        };
+        // 89 rows for 4.4 fringes: 20 px per fringe, so steps of 2 (one fringe is under five
+        // text heights); 4 lies 8 px below 4.4, within 1.5 text heights, and is left out.
+        assert_eq!(
+            labelled(4.4, 89),
+            [
+                (0.0, 88, "0".to_string()),
+                (2.0, 48, "2".to_string()),
+                (4.4, 0, "4.4".to_string())
+            ]
+        );
+        // 101 rows for one fringe: 100 px per fringe, steps of half a fringe.
+        assert_eq!(
+            labelled(1.0, 101),
+            [
+                (0.0, 100, "0".to_string()),
+                (0.5, 50, "0.5".to_string()),
+                (1.0, 0, "1".to_string())
+            ]
+        );
+    }
+
+    #[test]
+    fn the_preview_colours_the_tables_last_order_as_the_top_of_its_bar() {
+        let map = OrderMap {
+            width: 3,
+            height: 1,
+            order: vec![0.0, 2.2, 4.4],
+            residual: vec![0.5; 3],
+            margin: vec![4.0; 3],
+            flags: vec![PixelFlags(0); 3],
+            uncertainty: vec![0.01; 3],
+            exposure: crate::exposure::ExposureCorrection::NONE,
+            statistics: MapStatistics {
+                specimen_pixels: 3,
+                valued_pixels: 3,
+                beyond_range_share: 0.0,
+                unreliable_share: 0.0,
+                min_order: 0.0,
+                max_order: 4.4,
+                mean_order: 2.2,
+                mean_residual: 0.5,
+                table_max_order: 4.4,
+            },
+        };
+        let png = encode(&map, OutputFormat::Preview).unwrap();
+        let img = image::load_from_memory(&png).unwrap().to_rgb8();
+        // Tall enough for the title: 13 text heights of 8 px; the bar spans rows 4 to 99.
+        assert_eq!(img.height(), 104);
+        let (bar_x, margin) = (3 + 24 / 3, GLYPH_PX / 2);
+        assert_eq!(img.get_pixel(bar_x, margin).0, scale_colour(1.0));
+        assert_eq!(
+            img.get_pixel(bar_x, img.height() - margin - 1).0,
+            scale_colour(0.0)
+        );
+        assert_eq!(img.get_pixel(0, 0).0, scale_colour(0.0));
+        assert_eq!(img.get_pixel(1, 0).0, scale_colour(0.5));
+        assert_eq!(img.get_pixel(2, 0).0, img.get_pixel(bar_x, margin).0);
+        // The numbers and the title are written in black beside the bar.
+        let black = |x0: u32, x1: u32, y0: u32, y1: u32| {
+            (x0..x1)
+                .flat_map(|x| (y0..y1).map(move |y| (x, y)))
+                .filter(|&(x, y)| img.get_pixel(x, y).0 == [0, 0, 0])
+                .count()
+        };
+        let label_x = bar_x + 24 + GLYPH_PX / 2;
+        assert!(
+            black(label_x, label_x + 3 * GLYPH_PX, 0, GLYPH_PX) > 0,
+            "4.4"
+        );
+        let title_x = label_x + 4 * GLYPH_PX;
+        assert!(
+            black(title_x, title_x + GLYPH_PX, 0, img.height()) > 0,
+            "title"
+        );
     }
 
     #[test]
