@@ -320,7 +320,7 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
                 "--out",
                 out,
             ],
-            "edge_order",
+            "--edge-order",
         ),
         (
             &[
@@ -335,7 +335,7 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
                 "--out",
                 out,
             ],
-            "estimate_edge_order",
+            "--estimate-edge-order",
         ),
         (
             &[
@@ -383,5 +383,38 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
         assert!(!output.status.success(), "{args:?} succeeded");
         let stderr = String::from_utf8_lossy(&output.stderr);
         assert!(stderr.contains(needle), "{args:?}: {stderr}");
+    }
+}
+
+#[test]
+fn out_of_range_numbers_are_refused_naming_their_flag() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("o.npy");
+    let out = out.to_str().unwrap();
+    let plate = path("plate-hole.png");
+    let cases: [(&[&str], &str); 5] = [
+        (&["--hint", "10.5,10.5,99"], "--hint"),
+        (&["--max-gradient", "3"], "--max-gradient"),
+        (&["--max-order", "-1"], "--max-order"),
+        (&["--max-order", "2", "--hint", "10.5,10.5,2.5"], "--hint"),
+        (&["--max-order", "0.01"], "--max-order"),
+    ];
+    for (extra, flag) in cases {
+        let output = map_plate(&plate, out, extra);
+        assert!(!output.status.success(), "{extra:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(flag), "{extra:?}: {stderr}");
+        assert!(!Path::new(out).exists(), "{extra:?} wrote a map");
+    }
+    for (flag, value) in [
+        ("--max-jobs", "0"),
+        ("--request-timeout", "0s"),
+        ("--max-image-pixels", "0"),
+        ("--upload-limit-mib", "0"),
+    ] {
+        let output = isotint(&["serve", flag, value, "--database", "sqlite://unused"]);
+        assert!(!output.status.success(), "{flag} {value} started");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(flag), "{flag} {value}: {stderr}");
     }
 }

@@ -13,7 +13,8 @@ use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
 use isotint_core::{
-    CalibrationMetadata, CalibrationTable, DecodeLimits, MapOptions, OrderHint, PixelRect,
+    CalibrationMetadata, CalibrationTable, CoreError, DecodeLimits, MapOptions, OrderHint,
+    PixelRect,
 };
 
 use crate::config::ServiceConfig;
@@ -84,25 +85,26 @@ pub struct ServeArgs {
     )]
     pub calibration_sets: PathBuf,
     /// Largest accepted request body, MiB.
-    #[arg(long, env = "ISOTINT_UPLOAD_LIMIT_MIB", default_value_t = 64)]
+    #[arg(long, env = "ISOTINT_UPLOAD_LIMIT_MIB", default_value_t = 64, value_parser = at_least_one)]
     pub upload_limit_mib: usize,
     /// Calibration and map jobs that run at once.
-    #[arg(long, env = "ISOTINT_MAX_JOBS", default_value_t = 2)]
+    #[arg(long, env = "ISOTINT_MAX_JOBS", default_value_t = 2, value_parser = at_least_one)]
     pub max_jobs: usize,
     /// Jobs that may wait for a slot; further requests get 503 with Retry-After.
     #[arg(long, env = "ISOTINT_JOB_QUEUE", default_value_t = 4)]
     pub job_queue: usize,
     /// Time limit of one request (e.g. 90s, 2m).
-    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", default_value = "120s", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", default_value = "120s", value_parser = positive_duration)]
     pub request_timeout: Duration,
     /// How long stored order maps are served (e.g. 24h, 30m).
-    #[arg(long, env = "ISOTINT_RETENTION", default_value = "24h", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_RETENTION", default_value = "24h", value_parser = positive_duration)]
     pub retention: Duration,
     /// How often expired order maps are deleted.
-    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", default_value = "5m", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", default_value = "5m", value_parser = positive_duration)]
     pub purge_interval: Duration,
     /// Largest accepted photo, pixels in all (checked on the header, before decoding).
-    #[arg(long, env = "ISOTINT_MAX_IMAGE_PIXELS", default_value_t = 50_000_000)]
+    #[arg(long, env = "ISOTINT_MAX_IMAGE_PIXELS", default_value_t = 50_000_000,
+          value_parser = clap::value_parser!(u64).range(1..))]
     pub max_image_pixels: u64,
 }
 
@@ -226,6 +228,58 @@ pub struct DemoArgs {
     pub out: PathBuf,
 }
 
+/// A count of at least one (for `usize` flags).
+fn at_least_one(text: &str) -> Result<usize, String> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if n >= 1 => Ok(n),
+        _ => Err(format!("{text:?} is not a whole number of at least 1")),
+    }
+}
+
+/// A duration of at least a millisecond, as humantime spells it (90s, 2m, 24h).
+fn positive_duration(text: &str) -> Result<Duration, String> {
+    let d = humantime::parse_duration(text).map_err(|e| e.to_string())?;
+    if d < Duration::from_millis(1) {
+        return Err(format!("{text:?} is not a positive duration"));
+    }
+    Ok(d)
+}
+
+/// The command-line flag of a field the core names in its errors.
+fn flag_of(field: &str) -> Option<&'static str> {
+    Some(match field {
+        "region" => "--region",
+        "edge_order" => "--edge-order",
+        "moment_n_mm" => "--moment",
+        "depth_mm" => "--depth",
+        "fringe_value_n_per_mm" => "--fringe-value",
+        "estimate_edge_order" => "--estimate-edge-order",
+        "order_step" => "--order-step",
+        "name" => "--name",
+        "material" => "--material",
+        "thickness_mm" => "--thickness-mm",
+        "light_source" => "--light-source",
+        "camera" => "--camera",
+        "notes" => "--notes",
+        "photo" => "--photo",
+        "mask" => "--mask",
+        "max_order" => "--max-order",
+        "max_gradient" => "--max-gradient",
+        "hints" => "--hint",
+        _ => return None,
+    })
+}
+
+/// A core error as the command line reports it: an invalid field is named by its flag.
+fn by_flag(e: CoreError) -> anyhow::Error {
+    match e {
+        CoreError::Invalid { field, message } => {
+            anyhow::anyhow!("invalid {}: {message}", flag_of(field).unwrap_or(field))
+        }
+        other => other.into(),
+    }
+}
+
 fn parse_region(text: &str) -> Result<PixelRect, String> {
     PixelRect::parse(text).map_err(|e| e.to_string())
 }
@@ -298,7 +352,8 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
         depth_mm: args.depth,
         fringe_value_n_per_mm: args.fringe_value,
         estimate_edge_order: args.estimate_edge_order,
-    })?;
+    })
+    .map_err(by_flag)?;
     let name = args.name.clone().unwrap_or_else(|| {
         args.photo
             .file_stem()
@@ -319,9 +374,11 @@ fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
         args.refine_edges,
         Some(args.order_step),
         metadata,
-    )?;
+    )
+    .map_err(by_flag)?;
     let photo = read(&args.photo, "photo")?;
-    let calibration = pipeline::calibrate(&photo, &spec, &DecodeLimits::default())?;
+    let calibration =
+        pipeline::calibrate(&photo, &spec, &DecodeLimits::default()).map_err(by_flag)?;
     write(&args.out, calibration.table.to_json().as_bytes())?;
     println!(
         "calibration {:?} written to {}",
@@ -448,6 +505,7 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     if let Some(g) = args.max_gradient {
         options.max_gradient = g;
     }
+    options.validate(&table).map_err(by_flag)?;
     let photo = read(&args.photo, "photo")?;
     let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
     let map = pipeline::map(
@@ -456,7 +514,8 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         &table,
         &options,
         &DecodeLimits::default(),
-    )?;
+    )
+    .map_err(by_flag)?;
     write(&args.out, &export::encode(&map, format)?)?;
     println!(
         "{}×{} order map ({}) written to {}",

@@ -260,6 +260,7 @@ async fn create_order_map(
     let photo = form.require("photo")?;
     let mask = form.take("mask");
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
+    options.validate(&table)?;
     let limits = state.config.decode_limits;
     let (map, file) = admission
         .run(move || -> CoreResult<(OrderMap, Option<Vec<u8>>)> {
