@@ -408,6 +408,8 @@ fn out_of_range_numbers_are_refused_naming_their_flag() {
     }
     for (flag, value) in [
         ("--max-jobs", "0"),
+        ("--max-connections", "0"),
+        ("--header-timeout", "0s"),
         ("--request-timeout", "0s"),
         ("--max-image-pixels", "0"),
         ("--upload-limit-mib", "0"),

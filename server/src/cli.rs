@@ -96,6 +96,16 @@ pub struct ServeArgs {
     /// Time limit of one request (e.g. 90s, 2m).
     #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", default_value = "120s", value_parser = positive_duration)]
     pub request_timeout: Duration,
+    /// Time a connection has to send a request's headers, also how long an idle connection is
+    /// kept open (e.g. 30s).
+    #[arg(long, env = "ISOTINT_HEADER_TIMEOUT", default_value = "30s", value_parser = positive_duration)]
+    pub header_timeout: Duration,
+    /// Longest pause while a request body arrives; a stalled upload is answered 408.
+    #[arg(long, env = "ISOTINT_BODY_TIMEOUT", default_value = "30s", value_parser = positive_duration)]
+    pub body_timeout: Duration,
+    /// Connections served at once; further ones wait until one closes.
+    #[arg(long, env = "ISOTINT_MAX_CONNECTIONS", default_value_t = 512, value_parser = at_least_one)]
+    pub max_connections: usize,
     /// How long stored order maps are served (e.g. 24h, 30m).
     #[arg(long, env = "ISOTINT_RETENTION", default_value = "24h", value_parser = positive_duration)]
     pub retention: Duration,
@@ -116,6 +126,9 @@ impl ServeArgs {
             max_jobs: self.max_jobs,
             job_queue: self.job_queue,
             request_timeout: self.request_timeout,
+            header_timeout: self.header_timeout,
+            body_timeout: self.body_timeout,
+            max_connections: self.max_connections,
             retention: self.retention,
             purge_interval: self.purge_interval.max(Duration::from_secs(1)),
             decode_limits: DecodeLimits {

@@ -350,8 +350,9 @@ fn optional_id(text: Option<&str>) -> Result<Option<CalibrationId>, ApiError> {
 #[utoipa::path(post, path = "/api/v1/calibrations/import", tag = "calibrations", params(ImportQuery),
     request_body(content = Object, content_type = "application/json", description = "A calibration file"),
     responses((status = 201, body = CalibrationSummary), (status = 200, body = CalibrationSummary),
-              (status = 404, body = ErrorBody), (status = 409, body = ErrorBody),
-              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody), (status = 422, body = ErrorBody)))]
+              (status = 404, body = ErrorBody), (status = 408, body = ErrorBody),
+              (status = 409, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 415, body = ErrorBody), (status = 422, body = ErrorBody)))]
 async fn import_calibration(
     State(state): State<AppState>,
     query: Result<Query<ImportQuery>, QueryRejection>,
@@ -390,9 +391,9 @@ async fn import_calibration(
     request_body(content = BeamForm, content_type = "multipart/form-data"),
     responses((status = 201, body = CreatedCalibration), (status = 200, body = DryRunCalibration),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
-              (status = 409, body = ErrorBody), (status = 413, body = ErrorBody),
-              (status = 415, body = ErrorBody), (status = 422, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 408, body = ErrorBody), (status = 409, body = ErrorBody),
+              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody),
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn create_calibration(
     State(state): State<AppState>,
     multipart: Result<Multipart, MultipartRejection>,

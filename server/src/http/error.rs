@@ -32,6 +32,8 @@ pub enum ApiError {
     NotFound(String),
     /// 405: the route exists but not with this method.
     MethodNotAllowed(String),
+    /// 408: the request body stopped arriving (paused longer than the body time-out).
+    BodyStalled,
     /// 409: the request contradicts stored state.
     Conflict(String),
     /// 410: the resource existed but has expired.
@@ -103,6 +105,11 @@ impl ApiError {
                 StatusCode::METHOD_NOT_ALLOWED,
                 "method_not_allowed",
                 m.clone(),
+            ),
+            ApiError::BodyStalled => (
+                StatusCode::REQUEST_TIMEOUT,
+                "body_timeout",
+                "the request body stopped arriving before it was complete".to_string(),
             ),
             ApiError::Conflict(m) => (StatusCode::CONFLICT, "conflict", m.clone()),
             ApiError::Gone(m) => (StatusCode::GONE, "expired", m.clone()),
@@ -192,9 +199,23 @@ impl From<MultipartRejection> for ApiError {
     }
 }
 
+/// Whether a body-reading error comes from the body time-out (`RequestBodyTimeoutLayer`).
+fn stalled(e: &(dyn std::error::Error + 'static)) -> bool {
+    let mut cause = Some(e);
+    while let Some(c) = cause {
+        if c.is::<tower_http::timeout::TimeoutError>() {
+            return true;
+        }
+        cause = c.source();
+    }
+    false
+}
+
 impl From<MultipartError> for ApiError {
     fn from(e: MultipartError) -> Self {
-        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+        if stalled(&e) {
+            ApiError::BodyStalled
+        } else if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
             ApiError::TooLarge("the request body exceeds the upload limit".into())
         } else {
             ApiError::bad_request(
@@ -207,7 +228,9 @@ impl From<MultipartError> for ApiError {
 
 impl From<BytesRejection> for ApiError {
     fn from(e: BytesRejection) -> Self {
-        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+        if stalled(&e) {
+            ApiError::BodyStalled
+        } else if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
             ApiError::TooLarge("the request body exceeds the upload limit".into())
         } else {
             ApiError::bad_request("unreadable_body", e.body_text())

@@ -233,7 +233,8 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
               (status = 200, description = "The map as the requested file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
-              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody),
+              (status = 408, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 415, body = ErrorBody),
               (status = 422, body = ErrorBody), (status = 503, body = ErrorBody),
               (status = 504, body = ErrorBody)))]
 async fn create_order_map(
