@@ -16,6 +16,7 @@ use isotint_core::CoreError;
 use serde::Serialize;
 use utoipa::ToSchema;
 
+use super::jobs::RETRY_AFTER_S;
 use crate::storage::StorageError;
 
 /// An API failure; converts into the JSON error response.
@@ -54,7 +55,7 @@ pub enum ApiError {
         /// Seconds to wait before retrying.
         retry_after_s: u64,
     },
-    /// 503: the database does not answer.
+    /// 503 with `Retry-After`: the database does not answer or stays busy.
     Unavailable(String),
     /// 504: the request took longer than the time limit.
     TimedOut(Duration),
@@ -158,10 +159,15 @@ impl IntoResponse for ApiError {
             },
         };
         let mut response = (status, Json(body)).into_response();
-        if let ApiError::Busy { retry_after_s } = self {
+        let retry_after_s = match self {
+            ApiError::Busy { retry_after_s } => Some(retry_after_s),
+            ApiError::Unavailable(_) => Some(RETRY_AFTER_S),
+            _ => None,
+        };
+        if let Some(seconds) = retry_after_s {
             response
                 .headers_mut()
-                .insert(header::RETRY_AFTER, HeaderValue::from(retry_after_s));
+                .insert(header::RETRY_AFTER, HeaderValue::from(seconds));
         }
         response
     }
@@ -185,6 +191,10 @@ impl From<StorageError> for ApiError {
         match e {
             StorageError::NotFound { .. } => ApiError::NotFound(e.to_string()),
             StorageError::Conflict(m) => ApiError::Conflict(m),
+            StorageError::Busy(detail) => {
+                tracing::warn!(error = %detail, "database busy");
+                ApiError::Unavailable(format!("the database is busy; retry in {RETRY_AFTER_S} s"))
+            }
             other => ApiError::Internal(other.to_string()),
         }
     }
@@ -270,4 +280,20 @@ pub fn panic_response(panic: Box<dyn std::any::Any + Send + 'static>) -> Respons
         .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
         .unwrap_or_else(|| "unknown panic".into());
     ApiError::Internal(format!("handler panicked: {detail}")).into_response()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_busy_database_answers_503_with_retry_after() {
+        let response =
+            ApiError::from(StorageError::Busy(sqlx::Error::PoolTimedOut)).into_response();
+        assert_eq!(response.status(), StatusCode::SERVICE_UNAVAILABLE);
+        assert_eq!(
+            response.headers()[header::RETRY_AFTER],
+            RETRY_AFTER_S.to_string()
+        );
+    }
 }

@@ -287,7 +287,7 @@ async fn create_order_map(
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id")),
     responses((status = 200, body = OrderMapResource), (status = 404, body = ErrorBody),
-              (status = 410, body = ErrorBody)))]
+              (status = 410, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn get_order_map(
     State(state): State<AppState>,
     Path(id): Path<String>,
@@ -305,7 +305,8 @@ async fn get_order_map(
            ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty or flags")),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
-              (status = 404, body = ErrorBody), (status = 410, body = ErrorBody)))]
+              (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn get_order_map_file(
     State(state): State<AppState>,
     Path((id, file)): Path<(String, String)>,
