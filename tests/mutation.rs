@@ -114,8 +114,7 @@ fn wild_value(rng: &mut StdRng) -> Value {
     }
 }
 
-/// A map options document with random ranges, hint counts and wrong kinds; sometimes damaged
-/// as text afterwards.
+/// A map options document with random ranges, hint counts and wrong kinds.
 fn options_document(rng: &mut StdRng) -> Vec<u8> {
     let hint = |rng: &mut StdRng| {
         json!({"x": rng.random_range(-20.0..70.0), "y": rng.random_range(-20.0..60.0),
@@ -127,7 +126,7 @@ fn options_document(rng: &mut StdRng) -> Vec<u8> {
         _ => rng.random_range(1..6),
     };
     let hints: Vec<Value> = (0..hint_count).map(|_| hint(rng)).collect();
-    let mut doc = json!({
+    let doc = json!({
         "exposure_compensation": rng.random_bool(0.5),
         "max_order": edge_number(rng),
         "max_gradient": if rng.random_bool(0.5) { json!(0.2) } else { edge_number(rng) },
@@ -140,7 +139,13 @@ fn options_document(rng: &mut StdRng) -> Vec<u8> {
         "hints",
         "extra",
     ];
-    for _ in 0..rng.random_range(0..3) {
+    disturbed(rng, doc, &fields)
+}
+
+/// `doc` with up to three of `fields` removed or given a wild value, as text, damaged as bytes
+/// one time in four.
+fn disturbed(rng: &mut StdRng, mut doc: Value, fields: &[&str]) -> Vec<u8> {
+    for _ in 0..rng.random_range(0..4) {
         let field = fields[rng.random_range(0..fields.len())];
         if rng.random_bool(0.3) {
             doc.as_object_mut().unwrap().remove(field);
@@ -156,9 +161,9 @@ fn options_document(rng: &mut StdRng) -> Vec<u8> {
     }
 }
 
-/// A beam specification with random ranges and wrong kinds; sometimes damaged as text.
+/// A beam specification with random ranges and wrong kinds.
 fn spec_document(rng: &mut StdRng) -> Vec<u8> {
-    let mut doc = json!({
+    let doc = json!({
         "name": "mutated beam",
         "region": {"left": edge_number(rng), "top": edge_number(rng),
                    "right": edge_number(rng), "bottom": edge_number(rng)},
@@ -176,16 +181,7 @@ fn spec_document(rng: &mut StdRng) -> Vec<u8> {
         "dry_run",
         "region",
     ];
-    for _ in 0..rng.random_range(0..4) {
-        let field = fields[rng.random_range(0..fields.len())];
-        doc[field] = wild_value(rng);
-    }
-    let text = doc.to_string().into_bytes();
-    if rng.random_bool(0.25) {
-        mutate_bytes(rng, text)
-    } else {
-        text
-    }
+    disturbed(rng, doc, &fields)
 }
 
 /// One request of the run, rebuilt from its seed.
