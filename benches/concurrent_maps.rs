@@ -81,8 +81,11 @@ async fn start_service(dir: &std::path::Path) -> SocketAddr {
     };
     let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.unwrap();
     let address = listener.local_addr().unwrap();
-    let router = app(AppState::new(storage, config));
-    tokio::spawn(async move { axum::serve(listener, router).await.unwrap() });
+    let state = AppState::new(storage, config);
+    let config = state.config.clone();
+    tokio::spawn(async move {
+        isotint::service::serve(listener, app(state), &config, std::future::pending()).await
+    });
     address
 }
 

@@ -259,3 +259,73 @@ async fn the_service_runs_on_postgresql_when_one_is_configured() {
     storage.close().await;
     db.drop_database().await;
 }
+
+/// Forty clients at once: each imports a table and tries to correct the shared original, ten
+/// of them also store a map; every answer is 201, or 409 for a correction that came second.
+async fn contend(svc: &common::TestService) {
+    let shared = import_id(&svc.app, &table("Shared original")).await;
+    let photo = common::grey_png(96, 64);
+    let mut requests = tokio::task::JoinSet::new();
+    for i in 0..40 {
+        let app = svc.app.clone();
+        let (import_table, rival) = (table(&format!("Import {i}")), table(&format!("Rival {i}")));
+        let (shared, photo) = (shared.clone(), photo.clone());
+        requests.spawn(async move {
+            let mut statuses = vec![
+                ("import", import(&app, &import_table).await.status),
+                (
+                    "correction",
+                    post(
+                        &app,
+                        &format!("/api/v1/calibrations/import?supersedes={shared}"),
+                        "application/json",
+                        rival.to_json().into_bytes(),
+                    )
+                    .await
+                    .status,
+                ),
+            ];
+            if i < 10 {
+                let map = common::Form::new()
+                    .file("photo", "p.png", "image/png", photo)
+                    .text("calibration", &shared)
+                    .post(&app, "/api/v1/order-maps")
+                    .await;
+                statuses.push(("stored map", map.status));
+            }
+            statuses
+        });
+    }
+    let mut corrections = 0;
+    while let Some(statuses) = requests.join_next().await {
+        for (what, status) in statuses.unwrap() {
+            match (what, status) {
+                ("correction", StatusCode::CREATED) => corrections += 1,
+                (_, StatusCode::CREATED) | ("correction", StatusCode::CONFLICT) => {}
+                _ => panic!("{what} answered {status}"),
+            }
+        }
+    }
+    assert_eq!(
+        corrections, 1,
+        "exactly one correction of the shared original wins"
+    );
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn concurrent_imports_corrections_and_stored_maps_answer_201_or_409_on_every_backend() {
+    let config = isotint::config::ServiceConfig {
+        job_queue: 16,
+        ..isotint::config::ServiceConfig::default()
+    };
+    contend(&common::service_with(config.clone()).await).await;
+    match common::PostgresDatabase::create().await {
+        Some(db) => {
+            let svc = common::service_on(&db.url, config, tempfile::tempdir().unwrap()).await;
+            contend(&svc).await;
+            svc.storage.close().await;
+            db.drop_database().await;
+        }
+        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
+    }
+}

@@ -441,3 +441,49 @@ async fn empty_truncated_and_forged_photos_are_refused_as_undecodable() {
     }
     still_serving_with_no_calibrations(&svc).await;
 }
+
+#[tokio::test]
+async fn a_jpeg_cut_after_its_first_20_kb_is_refused_naming_the_photo_not_padded() {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("t")).await;
+    let disc = image::load_from_memory(&common::disc_photo().png).unwrap();
+    let mut jpeg = std::io::Cursor::new(Vec::new());
+    image::codecs::jpeg::JpegEncoder::new_with_quality(&mut jpeg, 100)
+        .encode_image(&disc)
+        .unwrap();
+    let jpeg = jpeg.into_inner();
+    assert!(jpeg.len() > 30_000, "the photo is {} bytes", jpeg.len());
+    let map = |bytes: &[u8]| {
+        Form::new()
+            .file("photo", "disc.jpg", "image/jpeg", bytes.to_vec())
+            .text("calibration", &id)
+    };
+    let whole = map(&jpeg)
+        .post(&svc.app, "/api/v1/order-maps?format=npy")
+        .await;
+    assert_eq!(whole.status, StatusCode::OK);
+    let reply = map(&jpeg[..20_000])
+        .post(&svc.app, "/api/v1/order-maps?format=npy")
+        .await;
+    refused(&reply, StatusCode::UNPROCESSABLE_ENTITY, "photo");
+    refused(&reply, StatusCode::UNPROCESSABLE_ENTITY, "truncated");
+}
+
+#[tokio::test]
+async fn a_hint_above_the_calibrations_last_order_is_refused_naming_hints() {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("t")).await;
+    for options in [
+        json!({"hints": [{"x": 5.5, "y": 5.5, "order": 9.0}]}),
+        json!({"max_order": 2.0, "hints": [{"x": 5.5, "y": 5.5, "order": 3.0}]}),
+        json!({"hints": vec![json!({"x": 5.5, "y": 5.5, "order": 1.0}); 1001]}),
+    ] {
+        let reply = Form::new()
+            .file("photo", "p.png", "image/png", grey_png(40, 30))
+            .text("calibration", &id)
+            .json("options", &options)
+            .post(&svc.app, "/api/v1/order-maps")
+            .await;
+        refused(&reply, StatusCode::UNPROCESSABLE_ENTITY, "hints");
+    }
+}

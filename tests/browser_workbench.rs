@@ -89,7 +89,10 @@ async fn workbench_works_in_a_headless_browser() {
         .await
         .expect("listen");
     let base_url = format!("http://{}/", listener.local_addr().expect("address"));
-    let server = tokio::spawn(async move { axum::serve(listener, app(state)).await });
+    let config = state.config.clone();
+    let server = tokio::spawn(async move {
+        isotint::service::serve(listener, app(state), &config, std::future::pending()).await
+    });
 
     let script = browser_dir.join("workbench.mjs");
     let run = {

@@ -405,7 +405,7 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("c.json");
     let out = out.to_str().unwrap();
-    let cases: [(&[&str], &str); 4] = [
+    let cases: [(&[&str], &str); 6] = [
         (
             &[
                 "calibrate",
@@ -419,6 +419,35 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
                 out,
             ],
             "--region",
+        ),
+        (
+            &[
+                "calibrate",
+                "--photo",
+                "p.png",
+                "--region",
+                "0,0,9,9",
+                "--edge-order",
+                "-2",
+                "--out",
+                out,
+            ],
+            "--edge-order",
+        ),
+        (
+            &[
+                "calibrate",
+                "--photo",
+                "p.png",
+                "--region",
+                "0,0,9,9",
+                "--edge-order",
+                "2",
+                "--estimate-edge-order",
+                "--out",
+                out,
+            ],
+            "--estimate-edge-order",
         ),
         (
             &[
@@ -646,4 +675,39 @@ async fn a_service_started_from_any_directory_offers_the_built_in_demo_calibrati
         ids.push(listed[0]["id"].clone());
     }
     assert_eq!(ids[0], ids[1], "the second start keeps the first copy");
+}
+
+#[test]
+fn out_of_range_numbers_are_refused_naming_their_flag() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("o.npy");
+    let out = out.to_str().unwrap();
+    let plate = path("plate-hole.png");
+    let cases: [(&[&str], &str); 5] = [
+        (&["--hint", "10.5,10.5,99"], "--hint"),
+        (&["--max-gradient", "3"], "--max-gradient"),
+        (&["--max-order", "-1"], "--max-order"),
+        (&["--max-order", "2", "--hint", "10.5,10.5,2.5"], "--hint"),
+        (&["--max-order", "0.01"], "--max-order"),
+    ];
+    for (extra, flag) in cases {
+        let output = map_plate(&plate, out, extra);
+        assert!(!output.status.success(), "{extra:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(flag), "{extra:?}: {stderr}");
+        assert!(!Path::new(out).exists(), "{extra:?} wrote a map");
+    }
+    for (flag, value) in [
+        ("--max-jobs", "0"),
+        ("--max-connections", "0"),
+        ("--header-timeout", "0s"),
+        ("--request-timeout", "0s"),
+        ("--max-image-pixels", "0"),
+        ("--upload-limit-mib", "0"),
+    ] {
+        let output = isotint(&["serve", flag, value, "--database", "sqlite://unused"]);
+        assert!(!output.status.success(), "{flag} {value} started");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(flag), "{flag} {value}: {stderr}");
+    }
 }

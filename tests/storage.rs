@@ -364,3 +364,117 @@ async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_b
     })
     .await;
 }
+
+/// Writers racing in the contention test: enough to collide, few enough for a test.
+const WRITERS: usize = 40;
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_every_backend() {
+    on_every_backend(|storage| async move {
+        let shared = store(&storage, "Contended original", None)
+            .await
+            .unwrap()
+            .row
+            .id;
+        let mut originals = Vec::new();
+        for i in 0..WRITERS {
+            originals.push(
+                store(&storage, &format!("Original {i}"), None)
+                    .await
+                    .unwrap()
+                    .row
+                    .id,
+            );
+        }
+        let mut writers = tokio::task::JoinSet::new();
+        for (i, own) in originals.into_iter().enumerate() {
+            let storage = storage.clone();
+            let tables = [
+                common::table(&format!("Concurrent import {i}")),
+                common::table(&format!("Correction {i}")),
+                common::table(&format!("Rival correction {i}")),
+            ];
+            writers.spawn(async move {
+                let write = |table: &isotint_core::CalibrationTable, supersedes| {
+                    let storage = storage.clone();
+                    let json = table.to_json();
+                    let table = table.clone();
+                    async move {
+                        calibrations::insert(&storage, &table, &json, supersedes, None).await
+                    }
+                };
+                let imported = write(&tables[0], None).await.map(|i| i.created);
+                let corrected = write(&tables[1], Some(own)).await.map(|i| i.created);
+                let rival = write(&tables[2], Some(shared)).await.map(|_| ());
+                let stored =
+                    order_maps::insert(&storage, own, &small_map(), Duration::from_secs(60))
+                        .await
+                        .map(|_| ());
+                (imported, corrected, rival, stored)
+            });
+        }
+        let mut rivals_won = 0;
+        while let Some(joined) = writers.join_next().await {
+            let (imported, corrected, rival, stored) = joined.unwrap();
+            assert!(imported.unwrap(), "every import is a new row");
+            assert!(
+                corrected.unwrap(),
+                "every correction of its own original is a new row"
+            );
+            stored.unwrap();
+            match rival {
+                Ok(()) => rivals_won += 1,
+                Err(StorageError::Conflict(_)) => {}
+                Err(other) => panic!("a rival correction failed with {other}"),
+            }
+        }
+        assert_eq!(
+            rivals_won, 1,
+            "exactly one correction of the shared original wins"
+        );
+        let all = calibrations::list(
+            &storage,
+            &ListFilter {
+                include_archived: true,
+                ..ListFilter::default()
+            },
+        )
+        .await
+        .unwrap();
+        assert_eq!(all.len(), 1 + WRITERS * 3 + 1);
+    })
+    .await;
+}
+
+#[tokio::test]
+async fn a_write_refused_by_another_connections_lock_is_busy_not_a_database_fault() {
+    use sqlx::sqlite::SqliteConnectOptions;
+    use sqlx::{ConnectOptions, Executor};
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("locked.sqlite");
+    let options = SqliteConnectOptions::new()
+        .filename(&file)
+        .create_if_missing(true)
+        .busy_timeout(Duration::ZERO);
+    let mut holder = options.connect().await.unwrap();
+    holder.execute("CREATE TABLE t (x INTEGER)").await.unwrap();
+    holder.execute("BEGIN IMMEDIATE").await.unwrap();
+    let mut other = options.connect().await.unwrap();
+    let refused = other.execute("INSERT INTO t VALUES (1)").await.unwrap_err();
+    assert!(
+        matches!(StorageError::from(refused), StorageError::Busy(_)),
+        "a locked database reads as busy"
+    );
+    assert!(matches!(
+        StorageError::from(sqlx::Error::PoolTimedOut),
+        StorageError::Busy(_)
+    ));
+    let missing = other
+        .execute("SELECT * FROM no_such_table")
+        .await
+        .unwrap_err();
+    assert!(matches!(
+        StorageError::from(missing),
+        StorageError::Database(_)
+    ));
+}

@@ -98,7 +98,8 @@ pub struct ServeArgs {
         long,
         env = "ISOTINT_UPLOAD_LIMIT_MIB",
         hide_env_values = true,
-        default_value_t = 64
+        default_value_t = 64,
+        value_parser = at_least_one
     )]
     pub upload_limit_mib: usize,
     /// Calibration and map jobs that run at once.
@@ -106,7 +107,8 @@ pub struct ServeArgs {
         long,
         env = "ISOTINT_MAX_JOBS",
         hide_env_values = true,
-        default_value_t = 2
+        default_value_t = 2,
+        value_parser = at_least_one
     )]
     pub max_jobs: usize,
     /// Jobs that may wait for a slot; further requests get 503 with Retry-After.
@@ -118,20 +120,31 @@ pub struct ServeArgs {
     )]
     pub job_queue: usize,
     /// Time limit of one request (e.g. 90s, 2m).
-    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", hide_env_values = true, default_value = "120s", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", hide_env_values = true, default_value = "120s", value_parser = positive_duration)]
     pub request_timeout: Duration,
+    /// Time a connection has to send a request's headers, also how long an idle connection is
+    /// kept open (e.g. 30s).
+    #[arg(long, env = "ISOTINT_HEADER_TIMEOUT", hide_env_values = true, default_value = "30s", value_parser = positive_duration)]
+    pub header_timeout: Duration,
+    /// Longest pause while a request body arrives; a stalled upload is answered 408.
+    #[arg(long, env = "ISOTINT_BODY_TIMEOUT", hide_env_values = true, default_value = "30s", value_parser = positive_duration)]
+    pub body_timeout: Duration,
+    /// Connections served at once; further ones wait until one closes.
+    #[arg(long, env = "ISOTINT_MAX_CONNECTIONS", hide_env_values = true, default_value_t = 512, value_parser = at_least_one)]
+    pub max_connections: usize,
     /// How long stored order maps are served (e.g. 24h, 30m).
-    #[arg(long, env = "ISOTINT_RETENTION", hide_env_values = true, default_value = "24h", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_RETENTION", hide_env_values = true, default_value = "24h", value_parser = positive_duration)]
     pub retention: Duration,
     /// How often expired order maps are deleted.
-    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", hide_env_values = true, default_value = "5m", value_parser = humantime::parse_duration)]
+    #[arg(long, env = "ISOTINT_PURGE_INTERVAL", hide_env_values = true, default_value = "5m", value_parser = positive_duration)]
     pub purge_interval: Duration,
     /// Largest accepted photo, pixels in all (checked on the header, before decoding).
     #[arg(
         long,
         env = "ISOTINT_MAX_IMAGE_PIXELS",
         hide_env_values = true,
-        default_value_t = 50_000_000
+        default_value_t = 50_000_000,
+        value_parser = clap::value_parser!(u64).range(1..)
     )]
     pub max_image_pixels: u64,
 }
@@ -144,6 +157,9 @@ impl ServeArgs {
             max_jobs: self.max_jobs,
             job_queue: self.job_queue,
             request_timeout: self.request_timeout,
+            header_timeout: self.header_timeout,
+            body_timeout: self.body_timeout,
+            max_connections: self.max_connections,
             retention: self.retention,
             purge_interval: self.purge_interval.max(Duration::from_secs(1)),
             decode_limits: DecodeLimits {
@@ -254,6 +270,23 @@ pub struct DemoArgs {
     /// Directory to write to (created if missing).
     #[arg(long)]
     pub out: PathBuf,
+}
+
+/// A count of at least one (for `usize` flags).
+fn at_least_one(text: &str) -> Result<usize, String> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if n >= 1 => Ok(n),
+        _ => Err(format!("{text:?} is not a whole number of at least 1")),
+    }
+}
+
+/// A duration of at least a millisecond, as humantime spells it (90s, 2m, 24h).
+fn positive_duration(text: &str) -> Result<Duration, String> {
+    let d = humantime::parse_duration(text).map_err(|e| e.to_string())?;
+    if d < Duration::from_millis(1) {
+        return Err(format!("{text:?} is not a positive duration"));
+    }
+    Ok(d)
 }
 
 fn parse_region(text: &str) -> Result<PixelRect, String> {
@@ -561,6 +594,7 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     if let Some(g) = args.max_gradient {
         options.max_gradient = g;
     }
+    options.validate(&table).in_flags()?;
     let photo = read(&args.photo, "photo")?;
     let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
     let map = pipeline::map(

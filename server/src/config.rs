@@ -16,6 +16,13 @@ pub struct ServiceConfig {
     pub job_queue: usize,
     /// Time limit of one request.
     pub request_timeout: Duration,
+    /// Time a connection has to send a request's headers, from its opening or from the end
+    /// of its previous response (so also how long an idle connection is kept open).
+    pub header_timeout: Duration,
+    /// Longest pause while a request body arrives; a stalled upload is answered 408.
+    pub body_timeout: Duration,
+    /// Connections served at once; further ones wait in the listen backlog.
+    pub max_connections: usize,
     /// How long stored order maps are served.
     pub retention: Duration,
     /// How often expired order maps are deleted.
@@ -34,6 +41,9 @@ impl Default for ServiceConfig {
             max_jobs: 2,
             job_queue: 4,
             request_timeout: Duration::from_secs(120),
+            header_timeout: Duration::from_secs(30),
+            body_timeout: Duration::from_secs(30),
+            max_connections: 512,
             retention: Duration::from_secs(24 * 3600),
             purge_interval: Duration::from_secs(300),
             decode_limits: DecodeLimits {

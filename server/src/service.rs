@@ -1,12 +1,20 @@
 //! Running the HTTP service: open the database, import the built-in and the folder's
 //! calibration sets, serve until SIGTERM or Ctrl-C, purge expired order maps in the background.
 
+use std::future::Future;
 use std::net::SocketAddr;
+use std::sync::Arc;
 use std::time::Duration;
 
 use anyhow::Context;
+use axum::Router;
+use hyper::server::conn::http1;
+use hyper_util::rt::{TokioIo, TokioTimer};
+use hyper_util::server::graceful::GracefulShutdown;
+use hyper_util::service::TowerToHyperService;
 use time::OffsetDateTime;
 use tokio::net::TcpListener;
+use tokio::sync::Semaphore;
 use tokio::task::JoinHandle;
 
 use crate::calibration_sets::import_at_start;
@@ -34,14 +42,61 @@ pub async fn run(
         .await
         .with_context(|| format!("could not listen on {bind}"))?;
     tracing::info!(address = %listener.local_addr()?, "listening");
-    axum::serve(listener, app(state))
-        .with_graceful_shutdown(shutdown_signal())
-        .await
-        .context("server failed")?;
+    let config = state.config.clone();
+    serve(listener, app(state), &config, shutdown_signal()).await;
     purger.abort();
     storage.close().await;
     tracing::info!("stopped");
     Ok(())
+}
+
+/// Serves `app` on `listener` (HTTP/1.1) until `shutdown` resolves, then lets the open
+/// connections finish. At most `config.max_connections` connections are served at once; further
+/// ones wait in the listen backlog until one closes. A connection must send a request's headers
+/// within `config.header_timeout` of opening or of its previous response, so silent, trickling
+/// and idle keep-alive connections are closed then (hyper's header read time-out).
+pub async fn serve(
+    listener: TcpListener,
+    app: Router,
+    config: &ServiceConfig,
+    shutdown: impl Future<Output = ()>,
+) {
+    let mut http = http1::Builder::new();
+    http.timer(TokioTimer::new())
+        .header_read_timeout(config.header_timeout);
+    let slots = Arc::new(Semaphore::new(config.max_connections));
+    let graceful = GracefulShutdown::new();
+    let mut shutdown = std::pin::pin!(shutdown);
+    loop {
+        let slot = tokio::select! {
+            slot = slots.clone().acquire_owned() => slot,
+            () = &mut shutdown => break,
+        };
+        let Ok(slot) = slot else { break };
+        let (stream, peer) = tokio::select! {
+            accepted = listener.accept() => match accepted {
+                Ok(accepted) => accepted,
+                Err(e) => {
+                    // Out of file descriptors, or a connection reset before it was accepted:
+                    // wait a little rather than spin.
+                    tracing::warn!(error = %e, "accepting a connection failed");
+                    tokio::time::sleep(Duration::from_millis(100)).await;
+                    continue;
+                }
+            },
+            () = &mut shutdown => break,
+        };
+        let service = TowerToHyperService::new(app.clone());
+        let connection = graceful.watch(http.serve_connection(TokioIo::new(stream), service));
+        tokio::spawn(async move {
+            if let Err(e) = connection.await {
+                tracing::debug!(%peer, error = %e, "connection ended with an error");
+            }
+            drop(slot);
+        });
+    }
+    drop(listener);
+    graceful.shutdown().await;
 }
 
 /// Deletes expired order maps now and every `interval`.

@@ -41,7 +41,12 @@ pub async fn service_with(config: ServiceConfig) -> TestService {
         "sqlite://{}?mode=rwc",
         dir.path().join("test.sqlite").display()
     );
-    let storage = Storage::connect(&url).await.unwrap();
+    service_on(&url, config, dir).await
+}
+
+/// A service with `config` on the database at `url`; `dir` is kept alive with it.
+pub async fn service_on(url: &str, config: ServiceConfig, dir: tempfile::TempDir) -> TestService {
+    let storage = Storage::connect(url).await.unwrap();
     let state = AppState::new(storage.clone(), config);
     let app = app(state.clone());
     TestService {

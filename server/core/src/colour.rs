@@ -12,7 +12,7 @@
 use std::io::Cursor;
 use std::sync::OnceLock;
 
-use image::{DynamicImage, ImageReader};
+use image::{DynamicImage, ImageFormat, ImageReader};
 use palette::color_difference::Ciede2000;
 use palette::white_point::WhitePoint;
 use palette::{FromColor, LinSrgb, Srgb};
@@ -59,11 +59,11 @@ pub(crate) fn decode_dynamic(
             .map_err(|e| CoreError::Decode(format!("{what}: {e}")))
     };
     let probe = reader()?;
-    if probe.format().is_none() {
+    let Some(probe_format) = probe.format() else {
         return Err(CoreError::Decode(format!(
             "the {what} is not a PNG, JPEG or TIFF file"
         )));
-    }
+    };
     let (width, height) = probe
         .into_dimensions()
         .map_err(|e| CoreError::Decode(format!("{what}: {e}")))?;
@@ -79,6 +79,9 @@ pub(crate) fn decode_dynamic(
             limits.max_side, limits.max_pixels
         )));
     }
+    if probe_format == ImageFormat::Jpeg {
+        return decode_jpeg_strictly(bytes, limits, what);
+    }
     let mut decoder = reader()?;
     let mut image_limits = image::Limits::default();
     image_limits.max_image_width = Some(limits.max_side);
@@ -89,6 +92,83 @@ pub(crate) fn decode_dynamic(
         image::ImageError::Limits(l) => CoreError::TooLarge(format!("{what}: {l}")),
         other => CoreError::Decode(format!("{what}: {other}")),
     })
+}
+
+/// Decodes a JPEG whose header passed the size checks, refusing truncated or corrupt data.
+///
+/// The image crate decodes JPEG leniently: data cut short or a damaged entropy-coded segment
+/// end the decoding early and the missing rows are filled with grey, without an error. A
+/// specimen half grey would then be mapped as if whole, so JPEGs go through the same decoder
+/// (zune-jpeg) in its strict mode, which reports those cases. Greyscale stays greyscale; every
+/// other colour space becomes RGB, as the image crate does.
+fn decode_jpeg_strictly(
+    bytes: &[u8],
+    limits: &DecodeLimits,
+    what: &str,
+) -> CoreResult<DynamicImage> {
+    use zune_core::colorspace::ColorSpace;
+    let undecodable = |e: zune_jpeg::errors::DecodeErrors| {
+        CoreError::Decode(format!("the {what} is truncated or corrupt JPEG data: {e}"))
+    };
+    let options = zune_core::options::DecoderOptions::default()
+        .set_strict_mode(true)
+        .set_max_width(limits.max_side as usize)
+        .set_max_height(limits.max_side as usize);
+    let mut decoder = zune_jpeg::JpegDecoder::new_with_options(
+        zune_core::bytestream::ZCursor::new(bytes),
+        options,
+    );
+    decoder.decode_headers().map_err(undecodable)?;
+    let grey = matches!(
+        decoder.input_colorspace(),
+        Some(ColorSpace::Luma | ColorSpace::LumaA)
+    );
+    let out = if grey {
+        ColorSpace::Luma
+    } else {
+        ColorSpace::RGB
+    };
+    decoder.set_options(options.jpeg_set_out_colorspace(out));
+    let pixels = decoder.decode().map_err(undecodable)?;
+    if !jpeg_reaches_its_end(bytes) {
+        return Err(CoreError::Decode(format!(
+            "the {what} is truncated JPEG data: it ends before its end-of-image marker"
+        )));
+    }
+    let (width, height) = decoder
+        .dimensions()
+        .ok_or_else(|| CoreError::Decode(format!("the {what} has no JPEG frame")))?;
+    let (width, height) = (width as u32, height as u32);
+    let image = if grey {
+        image::GrayImage::from_raw(width, height, pixels).map(DynamicImage::ImageLuma8)
+    } else {
+        image::RgbImage::from_raw(width, height, pixels).map(DynamicImage::ImageRgb8)
+    };
+    image.ok_or_else(|| CoreError::Decode(format!("the {what} decoded to the wrong length")))
+}
+
+/// Whether JPEG data runs to its end-of-image marker (FF D9) after its first scan. The segments
+/// before the scan are skipped by their lengths, since metadata such as an embedded thumbnail
+/// holds markers of its own; inside entropy-coded data a FF byte is always followed by 00 or a
+/// restart marker (ITU-T T.81, B.1.1.5), so an FF D9 after the scan begins is the image's end.
+/// The decoder reads a few missing final bytes as zeros without complaint; this catches them.
+fn jpeg_reaches_its_end(bytes: &[u8]) -> bool {
+    const START_OF_SCAN: u8 = 0xDA;
+    let mut at = 2;
+    while let Some(&[0xFF, marker, high, low]) = bytes.get(at..at + 4) {
+        if marker == 0xFF {
+            at += 1;
+            continue;
+        }
+        let after = at + 2 + usize::from(u16::from_be_bytes([high, low]));
+        if marker == START_OF_SCAN {
+            return bytes
+                .get(after..)
+                .is_some_and(|scan| scan.windows(2).any(|w| w == [0xFF, 0xD9]));
+        }
+        at = after;
+    }
+    false
 }
 
 /// Pixel storage of a [`Photo`]: sRGB-encoded, as the camera wrote it.
@@ -375,6 +455,62 @@ pub fn ciede2000(a: Lab, b: Lab) -> f32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A 96 × 64 colour gradient with some texture, encoded as `format`.
+    fn encoded_gradient(format: ImageFormat) -> Vec<u8> {
+        let image = image::RgbImage::from_fn(96, 64, |x, y| {
+            image::Rgb([(x * 2) as u8, (y * 3) as u8, ((x * y) % 251) as u8])
+        });
+        let mut out = Cursor::new(Vec::new());
+        image.write_to(&mut out, format).unwrap();
+        out.into_inner()
+    }
+
+    #[test]
+    fn a_whole_jpeg_decodes_to_the_same_pixels_as_the_image_crates_decoder() {
+        let jpeg = encoded_gradient(ImageFormat::Jpeg);
+        let ours = decode_dynamic(&jpeg, &DecodeLimits::default(), "photo").unwrap();
+        let theirs = image::load_from_memory(&jpeg).unwrap();
+        assert_eq!(ours.to_rgb8(), theirs.to_rgb8());
+        let grey =
+            DynamicImage::ImageRgb8(image::load_from_memory(&jpeg).unwrap().to_rgb8()).grayscale();
+        let mut out = Cursor::new(Vec::new());
+        grey.write_to(&mut out, ImageFormat::Jpeg).unwrap();
+        let ours = decode_dynamic(out.get_ref(), &DecodeLimits::default(), "mask").unwrap();
+        assert!(matches!(ours, DynamicImage::ImageLuma8(_)));
+        assert_eq!(ours, image::load_from_memory(out.get_ref()).unwrap());
+    }
+
+    #[test]
+    fn truncated_or_damaged_jpeg_png_and_tiff_data_is_refused_naming_the_input() {
+        for format in [ImageFormat::Jpeg, ImageFormat::Png, ImageFormat::Tiff] {
+            let whole = encoded_gradient(format);
+            assert!(decode_dynamic(&whole, &DecodeLimits::default(), "photo").is_ok());
+            for keep in [whole.len() / 2, whole.len() * 9 / 10, whole.len() - 8] {
+                let err =
+                    decode_dynamic(&whole[..keep], &DecodeLimits::default(), "photo").expect_err(
+                        &format!("{format:?} cut to {keep} of {} bytes", whole.len()),
+                    );
+                assert!(
+                    matches!(err, CoreError::Decode(_)) && err.to_string().contains("photo"),
+                    "{format:?}: {err}"
+                );
+            }
+        }
+        // An end-of-image marker inside metadata before the scan does not hide a cut.
+        let mut tagged = encoded_gradient(ImageFormat::Jpeg);
+        tagged.splice(2..2, [0xFF, 0xE1, 0x00, 0x06, b'x', 0xFF, 0xD9, b'y']);
+        assert!(decode_dynamic(&tagged, &DecodeLimits::default(), "photo").is_ok());
+        let cut = &tagged[..tagged.len() - 8];
+        let err = decode_dynamic(cut, &DecodeLimits::default(), "photo").unwrap_err();
+        assert!(err.to_string().contains("end-of-image"), "{err}");
+        // A damaged entropy-coded segment: a marker that may not appear there.
+        let mut jpeg = encoded_gradient(ImageFormat::Jpeg);
+        let middle = jpeg.len() / 2;
+        jpeg[middle..middle + 2].copy_from_slice(&[0xFF, 0xC4]);
+        let err = decode_dynamic(&jpeg, &DecodeLimits::default(), "photo").unwrap_err();
+        assert!(err.to_string().contains("corrupt"), "{err}");
+    }
 
     #[test]
     fn fast_cielab_conversion_agrees_with_palettes_reference() {

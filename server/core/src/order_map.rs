@@ -62,9 +62,25 @@ impl Default for MapOptions {
     }
 }
 
+/// Most hints one map accepts (more than anyone places by hand; common practice, no source).
+pub const MAX_HINTS: usize = 1000;
+
+/// The smallest span of the table a map must be able to read, fringes (four steps of the
+/// matcher's search grid).
+const MIN_READABLE_SPAN: f64 = 4.0 * crate::matcher::SEARCH_STEP;
+
 impl MapOptions {
-    /// Checks ranges and finiteness; messages name the field.
-    pub fn validate(&self, width: u32, height: u32) -> CoreResult<()> {
+    /// The highest order a map with these options can read from `table`: the table's last
+    /// order, or `max_order` where that is lower.
+    pub fn top_order(&self, table: &CalibrationTable) -> f64 {
+        self.max_order
+            .map_or(table.max_order(), |m| m.min(table.max_order()))
+    }
+
+    /// Checks every number against its range and against `table` (hints at orders the map can
+    /// read, at most [`MAX_HINTS`] of them); messages name the field. Hint positions are
+    /// checked against the photo by [`MapOptions::check_hints_inside`].
+    pub fn validate(&self, table: &CalibrationTable) -> CoreResult<()> {
         if let Some(m) = self.max_order {
             if !(m.is_finite() && m > 0.0) {
                 return Err(CoreError::invalid(
@@ -72,6 +88,13 @@ impl MapOptions {
                     format!("must be a positive number, got {m}"),
                 ));
             }
+        }
+        let top = self.top_order(table);
+        if top < MIN_READABLE_SPAN {
+            return Err(CoreError::invalid(
+                "max_order",
+                format!("{top} leaves too little of the table to match against"),
+            ));
         }
         if !(self.max_gradient.is_finite() && self.max_gradient > 0.0 && self.max_gradient <= 1.0) {
             return Err(CoreError::invalid(
@@ -82,6 +105,15 @@ impl MapOptions {
                 ),
             ));
         }
+        if self.hints.len() > MAX_HINTS {
+            return Err(CoreError::invalid(
+                "hints",
+                format!(
+                    "{} hints given; at most {MAX_HINTS} are accepted",
+                    self.hints.len()
+                ),
+            ));
+        }
         for (i, h) in self.hints.iter().enumerate() {
             if !(h.order.is_finite() && h.order >= 0.0) {
                 return Err(CoreError::invalid(
@@ -89,6 +121,23 @@ impl MapOptions {
                     format!("hint {i} has order {}", h.order),
                 ));
             }
+            if h.order > top {
+                return Err(CoreError::invalid(
+                    "hints",
+                    format!(
+                        "hint {i} has order {}, above {top:.2}, the highest order this map can \
+                         read (the calibration's last order, or max_order if lower)",
+                        h.order
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// Checks that every hint lies on a photo of `width` × `height` pixels.
+    pub fn check_hints_inside(&self, width: u32, height: u32) -> CoreResult<()> {
+        for (i, h) in self.hints.iter().enumerate() {
             if h.at.pixel(width, height).is_none() {
                 return Err(CoreError::invalid(
                     "hints",
@@ -193,7 +242,8 @@ pub fn map_orders(
     mask: Option<&Mask>,
     options: &MapOptions,
 ) -> CoreResult<OrderMap> {
-    options.validate(photo.width(), photo.height())?;
+    options.validate(table)?;
+    options.check_hints_inside(photo.width(), photo.height())?;
     if let Some(m) = mask {
         if m.width() != photo.width() || m.height() != photo.height() {
             return Err(CoreError::invalid(
@@ -227,6 +277,45 @@ mod tests {
             mean_residual: 1.0,
             table_max_order: 4.4,
         }
+    }
+
+    #[test]
+    fn a_hint_above_the_highest_readable_order_is_refused_naming_hints() {
+        use crate::render::{
+            camera::CameraModel, light::LightSource, polariscope::QuarterWavePlates,
+        };
+        let table = crate::render::rendered_table(
+            LightSource::Daylight,
+            CameraModel::Colorimetric,
+            QuarterWavePlates::Ideal,
+            3.0,
+            0.01,
+            crate::CalibrationMetadata {
+                name: "hint range".into(),
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let photo = Photo::from_srgb8(8, 8, vec![palette::Srgb::new(90, 90, 90); 64]).unwrap();
+        let hinted = |order| MapOptions {
+            hints: vec![OrderHint {
+                at: PixelPoint { x: 4.5, y: 4.5 },
+                order,
+            }],
+            ..MapOptions::default()
+        };
+        let capped = MapOptions {
+            max_order: Some(2.0),
+            ..hinted(2.5)
+        };
+        for options in [hinted(7.0), hinted(3.02), capped] {
+            let err = map_orders(&photo, &table, None, &options).unwrap_err();
+            assert!(
+                matches!(err, CoreError::Invalid { field: "hints", .. }),
+                "{err}"
+            );
+        }
+        assert!(map_orders(&photo, &table, None, &hinted(3.0)).is_ok());
     }
 
     #[test]

@@ -252,7 +252,8 @@ impl BeamRequest {
 
 /// Lists calibrations, newest first; archived ones only on request.
 #[utoipa::path(get, path = "/api/v1/calibrations", tag = "calibrations", params(ListQuery),
-    responses((status = 200, body = CalibrationList), (status = 400, body = ErrorBody)))]
+    responses((status = 200, body = CalibrationList), (status = 400, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn list_calibrations(
     State(state): State<AppState>,
     query: Result<Query<ListQuery>, QueryRejection>,
@@ -278,7 +279,8 @@ async fn list_calibrations(
 /// One calibration with its table.
 #[utoipa::path(get, path = "/api/v1/calibrations/{id}", tag = "calibrations",
     params(("id" = String, Path, description = "Calibration id")),
-    responses((status = 200, body = CalibrationDetail), (status = 404, body = ErrorBody)))]
+    responses((status = 200, body = CalibrationDetail), (status = 404, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn get_calibration(
     State(state): State<AppState>,
     Path(id): Path<String>,
@@ -314,7 +316,7 @@ fn file_stem(name: &str) -> String {
 #[utoipa::path(get, path = "/api/v1/calibrations/{id}/export", tag = "calibrations",
     params(("id" = String, Path, description = "Calibration id")),
     responses((status = 200, description = "The calibration file", content_type = "application/json"),
-              (status = 404, body = ErrorBody)))]
+              (status = 404, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn export_calibration(
     State(state): State<AppState>,
     Path(id): Path<String>,
@@ -350,8 +352,10 @@ fn optional_id(text: Option<&str>) -> Result<Option<CalibrationId>, ApiError> {
 #[utoipa::path(post, path = "/api/v1/calibrations/import", tag = "calibrations", params(ImportQuery),
     request_body(content = Object, content_type = "application/json", description = "A calibration file"),
     responses((status = 201, body = CalibrationSummary), (status = 200, body = CalibrationSummary),
-              (status = 404, body = ErrorBody), (status = 409, body = ErrorBody),
-              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody), (status = 422, body = ErrorBody)))]
+              (status = 404, body = ErrorBody), (status = 408, body = ErrorBody),
+              (status = 409, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 415, body = ErrorBody), (status = 422, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn import_calibration(
     State(state): State<AppState>,
     query: Result<Query<ImportQuery>, QueryRejection>,
@@ -390,9 +394,9 @@ async fn import_calibration(
     request_body(content = BeamForm, content_type = "multipart/form-data"),
     responses((status = 201, body = CreatedCalibration), (status = 200, body = DryRunCalibration),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
-              (status = 409, body = ErrorBody), (status = 413, body = ErrorBody),
-              (status = 415, body = ErrorBody), (status = 422, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 408, body = ErrorBody), (status = 409, body = ErrorBody),
+              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody),
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn create_calibration(
     State(state): State<AppState>,
     multipart: Result<Multipart, MultipartRejection>,
@@ -431,7 +435,8 @@ async fn create_calibration(
 /// Hides a calibration from lists (it stays readable and usable by id).
 #[utoipa::path(post, path = "/api/v1/calibrations/{id}/archive", tag = "calibrations",
     params(("id" = String, Path, description = "Calibration id")),
-    responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody)))]
+    responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn archive_calibration(
     State(state): State<AppState>,
     Path(id): Path<String>,
@@ -443,7 +448,8 @@ async fn archive_calibration(
 /// Shows an archived calibration in lists again.
 #[utoipa::path(post, path = "/api/v1/calibrations/{id}/restore", tag = "calibrations",
     params(("id" = String, Path, description = "Calibration id")),
-    responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody)))]
+    responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn restore_calibration(
     State(state): State<AppState>,
     Path(id): Path<String>,

@@ -16,6 +16,7 @@ use isotint_core::CoreError;
 use serde::Serialize;
 use utoipa::ToSchema;
 
+use super::jobs::RETRY_AFTER_S;
 use crate::storage::StorageError;
 
 /// An API failure; converts into the JSON error response.
@@ -32,6 +33,8 @@ pub enum ApiError {
     NotFound(String),
     /// 405: the route exists but not with this method.
     MethodNotAllowed(String),
+    /// 408: the request body stopped arriving (paused longer than the body time-out).
+    BodyStalled,
     /// 409: the request contradicts stored state.
     Conflict(String),
     /// 410: the resource existed but has expired.
@@ -52,7 +55,7 @@ pub enum ApiError {
         /// Seconds to wait before retrying.
         retry_after_s: u64,
     },
-    /// 503: the database does not answer.
+    /// 503 with `Retry-After`: the database does not answer or stays busy.
     Unavailable(String),
     /// 504: the request took longer than the time limit.
     TimedOut(Duration),
@@ -104,6 +107,11 @@ impl ApiError {
                 "method_not_allowed",
                 m.clone(),
             ),
+            ApiError::BodyStalled => (
+                StatusCode::REQUEST_TIMEOUT,
+                "body_timeout",
+                "the request body stopped arriving before it was complete".to_string(),
+            ),
             ApiError::Conflict(m) => (StatusCode::CONFLICT, "conflict", m.clone()),
             ApiError::Gone(m) => (StatusCode::GONE, "expired", m.clone()),
             ApiError::TooLarge(m) => (StatusCode::PAYLOAD_TOO_LARGE, "too_large", m.clone()),
@@ -151,10 +159,15 @@ impl IntoResponse for ApiError {
             },
         };
         let mut response = (status, Json(body)).into_response();
-        if let ApiError::Busy { retry_after_s } = self {
+        let retry_after_s = match self {
+            ApiError::Busy { retry_after_s } => Some(retry_after_s),
+            ApiError::Unavailable(_) => Some(RETRY_AFTER_S),
+            _ => None,
+        };
+        if let Some(seconds) = retry_after_s {
             response
                 .headers_mut()
-                .insert(header::RETRY_AFTER, HeaderValue::from(retry_after_s));
+                .insert(header::RETRY_AFTER, HeaderValue::from(seconds));
         }
         response
     }
@@ -178,6 +191,10 @@ impl From<StorageError> for ApiError {
         match e {
             StorageError::NotFound { .. } => ApiError::NotFound(e.to_string()),
             StorageError::Conflict(m) => ApiError::Conflict(m),
+            StorageError::Busy(detail) => {
+                tracing::warn!(error = %detail, "database busy");
+                ApiError::Unavailable(format!("the database is busy; retry in {RETRY_AFTER_S} s"))
+            }
             other => ApiError::Internal(other.to_string()),
         }
     }
@@ -192,9 +209,23 @@ impl From<MultipartRejection> for ApiError {
     }
 }
 
+/// Whether a body-reading error comes from the body time-out (`RequestBodyTimeoutLayer`).
+fn stalled(e: &(dyn std::error::Error + 'static)) -> bool {
+    let mut cause = Some(e);
+    while let Some(c) = cause {
+        if c.is::<tower_http::timeout::TimeoutError>() {
+            return true;
+        }
+        cause = c.source();
+    }
+    false
+}
+
 impl From<MultipartError> for ApiError {
     fn from(e: MultipartError) -> Self {
-        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+        if stalled(&e) {
+            ApiError::BodyStalled
+        } else if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
             ApiError::TooLarge("the request body exceeds the upload limit".into())
         } else {
             ApiError::bad_request(
@@ -207,7 +238,9 @@ impl From<MultipartError> for ApiError {
 
 impl From<BytesRejection> for ApiError {
     fn from(e: BytesRejection) -> Self {
-        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+        if stalled(&e) {
+            ApiError::BodyStalled
+        } else if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
             ApiError::TooLarge("the request body exceeds the upload limit".into())
         } else {
             ApiError::bad_request("unreadable_body", e.body_text())
@@ -247,4 +280,20 @@ pub fn panic_response(panic: Box<dyn std::any::Any + Send + 'static>) -> Respons
         .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
         .unwrap_or_else(|| "unknown panic".into());
     ApiError::Internal(format!("handler panicked: {detail}")).into_response()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_busy_database_answers_503_with_retry_after() {
+        let response =
+            ApiError::from(StorageError::Busy(sqlx::Error::PoolTimedOut)).into_response();
+        assert_eq!(response.status(), StatusCode::SERVICE_UNAVAILABLE);
+        assert_eq!(
+            response.headers()[header::RETRY_AFTER],
+            RETRY_AFTER_S.to_string()
+        );
+    }
 }

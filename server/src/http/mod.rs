@@ -13,8 +13,11 @@ pub mod web;
 use std::sync::Arc;
 
 use axum::extract::DefaultBodyLimit;
+use axum::http::{header, HeaderValue};
 use axum::Router;
 use tower_http::catch_panic::CatchPanicLayer;
+use tower_http::set_header::SetResponseHeaderLayer;
+use tower_http::timeout::RequestBodyTimeoutLayer;
 use tower_http::trace::{DefaultMakeSpan, DefaultOnResponse, TraceLayer};
 use tracing::Level;
 use utoipa::OpenApi;
@@ -56,21 +59,28 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
 }
 
 /// The whole service: API, OpenAPI document and browser workbench, with body limit, time
-/// limit, panic guard, JSON fallbacks and request tracing.
+/// limit, body time-out (a stalled upload answers 408), panic guard, JSON fallbacks,
+/// `X-Content-Type-Options: nosniff` on every response and request tracing.
 pub fn app(state: AppState) -> Router {
     let (api, doc) = api();
     let upload_limit = state.config.upload_limit_bytes;
     let time_limit = state.config.request_timeout;
+    let body_timeout = state.config.body_timeout;
     api.merge(openapi::router(doc))
         .merge(web::router())
         .fallback(error::no_route)
         .method_not_allowed_fallback(error::wrong_method)
         .layer(DefaultBodyLimit::max(upload_limit))
+        .layer(RequestBodyTimeoutLayer::new(body_timeout))
         .layer(axum::middleware::from_fn_with_state(
             time_limit,
             error::time_limit,
         ))
         .layer(CatchPanicLayer::custom(error::panic_response))
+        .layer(SetResponseHeaderLayer::overriding(
+            header::X_CONTENT_TYPE_OPTIONS,
+            HeaderValue::from_static("nosniff"),
+        ))
         .layer(
             TraceLayer::new_for_http()
                 .make_span_with(DefaultMakeSpan::new().level(Level::INFO))

@@ -14,7 +14,8 @@ use super::AppState;
         title = "isotint",
         description = "Fringe-order maps from white-light photoelastic photos. Pixel coordinates \
                        are pixel-edge coordinates: x right, y down; pixel (x, y) covers \
-                       [x, x+1) × [y, y+1). Errors answer {\"error\": {\"code\", \"message\"}}."
+                       [x, x+1) × [y, y+1). Errors answer {\"error\": {\"code\", \"message\"}}; \
+                       a 503 answer carries Retry-After (seconds)."
     ),
     components(schemas(ErrorBody, ErrorDetail)),
     tags(

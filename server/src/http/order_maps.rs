@@ -233,7 +233,8 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
               (status = 200, description = "The map as the requested file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
-              (status = 413, body = ErrorBody), (status = 415, body = ErrorBody),
+              (status = 408, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 415, body = ErrorBody),
               (status = 422, body = ErrorBody), (status = 503, body = ErrorBody),
               (status = 504, body = ErrorBody)))]
 async fn create_order_map(
@@ -260,6 +261,7 @@ async fn create_order_map(
     let photo = form.require("photo")?;
     let mask = form.take("mask");
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
+    options.validate(&table)?;
     let limits = state.config.decode_limits;
     let (map, file) = admission
         .run(move || -> CoreResult<(OrderMap, Option<Vec<u8>>)> {
@@ -285,7 +287,7 @@ async fn create_order_map(
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id")),
     responses((status = 200, body = OrderMapResource), (status = 404, body = ErrorBody),
-              (status = 410, body = ErrorBody)))]
+              (status = 410, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn get_order_map(
     State(state): State<AppState>,
     Path(id): Path<String>,
@@ -303,7 +305,8 @@ async fn get_order_map(
            ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty or flags")),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
-              (status = 404, body = ErrorBody), (status = 410, body = ErrorBody)))]
+              (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn get_order_map_file(
     State(state): State<AppState>,
     Path((id, file)): Path<(String, String)>,

@@ -70,13 +70,9 @@ fn find(name: &str) -> Option<&'static Asset> {
 /// Headers every workbench response carries. Assets change only with the binary, so the
 /// browser revalidates them instead of keeping stale copies after an upgrade.
 fn respond(content_type: &'static str, body: &'static str) -> Response {
-    let headers: [(HeaderName, HeaderValue); 4] = [
+    let headers: [(HeaderName, HeaderValue); 3] = [
         (header::CONTENT_TYPE, HeaderValue::from_static(content_type)),
         (header::CACHE_CONTROL, HeaderValue::from_static("no-cache")),
-        (
-            header::X_CONTENT_TYPE_OPTIONS,
-            HeaderValue::from_static("nosniff"),
-        ),
         (
             header::CONTENT_SECURITY_POLICY,
             HeaderValue::from_static(CSP),

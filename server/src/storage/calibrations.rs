@@ -224,7 +224,7 @@ pub async fn insert(
     file: Option<ImportedFile<'_>>,
 ) -> StorageResult<Inserted> {
     let content = sha256_hex(table_json.as_bytes());
-    let mut tx = storage.pool().begin().await?;
+    let mut tx = storage.writer().begin().await?;
     if let Some(old) = supersedes {
         fetch_row(&mut *tx, old).await?;
         if let Some(newer) = successor_of(&mut *tx, old).await? {
@@ -336,7 +336,7 @@ pub async fn set_archived(
     let result = sqlx::query("UPDATE calibrations SET archived = $1 WHERE id = $2")
         .bind(i64::from(archived))
         .bind(id.to_string())
-        .execute(storage.pool())
+        .execute(storage.writer())
         .await?;
     if result.rows_affected() == 0 {
         return Err(not_found(id));

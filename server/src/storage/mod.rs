@@ -1,6 +1,15 @@
 //! Persistence through `sqlx::Any`: SQLite (default, WAL mode, foreign keys on) or PostgreSQL,
 //! with the same portable SQL. Every statement lives in a small named function of the
 //! submodules; every multi-statement write runs in one transaction.
+//!
+//! Writes go through [`Storage::writer`]. On SQLite that is a pool of one connection: SQLite
+//! lets one writer in at a time, and a transaction that reads and then writes fails at once
+//! with "database is locked" when another writer got in between, whatever the busy time-out.
+//! With one write connection, concurrent writes queue in arrival order instead (up to the pool's
+//! acquire time-out; past it, or when another process holds the lock past the busy time-out,
+//! the error is [`StorageError::Busy`]). Reads use the other connections and, in WAL mode,
+//! never wait for the writer. PostgreSQL takes concurrent writers itself: there the writer is
+//! the common pool.
 
 pub mod calibrations;
 pub mod order_maps;
@@ -9,7 +18,7 @@ use std::time::Duration;
 
 use sqlx::any::{AnyPoolOptions, AnyRow};
 use sqlx::migrate::MigrateDatabase;
-use sqlx::{Any, AnyPool, Row};
+use sqlx::{Any, AnyPool, Executor, Row};
 use thiserror::Error;
 
 /// The migrations in `migrations/`, embedded at build time.
@@ -64,12 +73,36 @@ pub enum StorageError {
     /// The database URL names neither SQLite nor PostgreSQL.
     #[error("the database URL must start with sqlite: or postgres:")]
     UnsupportedUrl,
+    /// The database stayed busy (locked by another writer, or no connection free) past its
+    /// time-out; retrying later may succeed.
+    #[error("the database is busy: {0}")]
+    Busy(sqlx::Error),
     /// The database refused or failed.
     #[error("database error: {0}")]
-    Database(#[from] sqlx::Error),
+    Database(sqlx::Error),
     /// Applying migrations failed.
     #[error("migration failed: {0}")]
     Migrate(#[from] sqlx::migrate::MigrateError),
+}
+
+/// Error codes that mean "busy, try again": SQLite's BUSY and LOCKED with their extended
+/// codes, PostgreSQL's serialization failure, deadlock and lock-not-available.
+const BUSY_CODES: [&str; 9] = [
+    "5", "6", "261", "262", "517", "773", "40001", "40P01", "55P03",
+];
+
+impl From<sqlx::Error> for StorageError {
+    fn from(e: sqlx::Error) -> Self {
+        let busy_code = e
+            .as_database_error()
+            .and_then(|d| d.code())
+            .is_some_and(|code| BUSY_CODES.contains(&code.as_ref()));
+        if busy_code || matches!(e, sqlx::Error::PoolTimedOut) {
+            StorageError::Busy(e)
+        } else {
+            StorageError::Database(e)
+        }
+    }
 }
 
 /// Shorthand for results of this module.
@@ -79,28 +112,56 @@ pub type StorageResult<T> = Result<T, StorageError>;
 #[derive(Debug, Clone)]
 pub struct Storage {
     pool: AnyPool,
+    writer: AnyPool,
     backend: Backend,
 }
 
+/// How long SQLite waits for a lock held by another connection or process before it answers
+/// "busy".
+const SQLITE_BUSY_TIMEOUT: Duration = Duration::from_secs(10);
+
+/// A pool of at most `connections` connections; SQLite connections wait
+/// [`SQLITE_BUSY_TIMEOUT`] on locks.
+async fn open_pool(url: &str, backend: Backend, connections: u32) -> StorageResult<AnyPool> {
+    let options = AnyPoolOptions::new()
+        .max_connections(connections)
+        .acquire_timeout(Duration::from_secs(30));
+    let options = match backend {
+        Backend::Sqlite => options.after_connect(|conn, _| {
+            Box::pin(async move {
+                let pragma = format!("PRAGMA busy_timeout = {}", SQLITE_BUSY_TIMEOUT.as_millis());
+                conn.execute(pragma.as_str()).await?;
+                Ok(())
+            })
+        }),
+        Backend::Postgres => options,
+    };
+    Ok(options.connect(url).await?)
+}
+
 impl Storage {
-    /// Connects (creating a missing SQLite file), switches SQLite to WAL mode and applies
-    /// pending migrations.
+    /// Connects (creating a missing SQLite file), switches SQLite to WAL mode, opens its single
+    /// write connection and applies pending migrations.
     pub async fn connect(url: &str) -> StorageResult<Storage> {
         sqlx::any::install_default_drivers();
         let backend = Backend::from_url(url)?;
         if backend == Backend::Sqlite && !Any::database_exists(url).await? {
             Any::create_database(url).await?;
         }
-        let pool = AnyPoolOptions::new()
-            .max_connections(8)
-            .acquire_timeout(Duration::from_secs(30))
-            .connect(url)
-            .await?;
-        if backend == Backend::Sqlite {
-            enable_wal(&pool).await?;
-        }
-        MIGRATOR.run(&pool).await?;
-        Ok(Storage { pool, backend })
+        let pool = open_pool(url, backend, 8).await?;
+        let writer = match backend {
+            Backend::Sqlite => {
+                enable_wal(&pool).await?;
+                open_pool(url, backend, 1).await?
+            }
+            Backend::Postgres => pool.clone(),
+        };
+        MIGRATOR.run(&writer).await?;
+        Ok(Storage {
+            pool,
+            writer,
+            backend,
+        })
     }
 
     /// The backend behind the pool.
@@ -108,9 +169,15 @@ impl Storage {
         self.backend
     }
 
-    /// The pool, for the query functions of the submodules.
+    /// The pool for reads, for the query functions of the submodules.
     pub fn pool(&self) -> &AnyPool {
         &self.pool
+    }
+
+    /// The pool for writes (and the reads inside write transactions): one connection on
+    /// SQLite, so that writes queue instead of failing; see the module documentation.
+    pub fn writer(&self) -> &AnyPool {
+        &self.writer
     }
 
     /// Checks that the database answers.
@@ -121,6 +188,7 @@ impl Storage {
 
     /// Closes every connection (waits for checked-out ones).
     pub async fn close(&self) {
+        self.writer.close().await;
         self.pool.close().await;
     }
 }

@@ -112,7 +112,7 @@ pub async fn insert(
     .bind(f32_bytes(&map.margin))
     .bind(flags)
     .bind(f32_bytes(&map.uncertainty))
-    .execute(storage.pool())
+    .execute(storage.writer())
     .await?;
     Ok(OrderMapRow {
         id,
@@ -210,7 +210,7 @@ pub async fn load(storage: &Storage, id: OrderMapId) -> StorageResult<(OrderMapR
 pub async fn purge_expired(storage: &Storage, now: OffsetDateTime) -> StorageResult<u64> {
     let result = sqlx::query("DELETE FROM order_maps WHERE expires_at_ms < $1")
         .bind(unix_ms(now))
-        .execute(storage.pool())
+        .execute(storage.writer())
         .await?;
     Ok(result.rows_affected())
 }

@@ -48,7 +48,7 @@ use rayon::prelude::*;
 
 use crate::calibration::CalibrationTable;
 use crate::colour::{delta_e_ab, lab_from_linear, linear_from_lab, Lab, LabImage, Photo};
-use crate::error::{CoreError, CoreResult};
+use crate::error::CoreResult;
 use crate::exposure::{radius_sq, ExposureCorrection};
 use crate::geometry::Mask;
 use crate::geometry::PixelPoint;
@@ -64,6 +64,7 @@ mod window_fit;
 use aggregate::*;
 use cleanup::*;
 use exposure_fit::*;
+pub(crate) use search::SEARCH_STEP;
 use search::*;
 use uncertainty::*;
 use window_fit::*;
@@ -664,15 +665,7 @@ pub(crate) fn solve(
     mask: Option<&Mask>,
     options: &MapOptions,
 ) -> CoreResult<OrderMap> {
-    let max_order = options
-        .max_order
-        .map_or(table.max_order(), |m| m.min(table.max_order()));
-    if max_order < 4.0 * SEARCH_STEP {
-        return Err(CoreError::invalid(
-            "max_order",
-            format!("{max_order} leaves too little of the table to match against"),
-        ));
-    }
+    let max_order = options.top_order(table);
     let black = table_black(table);
     let mut exposure = ExposureCorrection::NONE;
     if options.exposure_compensation {

@@ -10,7 +10,7 @@ pub(super) const LABELS: usize = CANDIDATES + 1;
 /// Index of the *beyond range* label.
 pub(super) const BEYOND: usize = CANDIDATES;
 /// Order spacing of the candidate search, fringes.
-pub(super) const SEARCH_STEP: f64 = 0.02;
+pub(crate) const SEARCH_STEP: f64 = 0.02;
 /// Data costs are capped here (ΔE units) so that one bad pixel cannot dominate a path.
 pub(super) const COST_CAP: f32 = 25.0;
 /// The table flattened for fast search: CIELAB components in separate arrays.
