@@ -52,7 +52,9 @@ use crate::error::CoreResult;
 use crate::exposure::{radius_sq, ExposureCorrection};
 use crate::geometry::Mask;
 use crate::geometry::PixelPoint;
-use crate::order_map::{MapOptions, MapStatistics, OrderHint, OrderMap, PixelFlags};
+use crate::order_map::{
+    MapOptions, MapStatistics, OrderHint, OrderMap, PixelFlags, NEAR_TABLE_TOP,
+};
 
 mod aggregate;
 mod cleanup;
@@ -727,7 +729,12 @@ pub(crate) fn solve(
             black,
         )
     };
-    flag_edge_band_near_beyond_range(&mut pass, photo.width() as usize, photo.height() as usize);
+    flag_edge_band_near_beyond_range(
+        &mut pass,
+        max_order as f32,
+        photo.width() as usize,
+        photo.height() as usize,
+    );
     let statistics = statistics(&pass, max_order);
     let uncertainty = order_uncertainty(&pass, table, max_order);
     Ok(OrderMap {
