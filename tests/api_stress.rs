@@ -166,3 +166,91 @@ async fn stress_requests_without_a_positive_fringe_value_or_thickness_are_refuse
         StatusCode::NOT_FOUND,
     );
 }
+
+/// POSTs `body` as JSON to `uri`.
+async fn post_json(svc: &TestService, uri: &str, body: serde_json::Value) -> Reply {
+    common::post(
+        &svc.app,
+        uri,
+        "application/json",
+        body.to_string().into_bytes(),
+    )
+    .await
+}
+
+#[tokio::test]
+async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_bad_input_naming_the_field(
+) {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let reply = disc_form(&id).post(&svc.app, "/api/v1/order-maps").await;
+    answered(&reply, StatusCode::CREATED);
+    let map = reply.json()["id"].as_str().unwrap().to_string();
+    let uri = format!("/api/v1/order-maps/{map}/boundary");
+    let reply = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value": 10.5, "thickness": 6, "nominal_stress": 1.75}),
+    )
+    .await;
+    answered(&reply, StatusCode::OK);
+    let v = reply.json();
+    // source: definition K_t = σ_max/σ_nom and |σ_t| = N·f_σ/h (hand-worked: 1.75 MPa per
+    // fringe, so K_t equals the order at the peak).
+    let (max, order) = (
+        v["max_stress_mpa"].as_f64().unwrap(),
+        v["order"].as_f64().unwrap(),
+    );
+    assert!((max - 1.75 * order).abs() < 1e-9, "{v}");
+    assert!((v["kt"].as_f64().unwrap() - order).abs() < 1e-9, "{v}");
+    assert!(
+        v["x"].is_number() && v["y"].is_number() && v["beyond_range"].is_boolean(),
+        "{v}"
+    );
+    // The disc's edge lies 160 px from its centre (180, 180).
+    let r = (v["x"].as_f64().unwrap() - 180.0).hypot(v["y"].as_f64().unwrap() - 180.0);
+    assert!((r - 160.0).abs() < 2.0, "{v}");
+
+    for (body, status, field) in [
+        (
+            serde_json::json!({"thickness_mm": 6}),
+            StatusCode::UNPROCESSABLE_ENTITY,
+            "fringe_value_n_per_mm",
+        ),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 0}),
+            StatusCode::UNPROCESSABLE_ENTITY,
+            "thickness_mm",
+        ),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "nominal_stress_mpa": -1}),
+            StatusCode::UNPROCESSABLE_ENTITY,
+            "nominal_stress_mpa",
+        ),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "polyline": [{"x": 10, "y": 10}, {"x": 900, "y": 10}]}),
+            StatusCode::UNPROCESSABLE_ENTITY,
+            "polyline",
+        ),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "polyline": [{"x": 150, "y": 180}, {"x": 210, "y": 180}]}),
+            StatusCode::UNPROCESSABLE_ENTITY,
+            "polyline",
+        ),
+    ] {
+        let reply = post_json(&svc, &uri, body.clone()).await;
+        answered(&reply, status);
+        let message = reply.error_message();
+        assert!(message.contains(field), "{body}: {message:?}");
+    }
+    let unknown = post_json(
+        &svc,
+        "/api/v1/order-maps/00000000-0000-4000-8000-000000000000/boundary",
+        serde_json::json!({"fringe_value": 10.5, "thickness": 6}),
+    )
+    .await;
+    answered(&unknown, StatusCode::NOT_FOUND);
+    assert_eq!(stored_maps(&svc).await, 1, "the boundary stores nothing");
+    let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
+    assert!(doc["paths"]["/api/v1/order-maps/{id}/boundary"]["post"].is_object());
+}

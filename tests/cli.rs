@@ -821,3 +821,99 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
     }
     assert!(!Path::new(&out).exists(), "nothing was written");
 }
+
+/// `isotint boundary` on the demo plate with a hole, with `extra` arguments.
+fn boundary_of_plate(extra: &[&str]) -> Output {
+    let (calibration, photo, mask) = (
+        path("calibration.json"),
+        path("plate-hole.png"),
+        path("plate-hole-mask.png"),
+    );
+    let mut args = vec![
+        "boundary",
+        "--calibration",
+        &calibration,
+        "--photo",
+        &photo,
+        "--mask",
+        &mask,
+    ];
+    args.extend_from_slice(extra);
+    isotint(&args)
+}
+
+#[test]
+fn boundary_prints_one_json_object_with_the_peak_edge_stress_and_kt_of_the_demo_hole() {
+    let s = scenario();
+    let remote = s["plate"]["remote_order"].as_f64().unwrap() * 10.5 / 6.0;
+    let edge_file = path("plate-edge.csv");
+    let printed = ok(boundary_of_plate(&[
+        "--fringe-value",
+        "10.5",
+        "--thickness",
+        "6",
+        "--nominal-stress",
+        &remote.to_string(),
+        "--out",
+        &edge_file,
+        "--json",
+    ]));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    for field in ["max_stress_mpa", "x", "y", "order", "kt", "beyond_range"] {
+        assert!(!v[field].is_null(), "{field} missing: {v}");
+    }
+    let kt = v["kt"].as_f64().unwrap();
+    println!("demo hole (70 px radius): K_t {kt:.3}, {v}");
+    // source: Kirsch (1898), K_t = 3 beside the hole; the 70-px hole reads a little low (the
+    // linear carry to the edge, about 2.5 %), so 5 % here.
+    assert!((kt - 3.0).abs() <= 0.05 * 3.0, "{v}");
+    let (x, y) = (v["x"].as_f64().unwrap(), v["y"].as_f64().unwrap());
+    let centre = &s["plate"]["field"]["centre"];
+    assert!(
+        (y - centre["y"].as_f64().unwrap()).abs() < 15.0
+            && ((x - centre["x"].as_f64().unwrap()).abs() - 70.0).abs() < 2.0,
+        "{v}"
+    );
+    assert_eq!(v["max_is_lower_bound"], v["beyond_range"]);
+    let csv = std::fs::read_to_string(&edge_file).unwrap();
+    assert!(csv.starts_with("x,y,normal_x,normal_y,order,stress_mpa,beyond_range\n"));
+    assert_eq!(
+        csv.lines().count() as u64,
+        v["edge_points"].as_u64().unwrap() + 1
+    );
+}
+
+#[test]
+fn boundary_refuses_bad_numbers_naming_the_flag_and_writes_nothing() {
+    let edge_file = path("never-edge.csv");
+    for (extra, needle) in [
+        (
+            &["--fringe-value-n-per-mm", "10.5", "--thickness-mm", "0"][..],
+            "invalid --thickness-mm",
+        ),
+        (
+            &["--fringe-value-n-per-mm", "-2", "--thickness-mm", "6"][..],
+            "invalid --fringe-value-n-per-mm",
+        ),
+        (
+            &[
+                "--fringe-value-n-per-mm",
+                "10.5",
+                "--thickness-mm",
+                "6",
+                "--nominal-stress-mpa",
+                "0",
+            ][..],
+            "invalid --nominal-stress-mpa",
+        ),
+        (&["--thickness-mm", "6"][..], "--fringe-value-n-per-mm"),
+    ] {
+        let mut args = extra.to_vec();
+        args.extend(["--out", &edge_file, "--json"]);
+        let output = boundary_of_plate(&args);
+        assert!(!output.status.success(), "{extra:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{extra:?}: {stderr}");
+    }
+    assert!(!Path::new(&edge_file).exists(), "nothing was written");
+}

@@ -1,4 +1,4 @@
-//! The command line: `serve`, `calibrate`, `map`.
+//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -8,6 +8,7 @@ use anyhow::Context;
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use isotint_core::beam::estimate::ESTIMATE_CAUTION;
 use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
+use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
@@ -61,6 +62,9 @@ pub enum Command {
     Calibrate(CalibrateArgs),
     /// Map the fringe orders of a specimen photo with a calibration table.
     Map(MapArgs),
+    /// Free-edge stress |σ_t| = N·f_σ/h along the specimen's outline (from the mask), its
+    /// maximum and, with a nominal stress, K_t.
+    Boundary(BoundaryArgs),
     /// Write the demo scenario (rendered photos, masks, true orders) and a calibration
     /// measured on its beam photo.
     Demo(DemoArgs),
@@ -277,6 +281,38 @@ pub struct MapArgs {
     pub stress_out: Option<PathBuf>,
 }
 
+/// Options of `isotint boundary`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct BoundaryArgs {
+    /// Calibration file (JSON, as written by `isotint calibrate`).
+    #[arg(long)]
+    pub calibration: PathBuf,
+    /// Specimen photo (PNG, JPEG or TIFF).
+    #[arg(long)]
+    pub photo: PathBuf,
+    /// Mask image of the photo's size; non-zero = specimen. Its outline is the edge sampled
+    /// (not where it meets the photo's border).
+    #[arg(long)]
+    pub mask: PathBuf,
+    /// Material fringe value f_σ, N/mm per fringe.
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm.
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: f64,
+    /// Nominal stress σ_nom, MPa: adds K_t = σ_max / σ_nom.
+    #[arg(long, alias = "nominal-stress")]
+    pub nominal_stress_mpa: Option<f64>,
+    /// Also write every edge point to this CSV file
+    /// (x,y,normal_x,normal_y,order,stress_mpa,beyond_range).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Print one JSON object (max_stress_mpa, x, y, order, kt, beyond_range, …) instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
 /// Options of `isotint demo`.
 #[derive(Debug, Args)]
 pub struct DemoArgs {
@@ -350,6 +386,7 @@ const FIELD_FLAGS: &[(&str, &str)] = &[
     ("hints", "--hint"),
     ("out", "--out"),
     ("stress_out", "--stress-out"),
+    ("nominal_stress_mpa", "--nominal-stress-mpa"),
 ];
 
 /// The flag that carries an API field (the field itself if no flag does).
@@ -419,6 +456,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Serve(args) => serve(&args),
         Command::Calibrate(args) => calibrate(&args),
         Command::Map(args) => map(&args),
+        Command::Boundary(args) => boundary(&args),
         Command::Demo(args) => demo(&args),
     }
 }
@@ -562,6 +600,63 @@ fn refuse_overwriting(
     Ok(())
 }
 
+/// Reads and checks a calibration file.
+fn read_table(path: &Path) -> anyhow::Result<CalibrationTable> {
+    CalibrationTable::from_json(&read(path, "calibration")?)
+        .with_context(|| format!("{} is not a usable calibration file", path.display()))
+}
+
+fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
+    if let Some(out) = &args.out {
+        let inputs = [
+            ("--photo", Some(&args.photo)),
+            ("--mask", Some(&args.mask)),
+            ("--calibration", Some(&args.calibration)),
+        ];
+        refuse_overwriting(&inputs, "--out", out)?;
+    }
+    let law = StressOpticLaw::new(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
+    let table = read_table(&args.calibration)?;
+    let photo = read(&args.photo, "photo")?;
+    let mask = read(&args.mask, "mask")?;
+    let options = MapOptions::default();
+    let map = pipeline::map(
+        &photo,
+        Some(&mask),
+        &table,
+        &options,
+        &DecodeLimits::default(),
+    )
+    .in_flags()?;
+    let result =
+        boundary_stress(&map, &law, args.nominal_stress_mpa, &EdgePath::Outline).in_flags()?;
+    if let Some(out) = &args.out {
+        write(out, &edge_csv(&result))?;
+    }
+    if args.json {
+        println!("{}", serde_json::to_string(&result)?);
+        return Ok(());
+    }
+    println!(
+        "  max |σ_t|           {} at ({:.1}, {:.1}), order {:.3}",
+        maximum_text(result.max_stress_mpa, "MPa", result.max_is_lower_bound),
+        result.x,
+        result.y,
+        result.order
+    );
+    if let Some(kt) = result.kt {
+        println!(
+            "  K_t                 {}",
+            maximum_text(kt, "", result.max_is_lower_bound)
+        );
+    }
+    println!(
+        "  edge points         {} sampled, {} with a value\n  stress caution      {}",
+        result.edge_points, result.valued_points, result.caution
+    );
+    Ok(())
+}
+
 /// What `isotint map` writes, checked before any work: the orders' format, the stress-optic
 /// law (if given) and the stress map's format (if asked for).
 struct MapOutputs {
@@ -630,13 +725,7 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
 
 fn map(args: &MapArgs) -> anyhow::Result<()> {
     let outputs = map_outputs(args)?;
-    let table = CalibrationTable::from_json(&read(&args.calibration, "calibration")?)
-        .with_context(|| {
-            format!(
-                "{} is not a usable calibration file",
-                args.calibration.display()
-            )
-        })?;
+    let table = read_table(&args.calibration)?;
     let mut options = MapOptions {
         exposure_compensation: !args.no_exposure_compensation,
         max_order: args.max_order,

@@ -129,12 +129,13 @@ pub struct StressStatistics {
 }
 
 /// How a report writes a maximum: `value` alone, or "at least `value`" followed by why when it
-/// is only a lower bound (`unit` such as "MPa" or "fringes").
+/// is only a lower bound (`unit` such as "MPa" or "fringes"; empty for a ratio such as K_t).
 pub fn maximum_text(value: f64, unit: &str, lower_bound: bool) -> String {
+    let value = format!("{value:.3} {unit}").trim_end().to_string();
     if lower_bound {
-        format!("at least {value:.3} {unit} (beyond-range pixels may hold higher values)")
+        format!("at least {value} (beyond-range pixels may hold higher values)")
     } else {
-        format!("{value:.3} {unit}")
+        value
     }
 }
 

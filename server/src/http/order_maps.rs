@@ -2,16 +2,18 @@
 //! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, and σ1 − σ2 in MPa as
 //! stress-npy, stress-preview, stress-csv) until they expire.
 
+use axum::body::Bytes;
 use axum::extract::multipart::MultipartRejection;
-use axum::extract::rejection::QueryRejection;
+use axum::extract::rejection::{BytesRejection, QueryRejection};
 use axum::extract::{Multipart, Path, Query, State};
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
+use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
-use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap};
+use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
 use serde::{Deserialize, Serialize};
 use time::OffsetDateTime;
 use utoipa::{IntoParams, ToSchema};
@@ -31,6 +33,27 @@ pub fn router() -> OpenApiRouter<AppState> {
         .routes(routes!(create_order_map))
         .routes(routes!(get_order_map))
         .routes(routes!(get_order_map_file))
+        .routes(routes!(boundary))
+}
+
+/// JSON body of `POST /api/v1/order-maps/{id}/boundary`. The short names
+/// (`fringe_value`, `thickness`, `nominal_stress`) are accepted too.
+#[derive(Debug, Deserialize, ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct BoundaryRequest {
+    /// Material fringe value f_σ, N/mm per fringe (positive).
+    #[serde(alias = "fringe_value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm (positive).
+    #[serde(alias = "thickness")]
+    pub thickness_mm: f64,
+    /// Nominal stress σ_nom, MPa (positive): adds K_t = σ_max / σ_nom.
+    #[serde(alias = "nominal_stress")]
+    pub nominal_stress_mpa: Option<f64>,
+    /// A polyline [{x, y}, …] in pixel-edge coordinates along part of the specimen's edge, the
+    /// specimen on one side; without it, the whole outline of the map's mask.
+    #[schema(value_type = Option<Vec<Object>>)]
+    pub polyline: Option<Vec<PixelPoint>>,
 }
 
 /// Query of `POST /api/v1/order-maps`.
@@ -439,4 +462,37 @@ async fn get_order_map_file(
         &format!("order-map-{id}"),
         bytes,
     ))
+}
+
+/// The free-edge stress |σ_t| = N·f_σ/h of a stored map along its mask's outline (or a
+/// polyline): the maximum (MPa), where it is (pixel-edge coordinates), its order, K_t with a
+/// nominal stress, and `beyond_range` / `max_is_lower_bound` when beyond-range pixels touch
+/// the edge (the maximum may be higher there). Orders are sampled 4 and 7 px inside the edge and
+/// carried to it along the line through both. Nothing is stored.
+#[utoipa::path(post, path = "/api/v1/order-maps/{id}/boundary", tag = "order-maps",
+    params(("id" = String, Path, description = "Order-map id")),
+    request_body(content = BoundaryRequest, content_type = "application/json"),
+    responses((status = 200, description = "Free-edge stress and K_t", body = Object),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
+              (status = 410, body = ErrorBody), (status = 422, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
+async fn boundary(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+    body: Result<Bytes, BytesRejection>,
+) -> Result<Json<BoundaryStress>, ApiError> {
+    let id: OrderMapId = path_id(&id)?;
+    let request: BoundaryRequest = parse_json("boundary", &body?)?;
+    let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
+    let path = request
+        .polyline
+        .map_or(EdgePath::Outline, EdgePath::Polyline);
+    let row = store::get(&state.storage, id).await?;
+    refuse_expired(&row)?;
+    let admission = state.jobs.admit()?;
+    let (_, map) = store::load(&state.storage, id).await?;
+    let result = admission
+        .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
+        .await??;
+    Ok(Json(result))
 }
