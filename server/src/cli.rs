@@ -1,4 +1,4 @@
-//! The command line: `serve`, `calibrate`, `map`.
+//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -8,10 +8,12 @@ use anyhow::Context;
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use isotint_core::beam::estimate::ESTIMATE_CAUTION;
 use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
+use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
+use isotint_core::stress::{maximum_text, StressOpticLaw, STRESS_CAUTION};
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
     OrderHint, PixelRect,
@@ -60,6 +62,9 @@ pub enum Command {
     Calibrate(CalibrateArgs),
     /// Map the fringe orders of a specimen photo with a calibration table.
     Map(MapArgs),
+    /// Free-edge stress |σ_t| = N·f_σ/h along the specimen's outline (from the mask), its
+    /// maximum and, with a nominal stress, K_t.
+    Boundary(BoundaryArgs),
     /// Write the demo scenario (rendered photos, masks, true orders) and a calibration
     /// measured on its beam photo.
     Demo(DemoArgs),
@@ -262,6 +267,50 @@ pub struct MapArgs {
     /// file (float32, NaN = no value).
     #[arg(long)]
     pub uncertainty_out: Option<PathBuf>,
+    /// Material fringe value f_σ, N/mm per fringe; with --thickness-mm the command also reports
+    /// σ1 − σ2 = N·f_σ/h statistics, MPa.
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Model thickness h along the light path, mm (with --fringe-value-n-per-mm).
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: Option<f64>,
+    /// Also write the σ1 − σ2 map, MPa, to this file (needs --fringe-value-n-per-mm and
+    /// --thickness-mm); the format follows the extension: .npy (float32, NaN = no value),
+    /// .preview.png (false colour, numbered MPa bar), .csv (x,y,stress_mpa,flags).
+    #[arg(long)]
+    pub stress_out: Option<PathBuf>,
+}
+
+/// Options of `isotint boundary`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct BoundaryArgs {
+    /// Calibration file (JSON, as written by `isotint calibrate`).
+    #[arg(long)]
+    pub calibration: PathBuf,
+    /// Specimen photo (PNG, JPEG or TIFF).
+    #[arg(long)]
+    pub photo: PathBuf,
+    /// Mask image of the photo's size; non-zero = specimen. Its outline is the edge sampled
+    /// (not where it meets the photo's border).
+    #[arg(long)]
+    pub mask: PathBuf,
+    /// Material fringe value f_σ, N/mm per fringe.
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm.
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: f64,
+    /// Nominal stress σ_nom, MPa: adds K_t = σ_max / σ_nom.
+    #[arg(long, alias = "nominal-stress")]
+    pub nominal_stress_mpa: Option<f64>,
+    /// Also write every edge point to this CSV file
+    /// (x,y,normal_x,normal_y,order,stress_mpa,beyond_range).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Print one JSON object (max_stress_mpa, x, y, order, kt, beyond_range, …) instead of text.
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// Options of `isotint demo`.
@@ -336,6 +385,8 @@ const FIELD_FLAGS: &[(&str, &str)] = &[
     ("max_gradient", "--max-gradient"),
     ("hints", "--hint"),
     ("out", "--out"),
+    ("stress_out", "--stress-out"),
+    ("nominal_stress_mpa", "--nominal-stress-mpa"),
 ];
 
 /// The flag that carries an API field (the field itself if no flag does).
@@ -405,6 +456,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Serve(args) => serve(&args),
         Command::Calibrate(args) => calibrate(&args),
         Command::Map(args) => map(&args),
+        Command::Boundary(args) => boundary(&args),
         Command::Demo(args) => demo(&args),
     }
 }
@@ -548,43 +600,132 @@ fn refuse_overwriting(
     Ok(())
 }
 
-/// Checks the output paths of `isotint map` before any work: neither is an input file, the
-/// uncertainty goes to a .npy file of its own. Returns the format of the orders' file.
-fn output_format(args: &MapArgs) -> anyhow::Result<OutputFormat> {
+/// Reads and checks a calibration file.
+fn read_table(path: &Path) -> anyhow::Result<CalibrationTable> {
+    CalibrationTable::from_json(&read(path, "calibration")?)
+        .with_context(|| format!("{} is not a usable calibration file", path.display()))
+}
+
+fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
+    if let Some(out) = &args.out {
+        let inputs = [
+            ("--photo", Some(&args.photo)),
+            ("--mask", Some(&args.mask)),
+            ("--calibration", Some(&args.calibration)),
+        ];
+        refuse_overwriting(&inputs, "--out", out)?;
+    }
+    let law = StressOpticLaw::new(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
+    let table = read_table(&args.calibration)?;
+    let photo = read(&args.photo, "photo")?;
+    let mask = read(&args.mask, "mask")?;
+    let options = MapOptions::default();
+    let map = pipeline::map(
+        &photo,
+        Some(&mask),
+        &table,
+        &options,
+        &DecodeLimits::default(),
+    )
+    .in_flags()?;
+    let result =
+        boundary_stress(&map, &law, args.nominal_stress_mpa, &EdgePath::Outline).in_flags()?;
+    if let Some(out) = &args.out {
+        write(out, &edge_csv(&result))?;
+    }
+    if args.json {
+        println!("{}", serde_json::to_string(&result)?);
+        return Ok(());
+    }
+    println!(
+        "  max |σ_t|           {} at ({:.1}, {:.1}), order {:.3}",
+        maximum_text(result.max_stress_mpa, "MPa", result.max_is_lower_bound),
+        result.x,
+        result.y,
+        result.order
+    );
+    if let Some(kt) = result.kt {
+        println!(
+            "  K_t                 {}",
+            maximum_text(kt, "", result.max_is_lower_bound)
+        );
+    }
+    println!(
+        "  edge points         {} sampled, {} with a value\n  stress caution      {}",
+        result.edge_points, result.valued_points, result.caution
+    );
+    Ok(())
+}
+
+/// What `isotint map` writes, checked before any work: the orders' format, the stress-optic
+/// law (if given) and the stress map's format (if asked for).
+struct MapOutputs {
+    orders: OutputFormat,
+    law: Option<StressOpticLaw>,
+    stress: Option<OutputFormat>,
+}
+
+/// Checks the output paths of `isotint map` before any work: none is an input file or another
+/// output, the uncertainty goes to a .npy file, the stress map to .npy, .preview.png or .csv
+/// and only with a fringe value and thickness.
+fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
     let inputs = [
         ("--photo", Some(&args.photo)),
         ("--mask", args.mask.as_ref()),
         ("--calibration", Some(&args.calibration)),
     ];
-    refuse_overwriting(&inputs, "--out", &args.out)?;
-    let format = OutputFormat::from_path(&args.out.to_string_lossy()).in_flags()?;
+    let outputs = [
+        ("--out", Some(&args.out)),
+        ("--uncertainty-out", args.uncertainty_out.as_ref()),
+        ("--stress-out", args.stress_out.as_ref()),
+    ];
+    for (i, (flag, path)) in outputs.iter().enumerate() {
+        let Some(path) = path else { continue };
+        refuse_overwriting(&inputs, flag, path)?;
+        for (earlier, other) in &outputs[..i] {
+            if other.is_some_and(|o| o == *path || same_file(o, path)) {
+                anyhow::bail!(
+                    "{flag} {} is the {earlier} file; give each output its own file",
+                    path.display()
+                );
+            }
+        }
+    }
+    let orders = OutputFormat::from_path(&args.out.to_string_lossy()).in_flags()?;
     if let Some(u) = &args.uncertainty_out {
-        refuse_overwriting(&inputs, "--uncertainty-out", u)?;
         if !u.to_string_lossy().to_ascii_lowercase().ends_with(".npy") {
             anyhow::bail!(
                 "--uncertainty-out {}: the uncertainty is written as NPY; use a .npy file",
                 u.display()
             );
         }
-        if u == &args.out || same_file(u, &args.out) {
-            anyhow::bail!(
-                "--uncertainty-out {} is the --out file; give the uncertainty its own file",
-                u.display()
-            );
-        }
     }
-    Ok(format)
+    let law =
+        StressOpticLaw::from_fields(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
+    let stress = match (&args.stress_out, law) {
+        (None, _) => None,
+        (Some(path), None) => anyhow::bail!(
+            "--stress-out {} needs --fringe-value-n-per-mm and --thickness-mm",
+            path.display()
+        ),
+        (Some(path), Some(_)) => match OutputFormat::from_path(&path.to_string_lossy()) {
+            Ok(OutputFormat::Png16) | Err(_) => anyhow::bail!(
+                "--stress-out {}: use .npy (float32 MPa), .preview.png or .csv",
+                path.display()
+            ),
+            Ok(format) => Some(format),
+        },
+    };
+    Ok(MapOutputs {
+        orders,
+        law,
+        stress,
+    })
 }
 
 fn map(args: &MapArgs) -> anyhow::Result<()> {
-    let format = output_format(args)?;
-    let table = CalibrationTable::from_json(&read(&args.calibration, "calibration")?)
-        .with_context(|| {
-            format!(
-                "{} is not a usable calibration file",
-                args.calibration.display()
-            )
-        })?;
+    let outputs = map_outputs(args)?;
+    let table = read_table(&args.calibration)?;
     let mut options = MapOptions {
         exposure_compensation: !args.no_exposure_compensation,
         max_order: args.max_order,
@@ -605,12 +746,12 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         &DecodeLimits::default(),
     )
     .in_flags()?;
-    write(&args.out, &export::encode(&map, format).in_flags()?)?;
+    write(&args.out, &export::encode(&map, outputs.orders).in_flags()?)?;
     println!(
         "{}×{} order map ({}) written to {}",
         map.width,
         map.height,
-        format.name(),
+        outputs.orders.name(),
         args.out.display()
     );
     if let Some(u) = &args.uncertainty_out {
@@ -622,28 +763,55 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             u.display()
         );
     }
-    print!("{}", statistics_text(&map.statistics));
+    if let (Some(path), Some(format), Some(law)) = (&args.stress_out, outputs.stress, &outputs.law)
+    {
+        write(path, &export::encode_stress(&map, law, format).in_flags()?)?;
+        println!(
+            "{}×{} σ1−σ2 map, MPa ({}) written to {}",
+            map.width,
+            map.height,
+            format.name(),
+            path.display()
+        );
+    }
+    print!("{}", statistics_text(&map.statistics, outputs.law.as_ref()));
     Ok(())
 }
 
-/// The lines `isotint map` prints about a map, with its range caution if it has one.
-pub fn statistics_text(s: &MapStatistics) -> String {
-    let caution = s
-        .range_caution()
-        .map_or(String::new(), |c| format!("  caution             {c}\n"));
-    format!(
+/// The lines `isotint map` prints about a map: its figures, the σ1 − σ2 figures when a law is
+/// given (with the stress caution), and its range caution if it has one. A maximum that is only
+/// a lower bound says "at least".
+pub fn statistics_text(s: &MapStatistics, law: Option<&StressOpticLaw>) -> String {
+    let lower_bound = s.max_is_lower_bound();
+    let mut out = format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
-         unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {:.3}\n  \
-         mean residual       {:.2} ΔE*ab\n{caution}",
+         unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {}\n  \
+         mean residual       {:.2} ΔE*ab\n",
         s.specimen_pixels,
         s.valued_pixels,
         100.0 * s.beyond_range_share,
         100.0 * s.unreliable_share,
         s.min_order,
         s.mean_order,
-        s.max_order,
+        maximum_text(s.max_order, "fringes", lower_bound),
         s.mean_residual
-    )
+    );
+    if let Some(law) = law {
+        let t = law.statistics(s);
+        out += &format!(
+            "  σ1−σ2               min {:.3}, mean {:.3}, max {} (f_σ {} N/mm, h {} mm)\n  \
+             stress caution      {STRESS_CAUTION}\n",
+            t.min_stress_mpa,
+            t.mean_stress_mpa,
+            maximum_text(t.max_stress_mpa, "MPa", t.max_is_lower_bound),
+            t.fringe_value_n_per_mm,
+            t.thickness_mm
+        );
+    }
+    if let Some(c) = s.range_caution() {
+        out += &format!("  caution             {c}\n");
+    }
+    out
 }
 
 /// Share of the constant-moment zone's length left out at each end when the demo calibrates

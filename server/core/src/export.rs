@@ -1,4 +1,5 @@
-//! Output formats of an order map: NPY, 16-bit PNG, false-colour preview PNG, CSV.
+//! Output formats of an order map: NPY, 16-bit PNG, false-colour preview PNG, CSV; and of its
+//! σ1 − σ2 map in MPa (NPY, preview PNG, CSV).
 
 use std::io::Write;
 
@@ -6,6 +7,7 @@ use image::{ImageEncoder, Rgb, RgbImage};
 
 use crate::error::{CoreError, CoreResult};
 use crate::order_map::{MapStatistics, OrderMap, PixelFlags};
+use crate::stress::StressOpticLaw;
 
 /// Scale of the 16-bit PNG: grey value = round(order × 1000); N = value / 1000.
 pub const PNG16_SCALE: f32 = 1000.0;
@@ -96,8 +98,49 @@ pub fn encode(map: &OrderMap, format: OutputFormat) -> CoreResult<Vec<u8>> {
     match format {
         OutputFormat::Npy => Ok(npy_f32(&map.order, map.height as usize, map.width as usize)),
         OutputFormat::Png16 => png16(map),
-        OutputFormat::Preview => preview(map),
-        OutputFormat::Csv => Ok(csv(map)),
+        OutputFormat::Preview => {
+            preview(map, &map.order, bar_top(&map.statistics), COLOUR_BAR_TITLE)
+        }
+        OutputFormat::Csv => Ok(csv(map, "x,y,order,residual,flags", |i| {
+            let (o, r) = (map.order[i], map.residual[i]);
+            if o.is_finite() {
+                format!("{o:.4},{r:.2}")
+            } else {
+                ",".to_string()
+            }
+        })),
+    }
+}
+
+/// Encodes the σ1 − σ2 map of `map` through `law`, MPa, in `format`: NPY float32 (NaN = no
+/// value), a preview whose bar runs from 0 to the stress at the table's last order, or CSV
+/// `x,y,stress_mpa,flags`. There is no 16-bit PNG of stresses.
+pub fn encode_stress(
+    map: &OrderMap,
+    law: &StressOpticLaw,
+    format: OutputFormat,
+) -> CoreResult<Vec<u8>> {
+    let stress = law.stress_map_mpa(&map.order);
+    match format {
+        OutputFormat::Npy => Ok(npy_f32(&stress, map.height as usize, map.width as usize)),
+        OutputFormat::Png16 => Err(CoreError::invalid(
+            "format",
+            "a stress map is written as NPY, preview PNG or CSV, not as a 16-bit PNG",
+        )),
+        OutputFormat::Preview => preview(
+            map,
+            &stress,
+            law.stress_difference_mpa(bar_top(&map.statistics)),
+            STRESS_BAR_TITLE,
+        ),
+        OutputFormat::Csv => Ok(csv(map, "x,y,stress_mpa,flags", |i| {
+            let s = stress[i];
+            if s.is_finite() {
+                format!("{s:.4}")
+            } else {
+                String::new()
+            }
+        })),
     }
 }
 
@@ -217,13 +260,16 @@ fn scale_colour(t: f64) -> [u8; 3] {
 /// Height and width of one character of the preview's text, pixels (an 8 × 8 bitmap font).
 const GLYPH_PX: u32 = 8;
 
-/// Title of the preview's colour bar, written upwards beside its numbers.
+/// Title of the order preview's colour bar, written upwards beside its numbers.
 pub const COLOUR_BAR_TITLE: &str = "fringe order";
+
+/// Title of the stress preview's colour bar (σ1 − σ2 in MPa; the preview's font is ASCII).
+pub const STRESS_BAR_TITLE: &str = "sigma1 - sigma2 (MPa)";
 
 /// One number of the preview's colour bar.
 #[derive(Debug, Clone, PartialEq)]
 pub struct BarLabel {
-    /// The order it marks, fringes.
+    /// The value it marks, in the bar's unit (fringes or MPa).
     pub order: f64,
     /// The bar's pixel row it marks, counted from the bar's first (top) row.
     pub row: u32,
@@ -231,35 +277,39 @@ pub struct BarLabel {
     pub text: String,
 }
 
-/// The numbers of a colour bar `rows` pixels high that runs from order 0 on its last row to
-/// `top` fringes on its first: `top` itself, and the multiples of the smallest step of 0.1, 0.2,
-/// 0.5, 1, 2, 5, 10 or 20 fringes that lies at least five text heights apart, but not one within
-/// 1.5 text heights of `top`. Listed from order 0 up.
+/// The numbers of a colour bar `rows` pixels high that runs from 0 on its last row to `top` (in
+/// the bar's unit) on its first: `top` itself, and the multiples of the smallest step of 1, 2 or
+/// 5 times a power of ten that lies at least five text heights apart, but not one within 1.5
+/// text heights of `top`. Listed from 0 up.
 pub fn colour_bar_labels(top: f64, rows: u32) -> Vec<BarLabel> {
     let span = f64::from(rows.max(2) - 1);
-    let row_of = |order: f64| ((1.0 - order / top) * span).round() as u32;
-    let px_per_fringe = span / top;
-    let step = [0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0]
+    let row_of = |value: f64| ((1.0 - value / top) * span).round() as u32;
+    let px_per_unit = span / top;
+    let least = 5.0 * f64::from(GLYPH_PX) / px_per_unit;
+    let decade = 10f64.powf(least.log10().floor());
+    let step = [1.0, 2.0, 5.0, 10.0]
         .into_iter()
-        .find(|s| s * px_per_fringe >= 5.0 * f64::from(GLYPH_PX))
+        .map(|m| m * decade)
+        .find(|s| *s >= least * (1.0 - 1e-9))
         .unwrap_or(top);
-    let label = |order: f64| BarLabel {
-        order,
-        row: row_of(order),
-        text: number_text(order),
+    let decimals = (-step.log10()).ceil().max(2.0) as usize;
+    let label = |value: f64| BarLabel {
+        order: value,
+        row: row_of(value),
+        text: number_text(value, decimals),
     };
     let mut labels: Vec<BarLabel> = (0..)
         .map(|i| f64::from(i) * step)
-        .take_while(|order| (top - order) * px_per_fringe >= 1.5 * f64::from(GLYPH_PX))
+        .take_while(|value| (top - value) * px_per_unit >= 1.5 * f64::from(GLYPH_PX))
         .map(label)
         .collect();
     labels.push(label(top));
     labels
 }
 
-/// A number as the colour bar writes it: at most two decimals, no trailing zeros.
-fn number_text(value: f64) -> String {
-    let text = format!("{value:.2}");
+/// A number as the colour bar writes it: at most `decimals` decimals, no trailing zeros.
+fn number_text(value: f64, decimals: usize) -> String {
+    let text = format!("{value:.decimals$}");
     text.trim_end_matches('0').trim_end_matches('.').to_string()
 }
 
@@ -297,16 +347,17 @@ fn bar_top(s: &MapStatistics) -> f64 {
     }
 }
 
-fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
+/// The false-colour picture of `values` (one per pixel of `map`, in the bar's unit) beside a
+/// colour bar from 0 to `top` titled `title`; flagged pixels in their flag colours.
+fn preview(map: &OrderMap, values: &[f32], top: f64, title: &str) -> CoreResult<Vec<u8>> {
     let (w, h) = (map.width, map.height);
-    let top = bar_top(&map.statistics);
     // Beside the map: a gap, the bar, its ticks and numbers, the title written upwards. The
     // picture is at least tall enough for the title; the bar leaves half a text height at each
     // end so that the end numbers fit.
     let bar_w = (w / 12).clamp(24, 120);
     let bar_x = w + bar_w / 3;
     let margin = GLYPH_PX / 2;
-    let height = h.max((COLOUR_BAR_TITLE.len() as u32 + 1) * GLYPH_PX);
+    let height = h.max((title.len() as u32 + 1) * GLYPH_PX);
     let labels = colour_bar_labels(top, height - 2 * margin);
     let label_x = bar_x + bar_w + GLYPH_PX / 2;
     let widest = labels.iter().map(|l| l.text.len()).max().unwrap_or(1) as u32;
@@ -317,8 +368,8 @@ fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
         for x in 0..w {
             let i = (y * w + x) as usize;
             let c = preview_flag_colour(map.flags[i]).unwrap_or_else(|| {
-                if map.order[i].is_finite() {
-                    scale_colour(f64::from(map.order[i]) / top)
+                if values[i].is_finite() {
+                    scale_colour(f64::from(values[i]) / top)
                 } else {
                     [230, 0, 200]
                 }
@@ -339,14 +390,8 @@ fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
         }
         draw_text(&mut img, &label.text, label_x, label.row, false);
     }
-    let title_px = COLOUR_BAR_TITLE.len() as u32 * GLYPH_PX;
-    draw_text(
-        &mut img,
-        COLOUR_BAR_TITLE,
-        title_x,
-        (height + title_px) / 2 - 1,
-        true,
-    );
+    let title_px = title.len() as u32 * GLYPH_PX;
+    draw_text(&mut img, title, title_x, (height + title_px) / 2 - 1, true);
     let mut out = Vec::new();
     image::codecs::png::PngEncoder::new(&mut out)
         .write_image(
@@ -359,17 +404,14 @@ fn preview(map: &OrderMap) -> CoreResult<Vec<u8>> {
     Ok(out)
 }
 
-fn csv(map: &OrderMap) -> Vec<u8> {
+/// CSV of `map`, one line `x,y,…,flags` per pixel under `header`; `cells(i)` writes the
+/// columns between y and flags of pixel `i` (empty cells where there is no value).
+fn csv(map: &OrderMap, header: &str, cells: impl Fn(usize) -> String) -> Vec<u8> {
     let mut out = Vec::with_capacity(map.order.len() * 24);
-    out.extend_from_slice(b"x,y,order,residual,flags\n");
+    let _ = writeln!(out, "{header}");
     let w = map.width as usize;
-    for (i, (o, r)) in map.order.iter().zip(&map.residual).enumerate() {
-        let (x, y) = (i % w, i / w);
-        if o.is_finite() {
-            let _ = writeln!(out, "{x},{y},{o:.4},{r:.2},{}", map.flags[i].0);
-        } else {
-            let _ = writeln!(out, "{x},{y},,,{}", map.flags[i].0);
-        }
+    for (i, flags) in map.flags.iter().enumerate() {
+        let _ = writeln!(out, "{},{},{},{}", i % w, i / w, cells(i), flags.0);
     }
     out
 }
@@ -428,9 +470,9 @@ mod tests {
         );
     }
 
-    #[test]
-    fn the_preview_colours_the_tables_last_order_as_the_top_of_its_bar() {
-        let map = OrderMap {
+    /// One row of three valued pixels at orders 0, 2.2 and 4.4 of a table ending at 4.4.
+    fn three_pixel_map() -> OrderMap {
+        OrderMap {
             width: 3,
             height: 1,
             order: vec![0.0, 2.2, 4.4],
@@ -450,7 +492,12 @@ mod tests {
                 mean_residual: 0.5,
                 table_max_order: 4.4,
             },
-        };
+        }
+    }
+
+    #[test]
+    fn the_preview_colours_the_tables_last_order_as_the_top_of_its_bar() {
+        let map = three_pixel_map();
         let png = encode(&map, OutputFormat::Preview).unwrap();
         let img = image::load_from_memory(&png).unwrap().to_rgb8();
         // Tall enough for the title: 13 text heights of 8 px; the bar spans rows 4 to 99.
@@ -480,6 +527,80 @@ mod tests {
         assert!(
             black(title_x, title_x + GLYPH_PX, 0, img.height()) > 0,
             "title"
+        );
+    }
+
+    #[test]
+    fn the_stress_map_is_the_order_times_fringe_value_over_thickness_in_every_format() {
+        // source: stress-optic law σ1 − σ2 = N·f_σ/h. Hand-worked: f_σ = 10.5 N/mm, h = 6 mm →
+        // 1.75 MPa per fringe, so orders 0, 2.2, 4.4 read 0, 3.85, 7.7 MPa.
+        let mut map = three_pixel_map();
+        map.order[0] = f32::NAN;
+        map.flags[0] = PixelFlags(PixelFlags::UNRELIABLE);
+        let law = StressOpticLaw::new(10.5, 6.0).unwrap();
+        let npy = encode_stress(&map, &law, OutputFormat::Npy).unwrap();
+        let (rows, cols, stress) = read_npy_f32(&npy).unwrap();
+        assert_eq!((rows, cols), (1, 3));
+        assert!(stress[0].is_nan());
+        assert!((stress[1] - 3.85).abs() < 1e-5 && (stress[2] - 7.7).abs() < 1e-5);
+        let csv = String::from_utf8(encode_stress(&map, &law, OutputFormat::Csv).unwrap()).unwrap();
+        assert_eq!(
+            csv,
+            "x,y,stress_mpa,flags\n0,0,,4\n1,0,3.8500,0\n2,0,7.7000,0\n"
+        );
+        let err = encode_stress(&map, &law, OutputFormat::Png16).unwrap_err();
+        assert!(
+            matches!(
+                err,
+                CoreError::Invalid {
+                    field: "format",
+                    ..
+                }
+            ),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn the_stress_preview_bar_runs_to_the_stress_at_the_tables_last_order_and_is_titled_in_mpa() {
+        let map = three_pixel_map();
+        let law = StressOpticLaw::new(10.5, 6.0).unwrap();
+        let png = encode_stress(&map, &law, OutputFormat::Preview).unwrap();
+        let img = image::load_from_memory(&png).unwrap().to_rgb8();
+        // Tall enough for the 21-character title: 22 text heights of 8 px.
+        assert_eq!(img.height(), 176);
+        // The table's last order, 4.4 fringes, is 7.7 MPa: the top of the bar, as in the order
+        // preview; the middle pixel at 3.85 MPa is the middle of the scale.
+        assert_eq!(img.get_pixel(2, 0).0, scale_colour(1.0));
+        assert_eq!(img.get_pixel(1, 0).0, scale_colour(0.5));
+        // 168 rows for 7.7 MPa: 21.7 px per MPa, so a label every 2 MPa (five text heights are
+        // 1.8 MPa); 6 lies 37 px below the top, clear of the top's own number.
+        let texts: Vec<String> = colour_bar_labels(7.7, img.height() - GLYPH_PX)
+            .into_iter()
+            .map(|l| l.text)
+            .collect();
+        assert_eq!(texts, ["0", "2", "4", "6", "7.7"]);
+    }
+
+    #[test]
+    fn colour_bars_in_megapascals_step_by_one_two_or_five_times_a_power_of_ten() {
+        let steps = |top: f64, rows: u32| -> Vec<f64> {
+            colour_bar_labels(top, rows)
+                .into_iter()
+                .map(|l| l.order)
+                .collect()
+        };
+        // 201 rows for 250 MPa: 0.8 px per MPa; five text heights are 50 MPa.
+        assert_eq!(steps(250.0, 201), [0.0, 50.0, 100.0, 150.0, 200.0, 250.0]);
+        // 401 rows for 0.04 MPa: 10 000 px per MPa; five text heights are 0.004 MPa, so steps
+        // of 0.005, written with three decimals.
+        let texts: Vec<String> = colour_bar_labels(0.04, 401)
+            .into_iter()
+            .map(|l| l.text)
+            .collect();
+        assert_eq!(
+            texts,
+            ["0", "0.005", "0.01", "0.015", "0.02", "0.025", "0.03", "0.035", "0.04"]
         );
     }
 

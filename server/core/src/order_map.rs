@@ -182,6 +182,12 @@ pub struct MapStatistics {
 pub const NEAR_TABLE_TOP: f64 = 1.0;
 
 impl MapStatistics {
+    /// Whether `max_order` is only a lower bound of the specimen's largest order: true when
+    /// part of the specimen lies beyond the calibration's range, where the true maximum may be.
+    pub fn max_is_lower_bound(&self) -> bool {
+        self.beyond_range_share > 0.0
+    }
+
     /// A caution when part of the specimen lies past the calibration's range or the orders come
     /// within [`NEAR_TABLE_TOP`] of its last order: there the stress may be higher than read.
     pub fn range_caution(&self) -> Option<String> {

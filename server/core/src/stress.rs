@@ -10,6 +10,13 @@ use std::f64::consts::PI;
 use serde::{Deserialize, Serialize};
 
 use crate::error::{CoreError, CoreResult};
+use crate::order_map::MapStatistics;
+
+/// The caution printed beside every maximum stress and stress-concentration factor (the same
+/// words as the README's caution).
+pub const STRESS_CAUTION: &str = "stresses and K_t support, and do not replace, engineering \
+    judgement: check them against independent evidence and follow local codes and licensed \
+    engineering practice before any decision on a real part";
 
 /// Checks that `value` is a finite number greater than zero; the error names `field`.
 pub(crate) fn positive(field: &'static str, value: f64) -> CoreResult<f64> {
@@ -46,6 +53,26 @@ impl StressOpticLaw {
         })
     }
 
+    /// A law from optional fields, as requests and command lines give them: `None` when
+    /// neither is given; an error naming the missing one when only one is.
+    pub fn from_fields(
+        fringe_value_n_per_mm: Option<f64>,
+        thickness_mm: Option<f64>,
+    ) -> CoreResult<Option<Self>> {
+        match (fringe_value_n_per_mm, thickness_mm) {
+            (None, None) => Ok(None),
+            (Some(f), Some(h)) => Self::new(f, h).map(Some),
+            (None, Some(_)) => Err(CoreError::invalid(
+                "fringe_value_n_per_mm",
+                "is required with thickness_mm",
+            )),
+            (Some(_), None) => Err(CoreError::invalid(
+                "thickness_mm",
+                "is required with fringe_value_n_per_mm",
+            )),
+        }
+    }
+
     /// Principal stress difference σ1 − σ2 in MPa at fringe order `order`.
     pub fn stress_difference_mpa(&self, order: f64) -> f64 {
         order * self.fringe_value_n_per_mm / self.thickness_mm
@@ -56,11 +83,59 @@ impl StressOpticLaw {
         stress_difference_mpa * self.thickness_mm / self.fringe_value_n_per_mm
     }
 
+    /// σ1 − σ2 in MPa of every pixel of an order array (row-major; NaN where the order is).
+    pub fn stress_map_mpa(&self, orders: &[f32]) -> Vec<f32> {
+        let per_order = (self.fringe_value_n_per_mm / self.thickness_mm) as f32;
+        orders.iter().map(|n| n * per_order).collect()
+    }
+
+    /// The stress figures of a map with `statistics`.
+    pub fn statistics(&self, statistics: &MapStatistics) -> StressStatistics {
+        StressStatistics {
+            fringe_value_n_per_mm: self.fringe_value_n_per_mm,
+            thickness_mm: self.thickness_mm,
+            min_stress_mpa: self.stress_difference_mpa(statistics.min_order),
+            mean_stress_mpa: self.stress_difference_mpa(statistics.mean_order),
+            max_stress_mpa: self.stress_difference_mpa(statistics.max_order),
+            max_is_lower_bound: statistics.max_is_lower_bound(),
+        }
+    }
+
     /// Tangential stress at an unloaded free edge, MPa. There one principal stress is zero, so
     /// |σ_t| = N · f_σ / h; the sign (tension or compression) cannot be seen in the colours and
     /// is given by the caller.
     pub fn free_edge_stress_mpa(&self, order: f64, sign: EdgeSign) -> f64 {
         sign.factor() * self.stress_difference_mpa(order)
+    }
+}
+
+/// σ1 − σ2 figures of an order map, MPa, over its valued pixels (NaN if none).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct StressStatistics {
+    /// The material fringe value used, N/mm per fringe.
+    pub fringe_value_n_per_mm: f64,
+    /// The model thickness used, mm.
+    pub thickness_mm: f64,
+    /// Smallest σ1 − σ2 over valued pixels, MPa.
+    pub min_stress_mpa: f64,
+    /// Mean σ1 − σ2 over valued pixels, MPa.
+    pub mean_stress_mpa: f64,
+    /// Largest σ1 − σ2 over valued pixels, MPa; only a lower bound of the specimen's maximum
+    /// when `max_is_lower_bound`.
+    pub max_stress_mpa: f64,
+    /// True when part of the specimen lies beyond the calibration's range: the true maximum
+    /// may lie there, so `max_stress_mpa` is at least the maximum, not the maximum.
+    pub max_is_lower_bound: bool,
+}
+
+/// How a report writes a maximum: `value` alone, or "at least `value`" followed by why when it
+/// is only a lower bound (`unit` such as "MPa" or "fringes"; empty for a ratio such as K_t).
+pub fn maximum_text(value: f64, unit: &str, lower_bound: bool) -> String {
+    let value = format!("{value:.3} {unit}").trim_end().to_string();
+    if lower_bound {
+        format!("at least {value} (beyond-range pixels may hold higher values)")
+    } else {
+        value
     }
 }
 
@@ -284,6 +359,72 @@ mod tests {
         let far = plate.stress_at(300.0, 400.0);
         assert!((far.sy - 10.0).abs() < 1e-3, "{far:?}");
         assert!(far.sx.abs() < 1e-3 && far.txy.abs() < 1e-3, "{far:?}");
+    }
+
+    fn map_statistics(beyond_range_share: f64) -> MapStatistics {
+        MapStatistics {
+            specimen_pixels: 100,
+            valued_pixels: 90,
+            beyond_range_share,
+            unreliable_share: 0.0,
+            min_order: 0.5,
+            max_order: 3.0,
+            mean_order: 1.0,
+            mean_residual: 1.0,
+            table_max_order: 4.4,
+        }
+    }
+
+    #[test]
+    fn stress_statistics_are_the_order_figures_through_the_law_and_a_lower_bound_past_the_table() {
+        // source: stress-optic law σ1 − σ2 = N·f_σ/h. Hand-worked: 10.5/6 = 1.75 MPa per fringe.
+        let law = StressOpticLaw::new(10.5, 6.0).unwrap();
+        let clean = law.statistics(&map_statistics(0.0));
+        assert!((clean.max_stress_mpa - 5.25).abs() < 1e-12);
+        assert!((clean.min_stress_mpa - 0.875).abs() < 1e-12);
+        assert!(!clean.max_is_lower_bound);
+        assert_eq!(maximum_text(5.25, "MPa", false), "5.250 MPa");
+        let past = law.statistics(&map_statistics(0.01));
+        assert!(past.max_is_lower_bound);
+        assert!(maximum_text(5.25, "MPa", true).starts_with("at least 5.250 MPa"));
+    }
+
+    #[test]
+    fn a_law_from_fields_needs_both_or_neither_and_names_the_missing_one() {
+        assert_eq!(StressOpticLaw::from_fields(None, None).unwrap(), None);
+        let e = StressOpticLaw::from_fields(None, Some(6.0)).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                CoreError::Invalid {
+                    field: "fringe_value_n_per_mm",
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        let e = StressOpticLaw::from_fields(Some(10.5), None).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                CoreError::Invalid {
+                    field: "thickness_mm",
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        let e = StressOpticLaw::from_fields(Some(10.5), Some(-1.0)).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                CoreError::Invalid {
+                    field: "thickness_mm",
+                    ..
+                }
+            ),
+            "{e}"
+        );
     }
 
     #[test]

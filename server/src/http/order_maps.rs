@@ -1,15 +1,19 @@
 //! `/api/v1/order-maps`: map a specimen photo with a stored calibration; fetch stored results
-//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags) until they expire.
+//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, and σ1 − σ2 in MPa as
+//! stress-npy, stress-preview, stress-csv) until they expire.
 
+use axum::body::Bytes;
 use axum::extract::multipart::MultipartRejection;
-use axum::extract::rejection::QueryRejection;
+use axum::extract::rejection::{BytesRejection, QueryRejection};
 use axum::extract::{Multipart, Path, Query, State};
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
+use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::exposure::ExposureCorrection;
-use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap};
+use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
+use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
 use serde::{Deserialize, Serialize};
 use time::OffsetDateTime;
 use utoipa::{IntoParams, ToSchema};
@@ -29,6 +33,27 @@ pub fn router() -> OpenApiRouter<AppState> {
         .routes(routes!(create_order_map))
         .routes(routes!(get_order_map))
         .routes(routes!(get_order_map_file))
+        .routes(routes!(boundary))
+}
+
+/// JSON body of `POST /api/v1/order-maps/{id}/boundary`. The issue's short names
+/// (`fringe_value`, `thickness`, `nominal_stress`) are accepted too.
+#[derive(Debug, Deserialize, ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct BoundaryRequest {
+    /// Material fringe value f_σ, N/mm per fringe (positive).
+    #[serde(alias = "fringe_value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm (positive).
+    #[serde(alias = "thickness")]
+    pub thickness_mm: f64,
+    /// Nominal stress σ_nom, MPa (positive): adds K_t = σ_max / σ_nom.
+    #[serde(alias = "nominal_stress")]
+    pub nominal_stress_mpa: Option<f64>,
+    /// A polyline [{x, y}, …] in pixel-edge coordinates along part of the specimen's edge, the
+    /// specimen on one side; without it, the whole outline of the map's mask.
+    #[schema(value_type = Option<Vec<Object>>)]
+    pub polyline: Option<Vec<PixelPoint>>,
 }
 
 /// Query of `POST /api/v1/order-maps`.
@@ -36,8 +61,28 @@ pub fn router() -> OpenApiRouter<AppState> {
 #[into_params(parameter_in = Query)]
 pub struct CreateQuery {
     /// `npy`, `png16`, `preview`, `csv`, `uncertainty` (1 σ of the order, fringes, NPY float32,
-    /// NaN = no value) or `flags`: answer with that file instead of storing the map.
+    /// NaN = no value), `flags`, or σ1 − σ2 in MPa as `stress-npy` (float32, NaN = no value),
+    /// `stress-preview` or `stress-csv` (these need `fringe_value_n_per_mm` and `thickness_mm`):
+    /// answer with that file instead of storing the map.
     pub format: Option<String>,
+}
+
+/// The stress-optic law of a request: both or neither. With them, JSON answers carry σ1 − σ2
+/// figures and the stress formats can be asked for.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct StressQuery {
+    /// Material fringe value f_σ, N/mm per fringe (positive).
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Model thickness h along the light path, mm (positive).
+    pub thickness_mm: Option<f64>,
+}
+
+impl StressQuery {
+    /// The law these fields give; 422 naming the missing or non-positive field.
+    fn law(&self) -> CoreResult<Option<StressOpticLaw>> {
+        StressOpticLaw::from_fields(self.fringe_value_n_per_mm, self.thickness_mm)
+    }
 }
 
 /// Multipart body of `POST /api/v1/order-maps`.
@@ -79,6 +124,50 @@ pub struct OrderMapLinks {
     pub flags: String,
 }
 
+/// Where to fetch a stored map's σ1 − σ2 files (the law's fields in the query).
+#[derive(Debug, Serialize, ToSchema)]
+pub struct StressLinks {
+    /// σ1 − σ2, MPa, NPY float32 (height, width), NaN = no value.
+    pub npy: String,
+    /// False-colour preview PNG with a numbered MPa colour bar.
+    pub preview: String,
+    /// CSV `x,y,stress_mpa,flags`.
+    pub csv: String,
+}
+
+/// σ1 − σ2 figures of a map through the request's stress-optic law.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct StressResource {
+    /// Law and figures, MPa: `min_stress_mpa`, `mean_stress_mpa`, `max_stress_mpa` and
+    /// `max_is_lower_bound` (true when beyond-range pixels may hold a higher maximum).
+    #[serde(flatten)]
+    #[schema(value_type = Object)]
+    pub statistics: StressStatistics,
+    /// Results support, and do not replace, engineering judgement.
+    pub caution: String,
+    /// The map's stress files.
+    pub links: StressLinks,
+}
+
+impl StressResource {
+    fn new(statistics: &serde_json::Value, law: StressOpticLaw, id: OrderMapId) -> Self {
+        let query = format!(
+            "fringe_value_n_per_mm={}&thickness_mm={}",
+            law.fringe_value_n_per_mm, law.thickness_mm
+        );
+        let link = |kind: &str| format!("/api/v1/order-maps/{id}/{kind}?{query}");
+        StressResource {
+            statistics: law.statistics(&statistics_from_json(statistics)),
+            caution: STRESS_CAUTION.to_string(),
+            links: StressLinks {
+                npy: link("stress-npy"),
+                preview: link("stress-preview"),
+                csv: link("stress-csv"),
+            },
+        }
+    }
+}
+
 /// A stored order map.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct OrderMapResource {
@@ -95,9 +184,15 @@ pub struct OrderMapResource {
     /// Summary figures (NaN figures are null).
     #[schema(value_type = Object)]
     pub statistics: serde_json::Value,
+    /// True when part of the specimen lies beyond the calibration's range: the true maximum may
+    /// lie there, so `statistics.max_order` (and any maximum stress) is a lower bound.
+    pub max_is_lower_bound: bool,
     /// A caution, when part of the specimen lies past the calibration's range or its orders
     /// come within a fringe of the calibration's last order (possible aliases of higher orders).
     pub caution: Option<String>,
+    /// σ1 − σ2 figures, when the request gave `fringe_value_n_per_mm` and `thickness_mm`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub stress: Option<StressResource>,
     /// Exposure correction applied.
     #[schema(value_type = Object)]
     pub exposure: ExposureCorrection,
@@ -109,8 +204,10 @@ pub struct OrderMapResource {
     pub links: OrderMapLinks,
 }
 
-impl From<OrderMapRow> for OrderMapResource {
-    fn from(r: OrderMapRow) -> Self {
+impl OrderMapResource {
+    /// The description of stored map `r`, with σ1 − σ2 figures through `law` if given.
+    fn new(r: OrderMapRow, law: Option<StressOpticLaw>) -> Self {
+        let statistics = statistics_from_json(&r.statistics);
         let base = format!("/api/v1/order-maps/{}", r.id);
         let link = |kind: &str| format!("{base}/{kind}");
         OrderMapResource {
@@ -127,7 +224,9 @@ impl From<OrderMapRow> for OrderMapResource {
             width: r.width,
             height: r.height,
             calibration_id: r.calibration_id,
-            caution: statistics_from_json(&r.statistics).range_caution(),
+            max_is_lower_bound: statistics.max_is_lower_bound(),
+            caution: statistics.range_caution(),
+            stress: law.map(|law| StressResource::new(&r.statistics, law, r.id)),
             statistics: r.statistics,
             exposure: r.exposure,
             created_at: rfc3339(r.created_at),
@@ -140,33 +239,54 @@ impl From<OrderMapRow> for OrderMapResource {
 #[derive(Debug, Clone, Copy)]
 enum Representation {
     Orders(OutputFormat),
+    Stress(OutputFormat, StressOpticLaw),
     Uncertainty,
     Flags,
 }
 
 impl Representation {
-    /// Parses a `format` name: one of the orders' output formats, `uncertainty` or `flags`.
-    fn parse(name: &str) -> CoreResult<Self> {
-        match name {
-            "uncertainty" => Ok(Representation::Uncertainty),
-            "flags" => Ok(Representation::Flags),
-            _ => OutputFormat::from_name(name)
-                .map(Representation::Orders)
-                .map_err(|_| {
+    /// Parses a `format` name: one of the orders' output formats, `uncertainty`, `flags`, or
+    /// `stress-` and `npy`, `preview` or `csv`, which need `law`. An unknown name is refused
+    /// naming `format`, a stress format without a law naming `fringe_value_n_per_mm`.
+    fn parse(name: &str, law: Option<StressOpticLaw>) -> CoreResult<Self> {
+        let unknown = || {
+            CoreError::invalid(
+                "format",
+                format!(
+                    "{:?} is not one of npy, png16, preview, csv, uncertainty, flags, \
+                     stress-npy, stress-preview, stress-csv",
+                    shorten(name, 40)
+                ),
+            )
+        };
+        match name.strip_prefix("stress-") {
+            Some(stress) => {
+                let format = OutputFormat::from_name(stress)
+                    .ok()
+                    .filter(|f| *f != OutputFormat::Png16)
+                    .ok_or_else(unknown)?;
+                let law = law.ok_or_else(|| {
                     CoreError::invalid(
-                        "format",
-                        format!(
-                            "{:?} is not one of npy, png16, preview, csv, uncertainty, flags",
-                            shorten(name, 40)
-                        ),
+                        "fringe_value_n_per_mm",
+                        format!("is required (with thickness_mm) for format {name}"),
                     )
-                }),
+                })?;
+                Ok(Representation::Stress(format, law))
+            }
+            None => match name {
+                "uncertainty" => Ok(Representation::Uncertainty),
+                "flags" => Ok(Representation::Flags),
+                _ => OutputFormat::from_name(name)
+                    .map(Representation::Orders)
+                    .map_err(|_| unknown()),
+            },
         }
     }
 
     fn encode(self, map: &OrderMap) -> CoreResult<Vec<u8>> {
         match self {
             Representation::Orders(format) => export::encode(map, format),
+            Representation::Stress(format, law) => export::encode_stress(map, &law, format),
             Representation::Uncertainty => Ok(pipeline::uncertainty_npy(map)),
             Representation::Flags => {
                 let bits: Vec<u8> = map.flags.iter().map(|f| f.0).collect();
@@ -181,7 +301,9 @@ impl Representation {
 
     fn content_type(self) -> &'static str {
         match self {
-            Representation::Orders(format) => format.content_type(),
+            Representation::Orders(format) | Representation::Stress(format, _) => {
+                format.content_type()
+            }
             Representation::Uncertainty | Representation::Flags => OutputFormat::Npy.content_type(),
         }
     }
@@ -189,6 +311,7 @@ impl Representation {
     fn file_name(self, stem: &str) -> String {
         match self {
             Representation::Orders(format) => format!("{stem}.{}", format.extension()),
+            Representation::Stress(format, _) => format!("{stem}-stress.{}", format.extension()),
             Representation::Uncertainty => format!("{stem}-uncertainty.npy"),
             Representation::Flags => format!("{stem}-flags.npy"),
         }
@@ -227,7 +350,7 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
 /// Maps a specimen photo's fringe orders with a stored calibration. With `?format=` the
 /// response is that file and nothing is stored; otherwise the map is stored for the retention
 /// time and described as JSON.
-#[utoipa::path(post, path = "/api/v1/order-maps", tag = "order-maps", params(CreateQuery),
+#[utoipa::path(post, path = "/api/v1/order-maps", tag = "order-maps", params(CreateQuery, StressQuery),
     request_body(content = MapForm, content_type = "multipart/form-data"),
     responses((status = 201, body = OrderMapResource),
               (status = 200, description = "The map as the requested file",
@@ -240,13 +363,15 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
 async fn create_order_map(
     State(state): State<AppState>,
     query: Result<Query<CreateQuery>, QueryRejection>,
+    stress: Result<Query<StressQuery>, QueryRejection>,
     multipart: Result<Multipart, MultipartRejection>,
 ) -> Result<Response, ApiError> {
     let Query(query) = query?;
+    let law = stress?.0.law()?;
     let format = query
         .format
         .as_deref()
-        .map(Representation::parse)
+        .map(|name| Representation::parse(name, law))
         .transpose()?;
     let admission = state.jobs.admit()?;
     let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
@@ -278,42 +403,54 @@ async fn create_order_map(
     Ok((
         StatusCode::CREATED,
         [(header::LOCATION, location)],
-        Json(OrderMapResource::from(row)),
+        Json(OrderMapResource::new(row, law)),
     )
         .into_response())
 }
 
 /// A stored order map's description and links.
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}", tag = "order-maps",
-    params(("id" = String, Path, description = "Order-map id")),
+    params(("id" = String, Path, description = "Order-map id"), StressQuery),
     responses((status = 200, body = OrderMapResource), (status = 404, body = ErrorBody),
-              (status = 410, body = ErrorBody), (status = 503, body = ErrorBody)))]
+              (status = 410, body = ErrorBody), (status = 422, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
 async fn get_order_map(
     State(state): State<AppState>,
     Path(id): Path<String>,
+    stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Json<OrderMapResource>, ApiError> {
+    let law = stress?.0.law()?;
     let row = store::get(&state.storage, path_id(&id)?).await?;
     refuse_expired(&row)?;
-    Ok(Json(row.into()))
+    Ok(Json(OrderMapResource::new(row, law)))
 }
 
 /// A stored order map as a file: `npy`, `png16`, `preview`, `csv`, `uncertainty` (NPY float32
-/// of the order's standard uncertainty, 1 σ in fringes, NaN = no value) or `flags` (NPY uint8 of
-/// the flag bits: 1 outside mask, 2 beyond range, 4 unreliable).
+/// of the order's standard uncertainty, 1 σ in fringes, NaN = no value), `flags` (NPY uint8 of
+/// the flag bits: 1 outside mask, 2 beyond range, 4 unreliable), or σ1 − σ2 in MPa as
+/// `stress-npy`, `stress-preview`, `stress-csv` (with `fringe_value_n_per_mm` and
+/// `thickness_mm`).
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id"),
-           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty or flags")),
+           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview or stress-csv"),
+           StressQuery),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn get_order_map_file(
     State(state): State<AppState>,
     Path((id, file)): Path<(String, String)>,
+    stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
-    let representation =
-        Representation::parse(&file).map_err(|e| ApiError::NotFound(e.to_string()))?;
+    let law = stress?.0.law()?;
+    let representation = Representation::parse(&file, law).map_err(|e| match e {
+        CoreError::Invalid {
+            field: "format", ..
+        } => ApiError::NotFound(e.to_string()),
+        other => other.into(),
+    })?;
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
     let (_, map) = store::load(&state.storage, id).await?;
@@ -325,4 +462,37 @@ async fn get_order_map_file(
         &format!("order-map-{id}"),
         bytes,
     ))
+}
+
+/// The free-edge stress |σ_t| = N·f_σ/h of a stored map along its mask's outline (or a
+/// polyline): the maximum (MPa), where it is (pixel-edge coordinates), its order, K_t with a
+/// nominal stress, and `beyond_range` / `max_is_lower_bound` when beyond-range pixels touch
+/// the edge (the maximum may be higher there). Orders are sampled 4 and 7 px inside the edge and
+/// carried to it along the line through both. Nothing is stored.
+#[utoipa::path(post, path = "/api/v1/order-maps/{id}/boundary", tag = "order-maps",
+    params(("id" = String, Path, description = "Order-map id")),
+    request_body(content = BoundaryRequest, content_type = "application/json"),
+    responses((status = 200, description = "Free-edge stress and K_t", body = Object),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
+              (status = 410, body = ErrorBody), (status = 422, body = ErrorBody),
+              (status = 503, body = ErrorBody)))]
+async fn boundary(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+    body: Result<Bytes, BytesRejection>,
+) -> Result<Json<BoundaryStress>, ApiError> {
+    let id: OrderMapId = path_id(&id)?;
+    let request: BoundaryRequest = parse_json("boundary", &body?)?;
+    let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
+    let path = request
+        .polyline
+        .map_or(EdgePath::Outline, EdgePath::Polyline);
+    let row = store::get(&state.storage, id).await?;
+    refuse_expired(&row)?;
+    let admission = state.jobs.admit()?;
+    let (_, map) = store::load(&state.storage, id).await?;
+    let result = admission
+        .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
+        .await??;
+    Ok(Json(result))
 }
