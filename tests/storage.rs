@@ -16,28 +16,6 @@ use isotint_core::order_map::MapStatistics;
 use isotint_core::{OrderMap, PixelFlags};
 use time::OffsetDateTime;
 
-/// Runs `check` with the URL of a fresh, empty SQLite database and of the backend it names,
-/// then of a fresh PostgreSQL database if one is configured.
-async fn on_every_empty_database<F, Fut>(check: F)
-where
-    F: Fn(String, Backend) -> Fut,
-    Fut: Future<Output = ()>,
-{
-    let dir = tempfile::tempdir().unwrap();
-    let url = format!(
-        "sqlite://{}?mode=rwc",
-        dir.path().join("s.sqlite").display()
-    );
-    check(url, Backend::Sqlite).await;
-    match common::PostgresDatabase::create().await {
-        Some(db) => {
-            check(db.url.clone(), Backend::Postgres).await;
-            db.drop_database().await;
-        }
-        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
-    }
-}
-
 /// Runs `check` on a fresh SQLite database, then on a fresh PostgreSQL database if one is
 /// configured.
 async fn on_every_backend<F, Fut>(check: F)
@@ -46,7 +24,7 @@ where
     Fut: Future<Output = ()>,
 {
     let check = &check;
-    on_every_empty_database(|url, backend| async move {
+    common::on_every_empty_database(|url, backend| async move {
         let storage = Storage::connect(&url).await.unwrap();
         assert_eq!(storage.backend(), backend);
         check(storage.clone()).await;
@@ -286,7 +264,7 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
 
 #[tokio::test]
 async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_backend() {
-    on_every_empty_database(|url, _| async move {
+    common::on_every_empty_database(|url, _| async move {
         // The schema as it was before `0002_order_map_uncertainty.sql`: the first migration only.
         let first = tempfile::tempdir().unwrap();
         std::fs::copy(

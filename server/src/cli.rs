@@ -17,6 +17,7 @@ use isotint_core::{
     OrderHint, PixelRect,
 };
 
+use crate::access::AccessMode;
 use crate::config::ServiceConfig;
 use crate::domain::{beam_spec, DEFAULT_ORDER_STEP};
 use crate::pipeline;
@@ -147,6 +148,37 @@ pub struct ServeArgs {
         value_parser = clap::value_parser!(u64).range(1..)
     )]
     pub max_image_pixels: u64,
+    /// Whether API requests need `Authorization: Bearer TOKEN`: `auto` asks for tokens when
+    /// the service listens beyond loopback or uses PostgreSQL.
+    #[arg(
+        long,
+        env = "ISOTINT_AUTH",
+        hide_env_values = true,
+        default_value = "auto"
+    )]
+    pub auth: AuthSetting,
+}
+
+/// The `--auth` setting of `isotint serve`.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum AuthSetting {
+    /// Tokens when listening beyond loopback or on PostgreSQL, open otherwise.
+    Auto,
+    /// Every API request but the health check needs a token.
+    Required,
+    /// No tokens (only for a service nobody else can reach).
+    Open,
+}
+
+impl AuthSetting {
+    /// The mode asked for; `None` lets the service choose.
+    pub fn requested(self) -> Option<AccessMode> {
+        match self {
+            AuthSetting::Auto => None,
+            AuthSetting::Required => Some(AccessMode::Tokens),
+            AuthSetting::Open => Some(AccessMode::Open),
+        }
+    }
 }
 
 impl ServeArgs {
@@ -167,6 +199,7 @@ impl ServeArgs {
                 ..DecodeLimits::default()
             },
             calibration_sets: Some(self.calibration_sets.clone()),
+            access: AccessMode::Open, // replaced by the resolved mode in `service::run`
         }
     }
 }
@@ -417,6 +450,7 @@ fn serve(args: &ServeArgs) -> anyhow::Result<()> {
     runtime.block_on(crate::service::run(
         args.bind,
         &args.database,
+        args.auth.requested(),
         args.config(),
     ))
 }

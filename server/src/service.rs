@@ -17,22 +17,29 @@ use tokio::net::TcpListener;
 use tokio::sync::Semaphore;
 use tokio::task::JoinHandle;
 
+use crate::access::AccessMode;
 use crate::calibration_sets::import_at_start;
 use crate::config::ServiceConfig;
 use crate::http::{app, AppState};
 use crate::storage::{order_maps, Storage};
 
 /// Opens `database_url`, imports the built-in and the folder's calibration sets, and serves on
-/// `bind` until a shutdown signal arrives; in-flight requests finish first.
+/// `bind` until a shutdown signal arrives; in-flight requests finish first. The access mode is
+/// `requested`, or else chosen from `bind` and the database ([`AccessMode::resolve`]), and
+/// logged; it replaces `config.access`.
 pub async fn run(
     bind: SocketAddr,
     database_url: &str,
+    requested: Option<AccessMode>,
     config: ServiceConfig,
 ) -> anyhow::Result<()> {
     let storage = Storage::connect(database_url)
         .await
         .context("could not open the database")?;
     tracing::info!(database = storage.backend().name(), "database ready");
+    let (access, reason) = AccessMode::resolve(requested, bind, storage.backend());
+    tracing::info!(mode = access.name(), reason, "access mode");
+    let config = ServiceConfig { access, ..config };
     import_at_start(&storage, config.calibration_sets.as_deref())
         .await
         .context("could not import the calibration sets")?;

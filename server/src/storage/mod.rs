@@ -13,6 +13,7 @@
 
 pub mod calibrations;
 pub mod order_maps;
+pub mod tokens;
 
 use std::time::Duration;
 
