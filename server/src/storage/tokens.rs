@@ -126,3 +126,39 @@ pub async fn revoke(storage: &Storage, name: &TokenName) -> StorageResult<()> {
     }
     Ok(())
 }
+
+/// What `isotint token list` shows of a token (never the token or its hash).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TokenRow {
+    /// Its name.
+    pub name: TokenName,
+    /// What it may do.
+    pub role: Role,
+    /// When it was made.
+    pub created_at: OffsetDateTime,
+    /// When it was last used (to [`LAST_USED_RESOLUTION`]).
+    pub last_used_at: Option<OffsetDateTime>,
+    /// When it was revoked.
+    pub revoked_at: Option<OffsetDateTime>,
+}
+
+/// Every token, revoked ones too, in order of name.
+pub async fn list(storage: &Storage) -> StorageResult<Vec<TokenRow>> {
+    let rows = sqlx::query(
+        "SELECT name, role, created_at_ms, last_used_at_ms, revoked_at_ms FROM api_tokens \
+         ORDER BY name",
+    )
+    .fetch_all(storage.pool())
+    .await?;
+    rows.iter()
+        .map(|row| {
+            Ok(TokenRow {
+                name: parsed(row, "name")?,
+                role: parsed(row, "role")?,
+                created_at: from_unix_ms(row.try_get("created_at_ms")?),
+                last_used_at: optional_time(row, "last_used_at_ms")?,
+                revoked_at: optional_time(row, "revoked_at_ms")?,
+            })
+        })
+        .collect()
+}
