@@ -2,7 +2,7 @@
 //! tokens themselves (random, shown once, stored only as their SHA-256).
 
 use std::fmt;
-use std::net::SocketAddr;
+use std::net::{IpAddr, SocketAddr};
 use std::str::FromStr;
 
 use isotint_core::{CoreError, CoreResult};
@@ -143,6 +143,51 @@ impl FromStr for TokenName {
             ));
         }
         Ok(TokenName(text.to_string()))
+    }
+}
+
+/// Who made a change, as the audit trail records it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Actor {
+    /// A request with this token.
+    Token(TokenName),
+    /// A request to a service in open mode (no token asked).
+    OpenMode,
+    /// `isotint token …` on the database itself.
+    CommandLine,
+    /// The service importing its calibration sets at start.
+    ServiceStart,
+}
+
+impl Actor {
+    /// The text the audit trail stores: the token's name, or words with a space (which no
+    /// token name has).
+    pub fn text(&self) -> &str {
+        match self {
+            Actor::Token(name) => name.as_str(),
+            Actor::OpenMode => "open mode",
+            Actor::CommandLine => "command line",
+            Actor::ServiceStart => "service start",
+        }
+    }
+}
+
+/// Who made a change and from which address.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Origin {
+    /// Who.
+    pub actor: Actor,
+    /// The client's IP address, for a change made over HTTP.
+    pub address: Option<IpAddr>,
+}
+
+impl Origin {
+    /// A change made on this machine without HTTP (command line, service start).
+    pub fn local(actor: Actor) -> Origin {
+        Origin {
+            actor,
+            address: None,
+        }
     }
 }
 

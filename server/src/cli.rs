@@ -18,7 +18,7 @@ use isotint_core::{
 };
 use time::OffsetDateTime;
 
-use crate::access::{AccessMode, Role, Token, TokenName};
+use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::config::ServiceConfig;
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
@@ -521,7 +521,8 @@ async fn token(command: TokenCommand) -> anyhow::Result<()> {
         TokenCommand::Create(args) => {
             let storage = open_database(&args.database).await?;
             let token = Token::generate().context("could not draw random bytes for the token")?;
-            tokens::create(&storage, &args.name, args.role, &token.sha256())
+            let origin = Origin::local(Actor::CommandLine);
+            tokens::create(&storage, &args.name, args.role, &token.sha256(), &origin)
                 .await
                 .map_err(|e| match e {
                     StorageError::Conflict(m) => anyhow::anyhow!("--name: {m}"),
@@ -542,7 +543,7 @@ async fn token(command: TokenCommand) -> anyhow::Result<()> {
         }
         TokenCommand::Revoke(args) => {
             let storage = open_database(&args.database).await?;
-            tokens::revoke(&storage, &args.name)
+            tokens::revoke(&storage, &args.name, &Origin::local(Actor::CommandLine))
                 .await
                 .map_err(|e| match e {
                     StorageError::NotFound { .. } => anyhow::anyhow!(

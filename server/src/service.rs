@@ -7,7 +7,8 @@ use std::sync::Arc;
 use std::time::Duration;
 
 use anyhow::Context;
-use axum::Router;
+use axum::extract::connect_info::ConnectInfo;
+use axum::{Extension, Router};
 use hyper::server::conn::http1;
 use hyper_util::rt::{TokioIo, TokioTimer};
 use hyper_util::server::graceful::GracefulShutdown;
@@ -16,6 +17,7 @@ use time::OffsetDateTime;
 use tokio::net::TcpListener;
 use tokio::sync::Semaphore;
 use tokio::task::JoinHandle;
+use tower::Layer;
 
 use crate::access::AccessMode;
 use crate::calibration_sets::import_at_start;
@@ -93,7 +95,9 @@ pub async fn serve(
             },
             () = &mut shutdown => break,
         };
-        let service = TowerToHyperService::new(app.clone());
+        // The client's address, for the audit trail (`ConnectInfo` in the request).
+        let app = Extension(ConnectInfo(peer)).layer(app.clone());
+        let service = TowerToHyperService::new(app);
         let connection = graceful.watch(http.serve_connection(TokioIo::new(stream), service));
         tokio::spawn(async move {
             if let Err(e) = connection.await {

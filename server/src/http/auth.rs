@@ -2,10 +2,17 @@
 //! and [`POLICY`], the one table of which role each operation needs. In open mode it lets
 //! every request in.
 //!
+//! The middleware also records who is asking ([`Origin`]: the token's name or open mode, and
+//! the client's address) for the handlers that write the audit trail.
+//!
 //! The token is looked up in the database on every request (no cache), so a token revoked
 //! through any replica or the command line is refused by every replica from the next request.
 
-use axum::extract::{MatchedPath, Request, State};
+use std::net::SocketAddr;
+
+use axum::extract::connect_info::ConnectInfo;
+use axum::extract::{FromRequestParts, MatchedPath, Request, State};
+use axum::http::request::Parts;
 use axum::http::{header, HeaderMap, Method};
 use axum::middleware::Next;
 use axum::response::Response;
@@ -16,7 +23,7 @@ use utoipa::openapi::{ContentBuilder, OpenApi, Ref, ResponseBuilder};
 
 use super::error::ApiError;
 use super::AppState;
-use crate::access::{AccessMode, Role, Token};
+use crate::access::{AccessMode, Actor, Origin, Role, Token};
 use crate::storage::tokens;
 
 /// Who may call an API operation in token mode.
@@ -32,57 +39,22 @@ pub enum Access {
 /// operation missing here needs an admin (a test checks that none is missing).
 const POLICY: &[(Method, &str, Access)] = &[
     (Method::GET, "/api/v1/health", Access::Anyone),
-    (
-        Method::GET,
-        "/api/v1/calibrations",
-        Access::AtLeast(Role::Reader),
-    ),
-    (
-        Method::GET,
-        "/api/v1/calibrations/{id}",
-        Access::AtLeast(Role::Reader),
-    ),
-    (
-        Method::GET,
-        "/api/v1/calibrations/{id}/export",
-        Access::AtLeast(Role::Reader),
-    ),
-    (
-        Method::POST,
-        "/api/v1/order-maps",
-        Access::AtLeast(Role::Reader),
-    ),
-    (
-        Method::GET,
-        "/api/v1/order-maps/{id}",
-        Access::AtLeast(Role::Reader),
-    ),
-    (
-        Method::GET,
-        "/api/v1/order-maps/{id}/{file}",
-        Access::AtLeast(Role::Reader),
-    ),
-    (
-        Method::POST,
-        "/api/v1/calibrations",
-        Access::AtLeast(Role::Writer),
-    ),
-    (
-        Method::POST,
-        "/api/v1/calibrations/import",
-        Access::AtLeast(Role::Writer),
-    ),
-    (
-        Method::POST,
-        "/api/v1/calibrations/{id}/archive",
-        Access::AtLeast(Role::Admin),
-    ),
-    (
-        Method::POST,
-        "/api/v1/calibrations/{id}/restore",
-        Access::AtLeast(Role::Admin),
-    ),
+    (Method::GET, "/api/v1/calibrations", READER),
+    (Method::GET, "/api/v1/calibrations/{id}", READER),
+    (Method::GET, "/api/v1/calibrations/{id}/export", READER),
+    (Method::POST, "/api/v1/order-maps", READER),
+    (Method::GET, "/api/v1/order-maps/{id}", READER),
+    (Method::GET, "/api/v1/order-maps/{id}/{file}", READER),
+    (Method::POST, "/api/v1/calibrations", WRITER),
+    (Method::POST, "/api/v1/calibrations/import", WRITER),
+    (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),
+    (Method::POST, "/api/v1/calibrations/{id}/restore", ADMIN),
+    (Method::GET, "/api/v1/audit", ADMIN),
 ];
+
+const READER: Access = Access::AtLeast(Role::Reader);
+const WRITER: Access = Access::AtLeast(Role::Writer);
+const ADMIN: Access = Access::AtLeast(Role::Admin);
 
 /// The entry of [`POLICY`] for an operation, if it has one.
 fn listed(method: &Method, route: &str) -> Option<Access> {
@@ -94,7 +66,7 @@ fn listed(method: &Method, route: &str) -> Option<Access> {
 
 /// Who may call an operation: its [`POLICY`] entry, an admin if it has none.
 pub fn access(method: &Method, route: &str) -> Access {
-    listed(method, route).unwrap_or(Access::AtLeast(Role::Admin))
+    listed(method, route).unwrap_or(ADMIN)
 }
 
 /// Name of the security scheme in the OpenAPI document.
@@ -191,10 +163,19 @@ fn bearer(headers: &HeaderMap) -> Result<Token, ApiError> {
 /// unrevoked token (401) or whose token's role may not call the route (403).
 pub async fn authorize(
     State(state): State<AppState>,
-    request: Request,
+    mut request: Request,
     next: Next,
 ) -> Result<Response, ApiError> {
+    let address = request
+        .extensions()
+        .get::<ConnectInfo<SocketAddr>>()
+        .map(|ConnectInfo(peer)| peer.ip());
     if state.config.access == AccessMode::Open {
+        let origin = Origin {
+            actor: Actor::OpenMode,
+            address,
+        };
+        request.extensions_mut().insert(origin);
         return Ok(next.run(request).await);
     }
     let route = request.extensions().get::<MatchedPath>().map_or_else(
@@ -222,7 +203,26 @@ pub async fn authorize(
     if let Err(e) = tokens::mark_used(&state.storage, &found, OffsetDateTime::now_utc()).await {
         tracing::warn!(error = %e, token = %found.name, "could not record the token's last use");
     }
+    let origin = Origin {
+        actor: Actor::Token(found.name),
+        address,
+    };
+    request.extensions_mut().insert(origin);
     Ok(next.run(request).await)
+}
+
+/// Who asks, as [`authorize`] found out; a handler that writes takes it for the audit trail.
+impl<S: Send + Sync> FromRequestParts<S> for Origin {
+    type Rejection = ApiError;
+
+    async fn from_request_parts(parts: &mut Parts, _: &S) -> Result<Origin, ApiError> {
+        parts.extensions.get::<Origin>().cloned().ok_or_else(|| {
+            ApiError::Internal(format!(
+                "{} is not behind the access check",
+                parts.uri.path()
+            ))
+        })
+    }
 }
 
 #[cfg(test)]

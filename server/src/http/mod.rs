@@ -1,6 +1,7 @@
 //! The HTTP layer (axum 0.8): one [`AppState`], one error type ([`error::ApiError`]), one
 //! `router()` per resource module, merged in [`app`].
 
+pub mod audit;
 pub mod auth;
 pub mod calibrations;
 pub mod error;
@@ -56,6 +57,7 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
         .merge(health::router())
         .merge(calibrations::router())
         .merge(order_maps::router())
+        .merge(audit::router())
         .split_for_parts();
     auth::document(&mut doc);
     (router, doc)

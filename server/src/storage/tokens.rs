@@ -7,8 +7,9 @@ use sqlx::any::AnyRow;
 use sqlx::Row;
 use time::OffsetDateTime;
 
+use super::audit::{self, AuditAction};
 use super::{is_unique_violation, Storage, StorageError, StorageResult};
-use crate::access::{Role, TokenName};
+use crate::access::{Origin, Role, TokenName};
 use crate::domain::{from_unix_ms, unix_ms};
 
 /// How stale a token's "last used" time may get: it is written at most this often per token,
@@ -40,13 +41,16 @@ fn optional_time(row: &AnyRow, column: &str) -> StorageResult<Option<OffsetDateT
 }
 
 /// Stores a new token `name` with `role` whose SHA-256 is `token_sha256`. A name used before,
-/// even by a revoked token, is a conflict: the audit trail refers to tokens by name.
+/// even by a revoked token, is a conflict: the audit trail refers to tokens by name. The audit
+/// row of `origin` is written in the same transaction.
 pub async fn create(
     storage: &Storage,
     name: &TokenName,
     role: Role,
     token_sha256: &str,
+    origin: &Origin,
 ) -> StorageResult<()> {
+    let mut tx = storage.writer().begin().await?;
     sqlx::query(
         "INSERT INTO api_tokens (name, role, token_sha256, created_at_ms) VALUES ($1, $2, $3, $4)",
     )
@@ -54,7 +58,7 @@ pub async fn create(
     .bind(role.name())
     .bind(token_sha256)
     .bind(unix_ms(OffsetDateTime::now_utc()))
-    .execute(storage.writer())
+    .execute(&mut *tx)
     .await
     .map_err(|e| {
         if is_unique_violation(&e) {
@@ -65,6 +69,9 @@ pub async fn create(
             e.into()
         }
     })?;
+    let detail = format!("token {name} ({role})");
+    audit::record(&mut *tx, origin, AuditAction::TokenCreate, None, &detail).await?;
+    tx.commit().await?;
     Ok(())
 }
 
@@ -109,14 +116,16 @@ pub async fn mark_used(
 }
 
 /// Revokes the token `name`; from now on no replica lets it in. Not found if there is no
-/// such token or it is revoked already.
-pub async fn revoke(storage: &Storage, name: &TokenName) -> StorageResult<()> {
+/// such token or it is revoked already. The audit row of `origin` is written in the same
+/// transaction.
+pub async fn revoke(storage: &Storage, name: &TokenName, origin: &Origin) -> StorageResult<()> {
+    let mut tx = storage.writer().begin().await?;
     let result = sqlx::query(
         "UPDATE api_tokens SET revoked_at_ms = $1 WHERE name = $2 AND revoked_at_ms IS NULL",
     )
     .bind(unix_ms(OffsetDateTime::now_utc()))
     .bind(name.as_str())
-    .execute(storage.writer())
+    .execute(&mut *tx)
     .await?;
     if result.rows_affected() == 0 {
         return Err(StorageError::NotFound {
@@ -124,6 +133,9 @@ pub async fn revoke(storage: &Storage, name: &TokenName) -> StorageResult<()> {
             id: name.to_string(),
         });
     }
+    let detail = format!("token {name}");
+    audit::record(&mut *tx, origin, AuditAction::TokenRevoke, None, &detail).await?;
+    tx.commit().await?;
     Ok(())
 }
 
