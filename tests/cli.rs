@@ -515,7 +515,14 @@ fn map_errors_from_the_core_name_the_flag() {
 
 #[test]
 fn no_help_text_shows_an_empty_default_or_environment_value() {
-    for command in [&[][..], &["serve"], &["calibrate"], &["map"], &["demo"]] {
+    for command in [
+        &[][..],
+        &["serve"],
+        &["calibrate"],
+        &["map"],
+        &["demo"],
+        &["token", "create"],
+    ] {
         let mut args = command.to_vec();
         args.push("--help");
         let help = ok(isotint(&args));
@@ -614,12 +621,14 @@ impl Drop for Served {
     }
 }
 
-/// Starts `isotint serve` in `dir` (no calibration-sets folder there) on `database`, on a free
-/// port, and waits until it listens.
-fn serve_in(dir: &Path, database: &str) -> Served {
+/// Starts `isotint serve` in `dir` (no calibration-sets folder there) on `database` with
+/// `extra` arguments, on a free port, and waits until it listens.
+fn serve_in(dir: &Path, database: &str, extra: &[&str]) -> Served {
     use std::io::BufRead;
     let mut child = Command::new(env!("CARGO_BIN_EXE_isotint"))
         .args(["serve", "--bind", "127.0.0.1:0", "--database", database])
+        .args(extra)
+        .env_remove("ISOTINT_AUTH")
         .args(["--log-format", "json"])
         .current_dir(dir)
         .env("RUST_LOG", "info")
@@ -657,7 +666,7 @@ async fn a_service_started_from_any_directory_offers_the_built_in_demo_calibrati
     );
     let mut ids = Vec::new();
     for (start, imported) in [(1, 1), (2, 0)] {
-        let served = serve_in(dir.path(), &database);
+        let served = serve_in(dir.path(), &database, &[]);
         let built_in = served
             .log
             .iter()
@@ -916,4 +925,172 @@ fn boundary_refuses_bad_numbers_naming_the_flag_and_writes_nothing() {
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&edge_file).exists(), "nothing was written");
+}
+
+/// The access mode a started service logged.
+fn logged_mode(served: &Served) -> &Value {
+    let line = served
+        .log
+        .iter()
+        .find(|l| l["fields"]["message"] == "access mode")
+        .unwrap_or_else(|| panic!("no access mode line in {:?}", served.log));
+    &line["fields"]["mode"]
+}
+
+/// GET `path` of `served` with a token if given; the status.
+async fn status_of(served: &Served, path: &str, token: Option<&str>) -> u16 {
+    let mut request = reqwest::Client::new().get(format!("http://{}{path}", served.address));
+    if let Some(token) = token {
+        request = request.bearer_auth(token);
+    }
+    request.send().await.unwrap().status().as_u16()
+}
+
+#[tokio::test]
+async fn sqlite_on_loopback_starts_open_and_postgresql_or_the_auth_flag_starts_token_mode() {
+    let dir = tempfile::tempdir().unwrap();
+    let sqlite = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("lab.sqlite").display()
+    );
+    let open = serve_in(dir.path(), &sqlite, &[]);
+    assert_eq!(logged_mode(&open), "open");
+    assert_eq!(status_of(&open, "/api/v1/calibrations", None).await, 200);
+    drop(open);
+    let required = serve_in(dir.path(), &sqlite, &["--auth", "required"]);
+    assert_eq!(logged_mode(&required), "tokens");
+    assert_eq!(
+        status_of(&required, "/api/v1/calibrations", None).await,
+        401
+    );
+    assert_eq!(status_of(&required, "/api/v1/health", None).await, 200);
+    drop(required);
+    match common::PostgresDatabase::create().await {
+        Some(db) => {
+            let shared = serve_in(dir.path(), &db.url, &[]);
+            assert_eq!(logged_mode(&shared), "tokens");
+            let explicit = serve_in(dir.path(), &db.url, &["--auth", "open"]);
+            assert_eq!(logged_mode(&explicit), "open", "the explicit flag wins");
+            drop((shared, explicit));
+            db.drop_database().await;
+        }
+        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
+    }
+}
+
+/// `isotint token create`, `list` and `revoke` against a service in token mode on `database`.
+async fn tokens_made_listed_and_revoked_on(dir: &Path, database: &str) {
+    let served = serve_in(dir, database, &["--auth", "required"]);
+    let made = ok(isotint(&[
+        "token",
+        "create",
+        "--database",
+        database,
+        "--name",
+        "lab-admin",
+        "--role",
+        "admin",
+    ]));
+    let token = made.lines().last().unwrap().trim().to_string();
+    assert!(
+        token.starts_with("isotint_") && !token.contains(' '),
+        "{made}"
+    );
+    let archive_unknown = "/api/v1/calibrations/00000000-0000-4000-8000-000000000000/archive";
+    let client = reqwest::Client::new();
+    let archived = client
+        .post(format!("http://{}{archive_unknown}", served.address))
+        .bearer_auth(&token)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(
+        archived.status().as_u16(),
+        404,
+        "an admin gets past the check"
+    );
+    assert_eq!(
+        status_of(&served, "/api/v1/calibrations", Some(&token)).await,
+        200
+    );
+
+    let listed = ok(isotint(&["token", "list", "--database", database]));
+    assert!(
+        listed.contains("lab-admin") && listed.contains("admin"),
+        "{listed}"
+    );
+    assert!(
+        !listed.contains(&token) && !listed.contains(&token[8..]),
+        "{listed}"
+    );
+    assert!(
+        !listed.contains("never"),
+        "a used token shows when: {listed}"
+    );
+
+    ok(isotint(&[
+        "token",
+        "revoke",
+        "--database",
+        database,
+        "lab-admin",
+    ]));
+    assert_eq!(
+        status_of(&served, "/api/v1/calibrations", Some(&token)).await,
+        401
+    );
+    let again = isotint(&["token", "revoke", "--database", database, "lab-admin"]);
+    assert!(!again.status.success());
+    assert!(String::from_utf8_lossy(&again.stderr).contains("revoked already"));
+    let reused = isotint(&[
+        "token",
+        "create",
+        "--database",
+        database,
+        "--name",
+        "lab-admin",
+        "--role",
+        "reader",
+    ]);
+    assert!(!reused.status.success());
+    assert!(String::from_utf8_lossy(&reused.stderr).contains("--name"));
+}
+
+#[tokio::test]
+async fn a_token_made_on_the_command_line_works_against_the_service_until_revoked_on_every_backend()
+{
+    let dir = tempfile::tempdir().unwrap();
+    let sqlite = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("lab.sqlite").display()
+    );
+    tokens_made_listed_and_revoked_on(dir.path(), &sqlite).await;
+    match common::PostgresDatabase::create().await {
+        Some(db) => {
+            tokens_made_listed_and_revoked_on(dir.path(), &db.url).await;
+            db.drop_database().await;
+        }
+        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
+    }
+}
+
+#[test]
+fn bad_token_arguments_are_refused_naming_their_flag() {
+    let dir = tempfile::tempdir().unwrap();
+    let database = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("t.sqlite").display()
+    );
+    for (args, flag) in [
+        (&["--name", "x", "--role", "root"][..], "--role"),
+        (&["--name", "two words", "--role", "reader"][..], "--name"),
+        (&["--role", "reader"][..], "--name"),
+    ] {
+        let mut all = vec!["token", "create", "--database", &database];
+        all.extend_from_slice(args);
+        let output = isotint(&all);
+        assert!(!output.status.success(), "{args:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(flag), "{args:?}: {stderr}");
+    }
 }

@@ -6,37 +6,17 @@ mod common;
 use std::future::Future;
 use std::time::Duration;
 
+use isotint::access::{Actor, Origin};
 use isotint::calibration_sets::{import_built_in, import_dir, BUILT_IN};
 use isotint::domain::{CalibrationId, OrderMapId};
+use isotint::storage::audit::AuditAction;
 use isotint::storage::calibrations::{self, ListFilter};
-use isotint::storage::{order_maps, Backend, Storage, StorageError};
+use isotint::storage::{order_maps, Storage, StorageError};
 use isotint_core::export::read_npy_f32;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::{OrderMap, PixelFlags};
 use time::OffsetDateTime;
-
-/// Runs `check` with the URL of a fresh, empty SQLite database and of the backend it names,
-/// then of a fresh PostgreSQL database if one is configured.
-async fn on_every_empty_database<F, Fut>(check: F)
-where
-    F: Fn(String, Backend) -> Fut,
-    Fut: Future<Output = ()>,
-{
-    let dir = tempfile::tempdir().unwrap();
-    let url = format!(
-        "sqlite://{}?mode=rwc",
-        dir.path().join("s.sqlite").display()
-    );
-    check(url, Backend::Sqlite).await;
-    match common::PostgresDatabase::create().await {
-        Some(db) => {
-            check(db.url.clone(), Backend::Postgres).await;
-            db.drop_database().await;
-        }
-        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
-    }
-}
 
 /// Runs `check` on a fresh SQLite database, then on a fresh PostgreSQL database if one is
 /// configured.
@@ -46,13 +26,22 @@ where
     Fut: Future<Output = ()>,
 {
     let check = &check;
-    on_every_empty_database(|url, backend| async move {
+    common::on_every_empty_database(|url, backend| async move {
         let storage = Storage::connect(&url).await.unwrap();
         assert_eq!(storage.backend(), backend);
         check(storage.clone()).await;
         storage.close().await;
     })
     .await;
+}
+
+/// A change made on this machine without HTTP, as an import.
+fn by_hand() -> (&'static Origin, AuditAction) {
+    static ORIGIN: Origin = Origin {
+        actor: Actor::CommandLine,
+        address: None,
+    };
+    (&ORIGIN, AuditAction::Import)
 }
 
 /// Stores a rendered table named `name`.
@@ -62,14 +51,22 @@ async fn store(
     supersedes: Option<CalibrationId>,
 ) -> Result<calibrations::Inserted, StorageError> {
     let table = common::table(name);
-    calibrations::insert(storage, &table, &table.to_json(), supersedes, None).await
+    calibrations::insert(
+        storage,
+        &table,
+        &table.to_json(),
+        supersedes,
+        None,
+        by_hand(),
+    )
+    .await
 }
 
 #[tokio::test]
 async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend() {
     on_every_backend(|storage| async move {
         let first = common::table("Epoxy strip A");
-        let a = calibrations::insert(&storage, &first, &first.to_json(), None, None)
+        let a = calibrations::insert(&storage, &first, &first.to_json(), None, None, by_hand())
             .await
             .unwrap();
         assert!(a.created);
@@ -77,7 +74,7 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
         assert_eq!(a.row.source_kind, "rendered");
         assert!((a.row.max_order - 4.0).abs() < 1e-9);
 
-        let again = calibrations::insert(&storage, &first, &first.to_json(), None, None)
+        let again = calibrations::insert(&storage, &first, &first.to_json(), None, None, by_hand())
             .await
             .unwrap();
         assert!(!again.created, "the same table is stored once");
@@ -127,7 +124,7 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
         .unwrap();
         assert!(wildcard.is_empty(), "% matches literally");
 
-        let archived = calibrations::set_archived(&storage, a.row.id, true)
+        let archived = calibrations::set_archived(&storage, a.row.id, true, by_hand().0)
             .await
             .unwrap();
         assert!(archived.archived);
@@ -145,7 +142,7 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
         .await
         .unwrap();
         assert_eq!(with_archived.len(), 2);
-        calibrations::set_archived(&storage, a.row.id, false)
+        calibrations::set_archived(&storage, a.row.id, false, by_hand().0)
             .await
             .unwrap();
 
@@ -286,7 +283,7 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
 
 #[tokio::test]
 async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_backend() {
-    on_every_empty_database(|url, _| async move {
+    common::on_every_empty_database(|url, _| async move {
         // The schema as it was before `0002_order_map_uncertainty.sql`: the first migration only.
         let first = tempfile::tempdir().unwrap();
         std::fs::copy(
@@ -400,7 +397,8 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                     let json = table.to_json();
                     let table = table.clone();
                     async move {
-                        calibrations::insert(&storage, &table, &json, supersedes, None).await
+                        calibrations::insert(&storage, &table, &json, supersedes, None, by_hand())
+                            .await
                     }
                 };
                 let imported = write(&tables[0], None).await.map(|i| i.created);

@@ -6,7 +6,9 @@ use std::path::{Path, PathBuf};
 
 use isotint_core::CalibrationTable;
 
+use crate::access::{Actor, Origin};
 use crate::domain::check_metadata;
+use crate::storage::audit::AuditAction;
 use crate::storage::calibrations::{self, sha256_hex, ImportedFile};
 use crate::storage::{Storage, StorageResult};
 
@@ -132,7 +134,9 @@ async fn import_file(
     };
     // from_json accepted the bytes, so they are UTF-8.
     let text = String::from_utf8_lossy(bytes);
-    let inserted = calibrations::insert(storage, &table, &text, None, Some(file)).await?;
+    let origin = Origin::local(Actor::ServiceStart);
+    let change = (&origin, AuditAction::Import);
+    let inserted = calibrations::insert(storage, &table, &text, None, Some(file), change).await?;
     if inserted.created {
         tracing::info!(file = %name, from = source, id = %inserted.row.id, "calibration imported");
         summary.imported += 1;

@@ -1,4 +1,4 @@
-//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`.
+//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`, `token`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -18,10 +18,14 @@ use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
     OrderHint, PixelRect,
 };
+use time::OffsetDateTime;
 
+use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::config::ServiceConfig;
-use crate::domain::{beam_spec, DEFAULT_ORDER_STEP};
+use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
+use crate::storage::tokens::{self, TokenRow};
+use crate::storage::{Storage, StorageError};
 
 /// Fringe-order maps from white-light photoelastic photos (dark-field circular polariscope).
 ///
@@ -68,6 +72,58 @@ pub enum Command {
     /// Write the demo scenario (rendered photos, masks, true orders) and a calibration
     /// measured on its beam photo.
     Demo(DemoArgs),
+    /// Make, list and revoke the service's API tokens, on the database itself (no running
+    /// service needed).
+    #[command(subcommand)]
+    Token(TokenCommand),
+}
+
+/// The database a command works on.
+#[derive(Debug, Args)]
+pub struct DatabaseArg {
+    /// Database URL: sqlite://FILE?mode=rwc (created if missing) or postgres://….
+    #[arg(
+        long,
+        env = "ISOTINT_DATABASE_URL",
+        hide_env_values = true,
+        default_value = "sqlite://isotint.sqlite?mode=rwc"
+    )]
+    pub database: String,
+}
+
+/// Subcommands of `isotint token`.
+#[derive(Debug, Subcommand)]
+pub enum TokenCommand {
+    /// Make a token and print it, once, alone on the last line.
+    Create(TokenCreateArgs),
+    /// List the tokens: name, role, when made, last used, revoked (never the token).
+    List(DatabaseArg),
+    /// Revoke a token: every replica refuses it from its next request.
+    Revoke(TokenRevokeArgs),
+}
+
+/// Options of `isotint token create`.
+#[derive(Debug, Args)]
+pub struct TokenCreateArgs {
+    /// The database.
+    #[command(flatten)]
+    pub database: DatabaseArg,
+    /// Name of the token (1–64 letters, digits, '.', '_', '-'); the audit trail records it.
+    #[arg(long)]
+    pub name: TokenName,
+    /// What the token may do: reader, writer or admin.
+    #[arg(long)]
+    pub role: Role,
+}
+
+/// Options of `isotint token revoke`.
+#[derive(Debug, Args)]
+pub struct TokenRevokeArgs {
+    /// The database.
+    #[command(flatten)]
+    pub database: DatabaseArg,
+    /// Name of the token to revoke.
+    pub name: TokenName,
 }
 
 /// Options of `isotint serve`.
@@ -81,14 +137,9 @@ pub struct ServeArgs {
         default_value = "127.0.0.1:8080"
     )]
     pub bind: SocketAddr,
-    /// Database URL: sqlite://FILE?mode=rwc (created if missing) or postgres://….
-    #[arg(
-        long,
-        env = "ISOTINT_DATABASE_URL",
-        hide_env_values = true,
-        default_value = "sqlite://isotint.sqlite?mode=rwc"
-    )]
-    pub database: String,
+    /// The database.
+    #[command(flatten)]
+    pub database: DatabaseArg,
     /// Directory whose *.json calibration files are imported (once each) at start, besides the
     /// demo set built into the binary.
     #[arg(
@@ -152,6 +203,37 @@ pub struct ServeArgs {
         value_parser = clap::value_parser!(u64).range(1..)
     )]
     pub max_image_pixels: u64,
+    /// Whether API requests need `Authorization: Bearer TOKEN`: `auto` asks for tokens when
+    /// the service listens beyond loopback or uses PostgreSQL.
+    #[arg(
+        long,
+        env = "ISOTINT_AUTH",
+        hide_env_values = true,
+        default_value = "auto"
+    )]
+    pub auth: AuthSetting,
+}
+
+/// The `--auth` setting of `isotint serve`.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum AuthSetting {
+    /// Tokens when listening beyond loopback or on PostgreSQL, open otherwise.
+    Auto,
+    /// Every API request but the health check needs a token.
+    Required,
+    /// No tokens (only for a service nobody else can reach).
+    Open,
+}
+
+impl AuthSetting {
+    /// The mode asked for; `None` lets the service choose.
+    pub fn requested(self) -> Option<AccessMode> {
+        match self {
+            AuthSetting::Auto => None,
+            AuthSetting::Required => Some(AccessMode::Tokens),
+            AuthSetting::Open => Some(AccessMode::Open),
+        }
+    }
 }
 
 impl ServeArgs {
@@ -172,6 +254,7 @@ impl ServeArgs {
                 ..DecodeLimits::default()
             },
             calibration_sets: Some(self.calibration_sets.clone()),
+            access: AccessMode::Open, // replaced by the resolved mode in `service::run`
         }
     }
 }
@@ -458,19 +541,95 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Map(args) => map(&args),
         Command::Boundary(args) => boundary(&args),
         Command::Demo(args) => demo(&args),
+        Command::Token(command) => runtime()?.block_on(token(command)),
     }
 }
 
-fn serve(args: &ServeArgs) -> anyhow::Result<()> {
-    let runtime = tokio::runtime::Builder::new_multi_thread()
+fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
+    tokio::runtime::Builder::new_multi_thread()
         .enable_all()
         .build()
-        .context("could not start the async runtime")?;
-    runtime.block_on(crate::service::run(
+        .context("could not start the async runtime")
+}
+
+fn serve(args: &ServeArgs) -> anyhow::Result<()> {
+    runtime()?.block_on(crate::service::run(
         args.bind,
-        &args.database,
+        &args.database.database,
+        args.auth.requested(),
         args.config(),
     ))
+}
+
+async fn open_database(arg: &DatabaseArg) -> anyhow::Result<Storage> {
+    Storage::connect(&arg.database)
+        .await
+        .context("--database: could not open the database")
+}
+
+/// Runs `isotint token …` on its database.
+async fn token(command: TokenCommand) -> anyhow::Result<()> {
+    match command {
+        TokenCommand::Create(args) => {
+            let storage = open_database(&args.database).await?;
+            let token = Token::generate().context("could not draw random bytes for the token")?;
+            let origin = Origin::local(Actor::CommandLine);
+            tokens::create(&storage, &args.name, args.role, &token.sha256(), &origin)
+                .await
+                .map_err(|e| match e {
+                    StorageError::Conflict(m) => anyhow::anyhow!("--name: {m}"),
+                    other => other.into(),
+                })?;
+            storage.close().await;
+            println!(
+                "token {} ({}) made; it is shown only this once, keep it secret:",
+                args.name, args.role
+            );
+            println!("{}", token.reveal());
+        }
+        TokenCommand::List(args) => {
+            let storage = open_database(&args).await?;
+            let rows = tokens::list(&storage).await?;
+            storage.close().await;
+            print!("{}", token_table(&rows));
+        }
+        TokenCommand::Revoke(args) => {
+            let storage = open_database(&args.database).await?;
+            tokens::revoke(&storage, &args.name, &Origin::local(Actor::CommandLine))
+                .await
+                .map_err(|e| match e {
+                    StorageError::NotFound { .. } => anyhow::anyhow!(
+                        "NAME: no token named {} to revoke (none by that name, or it is revoked already)",
+                        args.name
+                    ),
+                    other => other.into(),
+                })?;
+            storage.close().await;
+            println!("token {} revoked", args.name);
+        }
+    }
+    Ok(())
+}
+
+/// The table `isotint token list` prints.
+fn token_table(rows: &[TokenRow]) -> String {
+    let seconds = |t: OffsetDateTime| rfc3339(t.replace_nanosecond(0).unwrap_or(t));
+    let time = |t: Option<OffsetDateTime>, none: &str| t.map_or(none.to_string(), seconds);
+    let mut out = format!(
+        "{:<24} {:<7} {:<20} {:<20} {}\n",
+        "NAME", "ROLE", "CREATED", "LAST USED", "REVOKED"
+    );
+    for r in rows {
+        out += &format!(
+            "{:<24} {:<7} {:<20} {:<20} {}\n",
+            r.name.as_str(),
+            r.role.name(),
+            seconds(r.created_at),
+            time(r.last_used_at, "never"),
+            time(r.revoked_at, "-")
+        );
+    }
+    out
 }
 
 fn read(path: &Path, what: &str) -> anyhow::Result<Vec<u8>> {

@@ -5,6 +5,8 @@ use std::time::Duration;
 
 use isotint_core::DecodeLimits;
 
+use crate::access::AccessMode;
+
 /// Limits and policies of a running service.
 #[derive(Debug, Clone)]
 pub struct ServiceConfig {
@@ -32,6 +34,9 @@ pub struct ServiceConfig {
     /// Directory whose `*.json` calibration files are imported at start, after the sets built
     /// into the binary.
     pub calibration_sets: Option<PathBuf>,
+    /// Whether API requests need a token. `isotint serve` resolves it at start
+    /// ([`AccessMode::resolve`]); the default is open, as for SQLite on loopback.
+    pub access: AccessMode,
 }
 
 impl Default for ServiceConfig {
@@ -51,6 +56,7 @@ impl Default for ServiceConfig {
                 ..DecodeLimits::default()
             },
             calibration_sets: None,
+            access: AccessMode::Open,
         }
     }
 }

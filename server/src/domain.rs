@@ -183,6 +183,50 @@ pub fn check_metadata(m: &CalibrationMetadata) -> CoreResult<()> {
     Ok(())
 }
 
+/// Where a page of a list ends, for the next page to start after: the time and id of the
+/// page's last row and the query it belongs to. Clients see it as opaque hex.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Cursor {
+    /// The query the page answers (its other parameters, as the list spells them).
+    pub query: String,
+    /// Time of the last row, Unix milliseconds.
+    pub at_ms: i64,
+    /// Id of the last row.
+    pub id: String,
+}
+
+impl Cursor {
+    /// The opaque text of the cursor.
+    pub fn encode(&self) -> String {
+        hex::encode(format!("{}\n{}\n{}", self.at_ms, self.id, self.query))
+    }
+
+    /// Reads the cursor `text` of a page of `query`; a cursor that is not one, or that belongs
+    /// to another query, is refused naming `cursor`.
+    pub fn decode(text: &str, query: &str) -> CoreResult<Cursor> {
+        let invalid = |why: &str| CoreError::invalid("cursor", why.to_string());
+        let bytes = hex::decode(text).map_err(|_| invalid("is not a cursor of this list"))?;
+        let text = String::from_utf8(bytes).map_err(|_| invalid("is not a cursor of this list"))?;
+        let mut parts = text.splitn(3, '\n');
+        let (Some(at_ms), Some(id), Some(of)) = (parts.next(), parts.next(), parts.next()) else {
+            return Err(invalid("is not a cursor of this list"));
+        };
+        let at_ms = at_ms
+            .parse()
+            .map_err(|_| invalid("is not a cursor of this list"))?;
+        if of != query {
+            return Err(invalid(
+                "belongs to another query; ask again from the first page",
+            ));
+        }
+        Ok(Cursor {
+            query: of.to_string(),
+            at_ms,
+            id: id.to_string(),
+        })
+    }
+}
+
 /// Default grid spacing of a new calibration table, fringes.
 pub const DEFAULT_ORDER_STEP: f64 = 0.01;
 
@@ -232,6 +276,19 @@ mod tests {
         assert!(check_text("name", "a\u{7}b", 10, false).is_err());
         assert!(check_text("notes", "a\nb", 10, true).is_ok());
         assert!(check_text("name", &"x".repeat(11), 10, false).is_err());
+    }
+
+    #[test]
+    fn a_cursor_round_trips_and_one_of_another_query_is_refused() {
+        let cursor = Cursor {
+            query: "limit=5".into(),
+            at_ms: 17,
+            id: "abc".into(),
+        };
+        assert_eq!(Cursor::decode(&cursor.encode(), "limit=5").unwrap(), cursor);
+        let other = Cursor::decode(&cursor.encode(), "limit=6").unwrap_err();
+        assert!(other.to_string().contains("another query"), "{other}");
+        assert!(Cursor::decode("zz", "limit=5").is_err());
     }
 
     #[test]

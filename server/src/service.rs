@@ -7,7 +7,8 @@ use std::sync::Arc;
 use std::time::Duration;
 
 use anyhow::Context;
-use axum::Router;
+use axum::extract::connect_info::ConnectInfo;
+use axum::{Extension, Router};
 use hyper::server::conn::http1;
 use hyper_util::rt::{TokioIo, TokioTimer};
 use hyper_util::server::graceful::GracefulShutdown;
@@ -16,23 +17,31 @@ use time::OffsetDateTime;
 use tokio::net::TcpListener;
 use tokio::sync::Semaphore;
 use tokio::task::JoinHandle;
+use tower::Layer;
 
+use crate::access::AccessMode;
 use crate::calibration_sets::import_at_start;
 use crate::config::ServiceConfig;
 use crate::http::{app, AppState};
 use crate::storage::{order_maps, Storage};
 
 /// Opens `database_url`, imports the built-in and the folder's calibration sets, and serves on
-/// `bind` until a shutdown signal arrives; in-flight requests finish first.
+/// `bind` until a shutdown signal arrives; in-flight requests finish first. The access mode is
+/// `requested`, or else chosen from `bind` and the database ([`AccessMode::resolve`]), and
+/// logged; it replaces `config.access`.
 pub async fn run(
     bind: SocketAddr,
     database_url: &str,
+    requested: Option<AccessMode>,
     config: ServiceConfig,
 ) -> anyhow::Result<()> {
     let storage = Storage::connect(database_url)
         .await
         .context("could not open the database")?;
     tracing::info!(database = storage.backend().name(), "database ready");
+    let (access, reason) = AccessMode::resolve(requested, bind, storage.backend());
+    tracing::info!(mode = access.name(), reason, "access mode");
+    let config = ServiceConfig { access, ..config };
     import_at_start(&storage, config.calibration_sets.as_deref())
         .await
         .context("could not import the calibration sets")?;
@@ -86,7 +95,9 @@ pub async fn serve(
             },
             () = &mut shutdown => break,
         };
-        let service = TowerToHyperService::new(app.clone());
+        // The client's address, for the audit trail (`ConnectInfo` in the request).
+        let app = Extension(ConnectInfo(peer)).layer(app.clone());
+        let service = TowerToHyperService::new(app);
         let connection = graceful.watch(http.serve_connection(TokioIo::new(stream), service));
         tokio::spawn(async move {
             if let Err(e) = connection.await {

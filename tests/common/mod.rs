@@ -3,13 +3,15 @@
 //! photos with known fringe orders.
 #![allow(dead_code)] // each test binary uses a different subset of these helpers
 
+use std::future::Future;
+
 use axum::body::Body;
 use axum::http::{header, HeaderMap, Method, Request, StatusCode};
 use axum::Router;
 use http_body_util::BodyExt;
 use isotint::config::ServiceConfig;
 use isotint::http::{app, AppState};
-use isotint::storage::Storage;
+use isotint::storage::{Backend, Storage};
 use isotint_core::render::camera::CameraModel;
 use isotint_core::render::effects::{develop, encode_mask_png, PhotoEffects, PhotoEncoding};
 use isotint_core::render::fields::{BendingBeamField, DiscField, OrderField};
@@ -109,6 +111,28 @@ impl PostgresDatabase {
         .execute(&mut conn)
         .await
         .unwrap();
+    }
+}
+
+/// Runs `check` with the URL of a fresh, empty SQLite database and of the backend it names,
+/// then of a fresh PostgreSQL database if one is configured.
+pub async fn on_every_empty_database<F, Fut>(check: F)
+where
+    F: Fn(String, Backend) -> Fut,
+    Fut: Future<Output = ()>,
+{
+    let dir = tempfile::tempdir().unwrap();
+    let url = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("s.sqlite").display()
+    );
+    check(url, Backend::Sqlite).await;
+    match PostgresDatabase::create().await {
+        Some(db) => {
+            check(db.url.clone(), Backend::Postgres).await;
+            db.drop_database().await;
+        }
+        None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
     }
 }
 

@@ -18,8 +18,10 @@ use utoipa_axum::routes;
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
 use super::AppState;
+use crate::access::Origin;
 use crate::domain::{beam_spec, check_metadata, check_text, rfc3339, CalibrationId};
 use crate::pipeline;
+use crate::storage::audit::AuditAction;
 use crate::storage::calibrations::{self as store, CalibrationRow, ListFilter};
 
 /// Routes of this module.
@@ -358,6 +360,7 @@ fn optional_id(text: Option<&str>) -> Result<Option<CalibrationId>, ApiError> {
               (status = 503, body = ErrorBody)))]
 async fn import_calibration(
     State(state): State<AppState>,
+    origin: Origin,
     query: Result<Query<ImportQuery>, QueryRejection>,
     headers: HeaderMap,
     body: Result<Bytes, BytesRejection>,
@@ -379,7 +382,8 @@ async fn import_calibration(
     check_metadata(&table.metadata)?;
     // from_json accepted the body, so it is UTF-8.
     let text = String::from_utf8_lossy(&body);
-    let inserted = store::insert(&state.storage, &table, &text, supersedes, None).await?;
+    let change = (&origin, AuditAction::Import);
+    let inserted = store::insert(&state.storage, &table, &text, supersedes, None, change).await?;
     let status = if inserted.created {
         StatusCode::CREATED
     } else {
@@ -399,6 +403,7 @@ async fn import_calibration(
               (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn create_calibration(
     State(state): State<AppState>,
+    origin: Origin,
     multipart: Result<Multipart, MultipartRejection>,
 ) -> Result<Response, ApiError> {
     let admission = state.jobs.admit()?;
@@ -422,8 +427,9 @@ async fn create_calibration(
         return Ok((StatusCode::OK, Json(body)).into_response());
     }
     let json = calibration.table.to_json();
-    let inserted =
-        store::insert(&state.storage, &calibration.table, &json, supersedes, None).await?;
+    let change = (&origin, AuditAction::Create);
+    let table = &calibration.table;
+    let inserted = store::insert(&state.storage, table, &json, supersedes, None, change).await?;
     tracing::info!(id = %inserted.row.id, "calibration stored");
     let body = CreatedCalibration {
         summary: inserted.row.into(),
@@ -439,9 +445,10 @@ async fn create_calibration(
               (status = 503, body = ErrorBody)))]
 async fn archive_calibration(
     State(state): State<AppState>,
+    origin: Origin,
     Path(id): Path<String>,
 ) -> Result<Json<CalibrationSummary>, ApiError> {
-    let row = store::set_archived(&state.storage, path_id(&id)?, true).await?;
+    let row = store::set_archived(&state.storage, path_id(&id)?, true, &origin).await?;
     Ok(Json(row.into()))
 }
 
@@ -452,8 +459,9 @@ async fn archive_calibration(
               (status = 503, body = ErrorBody)))]
 async fn restore_calibration(
     State(state): State<AppState>,
+    origin: Origin,
     Path(id): Path<String>,
 ) -> Result<Json<CalibrationSummary>, ApiError> {
-    let row = store::set_archived(&state.storage, path_id(&id)?, false).await?;
+    let row = store::set_archived(&state.storage, path_id(&id)?, false, &origin).await?;
     Ok(Json(row.into()))
 }

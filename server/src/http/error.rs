@@ -29,6 +29,16 @@ pub enum ApiError {
         /// What is wrong, naming the field.
         message: String,
     },
+    /// 401 with `WWW-Authenticate: Bearer`: no token, or one the service does not know (or
+    /// that was revoked).
+    Unauthorized {
+        /// Stable machine-readable code.
+        code: &'static str,
+        /// What is wrong with the credentials.
+        message: String,
+    },
+    /// 403: the token's role may not do this.
+    Forbidden(String),
     /// 404: no such resource or route.
     NotFound(String),
     /// 405: the route exists but not with this method.
@@ -101,6 +111,10 @@ impl ApiError {
             ApiError::BadRequest { code, message } => {
                 (StatusCode::BAD_REQUEST, code, message.clone())
             }
+            ApiError::Unauthorized { code, message } => {
+                (StatusCode::UNAUTHORIZED, code, message.clone())
+            }
+            ApiError::Forbidden(m) => (StatusCode::FORBIDDEN, "forbidden", m.clone()),
             ApiError::NotFound(m) => (StatusCode::NOT_FOUND, "not_found", m.clone()),
             ApiError::MethodNotAllowed(m) => (
                 StatusCode::METHOD_NOT_ALLOWED,
@@ -159,6 +173,11 @@ impl IntoResponse for ApiError {
             },
         };
         let mut response = (status, Json(body)).into_response();
+        if matches!(self, ApiError::Unauthorized { .. }) {
+            response
+                .headers_mut()
+                .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
+        }
         let retry_after_s = match self {
             ApiError::Busy { retry_after_s } => Some(retry_after_s),
             ApiError::Unavailable(_) => Some(RETRY_AFTER_S),

@@ -1,6 +1,8 @@
 //! The HTTP layer (axum 0.8): one [`AppState`], one error type ([`error::ApiError`]), one
 //! `router()` per resource module, merged in [`app`].
 
+pub mod audit;
+pub mod auth;
 pub mod calibrations;
 pub mod error;
 pub mod form;
@@ -51,18 +53,26 @@ impl AppState {
 
 /// The API routes with their OpenAPI description.
 fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
-    OpenApiRouter::with_openapi(openapi::ApiDoc::openapi())
+    let (router, mut doc) = OpenApiRouter::with_openapi(openapi::ApiDoc::openapi())
         .merge(health::router())
         .merge(calibrations::router())
         .merge(order_maps::router())
-        .split_for_parts()
+        .merge(audit::router())
+        .split_for_parts();
+    auth::document(&mut doc);
+    (router, doc)
 }
 
-/// The whole service: API, OpenAPI document and browser workbench, with body limit, time
-/// limit, body time-out (a stalled upload answers 408), panic guard, JSON fallbacks,
-/// `X-Content-Type-Options: nosniff` on every response and request tracing.
+/// The whole service: API (behind [`auth::authorize`]), OpenAPI document and browser
+/// workbench, with body limit, time limit, body time-out (a stalled upload answers 408), panic
+/// guard, JSON fallbacks, `X-Content-Type-Options: nosniff` on every response and request
+/// tracing.
 pub fn app(state: AppState) -> Router {
     let (api, doc) = api();
+    let api = api.route_layer(axum::middleware::from_fn_with_state(
+        state.clone(),
+        auth::authorize,
+    ));
     let upload_limit = state.config.upload_limit_bytes;
     let time_limit = state.config.request_timeout;
     let body_timeout = state.config.body_timeout;

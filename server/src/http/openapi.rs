@@ -21,7 +21,8 @@ use super::AppState;
     tags(
         (name = "service", description = "Health and description of the service"),
         (name = "calibrations", description = "Calibration tables: fringe order → colour"),
-        (name = "order-maps", description = "Fringe-order maps of specimen photos")
+        (name = "order-maps", description = "Fringe-order maps of specimen photos"),
+        (name = "audit", description = "Who changed the library, and when")
     )
 )]
 pub struct ApiDoc;

@@ -8,7 +8,9 @@ use sqlx::any::AnyRow;
 use sqlx::{Any, Executor, Row};
 use time::OffsetDateTime;
 
+use super::audit::{self, AuditAction};
 use super::{is_unique_violation, json_column, Storage, StorageError, StorageResult};
+use crate::access::Origin;
 use crate::domain::{from_unix_ms, unix_ms, CalibrationId};
 
 /// What the service knows about a calibration apart from its table.
@@ -215,13 +217,15 @@ async fn record_import<'c, E: Executor<'c, Database = Any>>(
 /// is kept byte for byte for export. If the same file is stored already, returns that row with
 /// `created: false`. `supersedes` must name an existing calibration that no other calibration
 /// corrects yet. `file` records an import from the calibration-sets directory in the same
-/// transaction.
+/// transaction. A new row is written to the audit trail in the same transaction too, as
+/// `action` (create or import) of `origin`, or as a supersede when `supersedes` is given.
 pub async fn insert(
     storage: &Storage,
     table: &CalibrationTable,
     table_json: &str,
     supersedes: Option<CalibrationId>,
     file: Option<ImportedFile<'_>>,
+    (origin, action): (&Origin, AuditAction),
 ) -> StorageResult<Inserted> {
     let content = sha256_hex(table_json.as_bytes());
     let mut tx = storage.writer().begin().await?;
@@ -249,6 +253,16 @@ pub async fn insert(
     };
     if let Some(file) = &file {
         record_import(&mut *tx, file, stored_id).await?;
+    }
+    if created {
+        let (action, detail) = match supersedes {
+            Some(old) => (
+                AuditAction::Supersede,
+                format!("corrects {old} ({})", action.name()),
+            ),
+            None => (action, String::new()),
+        };
+        audit::record(&mut *tx, origin, action, Some(id), &detail).await?;
     }
     let row = fetch_row(&mut *tx, stored_id).await?;
     tx.commit().await?;
@@ -327,21 +341,32 @@ pub async fn list(storage: &Storage, filter: &ListFilter) -> StorageResult<Vec<C
     rows.iter().map(summary_from_row).collect()
 }
 
-/// Archives (`true`) or restores (`false`) a calibration; returns its new summary.
+/// Archives (`true`) or restores (`false`) a calibration, with its audit row in the same
+/// transaction; returns its new summary.
 pub async fn set_archived(
     storage: &Storage,
     id: CalibrationId,
     archived: bool,
+    origin: &Origin,
 ) -> StorageResult<CalibrationRow> {
+    let mut tx = storage.writer().begin().await?;
     let result = sqlx::query("UPDATE calibrations SET archived = $1 WHERE id = $2")
         .bind(i64::from(archived))
         .bind(id.to_string())
-        .execute(storage.writer())
+        .execute(&mut *tx)
         .await?;
     if result.rows_affected() == 0 {
         return Err(not_found(id));
     }
-    get(storage, id).await
+    let action = if archived {
+        AuditAction::Archive
+    } else {
+        AuditAction::Restore
+    };
+    audit::record(&mut *tx, origin, action, Some(id), "").await?;
+    let row = fetch_row(&mut *tx, id).await?;
+    tx.commit().await?;
+    Ok(row)
 }
 
 #[cfg(test)]

@@ -11,8 +11,10 @@
 //! never wait for the writer. PostgreSQL takes concurrent writers itself: there the writer is
 //! the common pool.
 
+pub mod audit;
 pub mod calibrations;
 pub mod order_maps;
+pub mod tokens;
 
 use std::time::Duration;
 
