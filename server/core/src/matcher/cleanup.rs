@@ -212,6 +212,9 @@ pub(super) fn flag_unanchored_high_regions(
 /// repeat and whole regions match the table's upper fringes, reached from the edge only
 /// across *beyond range*, unreliable pixels or jumps. Such a region is flagged beyond range
 /// when it touches a beyond-range pixel (the cautious reading), unreliable otherwise.
+/// The rule needs the specimen's edge, which only a mask gives: without one (no pixel outside
+/// the mask) the specimen meets the black background with a jump the rule would read as a
+/// cut (a 12-megapixel disc lost all its values), so nothing is flagged.
 pub(super) fn flag_cut_off_regions(
     pass: &mut Pass,
     hinted: &[usize],
@@ -219,6 +222,9 @@ pub(super) fn flag_cut_off_regions(
     height: usize,
     jump: f32,
 ) {
+    if !pass.flags.iter().any(|f| f.has(PixelFlags::OUTSIDE_MASK)) {
+        return;
+    }
     let regions = valued_regions(pass, width, height, jump);
     let flags = &pass.flags;
     let mut is_hint = vec![false; flags.len()];
@@ -1064,7 +1070,7 @@ mod tests {
         assert_eq!(beyond(&anchored), 0);
     }
 
-    /// A 9 × 9 specimen (all inside the mask) valued at order 1: a ring of beyond-range pixels
+    /// A 9 × 9 specimen (all but the corner pixel (0, 0) inside the mask) valued at order 1: a ring of beyond-range pixels
     /// (the square between columns/rows 2 and 6) around a valued 3 × 3 core, whose pixel
     /// (4, 4) reads `core_centre`; `gap` replaces the ring's pixel (4, 2) by a valued pixel
     /// of order 1 or, for `Some(PixelFlags::UNRELIABLE)`, an unreliable one.
@@ -1086,6 +1092,8 @@ mod tests {
                 pass.flags[p].0 = PixelFlags::BEYOND_RANGE;
             }
         }
+        // A mask: the corner pixel lies outside it.
+        pass.flags[0].0 = PixelFlags::OUTSIDE_MASK;
         if let Some(bits) = gap {
             pass.flags[2 * width + 4].0 = bits;
             pass.order[2 * width + 4] = opening;
@@ -1127,6 +1135,11 @@ mod tests {
         let (mut jumped, width, height) = ringed_core(Some(0), 1.5);
         flag_cut_off_regions(&mut jumped, &[], width, height, jump);
         assert_eq!(core_flagged(&jumped, width, PixelFlags::BEYOND_RANGE), 9);
+        // Without a mask the specimen's edge is unknown: nothing is cut off.
+        let (mut unmasked, width, height) = ringed_core(None, 0.0);
+        unmasked.flags[0].0 = 0;
+        flag_cut_off_regions(&mut unmasked, &[], width, height, jump);
+        assert_eq!(core_flagged(&unmasked, width, u8::MAX), 0);
     }
 
     #[test]
