@@ -45,6 +45,7 @@ const POLICY: &[(Method, &str, Access)] = &[
     (Method::POST, "/api/v1/order-maps", READER),
     (Method::GET, "/api/v1/order-maps/{id}", READER),
     (Method::GET, "/api/v1/order-maps/{id}/{file}", READER),
+    (Method::POST, "/api/v1/order-maps/{id}/boundary", READER),
     (Method::POST, "/api/v1/calibrations", WRITER),
     (Method::POST, "/api/v1/calibrations/import", WRITER),
     (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),
