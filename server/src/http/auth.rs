@@ -39,6 +39,7 @@ pub enum Access {
 /// operation missing here needs an admin (a test checks that none is missing).
 const POLICY: &[(Method, &str, Access)] = &[
     (Method::GET, "/api/v1/health", Access::Anyone),
+    (Method::GET, super::metrics::ROUTE, READER),
     (Method::GET, "/api/v1/calibrations", READER),
     (Method::GET, "/api/v1/calibrations/{id}", READER),
     (Method::GET, "/api/v1/calibrations/{id}/export", READER),

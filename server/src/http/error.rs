@@ -17,6 +17,7 @@ use serde::Serialize;
 use utoipa::ToSchema;
 
 use super::jobs::RETRY_AFTER_S;
+use super::metrics::DatabaseFailure;
 use crate::storage::StorageError;
 
 /// An API failure; converts into the JSON error response.
@@ -65,8 +66,11 @@ pub enum ApiError {
         /// Seconds to wait before retrying.
         retry_after_s: u64,
     },
-    /// 503 with `Retry-After`: the database does not answer or stays busy.
+    /// 503 with `Retry-After`: the database does not answer.
     Unavailable(String),
+    /// The database failed: 503 with `Retry-After` when it stays busy, an opaque 500
+    /// otherwise. The detail is logged and the kind counted in the metrics.
+    Database(StorageError),
     /// 504: the request took longer than the time limit.
     TimedOut(Duration),
     /// 500: a bug or an infrastructure failure; the detail is logged, not returned.
@@ -151,7 +155,12 @@ impl ApiError {
                     humantime::format_duration(*limit)
                 ),
             ),
-            ApiError::Internal(_) => (
+            ApiError::Database(StorageError::Busy(_)) => (
+                StatusCode::SERVICE_UNAVAILABLE,
+                "unavailable",
+                format!("the database is busy; retry in {RETRY_AFTER_S} s"),
+            ),
+            ApiError::Internal(_) | ApiError::Database(_) => (
                 StatusCode::INTERNAL_SERVER_ERROR,
                 "internal",
                 "internal error; it has been logged".to_string(),
@@ -162,8 +171,13 @@ impl ApiError {
 
 impl IntoResponse for ApiError {
     fn into_response(self) -> Response {
-        if let ApiError::Internal(detail) = &self {
-            tracing::error!(error = %detail, "internal error");
+        match &self {
+            ApiError::Internal(detail) => tracing::error!(error = %detail, "internal error"),
+            ApiError::Database(e @ StorageError::Busy(_)) => {
+                tracing::warn!(error = %e, "database busy")
+            }
+            ApiError::Database(e) => tracing::error!(error = %e, "database failure"),
+            _ => {}
         }
         let (status, code, message) = self.parts();
         let body = ErrorBody {
@@ -178,9 +192,14 @@ impl IntoResponse for ApiError {
                 .headers_mut()
                 .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
         }
+        if let ApiError::Database(e) = &self {
+            response.extensions_mut().insert(DatabaseFailure(e.kind()));
+        }
         let retry_after_s = match self {
             ApiError::Busy { retry_after_s } => Some(retry_after_s),
-            ApiError::Unavailable(_) => Some(RETRY_AFTER_S),
+            ApiError::Unavailable(_) | ApiError::Database(StorageError::Busy(_)) => {
+                Some(RETRY_AFTER_S)
+            }
             _ => None,
         };
         if let Some(seconds) = retry_after_s {
@@ -210,11 +229,7 @@ impl From<StorageError> for ApiError {
         match e {
             StorageError::NotFound { .. } => ApiError::NotFound(e.to_string()),
             StorageError::Conflict(m) => ApiError::Conflict(m),
-            StorageError::Busy(detail) => {
-                tracing::warn!(error = %detail, "database busy");
-                ApiError::Unavailable(format!("the database is busy; retry in {RETRY_AFTER_S} s"))
-            }
-            other => ApiError::Internal(other.to_string()),
+            failure => ApiError::Database(failure),
         }
     }
 }
