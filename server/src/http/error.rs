@@ -66,8 +66,6 @@ pub enum ApiError {
         /// Seconds to wait before retrying.
         retry_after_s: u64,
     },
-    /// 503 with `Retry-After`: the database does not answer.
-    Unavailable(String),
     /// The database failed: 503 with `Retry-After` when it stays busy, an opaque 500
     /// otherwise. The detail is logged and the kind counted in the metrics.
     Database(StorageError),
@@ -146,7 +144,6 @@ impl ApiError {
                 "busy",
                 format!("all job slots are taken; retry in {retry_after_s} s"),
             ),
-            ApiError::Unavailable(m) => (StatusCode::SERVICE_UNAVAILABLE, "unavailable", m.clone()),
             ApiError::TimedOut(limit) => (
                 StatusCode::GATEWAY_TIMEOUT,
                 "timeout",
@@ -197,9 +194,7 @@ impl IntoResponse for ApiError {
         }
         let retry_after_s = match self {
             ApiError::Busy { retry_after_s } => Some(retry_after_s),
-            ApiError::Unavailable(_) | ApiError::Database(StorageError::Busy(_)) => {
-                Some(RETRY_AFTER_S)
-            }
+            ApiError::Database(StorageError::Busy(_)) => Some(RETRY_AFTER_S),
             _ => None,
         };
         if let Some(seconds) = retry_after_s {
