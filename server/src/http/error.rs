@@ -325,4 +325,26 @@ mod tests {
             RETRY_AFTER_S.to_string()
         );
     }
+
+    #[test]
+    fn a_database_failure_answers_with_its_kind_for_the_metrics_and_a_missing_row_without() {
+        let kind = |e: StorageError| {
+            let response = ApiError::from(e).into_response();
+            let kind = response.extensions().get::<DatabaseFailure>().map(|f| f.0);
+            (response.status(), kind)
+        };
+        assert_eq!(
+            kind(StorageError::Busy(sqlx::Error::PoolTimedOut)),
+            (StatusCode::SERVICE_UNAVAILABLE, Some("busy"))
+        );
+        assert_eq!(
+            kind(StorageError::Database(sqlx::Error::PoolClosed)),
+            (StatusCode::INTERNAL_SERVER_ERROR, Some("fault"))
+        );
+        let missing = StorageError::NotFound {
+            what: "calibration",
+            id: "c1".into(),
+        };
+        assert_eq!(kind(missing), (StatusCode::NOT_FOUND, None));
+    }
 }
