@@ -384,3 +384,21 @@ async fn a_change_that_fails_leaves_no_audit_row_and_no_change_is_made_without_o
     })
     .await;
 }
+
+#[tokio::test]
+async fn metrics_need_a_reader_token_in_token_mode() {
+    let dir = tempfile::tempdir().unwrap();
+    let url = format!(
+        "sqlite://{}?mode=rwc",
+        dir.path().join("m.sqlite").display()
+    );
+    let svc = service_in_token_mode(&url).await;
+    let reader = token(&svc.storage, "scraper", Role::Reader).await;
+    let anonymous = call(&svc.app, Method::GET, "/metrics", None, "").await;
+    assert_eq!(anonymous.status, StatusCode::UNAUTHORIZED);
+    assert_eq!(anonymous.error_code(), "missing_token");
+    let scraped = call(&svc.app, Method::GET, "/metrics", Some(&reader), "").await;
+    assert_eq!(scraped.status, StatusCode::OK);
+    let text = String::from_utf8(scraped.body).unwrap();
+    assert!(text.contains("route=\"/metrics\",status=\"401\""), "{text}");
+}

@@ -7,13 +7,28 @@ use axum::http::StatusCode;
 use common::{get, import, import_id, post, service, table};
 
 #[tokio::test]
-async fn health_reports_the_version_and_the_sqlite_database() {
+async fn health_reports_the_version_and_the_sqlite_database_as_reachable() {
     let svc = service().await;
     let reply = get(&svc.app, "/api/v1/health").await;
     assert_eq!(reply.status, StatusCode::OK);
     let v = reply.json();
     assert_eq!(v["status"], "ok");
-    assert_eq!(v["database"], "sqlite");
+    assert_eq!(v["database"]["kind"], "sqlite");
+    assert_eq!(v["database"]["reachable"], true);
+    assert_eq!(v["version"], env!("CARGO_PKG_VERSION"));
+}
+
+#[tokio::test]
+async fn health_answers_503_with_the_database_unreachable_once_its_connections_are_closed() {
+    let svc = service().await;
+    svc.storage.close().await;
+    let reply = get(&svc.app, "/api/v1/health").await;
+    assert_eq!(reply.status, StatusCode::SERVICE_UNAVAILABLE);
+    assert!(reply.headers.contains_key(axum::http::header::RETRY_AFTER));
+    let v = reply.json();
+    assert_eq!(v["status"], "unavailable");
+    assert_eq!(v["database"]["kind"], "sqlite");
+    assert_eq!(v["database"]["reachable"], false);
     assert_eq!(v["version"], env!("CARGO_PKG_VERSION"));
 }
 
@@ -247,7 +262,7 @@ async fn the_service_runs_on_postgresql_when_one_is_configured() {
         isotint::config::ServiceConfig::default(),
     ));
     assert_eq!(
-        get(&app, "/api/v1/health").await.json()["database"],
+        get(&app, "/api/v1/health").await.json()["database"]["kind"],
         "postgres"
     );
     let t = table("Strip on PostgreSQL");

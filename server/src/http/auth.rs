@@ -39,12 +39,14 @@ pub enum Access {
 /// operation missing here needs an admin (a test checks that none is missing).
 const POLICY: &[(Method, &str, Access)] = &[
     (Method::GET, "/api/v1/health", Access::Anyone),
+    (Method::GET, super::metrics::ROUTE, READER),
     (Method::GET, "/api/v1/calibrations", READER),
     (Method::GET, "/api/v1/calibrations/{id}", READER),
     (Method::GET, "/api/v1/calibrations/{id}/export", READER),
     (Method::POST, "/api/v1/order-maps", READER),
     (Method::GET, "/api/v1/order-maps/{id}", READER),
     (Method::GET, "/api/v1/order-maps/{id}/{file}", READER),
+    (Method::POST, "/api/v1/order-maps/{id}/boundary", READER),
     (Method::POST, "/api/v1/calibrations", WRITER),
     (Method::POST, "/api/v1/calibrations/import", WRITER),
     (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),

@@ -17,6 +17,7 @@ use serde::Serialize;
 use utoipa::ToSchema;
 
 use super::jobs::RETRY_AFTER_S;
+use super::metrics::DatabaseFailure;
 use crate::storage::StorageError;
 
 /// An API failure; converts into the JSON error response.
@@ -65,8 +66,9 @@ pub enum ApiError {
         /// Seconds to wait before retrying.
         retry_after_s: u64,
     },
-    /// 503 with `Retry-After`: the database does not answer or stays busy.
-    Unavailable(String),
+    /// The database failed: 503 with `Retry-After` when it stays busy, an opaque 500
+    /// otherwise. The detail is logged and the kind counted in the metrics.
+    Database(StorageError),
     /// 504: the request took longer than the time limit.
     TimedOut(Duration),
     /// 500: a bug or an infrastructure failure; the detail is logged, not returned.
@@ -142,7 +144,6 @@ impl ApiError {
                 "busy",
                 format!("all job slots are taken; retry in {retry_after_s} s"),
             ),
-            ApiError::Unavailable(m) => (StatusCode::SERVICE_UNAVAILABLE, "unavailable", m.clone()),
             ApiError::TimedOut(limit) => (
                 StatusCode::GATEWAY_TIMEOUT,
                 "timeout",
@@ -151,7 +152,12 @@ impl ApiError {
                     humantime::format_duration(*limit)
                 ),
             ),
-            ApiError::Internal(_) => (
+            ApiError::Database(StorageError::Busy(_)) => (
+                StatusCode::SERVICE_UNAVAILABLE,
+                "unavailable",
+                format!("the database is busy; retry in {RETRY_AFTER_S} s"),
+            ),
+            ApiError::Internal(_) | ApiError::Database(_) => (
                 StatusCode::INTERNAL_SERVER_ERROR,
                 "internal",
                 "internal error; it has been logged".to_string(),
@@ -162,8 +168,13 @@ impl ApiError {
 
 impl IntoResponse for ApiError {
     fn into_response(self) -> Response {
-        if let ApiError::Internal(detail) = &self {
-            tracing::error!(error = %detail, "internal error");
+        match &self {
+            ApiError::Internal(detail) => tracing::error!(error = %detail, "internal error"),
+            ApiError::Database(e @ StorageError::Busy(_)) => {
+                tracing::warn!(error = %e, "database busy")
+            }
+            ApiError::Database(e) => tracing::error!(error = %e, "database failure"),
+            _ => {}
         }
         let (status, code, message) = self.parts();
         let body = ErrorBody {
@@ -178,9 +189,12 @@ impl IntoResponse for ApiError {
                 .headers_mut()
                 .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
         }
+        if let ApiError::Database(e) = &self {
+            response.extensions_mut().insert(DatabaseFailure(e.kind()));
+        }
         let retry_after_s = match self {
             ApiError::Busy { retry_after_s } => Some(retry_after_s),
-            ApiError::Unavailable(_) => Some(RETRY_AFTER_S),
+            ApiError::Database(StorageError::Busy(_)) => Some(RETRY_AFTER_S),
             _ => None,
         };
         if let Some(seconds) = retry_after_s {
@@ -210,11 +224,7 @@ impl From<StorageError> for ApiError {
         match e {
             StorageError::NotFound { .. } => ApiError::NotFound(e.to_string()),
             StorageError::Conflict(m) => ApiError::Conflict(m),
-            StorageError::Busy(detail) => {
-                tracing::warn!(error = %detail, "database busy");
-                ApiError::Unavailable(format!("the database is busy; retry in {RETRY_AFTER_S} s"))
-            }
-            other => ApiError::Internal(other.to_string()),
+            failure => ApiError::Database(failure),
         }
     }
 }
@@ -314,5 +324,27 @@ mod tests {
             response.headers()[header::RETRY_AFTER],
             RETRY_AFTER_S.to_string()
         );
+    }
+
+    #[test]
+    fn a_database_failure_answers_with_its_kind_for_the_metrics_and_a_missing_row_without() {
+        let kind = |e: StorageError| {
+            let response = ApiError::from(e).into_response();
+            let kind = response.extensions().get::<DatabaseFailure>().map(|f| f.0);
+            (response.status(), kind)
+        };
+        assert_eq!(
+            kind(StorageError::Busy(sqlx::Error::PoolTimedOut)),
+            (StatusCode::SERVICE_UNAVAILABLE, Some("busy"))
+        );
+        assert_eq!(
+            kind(StorageError::Database(sqlx::Error::PoolClosed)),
+            (StatusCode::INTERNAL_SERVER_ERROR, Some("fault"))
+        );
+        let missing = StorageError::NotFound {
+            what: "calibration",
+            id: "c1".into(),
+        };
+        assert_eq!(kind(missing), (StatusCode::NOT_FOUND, None));
     }
 }

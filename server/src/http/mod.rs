@@ -8,6 +8,7 @@ pub mod error;
 pub mod form;
 pub mod health;
 pub mod jobs;
+pub mod metrics;
 pub mod openapi;
 pub mod order_maps;
 pub mod web;
@@ -37,16 +38,20 @@ pub struct AppState {
     pub config: Arc<ServiceConfig>,
     /// Admission control of pixel jobs.
     pub jobs: jobs::JobGate,
+    /// Counters served at `/metrics`.
+    pub metrics: metrics::Metrics,
 }
 
 impl AppState {
     /// State for `storage` under `config`.
     pub fn new(storage: Storage, config: ServiceConfig) -> Self {
-        let jobs = jobs::JobGate::new(config.max_jobs, config.job_queue);
+        let metrics = metrics::Metrics::new();
+        let jobs = jobs::JobGate::new(config.max_jobs, config.job_queue, metrics.clone());
         AppState {
             storage,
             config: Arc::new(config),
             jobs,
+            metrics,
         }
     }
 }
@@ -63,16 +68,18 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
     (router, doc)
 }
 
-/// The whole service: API (behind [`auth::authorize`]), OpenAPI document and browser
-/// workbench, with body limit, time limit, body time-out (a stalled upload answers 408), panic
+/// The whole service: API and metrics (behind [`auth::authorize`]), OpenAPI document and
+/// browser workbench, with request metrics ([`metrics::track`]), body limit, time limit, body time-out (a stalled upload answers 408), panic
 /// guard, JSON fallbacks, `X-Content-Type-Options: nosniff` on every response and request
 /// tracing.
 pub fn app(state: AppState) -> Router {
     let (api, doc) = api();
-    let api = api.route_layer(axum::middleware::from_fn_with_state(
-        state.clone(),
-        auth::authorize,
-    ));
+    let api = api
+        .merge(metrics::router())
+        .route_layer(axum::middleware::from_fn_with_state(
+            state.clone(),
+            auth::authorize,
+        ));
     let upload_limit = state.config.upload_limit_bytes;
     let time_limit = state.config.request_timeout;
     let body_timeout = state.config.body_timeout;
@@ -90,6 +97,10 @@ pub fn app(state: AppState) -> Router {
         .layer(SetResponseHeaderLayer::overriding(
             header::X_CONTENT_TYPE_OPTIONS,
             HeaderValue::from_static("nosniff"),
+        ))
+        .layer(axum::middleware::from_fn_with_state(
+            state.metrics.clone(),
+            metrics::track,
         ))
         .layer(
             TraceLayer::new_for_http()

@@ -87,6 +87,23 @@ pub enum StorageError {
     Migrate(#[from] sqlx::migrate::MigrateError),
 }
 
+impl StorageError {
+    /// Short name of the kind of error, as the metrics count it: `busy` (retry later),
+    /// `fault` (the database refused or failed), `corrupt`, `migration`, `configuration`,
+    /// `not_found`, `conflict`.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            StorageError::NotFound { .. } => "not_found",
+            StorageError::Conflict(_) => "conflict",
+            StorageError::Corrupt(_) => "corrupt",
+            StorageError::UnsupportedUrl => "configuration",
+            StorageError::Busy(_) => "busy",
+            StorageError::Database(_) => "fault",
+            StorageError::Migrate(_) => "migration",
+        }
+    }
+}
+
 /// Error codes that mean "busy, try again": SQLite's BUSY and LOCKED with their extended
 /// codes, PostgreSQL's serialization failure, deadlock and lock-not-available.
 const BUSY_CODES: [&str; 9] = [
