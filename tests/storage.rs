@@ -95,7 +95,7 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
             "{unknown:?}"
         );
 
-        let all = calibrations::list(&storage, &ListFilter::default())
+        let all = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         assert_eq!(all.len(), 2, "failed inserts left no row");
@@ -106,6 +106,8 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
                 text: Some("STRIP b".into()),
                 include_archived: false,
             },
+            None,
+            500,
         )
         .await
         .unwrap();
@@ -119,6 +121,8 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
                 text: Some("%".into()),
                 include_archived: false,
             },
+            None,
+            500,
         )
         .await
         .unwrap();
@@ -128,7 +132,7 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
             .await
             .unwrap();
         assert!(archived.archived);
-        let visible = calibrations::list(&storage, &ListFilter::default())
+        let visible = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         assert_eq!(visible.len(), 1);
@@ -138,6 +142,8 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
                 text: None,
                 include_archived: true,
             },
+            None,
+            500,
         )
         .await
         .unwrap();
@@ -170,7 +176,7 @@ async fn importing_the_calibration_sets_twice_stores_each_file_once_on_every_bac
         let second = import_dir(&storage, dir.path()).await.unwrap();
         assert_eq!(second.imported, 0);
         assert_eq!(second.already_known, 2);
-        let listed = calibrations::list(&storage, &ListFilter::default())
+        let listed = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         assert_eq!(listed.len(), 2);
@@ -203,7 +209,7 @@ async fn the_built_in_demo_set_is_stored_once_and_a_folder_adds_only_what_is_new
         let folder = import_dir(&storage, dir.path()).await.unwrap();
         assert_eq!((folder.imported, folder.already_known), (1, 1));
 
-        let listed = calibrations::list(&storage, &ListFilter::default())
+        let listed = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         let mut names: Vec<&str> = listed.iter().map(|r| r.metadata.name.as_str()).collect();
@@ -436,6 +442,8 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                 include_archived: true,
                 ..ListFilter::default()
             },
+            None,
+            500,
         )
         .await
         .unwrap();

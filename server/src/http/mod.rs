@@ -10,6 +10,7 @@ pub mod health;
 pub mod jobs;
 pub mod openapi;
 pub mod order_maps;
+pub mod paging;
 pub mod web;
 
 use std::sync::Arc;

@@ -65,9 +65,6 @@ pub struct ListFilter {
     pub include_archived: bool,
 }
 
-/// Largest number of rows [`list`] returns.
-pub const LIST_LIMIT: i64 = 500;
-
 const SUMMARY_COLUMNS: &str = "c.id, c.metadata_json, c.source_kind, c.order_step, \
      c.max_order, c.residual_de2000, c.created_at_ms, c.supersedes, c.archived, \
      (SELECT s.id FROM calibrations s WHERE s.supersedes = c.id) AS superseded_by";
@@ -321,24 +318,54 @@ fn like_pattern(text: &str) -> String {
     out
 }
 
-/// Calibrations matching `filter`, newest first, at most [`LIST_LIMIT`].
-pub async fn list(storage: &Storage, filter: &ListFilter) -> StorageResult<Vec<CalibrationRow>> {
-    let sql = format!(
-        "SELECT {SUMMARY_COLUMNS} FROM calibrations c \
-         WHERE (c.archived = 0 OR $1 = 1) \
-         AND ($2 = '' OR LOWER(c.name) LIKE $3 ESCAPE '\\' OR LOWER(c.material) LIKE $3 ESCAPE '\\' \
-              OR LOWER(c.light_source) LIKE $3 ESCAPE '\\' OR LOWER(c.camera) LIKE $3 ESCAPE '\\') \
-         ORDER BY c.created_at_ms DESC, c.id LIMIT $4"
-    );
+/// The condition of [`ListFilter`] on `calibrations c`: `$1` include archived (0 or 1), `$2` the
+/// search text, `$3` its LIKE pattern.
+const FILTER: &str = "(c.archived = 0 OR $1 = 1) \
+     AND ($2 = '' OR LOWER(c.name) LIKE $3 ESCAPE '\\' OR LOWER(c.material) LIKE $3 ESCAPE '\\' \
+          OR LOWER(c.light_source) LIKE $3 ESCAPE '\\' OR LOWER(c.camera) LIKE $3 ESCAPE '\\')";
+
+/// `sql` (whose condition starts with [`FILTER`]) with the filter's three parameters bound.
+fn bind_filter<'q>(
+    sql: &'q str,
+    filter: &ListFilter,
+) -> sqlx::query::Query<'q, Any, sqlx::any::AnyArguments<'q>> {
     let text = filter.text.clone().unwrap_or_default();
-    let rows = sqlx::query(&sql)
+    let pattern = like_pattern(&text);
+    sqlx::query(sql)
         .bind(i64::from(filter.include_archived))
-        .bind(text.clone())
-        .bind(like_pattern(&text))
-        .bind(LIST_LIMIT)
+        .bind(text)
+        .bind(pattern)
+}
+
+/// Up to `limit` calibrations matching `filter`, newest first by the time their table was made
+/// (ties by id); after the calibration at `after` (its time and id) when given. Paging on this
+/// order never repeats nor skips a row, whatever is stored between pages.
+pub async fn list(
+    storage: &Storage,
+    filter: &ListFilter,
+    after: Option<(OffsetDateTime, &str)>,
+    limit: i64,
+) -> StorageResult<Vec<CalibrationRow>> {
+    let (after_ms, after_id) = after.map_or((i64::MAX, ""), |(at, id)| (unix_ms(at), id));
+    let sql = format!(
+        "SELECT {SUMMARY_COLUMNS} FROM calibrations c WHERE {FILTER} \
+         AND (c.created_at_ms < $4 OR (c.created_at_ms = $4 AND c.id > $5)) \
+         ORDER BY c.created_at_ms DESC, c.id LIMIT $6"
+    );
+    let rows = bind_filter(&sql, filter)
+        .bind(after_ms)
+        .bind(after_id)
+        .bind(limit)
         .fetch_all(storage.pool())
         .await?;
     rows.iter().map(summary_from_row).collect()
+}
+
+/// How many calibrations match `filter`.
+pub async fn count(storage: &Storage, filter: &ListFilter) -> StorageResult<i64> {
+    let sql = format!("SELECT COUNT(*) AS n FROM calibrations c WHERE {FILTER}");
+    let row = bind_filter(&sql, filter).fetch_one(storage.pool()).await?;
+    Ok(row.try_get("n")?)
 }
 
 /// Archives (`true`) or restores (`false`) a calibration, with its audit row in the same
