@@ -518,3 +518,62 @@ async fn a_bad_limit_or_cursor_answers_400_naming_the_parameter() {
         );
     }
 }
+
+/// Imports `t` as a correction of `old`; returns the reply.
+async fn correct(
+    app: &axum::Router,
+    old: &str,
+    t: &isotint_core::CalibrationTable,
+) -> common::Reply {
+    post(
+        app,
+        &format!("/api/v1/calibrations/import?supersedes={old}"),
+        "application/json",
+        t.to_json().into_bytes(),
+    )
+    .await
+}
+
+async fn chain_of_three(url: String) {
+    let svc = common::service_on(&url, Default::default(), tempfile::tempdir().unwrap()).await;
+    let first = import_id(&svc.app, &table("Strip, first")).await;
+    let second = correct(&svc.app, &first, &table("Strip, second"))
+        .await
+        .json()["id"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let third = correct(&svc.app, &second, &table("Strip, third"))
+        .await
+        .json()["id"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    for (old, by) in [(&first, &second), (&second, &third)] {
+        let reply = correct(&svc.app, old, &table(&format!("Rival of {old}"))).await;
+        assert_eq!(reply.status, StatusCode::CONFLICT);
+        let message = reply.error_message();
+        assert!(
+            message.contains(&format!("already superseded by {by}")),
+            "{message}"
+        );
+        assert!(
+            message.contains(&format!("correct the latest version, {third}")),
+            "{message}"
+        );
+        assert_eq!(reply.json()["error"]["latest"], third.as_str());
+    }
+    let fourth = correct(&svc.app, &third, &table("Strip, fourth")).await;
+    assert_eq!(
+        fourth.status,
+        StatusCode::CREATED,
+        "the latest version may be corrected"
+    );
+    assert_eq!(fourth.json()["supersedes"], third.as_str());
+    svc.storage.close().await;
+}
+
+#[tokio::test]
+async fn correcting_a_corrected_calibration_answers_409_naming_the_latest_of_a_chain_of_three() {
+    common::on_every_empty_database(|url, _| chain_of_three(url)).await;
+}

@@ -88,7 +88,10 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
         assert_eq!(a_now.superseded_by, Some(b.row.id));
 
         let twice = store(&storage, "Epoxy strip C", Some(a.row.id)).await;
-        assert!(matches!(twice, Err(StorageError::Conflict(_))), "{twice:?}");
+        assert!(
+            matches!(twice, Err(StorageError::Superseded { latest, .. }) if latest == b.row.id),
+            "{twice:?}"
+        );
         let unknown = store(&storage, "Epoxy strip D", Some(CalibrationId::random())).await;
         assert!(
             matches!(unknown, Err(StorageError::NotFound { .. })),
@@ -428,7 +431,7 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
             stored.unwrap();
             match rival {
                 Ok(()) => rivals_won += 1,
-                Err(StorageError::Conflict(_)) => {}
+                Err(StorageError::Conflict(_) | StorageError::Superseded { .. }) => {}
                 Err(other) => panic!("a rival correction failed with {other}"),
             }
         }

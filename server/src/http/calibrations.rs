@@ -452,7 +452,7 @@ async fn create_calibration(
     let spec = request.into_spec()?;
     let photo = form.require("photo")?;
     if let Some(old) = supersedes {
-        store::get(&state.storage, old).await?;
+        store::correctable(&state.storage, old).await?;
     }
     let limits = state.config.decode_limits;
     let calibration = admission

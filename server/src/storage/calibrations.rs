@@ -125,16 +125,51 @@ async fn fetch_row<'c, E: Executor<'c, Database = Any>>(
     summary_from_row(&row)
 }
 
-async fn successor_of<'c, E: Executor<'c, Database = Any>>(
+/// The chain of corrections from `id`: `id`, the calibration that corrects it, the one that
+/// corrects that, and so on; empty when `id` is not stored.
+async fn correction_chain<'c, E: Executor<'c, Database = Any>>(
     executor: E,
     id: CalibrationId,
-) -> StorageResult<Option<String>> {
-    Ok(
-        sqlx::query_scalar("SELECT id FROM calibrations WHERE supersedes = $1")
-            .bind(id.to_string())
-            .fetch_optional(executor)
-            .await?,
+) -> StorageResult<Vec<CalibrationId>> {
+    let ids: Vec<String> = sqlx::query_scalar(
+        "WITH RECURSIVE chain (id, depth) AS ( \
+             SELECT id, 0 FROM calibrations WHERE id = $1 \
+             UNION ALL \
+             SELECT c.id, chain.depth + 1 FROM calibrations c JOIN chain ON c.supersedes = chain.id \
+         ) SELECT id FROM chain ORDER BY depth",
     )
+    .bind(id.to_string())
+    .fetch_all(executor)
+    .await?;
+    ids.iter()
+        .map(|t| {
+            t.parse()
+                .map_err(|e| StorageError::Corrupt(format!("id: {e}")))
+        })
+        .collect()
+}
+
+/// Checks that `id` may be corrected: it is stored and nothing corrects it yet. Otherwise
+/// [`StorageError::NotFound`], or [`StorageError::Superseded`] naming the latest version of its
+/// chain of corrections.
+async fn check_correctable<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    id: CalibrationId,
+) -> StorageResult<()> {
+    match correction_chain(executor, id).await?.as_slice() {
+        [] => Err(not_found(id)),
+        [_] => Ok(()),
+        [_, by, .., latest] | [_, by @ latest] => Err(StorageError::Superseded {
+            id,
+            by: *by,
+            latest: *latest,
+        }),
+    }
+}
+
+/// Checks, before any work, that a correction of `id` could be stored now (see [`insert`]).
+pub async fn correctable(storage: &Storage, id: CalibrationId) -> StorageResult<()> {
+    check_correctable(storage.pool(), id).await
 }
 
 async fn insert_row<'c, E: Executor<'c, Database = Any>>(
@@ -213,7 +248,7 @@ async fn record_import<'c, E: Executor<'c, Database = Any>>(
 /// Stores `table` whose file text is `table_json` (all or nothing, in one transaction); the text
 /// is kept byte for byte for export. If the same file is stored already, returns that row with
 /// `created: false`. `supersedes` must name an existing calibration that no other calibration
-/// corrects yet. `file` records an import from the calibration-sets directory in the same
+/// corrects yet; otherwise the error names the latest version of its chain of corrections. `file` records an import from the calibration-sets directory in the same
 /// transaction. A new row is written to the audit trail in the same transaction too, as
 /// `action` (create or import) of `origin`, or as a supersede when `supersedes` is given.
 pub async fn insert(
@@ -227,12 +262,7 @@ pub async fn insert(
     let content = sha256_hex(table_json.as_bytes());
     let mut tx = storage.writer().begin().await?;
     if let Some(old) = supersedes {
-        fetch_row(&mut *tx, old).await?;
-        if let Some(newer) = successor_of(&mut *tx, old).await? {
-            return Err(StorageError::Conflict(format!(
-                "calibration {old} is already superseded by {newer}"
-            )));
-        }
+        check_correctable(&mut *tx, old).await?;
     }
     let id = CalibrationId::random();
     let created = insert_row(&mut *tx, id, table, table_json, &content, supersedes)
