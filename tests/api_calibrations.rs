@@ -330,6 +330,11 @@ async fn concurrent_imports_corrections_and_stored_maps_answer_201_or_409_on_eve
     }
 }
 
+/// A service with the default configuration on the empty database at `url`.
+async fn open_service(url: &str) -> common::TestService {
+    common::service_on(url, Default::default(), tempfile::tempdir().unwrap()).await
+}
+
 /// `base` renamed `name` and dated `minute` minutes into a fixed day, so that several share a
 /// time and the list's tie-break by id is exercised.
 fn dated(
@@ -368,7 +373,7 @@ fn ids(page: &serde_json::Value) -> Vec<String> {
 }
 
 async fn read_120_in_pages_of_50(url: String) {
-    let svc = common::service_on(&url, Default::default(), tempfile::tempdir().unwrap()).await;
+    let svc = open_service(&url).await;
     let base = table("Base");
     let mut stored = std::collections::BTreeSet::new();
     for i in 0..120 {
@@ -401,7 +406,7 @@ async fn a_hundred_and_twenty_calibrations_read_in_pages_of_fifty_come_in_three_
 }
 
 async fn insert_between_pages(url: String) {
-    let svc = common::service_on(&url, Default::default(), tempfile::tempdir().unwrap()).await;
+    let svc = open_service(&url).await;
     let base = table("Base");
     let mut old = std::collections::BTreeSet::new();
     for i in 0..12 {
@@ -436,7 +441,7 @@ async fn a_calibration_stored_between_page_reads_neither_repeats_nor_skips_an_ol
 }
 
 async fn filter_and_page(url: String) {
-    let svc = common::service_on(&url, Default::default(), tempfile::tempdir().unwrap()).await;
+    let svc = open_service(&url).await;
     let base = table("Base");
     let mut brackets = std::collections::BTreeSet::new();
     for i in 0..9 {
@@ -535,7 +540,7 @@ async fn correct(
 }
 
 async fn chain_of_three(url: String) {
-    let svc = common::service_on(&url, Default::default(), tempfile::tempdir().unwrap()).await;
+    let svc = open_service(&url).await;
     let first = import_id(&svc.app, &table("Strip, first")).await;
     let second = correct(&svc.app, &first, &table("Strip, second"))
         .await
