@@ -344,3 +344,256 @@ async fn concurrent_imports_corrections_and_stored_maps_answer_201_or_409_on_eve
         None => eprintln!("ISOTINT_TEST_POSTGRES_URL not set: PostgreSQL variant skipped"),
     }
 }
+
+/// A service with the default configuration on the empty database at `url`.
+async fn open_service(url: &str) -> common::TestService {
+    common::service_on(url, Default::default(), tempfile::tempdir().unwrap()).await
+}
+
+/// `base` renamed `name` and dated `minute` minutes into a fixed day, so that several share a
+/// time and the list's tie-break by id is exercised.
+fn dated(
+    base: &isotint_core::CalibrationTable,
+    name: &str,
+    minute: i64,
+) -> isotint_core::CalibrationTable {
+    let mut t = base.clone();
+    t.metadata.name = name.into();
+    t.created_at = time::macros::datetime!(2020-03-02 08:00 UTC) + time::Duration::minutes(minute);
+    t
+}
+
+/// Follows `next` from `first` to the last page; returns every page's reply body.
+async fn pages(app: &axum::Router, first: &str) -> Vec<serde_json::Value> {
+    let mut pages = Vec::new();
+    let mut uri = Some(first.to_string());
+    while let Some(u) = uri {
+        let reply = get(app, &u).await;
+        assert_eq!(reply.status, StatusCode::OK, "{}", reply.error_message());
+        let page = reply.json();
+        uri = page["next"].as_str().map(str::to_string);
+        pages.push(page);
+    }
+    pages
+}
+
+/// The ids of a page, in order.
+fn ids(page: &serde_json::Value) -> Vec<String> {
+    page["calibrations"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["id"].as_str().unwrap().to_string())
+        .collect()
+}
+
+async fn read_120_in_pages_of_50(url: String) {
+    let svc = open_service(&url).await;
+    let base = table("Base");
+    let mut stored = std::collections::BTreeSet::new();
+    for i in 0..120 {
+        stored.insert(import_id(&svc.app, &dated(&base, &format!("Strip {i}"), i % 7)).await);
+    }
+    let pages = pages(&svc.app, "/api/v1/calibrations?limit=50").await;
+    let sizes: Vec<usize> = pages.iter().map(|p| ids(p).len()).collect();
+    assert_eq!(sizes, [50, 50, 20]);
+    assert!(pages.iter().all(|p| p["total"] == 120));
+    assert!(
+        pages[2].get("next").is_none(),
+        "the last page has no next link"
+    );
+    let read: Vec<String> = pages.iter().flat_map(ids).collect();
+    let unique: std::collections::BTreeSet<String> = read.iter().cloned().collect();
+    assert_eq!(read.len(), unique.len(), "no id is read twice");
+    assert_eq!(unique, stored, "every stored id is read");
+    let default = get(&svc.app, "/api/v1/calibrations").await.json();
+    assert_eq!(
+        ids(&default).len(),
+        50,
+        "a page holds 50 unless limit says otherwise"
+    );
+    svc.storage.close().await;
+}
+
+#[tokio::test]
+async fn a_hundred_and_twenty_calibrations_read_in_pages_of_fifty_come_in_three_pages_each_once() {
+    common::on_every_empty_database(|url, _| read_120_in_pages_of_50(url)).await;
+}
+
+async fn insert_between_pages(url: String) {
+    let svc = open_service(&url).await;
+    let base = table("Base");
+    let mut old = std::collections::BTreeSet::new();
+    for i in 0..12 {
+        old.insert(import_id(&svc.app, &dated(&base, &format!("Old {i}"), 10 * i)).await);
+    }
+    let first = get(&svc.app, "/api/v1/calibrations?limit=5").await.json();
+    // One newer than every row read so far, one among the rows still to come.
+    let newest = import_id(&svc.app, &dated(&base, "Newest", 1000)).await;
+    let middle = import_id(&svc.app, &dated(&base, "Middle", 25)).await;
+    let next = first["next"].as_str().unwrap();
+    let rest = pages(&svc.app, next).await;
+    let read: Vec<String> = std::iter::once(&first).chain(&rest).flat_map(ids).collect();
+    for id in &old {
+        assert_eq!(
+            read.iter().filter(|r| *r == id).count(),
+            1,
+            "{id} read once"
+        );
+    }
+    assert_eq!(read.iter().filter(|r| **r == middle).count(), 1);
+    assert!(
+        !read.contains(&newest),
+        "a row newer than the cursor belongs to the first page"
+    );
+    assert_eq!(rest.last().unwrap()["total"], 14);
+    svc.storage.close().await;
+}
+
+#[tokio::test]
+async fn a_calibration_stored_between_page_reads_neither_repeats_nor_skips_an_older_row() {
+    common::on_every_empty_database(|url, _| insert_between_pages(url)).await;
+}
+
+async fn filter_and_page(url: String) {
+    let svc = open_service(&url).await;
+    let base = table("Base");
+    let mut brackets = std::collections::BTreeSet::new();
+    for i in 0..9 {
+        brackets.insert(import_id(&svc.app, &dated(&base, &format!("Bracket {i}"), i)).await);
+        import_id(&svc.app, &dated(&base, &format!("Hook {i}"), i)).await;
+    }
+    let archived = brackets.iter().next().unwrap().clone();
+    let archive = post(
+        &svc.app,
+        &format!("/api/v1/calibrations/{archived}/archive"),
+        "application/json",
+        vec![],
+    )
+    .await;
+    assert_eq!(archive.status, StatusCode::OK);
+
+    let visible = pages(&svc.app, "/api/v1/calibrations?q=BRACKET&limit=4").await;
+    assert_eq!(visible.len(), 2);
+    assert!(visible.iter().all(|p| p["total"] == 8));
+    let read: std::collections::BTreeSet<String> = visible.iter().flat_map(ids).collect();
+    assert_eq!(read.len(), 8);
+    assert!(read.is_subset(&brackets) && !read.contains(&archived));
+    assert!(visible[0]["next"].as_str().unwrap().contains("q=BRACKET"));
+
+    let all = pages(
+        &svc.app,
+        "/api/v1/calibrations?q=bracket&include_archived=true&limit=4",
+    )
+    .await;
+    assert_eq!(all.len(), 3);
+    assert!(all.iter().all(|p| p["total"] == 9));
+    let read: std::collections::BTreeSet<String> = all.iter().flat_map(ids).collect();
+    assert_eq!(read, brackets);
+
+    // The cursor of the bracket search, sent with another search.
+    let next = visible[0]["next"].as_str().unwrap();
+    let cursor = next
+        .split("cursor=")
+        .nth(1)
+        .unwrap()
+        .split('&')
+        .next()
+        .unwrap();
+    let reply = get(
+        &svc.app,
+        &format!("/api/v1/calibrations?q=hook&cursor={cursor}"),
+    )
+    .await;
+    assert_eq!(reply.status, StatusCode::BAD_REQUEST);
+    assert_eq!(reply.error_code(), "invalid_cursor");
+    assert!(
+        reply.error_message().contains("cursor") && reply.error_message().contains("another query")
+    );
+    svc.storage.close().await;
+}
+
+#[tokio::test]
+async fn a_search_pages_through_its_own_matches_and_counts_them_with_or_without_archived_ones() {
+    common::on_every_empty_database(|url, _| filter_and_page(url)).await;
+}
+
+#[tokio::test]
+async fn a_bad_limit_or_cursor_answers_400_naming_the_parameter() {
+    let svc = service().await;
+    for (query, field, code) in [
+        ("limit=0", "limit", "invalid_query"),
+        ("limit=501", "limit", "invalid_query"),
+        ("limit=many", "limit", "invalid_query"),
+        ("cursor=zz", "cursor", "invalid_cursor"),
+        ("cursor=6869", "cursor", "invalid_cursor"),
+    ] {
+        let reply = get(&svc.app, &format!("/api/v1/calibrations?{query}")).await;
+        assert_eq!(reply.status, StatusCode::BAD_REQUEST, "{query}");
+        assert_eq!(reply.error_code(), code, "{query}");
+        assert!(
+            reply.error_message().contains(field),
+            "{query}: {}",
+            reply.error_message()
+        );
+    }
+}
+
+/// Imports `t` as a correction of `old`; returns the reply.
+async fn correct(
+    app: &axum::Router,
+    old: &str,
+    t: &isotint_core::CalibrationTable,
+) -> common::Reply {
+    post(
+        app,
+        &format!("/api/v1/calibrations/import?supersedes={old}"),
+        "application/json",
+        t.to_json().into_bytes(),
+    )
+    .await
+}
+
+async fn chain_of_three(url: String) {
+    let svc = open_service(&url).await;
+    let first = import_id(&svc.app, &table("Strip, first")).await;
+    let second = correct(&svc.app, &first, &table("Strip, second"))
+        .await
+        .json()["id"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let third = correct(&svc.app, &second, &table("Strip, third"))
+        .await
+        .json()["id"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    for (old, by) in [(&first, &second), (&second, &third)] {
+        let reply = correct(&svc.app, old, &table(&format!("Rival of {old}"))).await;
+        assert_eq!(reply.status, StatusCode::CONFLICT);
+        let message = reply.error_message();
+        assert!(
+            message.contains(&format!("already superseded by {by}")),
+            "{message}"
+        );
+        assert!(
+            message.contains(&format!("correct the latest version, {third}")),
+            "{message}"
+        );
+        assert_eq!(reply.json()["error"]["latest"], third.as_str());
+    }
+    let fourth = correct(&svc.app, &third, &table("Strip, fourth")).await;
+    assert_eq!(
+        fourth.status,
+        StatusCode::CREATED,
+        "the latest version may be corrected"
+    );
+    assert_eq!(fourth.json()["supersedes"], third.as_str());
+    svc.storage.close().await;
+}
+
+#[tokio::test]
+async fn correcting_a_corrected_calibration_answers_409_naming_the_latest_of_a_chain_of_three() {
+    common::on_every_empty_database(|url, _| chain_of_three(url)).await;
+}

@@ -88,14 +88,17 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
         assert_eq!(a_now.superseded_by, Some(b.row.id));
 
         let twice = store(&storage, "Epoxy strip C", Some(a.row.id)).await;
-        assert!(matches!(twice, Err(StorageError::Conflict(_))), "{twice:?}");
+        assert!(
+            matches!(twice, Err(StorageError::Superseded { latest, .. }) if latest == b.row.id),
+            "{twice:?}"
+        );
         let unknown = store(&storage, "Epoxy strip D", Some(CalibrationId::random())).await;
         assert!(
             matches!(unknown, Err(StorageError::NotFound { .. })),
             "{unknown:?}"
         );
 
-        let all = calibrations::list(&storage, &ListFilter::default())
+        let all = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         assert_eq!(all.len(), 2, "failed inserts left no row");
@@ -106,6 +109,8 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
                 text: Some("STRIP b".into()),
                 include_archived: false,
             },
+            None,
+            500,
         )
         .await
         .unwrap();
@@ -119,6 +124,8 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
                 text: Some("%".into()),
                 include_archived: false,
             },
+            None,
+            500,
         )
         .await
         .unwrap();
@@ -128,7 +135,7 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
             .await
             .unwrap();
         assert!(archived.archived);
-        let visible = calibrations::list(&storage, &ListFilter::default())
+        let visible = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         assert_eq!(visible.len(), 1);
@@ -138,6 +145,8 @@ async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend
                 text: None,
                 include_archived: true,
             },
+            None,
+            500,
         )
         .await
         .unwrap();
@@ -170,7 +179,7 @@ async fn importing_the_calibration_sets_twice_stores_each_file_once_on_every_bac
         let second = import_dir(&storage, dir.path()).await.unwrap();
         assert_eq!(second.imported, 0);
         assert_eq!(second.already_known, 2);
-        let listed = calibrations::list(&storage, &ListFilter::default())
+        let listed = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         assert_eq!(listed.len(), 2);
@@ -203,7 +212,7 @@ async fn the_built_in_demo_set_is_stored_once_and_a_folder_adds_only_what_is_new
         let folder = import_dir(&storage, dir.path()).await.unwrap();
         assert_eq!((folder.imported, folder.already_known), (1, 1));
 
-        let listed = calibrations::list(&storage, &ListFilter::default())
+        let listed = calibrations::list(&storage, &ListFilter::default(), None, 500)
             .await
             .unwrap();
         let mut names: Vec<&str> = listed.iter().map(|r| r.metadata.name.as_str()).collect();
@@ -422,7 +431,7 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
             stored.unwrap();
             match rival {
                 Ok(()) => rivals_won += 1,
-                Err(StorageError::Conflict(_)) => {}
+                Err(StorageError::Conflict(_) | StorageError::Superseded { .. }) => {}
                 Err(other) => panic!("a rival correction failed with {other}"),
             }
         }
@@ -436,6 +445,8 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                 include_archived: true,
                 ..ListFilter::default()
             },
+            None,
+            500,
         )
         .await
         .unwrap();

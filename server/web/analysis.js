@@ -125,7 +125,7 @@ export class AnalysisPage {
     const select = $('an-calibration');
     const keep = this.wantedCalibration || select.value;
     try {
-      const { calibrations } = await api.calibrations();
+      const calibrations = await api.allCalibrations();
       const placeholder = new Option(calibrations.length ? 'Choose a calibration…' : 'No calibrations yet: make one first', '');
       select.replaceChildren(
         placeholder,

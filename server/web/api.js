@@ -81,9 +81,26 @@ export function postForm(url, form, onProgress) {
   });
 }
 
+// One page of calibrations ({calibrations, total, next}): the first page of a search, or the
+// page a previous page's `next` link names.
+function calibrationPage(q = '', includeArchived = false, next = null) {
+  return getJson(next || `/api/v1/calibrations?${new URLSearchParams({ q, include_archived: includeArchived })}`);
+}
+
+// Every calibration of a search, following `next` to the last page.
+async function allCalibrations(q = '', includeArchived = false) {
+  let page = await calibrationPage(q, includeArchived);
+  const calibrations = [...page.calibrations];
+  while (page.next) {
+    page = await calibrationPage(q, includeArchived, page.next);
+    calibrations.push(...page.calibrations);
+  }
+  return calibrations;
+}
+
 export const api = {
-  calibrations: (q = '', includeArchived = false) =>
-    getJson(`/api/v1/calibrations?${new URLSearchParams({ q, include_archived: includeArchived })}`),
+  calibrationPage,
+  allCalibrations,
   calibration: (id) => getJson(`/api/v1/calibrations/${encodeURIComponent(id)}`),
   exportUrl: (id) => `/api/v1/calibrations/${encodeURIComponent(id)}/export`,
   archive: (id) => postJson(`/api/v1/calibrations/${encodeURIComponent(id)}/archive`),

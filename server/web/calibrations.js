@@ -57,6 +57,7 @@ export class CalibrationsPage {
     });
     $('cal-archive').addEventListener('click', () => this.toggleArchived());
     $('cal-show-archived').addEventListener('change', () => this.refresh());
+    $('cal-more').addEventListener('click', () => this.more());
     document.addEventListener(CHANGED, () => this.refresh());
     this.form = new NewCalibrationForm();
   }
@@ -76,49 +77,71 @@ export class CalibrationsPage {
     if (target !== '' && target !== 'new') await this.detail(target);
   }
 
+  // Shows the first page of the search.
   async refresh() {
+    this.next = null;
+    this.shown = 0;
+    await this.load(true);
+  }
+
+  // Adds the next page of the search below the rows shown.
+  async more() {
+    if (this.next) await this.load(false);
+  }
+
+  async load(first) {
     const request = ++this.listRequest;
     const q = this.search.value.trim();
+    const more = $('cal-more');
+    more.disabled = true;
     this.listStatus.textContent = 'Loading…';
     try {
-      const { calibrations } = await api.calibrations(q, $('cal-show-archived').checked);
+      const page = await api.calibrationPage(q, $('cal-show-archived').checked, first ? null : this.next);
       if (request !== this.listRequest) return;
-      this.render(calibrations);
-      const n = calibrations.length;
+      this.render(page.calibrations, !first);
+      this.next = page.next || null;
+      this.shown += page.calibrations.length;
+      const n = page.total;
       this.listStatus.textContent =
-        n === 0 ? (q ? `No calibration matches “${q}”.` : 'No calibrations yet.') : `${n} calibration${n === 1 ? '' : 's'}`;
+        n === 0
+          ? q ? `No calibration matches “${q}”.` : 'No calibrations yet.'
+          : `${n} calibration${n === 1 ? '' : 's'}${this.next ? `, ${this.shown} shown` : ''}`;
+      more.hidden = !this.next;
     } catch (error) {
       if (request === this.listRequest) this.listStatus.textContent = error.message;
+    } finally {
+      if (request === this.listRequest) more.disabled = false;
     }
   }
 
-  render(calibrations) {
-    this.list.replaceChildren(
-      ...calibrations.map((c) => {
-        const li = document.createElement('li');
-        const a = document.createElement('a');
-        a.href = `#/calibrations/${encodeURIComponent(c.id)}`;
-        a.dataset.id = c.id;
-        const name = document.createElement('span');
-        name.className = 'cal-name';
-        name.textContent = c.name;
-        const sub = document.createElement('span');
-        sub.className = 'cal-sub';
-        sub.textContent = [c.material, c.light_source, `to N = ${fmt(c.max_order, 1)}`].filter(Boolean).join(' · ');
-        const comma = document.createElement('span');
-        comma.className = 'visually-hidden';
-        comma.textContent = ', ';
-        a.append(name, comma, sub);
-        if (c.archived) {
-          const badge = document.createElement('span');
-          badge.className = 'badge';
-          badge.textContent = 'archived';
-          a.append(comma.cloneNode(true), badge);
-        }
-        li.append(a);
-        return li;
-      }),
-    );
+  // Lists `calibrations`, after the rows shown when `append`.
+  render(calibrations, append = false) {
+    const items = calibrations.map((c) => {
+      const li = document.createElement('li');
+      const a = document.createElement('a');
+      a.href = `#/calibrations/${encodeURIComponent(c.id)}`;
+      a.dataset.id = c.id;
+      const name = document.createElement('span');
+      name.className = 'cal-name';
+      name.textContent = c.name;
+      const sub = document.createElement('span');
+      sub.className = 'cal-sub';
+      sub.textContent = [c.material, c.light_source, `to N = ${fmt(c.max_order, 1)}`].filter(Boolean).join(' · ');
+      const comma = document.createElement('span');
+      comma.className = 'visually-hidden';
+      comma.textContent = ', ';
+      a.append(name, comma, sub);
+      if (c.archived) {
+        const badge = document.createElement('span');
+        badge.className = 'badge';
+        badge.textContent = 'archived';
+        a.append(comma.cloneNode(true), badge);
+      }
+      li.append(a);
+      return li;
+    });
+    if (append) this.list.append(...items);
+    else this.list.replaceChildren(...items);
     this.markSelected();
   }
 

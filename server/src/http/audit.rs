@@ -9,19 +9,15 @@ use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
+use super::paging::{cursor_key, next_link, page_after, page_limit};
 use super::AppState;
-use crate::domain::{from_unix_ms, rfc3339, CalibrationId, Cursor};
+use crate::domain::{rfc3339, CalibrationId};
 use crate::storage::audit::{self, AuditEvent};
 
 /// Routes of this module.
 pub fn router() -> OpenApiRouter<AppState> {
     OpenApiRouter::new().routes(routes!(audit_trail))
 }
-
-/// Rows of a page unless `limit` says otherwise.
-const DEFAULT_LIMIT: i64 = 50;
-/// Most rows of a page.
-const MAX_LIMIT: i64 = 500;
 
 /// Query of the audit trail.
 #[derive(Debug, Deserialize, IntoParams)]
@@ -74,18 +70,6 @@ pub struct AuditPage {
     pub next: Option<String>,
 }
 
-/// The page size `limit` asks for; 400 naming it when out of range.
-pub fn page_limit(limit: Option<i64>) -> Result<i64, ApiError> {
-    match limit {
-        None => Ok(DEFAULT_LIMIT),
-        Some(n) if (1..=MAX_LIMIT).contains(&n) => Ok(n),
-        Some(n) => Err(ApiError::bad_request(
-            "invalid_query",
-            format!("limit must lie in 1–{MAX_LIMIT}, got {n}"),
-        )),
-    }
-}
-
 /// The changes of the library and of the tokens, newest first: who, what, which calibration,
 /// when and from which address.
 #[utoipa::path(get, path = "/api/v1/audit", tag = "audit", params(AuditQuery),
@@ -107,32 +91,17 @@ async fn audit_trail(
         })
         .transpose()?;
     let scope = calibration.map_or(String::new(), |c| format!("&calibration={c}"));
-    let after = query
-        .cursor
-        .as_deref()
-        .map(|text| Cursor::decode(text, &scope))
-        .transpose()
-        .map_err(|e| ApiError::bad_request("invalid_cursor", e.to_string()))?;
-    let after_key = after
-        .as_ref()
-        .map(|c| (from_unix_ms(c.at_ms), c.id.as_str()));
-    let mut events = audit::page(&state.storage, calibration, after_key, limit + 1).await?;
-    let next = if events.len() as i64 > limit {
-        events.truncate(limit as usize);
-        events.last().map(|last| {
-            let cursor = Cursor {
-                query: scope.clone(),
-                at_ms: crate::domain::unix_ms(last.at),
-                id: last.id.clone(),
-            };
-            format!(
-                "/api/v1/audit?limit={limit}&cursor={}{scope}",
-                cursor.encode()
-            )
-        })
-    } else {
-        None
-    };
+    let after = page_after(query.cursor.as_deref(), &scope)?;
+    let mut events = audit::page(
+        &state.storage,
+        calibration,
+        after.as_ref().map(cursor_key),
+        limit + 1,
+    )
+    .await?;
+    let next = next_link(&mut events, limit, "/api/v1/audit", &scope, |e| {
+        (e.at, e.id.clone())
+    });
     Ok(Json(AuditPage {
         events: events.into_iter().map(Into::into).collect(),
         next,

@@ -17,6 +17,7 @@ use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
+use super::paging::{cursor_key, next_link, page_after, page_limit};
 use super::AppState;
 use crate::access::Origin;
 use crate::domain::{beam_spec, check_metadata, check_text, rfc3339, CalibrationId};
@@ -95,11 +96,17 @@ impl From<CalibrationRow> for CalibrationSummary {
     }
 }
 
-/// List response.
+/// One page of the list.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct CalibrationList {
-    /// Matching calibrations, newest first.
+    /// Matching calibrations of this page, newest first (by the time the table was made, then
+    /// by id).
     pub calibrations: Vec<CalibrationSummary>,
+    /// How many calibrations match the query, over all pages.
+    pub total: i64,
+    /// Link to the next page; absent on the last.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub next: Option<String>,
 }
 
 /// A calibration with its table.
@@ -146,6 +153,11 @@ pub struct ListQuery {
     /// Include archived calibrations (default false).
     #[serde(default)]
     pub include_archived: bool,
+    /// Calibrations per page, 1–500 (default 50).
+    pub limit: Option<i64>,
+    /// The `cursor` of the previous page's `next` link; it belongs to that page's `q` and
+    /// `include_archived`.
+    pub cursor: Option<String>,
 }
 
 /// Query of the import.
@@ -252,7 +264,24 @@ impl BeamRequest {
     }
 }
 
-/// Lists calibrations, newest first; archived ones only on request.
+/// The list's parameters other than the page's, as its `next` link spells them (each after a
+/// `&`); a cursor belongs to them.
+fn list_scope(text: Option<&str>, include_archived: bool) -> String {
+    let mut pairs = form_urlencoded::Serializer::new(String::new());
+    if let Some(q) = text {
+        pairs.append_pair("q", q);
+    }
+    if include_archived {
+        pairs.append_pair("include_archived", "true");
+    }
+    match pairs.finish() {
+        pairs if pairs.is_empty() => pairs,
+        pairs => format!("&{pairs}"),
+    }
+}
+
+/// Lists calibrations, newest first, in pages (follow `next` until it is absent); archived ones
+/// only on request. `total` counts every match.
 #[utoipa::path(get, path = "/api/v1/calibrations", tag = "calibrations", params(ListQuery),
     responses((status = 200, body = CalibrationList), (status = 400, body = ErrorBody),
               (status = 503, body = ErrorBody)))]
@@ -268,13 +297,23 @@ async fn list_calibrations(
     if let Some(q) = &text {
         check_text("q", q, 200, false)?;
     }
+    let limit = page_limit(query.limit)?;
+    let scope = list_scope(text.as_deref(), query.include_archived);
+    let after = page_after(query.cursor.as_deref(), &scope)?;
     let filter = ListFilter {
         text,
         include_archived: query.include_archived,
     };
-    let rows = store::list(&state.storage, &filter).await?;
+    let after_key = after.as_ref().map(cursor_key);
+    let mut rows = store::list(&state.storage, &filter, after_key, limit + 1).await?;
+    let next = next_link(&mut rows, limit, "/api/v1/calibrations", &scope, |r| {
+        (r.created_at, r.id.to_string())
+    });
+    let total = store::count(&state.storage, &filter).await?;
     Ok(Json(CalibrationList {
         calibrations: rows.into_iter().map(Into::into).collect(),
+        total,
+        next,
     }))
 }
 
@@ -413,7 +452,7 @@ async fn create_calibration(
     let spec = request.into_spec()?;
     let photo = form.require("photo")?;
     if let Some(old) = supersedes {
-        store::get(&state.storage, old).await?;
+        store::correctable(&state.storage, old).await?;
     }
     let limits = state.config.decode_limits;
     let calibration = admission

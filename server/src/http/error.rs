@@ -18,6 +18,7 @@ use utoipa::ToSchema;
 
 use super::jobs::RETRY_AFTER_S;
 use super::metrics::DatabaseFailure;
+use crate::domain::CalibrationId;
 use crate::storage::StorageError;
 
 /// An API failure; converts into the JSON error response.
@@ -48,6 +49,14 @@ pub enum ApiError {
     BodyStalled,
     /// 409: the request contradicts stored state.
     Conflict(String),
+    /// 409 (`conflict`) with `latest`: a correction of a calibration that is corrected
+    /// already; the latest version of its chain is the one to correct.
+    Superseded {
+        /// What is wrong, naming the calibrations.
+        message: String,
+        /// The latest version of the chain of corrections.
+        latest: CalibrationId,
+    },
     /// 410: the resource existed but has expired.
     Gone(String),
     /// 413: the body or an image is too large.
@@ -89,6 +98,11 @@ pub struct ErrorDetail {
     pub code: String,
     /// Human-readable explanation naming the offending input.
     pub message: String,
+    /// With a correction of a calibration that is corrected already: the id of the latest
+    /// version of its chain of corrections, the one to correct instead.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    #[schema(value_type = Option<String>, format = Uuid)]
+    pub latest: Option<CalibrationId>,
 }
 
 impl ApiError {
@@ -128,7 +142,9 @@ impl ApiError {
                 "body_timeout",
                 "the request body stopped arriving before it was complete".to_string(),
             ),
-            ApiError::Conflict(m) => (StatusCode::CONFLICT, "conflict", m.clone()),
+            ApiError::Conflict(m) | ApiError::Superseded { message: m, .. } => {
+                (StatusCode::CONFLICT, "conflict", m.clone())
+            }
             ApiError::Gone(m) => (StatusCode::GONE, "expired", m.clone()),
             ApiError::TooLarge(m) => (StatusCode::PAYLOAD_TOO_LARGE, "too_large", m.clone()),
             ApiError::UnsupportedMediaType(m) => (
@@ -181,6 +197,10 @@ impl IntoResponse for ApiError {
             error: ErrorDetail {
                 code: code.to_string(),
                 message,
+                latest: match self {
+                    ApiError::Superseded { latest, .. } => Some(latest),
+                    _ => None,
+                },
             },
         };
         let mut response = (status, Json(body)).into_response();
@@ -224,6 +244,10 @@ impl From<StorageError> for ApiError {
         match e {
             StorageError::NotFound { .. } => ApiError::NotFound(e.to_string()),
             StorageError::Conflict(m) => ApiError::Conflict(m),
+            StorageError::Superseded { latest, .. } => ApiError::Superseded {
+                message: e.to_string(),
+                latest,
+            },
             failure => ApiError::Database(failure),
         }
     }

@@ -11,6 +11,7 @@ pub mod jobs;
 pub mod metrics;
 pub mod openapi;
 pub mod order_maps;
+pub mod paging;
 pub mod web;
 
 use std::sync::Arc;

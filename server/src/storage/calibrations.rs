@@ -65,9 +65,6 @@ pub struct ListFilter {
     pub include_archived: bool,
 }
 
-/// Largest number of rows [`list`] returns.
-pub const LIST_LIMIT: i64 = 500;
-
 const SUMMARY_COLUMNS: &str = "c.id, c.metadata_json, c.source_kind, c.order_step, \
      c.max_order, c.residual_de2000, c.created_at_ms, c.supersedes, c.archived, \
      (SELECT s.id FROM calibrations s WHERE s.supersedes = c.id) AS superseded_by";
@@ -128,16 +125,51 @@ async fn fetch_row<'c, E: Executor<'c, Database = Any>>(
     summary_from_row(&row)
 }
 
-async fn successor_of<'c, E: Executor<'c, Database = Any>>(
+/// The chain of corrections from `id`: `id`, the calibration that corrects it, the one that
+/// corrects that, and so on; empty when `id` is not stored.
+async fn correction_chain<'c, E: Executor<'c, Database = Any>>(
     executor: E,
     id: CalibrationId,
-) -> StorageResult<Option<String>> {
-    Ok(
-        sqlx::query_scalar("SELECT id FROM calibrations WHERE supersedes = $1")
-            .bind(id.to_string())
-            .fetch_optional(executor)
-            .await?,
+) -> StorageResult<Vec<CalibrationId>> {
+    let ids: Vec<String> = sqlx::query_scalar(
+        "WITH RECURSIVE chain (id, depth) AS ( \
+             SELECT id, 0 FROM calibrations WHERE id = $1 \
+             UNION ALL \
+             SELECT c.id, chain.depth + 1 FROM calibrations c JOIN chain ON c.supersedes = chain.id \
+         ) SELECT id FROM chain ORDER BY depth",
     )
+    .bind(id.to_string())
+    .fetch_all(executor)
+    .await?;
+    ids.iter()
+        .map(|t| {
+            t.parse()
+                .map_err(|e| StorageError::Corrupt(format!("id: {e}")))
+        })
+        .collect()
+}
+
+/// Checks that `id` may be corrected: it is stored and nothing corrects it yet. Otherwise
+/// [`StorageError::NotFound`], or [`StorageError::Superseded`] naming the latest version of its
+/// chain of corrections.
+async fn check_correctable<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    id: CalibrationId,
+) -> StorageResult<()> {
+    match correction_chain(executor, id).await?.as_slice() {
+        [] => Err(not_found(id)),
+        [_] => Ok(()),
+        [_, by, .., latest] | [_, by @ latest] => Err(StorageError::Superseded {
+            id,
+            by: *by,
+            latest: *latest,
+        }),
+    }
+}
+
+/// Checks, before any work, that a correction of `id` could be stored now (see [`insert`]).
+pub async fn correctable(storage: &Storage, id: CalibrationId) -> StorageResult<()> {
+    check_correctable(storage.pool(), id).await
 }
 
 async fn insert_row<'c, E: Executor<'c, Database = Any>>(
@@ -216,7 +248,7 @@ async fn record_import<'c, E: Executor<'c, Database = Any>>(
 /// Stores `table` whose file text is `table_json` (all or nothing, in one transaction); the text
 /// is kept byte for byte for export. If the same file is stored already, returns that row with
 /// `created: false`. `supersedes` must name an existing calibration that no other calibration
-/// corrects yet. `file` records an import from the calibration-sets directory in the same
+/// corrects yet; otherwise the error names the latest version of its chain of corrections. `file` records an import from the calibration-sets directory in the same
 /// transaction. A new row is written to the audit trail in the same transaction too, as
 /// `action` (create or import) of `origin`, or as a supersede when `supersedes` is given.
 pub async fn insert(
@@ -230,12 +262,7 @@ pub async fn insert(
     let content = sha256_hex(table_json.as_bytes());
     let mut tx = storage.writer().begin().await?;
     if let Some(old) = supersedes {
-        fetch_row(&mut *tx, old).await?;
-        if let Some(newer) = successor_of(&mut *tx, old).await? {
-            return Err(StorageError::Conflict(format!(
-                "calibration {old} is already superseded by {newer}"
-            )));
-        }
+        check_correctable(&mut *tx, old).await?;
     }
     let id = CalibrationId::random();
     let created = insert_row(&mut *tx, id, table, table_json, &content, supersedes)
@@ -321,24 +348,54 @@ fn like_pattern(text: &str) -> String {
     out
 }
 
-/// Calibrations matching `filter`, newest first, at most [`LIST_LIMIT`].
-pub async fn list(storage: &Storage, filter: &ListFilter) -> StorageResult<Vec<CalibrationRow>> {
-    let sql = format!(
-        "SELECT {SUMMARY_COLUMNS} FROM calibrations c \
-         WHERE (c.archived = 0 OR $1 = 1) \
-         AND ($2 = '' OR LOWER(c.name) LIKE $3 ESCAPE '\\' OR LOWER(c.material) LIKE $3 ESCAPE '\\' \
-              OR LOWER(c.light_source) LIKE $3 ESCAPE '\\' OR LOWER(c.camera) LIKE $3 ESCAPE '\\') \
-         ORDER BY c.created_at_ms DESC, c.id LIMIT $4"
-    );
+/// The condition of [`ListFilter`] on `calibrations c`: `$1` include archived (0 or 1), `$2` the
+/// search text, `$3` its LIKE pattern.
+const FILTER: &str = "(c.archived = 0 OR $1 = 1) \
+     AND ($2 = '' OR LOWER(c.name) LIKE $3 ESCAPE '\\' OR LOWER(c.material) LIKE $3 ESCAPE '\\' \
+          OR LOWER(c.light_source) LIKE $3 ESCAPE '\\' OR LOWER(c.camera) LIKE $3 ESCAPE '\\')";
+
+/// `sql` (whose condition starts with [`FILTER`]) with the filter's three parameters bound.
+fn bind_filter<'q>(
+    sql: &'q str,
+    filter: &ListFilter,
+) -> sqlx::query::Query<'q, Any, sqlx::any::AnyArguments<'q>> {
     let text = filter.text.clone().unwrap_or_default();
-    let rows = sqlx::query(&sql)
+    let pattern = like_pattern(&text);
+    sqlx::query(sql)
         .bind(i64::from(filter.include_archived))
-        .bind(text.clone())
-        .bind(like_pattern(&text))
-        .bind(LIST_LIMIT)
+        .bind(text)
+        .bind(pattern)
+}
+
+/// Up to `limit` calibrations matching `filter`, newest first by the time their table was made
+/// (ties by id); after the calibration at `after` (its time and id) when given. Paging on this
+/// order never repeats nor skips a row, whatever is stored between pages.
+pub async fn list(
+    storage: &Storage,
+    filter: &ListFilter,
+    after: Option<(OffsetDateTime, &str)>,
+    limit: i64,
+) -> StorageResult<Vec<CalibrationRow>> {
+    let (after_ms, after_id) = after.map_or((i64::MAX, ""), |(at, id)| (unix_ms(at), id));
+    let sql = format!(
+        "SELECT {SUMMARY_COLUMNS} FROM calibrations c WHERE {FILTER} \
+         AND (c.created_at_ms < $4 OR (c.created_at_ms = $4 AND c.id > $5)) \
+         ORDER BY c.created_at_ms DESC, c.id LIMIT $6"
+    );
+    let rows = bind_filter(&sql, filter)
+        .bind(after_ms)
+        .bind(after_id)
+        .bind(limit)
         .fetch_all(storage.pool())
         .await?;
     rows.iter().map(summary_from_row).collect()
+}
+
+/// How many calibrations match `filter`.
+pub async fn count(storage: &Storage, filter: &ListFilter) -> StorageResult<i64> {
+    let sql = format!("SELECT COUNT(*) AS n FROM calibrations c WHERE {FILTER}");
+    let row = bind_filter(&sql, filter).fetch_one(storage.pool()).await?;
+    Ok(row.try_get("n")?)
 }
 
 /// Archives (`true`) or restores (`false`) a calibration, with its audit row in the same

@@ -23,6 +23,8 @@ use sqlx::migrate::MigrateDatabase;
 use sqlx::{Any, AnyPool, Executor, Row};
 use thiserror::Error;
 
+use crate::domain::CalibrationId;
+
 /// The migrations in `migrations/`, embedded at build time.
 pub static MIGRATOR: sqlx::migrate::Migrator = sqlx::migrate!("./migrations");
 
@@ -69,6 +71,20 @@ pub enum StorageError {
     /// The write contradicts a stored row (e.g. a calibration corrected twice).
     #[error("{0}")]
     Conflict(String),
+    /// A correction of a calibration that is corrected already: corrections form a chain, and
+    /// only its latest version may be corrected.
+    #[error(
+        "calibration {id} is already superseded by {by}; correct the latest version, {latest}, \
+         instead"
+    )]
+    Superseded {
+        /// The calibration asked to be corrected.
+        id: CalibrationId,
+        /// The calibration that corrects it.
+        by: CalibrationId,
+        /// The latest version of its chain of corrections, the one to correct.
+        latest: CalibrationId,
+    },
     /// A stored value could not be read back (a bug or a hand-edited database).
     #[error("stored data is corrupt: {0}")]
     Corrupt(String),
@@ -94,7 +110,7 @@ impl StorageError {
     pub fn kind(&self) -> &'static str {
         match self {
             StorageError::NotFound { .. } => "not_found",
-            StorageError::Conflict(_) => "conflict",
+            StorageError::Conflict(_) | StorageError::Superseded { .. } => "conflict",
             StorageError::Corrupt(_) => "corrupt",
             StorageError::UnsupportedUrl => "configuration",
             StorageError::Busy(_) => "busy",
