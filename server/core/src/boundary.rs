@@ -270,10 +270,11 @@ impl Grid<'_> {
                 format!("needs at least two points, got {}", points.len()),
             ));
         }
-        if let Some((i, p)) = points.iter().enumerate().find(|(_, p)| {
-            !(p.x.is_finite() && p.y.is_finite() && (0.0..=w).contains(&p.x))
-                || !(0.0..=h).contains(&p.y)
-        }) {
+        if let Some((i, p)) = points
+            .iter()
+            .enumerate()
+            .find(|(_, p)| !((0.0..=w).contains(&p.x) && (0.0..=h).contains(&p.y)))
+        {
             return Err(CoreError::invalid(
                 "polyline",
                 format!(

@@ -946,28 +946,41 @@ mod tests {
         (winners, vec![label; w * h])
     }
 
+    /// A pass valued everywhere at `order` (row-major), residuals and margins 1.
+    fn valued_pass(order: Vec<f32>) -> Pass {
+        let n = order.len();
+        Pass {
+            order,
+            residual: vec![1.0; n],
+            margin: vec![1.0; n],
+            flags: vec![PixelFlags::default(); n],
+        }
+    }
+
+    /// Flags columns 0 and 1 of every row beyond range.
+    fn flag_first_two_columns_beyond(pass: &mut Pass, width: usize, height: usize) {
+        for y in 0..height {
+            for x in 0..2 {
+                pass.flags[y * width + x].0 = PixelFlags::BEYOND_RANGE;
+            }
+        }
+    }
+
     /// 14 × 4 pixels: columns 0–1 beyond range, columns 2–7 a plateau at `plateau`, columns
     /// 8–13 a ramp down from it, 0.15 fringe per pixel; pixel (8, 0) is near the top and
     /// confirms the beyond-range region.
     fn plateau_pass(plateau: f32) -> Pass {
         let (width, height) = (14, 4);
         let n = width * height;
-        let mut pass = Pass {
-            order: (0..n)
+        let mut pass = valued_pass(
+            (0..n)
                 .map(|p| match p % width {
                     x if x < 8 => plateau,
                     x => plateau - 0.15 * (x - 7) as f32,
                 })
                 .collect(),
-            residual: vec![1.0; n],
-            margin: vec![1.0; n],
-            flags: vec![PixelFlags::default(); n],
-        };
-        for y in 0..height {
-            for x in 0..2 {
-                pass.flags[y * width + x].0 = PixelFlags::BEYOND_RANGE;
-            }
-        }
+        );
+        flag_first_two_columns_beyond(&mut pass, width, height);
         pass.order[2] = 4.35;
         pass
     }
@@ -1036,19 +1049,12 @@ mod tests {
         let (width, height, top, gradient) = (12, 4, 4.4, 0.2);
         let pass_with = |lowest: f32| {
             let n = width * height;
-            let mut pass = Pass {
-                order: (0..n)
+            let mut pass = valued_pass(
+                (0..n)
                     .map(|p| lowest + 0.05 * (11 - p % width) as f32)
                     .collect(),
-                residual: vec![1.0; n],
-                margin: vec![1.0; n],
-                flags: vec![PixelFlags::default(); n],
-            };
-            for y in 0..height {
-                for x in 0..2 {
-                    pass.flags[y * width + x].0 = PixelFlags::BEYOND_RANGE;
-                }
-            }
+            );
+            flag_first_two_columns_beyond(&mut pass, width, height);
             pass
         };
         let beyond = |pass: &Pass| {
@@ -1077,12 +1083,7 @@ mod tests {
     fn ringed_core(gap: Option<u8>, opening: f32) -> (Pass, usize, usize) {
         let (width, height) = (9, 9);
         let n = width * height;
-        let mut pass = Pass {
-            order: vec![1.0; n],
-            residual: vec![1.0; n],
-            margin: vec![1.0; n],
-            flags: vec![PixelFlags::default(); n],
-        };
+        let mut pass = valued_pass(vec![1.0; n]);
         for p in 0..n {
             let (x, y) = (p % width, p / width);
             if (2..=6).contains(&x)
