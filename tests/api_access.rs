@@ -140,30 +140,22 @@ async fn a_revoked_token_is_refused_at_once_by_every_replica_on_every_backend() 
         let first = service_in_token_mode(&url).await;
         let second = service_in_token_mode(&url).await;
         let reader = token(&first.storage, "lab-reader", Role::Reader).await;
-        for replica in [&first.app, &second.app] {
-            let reply = call(
-                replica,
-                Method::GET,
-                "/api/v1/calibrations",
-                Some(&reader),
-                "",
-            )
-            .await;
+        let list_on_every_replica = || async {
+            let mut replies = Vec::new();
+            for replica in [&first.app, &second.app] {
+                let path = "/api/v1/calibrations";
+                replies.push(call(replica, Method::GET, path, Some(&reader), "").await);
+            }
+            replies
+        };
+        for reply in list_on_every_replica().await {
             assert_eq!(reply.status, StatusCode::OK);
         }
         let name = "lab-reader".parse().unwrap();
         tokens::revoke(&first.storage, &name, &admin_at_the_console())
             .await
             .unwrap();
-        for replica in [&first.app, &second.app] {
-            let reply = call(
-                replica,
-                Method::GET,
-                "/api/v1/calibrations",
-                Some(&reader),
-                "",
-            )
-            .await;
+        for reply in list_on_every_replica().await {
             assert_eq!(reply.status, StatusCode::UNAUTHORIZED);
             assert_eq!(reply.error_code(), "unknown_token");
         }
