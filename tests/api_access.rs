@@ -394,3 +394,66 @@ async fn metrics_need_a_reader_token_in_token_mode() {
     let text = String::from_utf8(scraped.body).unwrap();
     assert!(text.contains("route=\"/metrics\",status=\"401\""), "{text}");
 }
+
+#[tokio::test]
+async fn the_session_names_the_token_its_role_and_the_operations_it_may_call() {
+    let svc = common::service_with(token_mode()).await;
+    let app = &svc.app;
+    let reader = token(&svc.storage, "bay-reader", Role::Reader).await;
+    let admin = token(&svc.storage, "bay-admin", Role::Admin).await;
+
+    let anonymous = call(app, Method::GET, "/api/v1/session", None, "").await;
+    assert_eq!(anonymous.status, StatusCode::UNAUTHORIZED);
+
+    let session = call(app, Method::GET, "/api/v1/session", Some(&reader), "").await;
+    assert_eq!(session.status, StatusCode::OK);
+    let v = session.json();
+    assert_eq!(v["mode"], "tokens");
+    assert_eq!(v["name"], "bay-reader");
+    assert_eq!(v["role"], "reader");
+    let allowed: Vec<&str> = v["allowed"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|a| a.as_str().unwrap())
+        .collect();
+    assert!(allowed.contains(&"GET /api/v1/calibrations/{id}"), "{v}");
+    assert!(allowed.contains(&"POST /api/v1/order-maps"), "{v}");
+    assert!(!allowed.contains(&"POST /api/v1/calibrations"), "{v}");
+    assert!(!allowed.contains(&"GET /api/v1/audit"), "{v}");
+
+    let v = call(app, Method::GET, "/api/v1/session", Some(&admin), "")
+        .await
+        .json();
+    assert_eq!(v["role"], "admin");
+    let archive = "POST /api/v1/calibrations/{id}/archive";
+    assert!(
+        v["allowed"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|a| a == archive),
+        "{v}"
+    );
+    svc.storage.close().await;
+}
+
+#[tokio::test]
+async fn in_open_mode_the_session_has_no_name_and_may_do_everything() {
+    let svc = common::service().await;
+    let v = call(&svc.app, Method::GET, "/api/v1/session", None, "")
+        .await
+        .json();
+    assert_eq!(v["mode"], "open");
+    assert_eq!(v["name"], serde_json::Value::Null);
+    assert_eq!(v["role"], "admin");
+    assert!(
+        v["allowed"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|a| a == "GET /api/v1/audit"),
+        "{v}"
+    );
+    svc.storage.close().await;
+}

@@ -1,22 +1,28 @@
 //! The browser workbench in a real headless browser: starts the service in-process on
-//! 127.0.0.1 with a fresh SQLite database, writes the demo photos with `isotint demo`, then runs
-//! `node tests/browser/workbench.mjs BASE_URL DEMO_DIR`, which drives Debian's Chromium through
-//! playwright-core (calibrate from the beam photo, estimate its edge order from the colours and
-//! see a refused estimate explained, analyse the disc photo, hover, profile, download the NPY
-//! map).
+//! 127.0.0.1 with a fresh SQLite database and runs a script of `tests/browser/`, which drives
+//! Debian's Chromium through playwright-core.
+//!
+//! - `workbench.mjs` (open mode, on photos written by `isotint demo`): calibrate from the beam
+//!   photo, estimate its edge order from the colours and see a refused estimate explained,
+//!   analyse the disc photo, hover, profile, download the NPY map.
+//! - `token_mode.mjs` (token mode): sign in with a token, see the name and role, the actions
+//!   hidden from a writer, 401 and 403 explained, the audit rows an admin sees.
 //!
 //! Needs /usr/bin/chromium, node and `tests/browser/node_modules` (see [`INSTALL`]). Without
-//! them the test fails when the environment variable `CI` is set and is skipped otherwise.
-//! `ISOTINT_WORKBENCH_DEMO=DIR` runs it on the photos in DIR (a `*beam*` and a `*disc*` photo)
-//! instead of fresh demo photos.
+//! them the tests fail when the environment variable `CI` is set and are skipped otherwise.
+//! `ISOTINT_WORKBENCH_DEMO=DIR` runs the workbench on the photos in DIR (a `*beam*` and a
+//! `*disc*` photo) instead of fresh demo photos.
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+use isotint::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
+use isotint::calibration_sets::import_built_in;
 use isotint::config::ServiceConfig;
 use isotint::http::{app, AppState};
-use isotint::storage::Storage;
+use isotint::storage::calibrations::{self, ListFilter};
+use isotint::storage::{tokens, Storage};
 
 const CHROMIUM: &str = "/usr/bin/chromium";
 const INSTALL: &str =
@@ -59,32 +65,45 @@ fn demo_photos(scratch: &Path) -> PathBuf {
     out
 }
 
-#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
-async fn workbench_works_in_a_headless_browser() {
-    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    let browser_dir = root.join("tests/browser");
+/// The browser scripts' directory, or `None` (after saying so) when this machine lacks what
+/// they need; under `CI` that is a failure.
+fn browser_dir_or_skip() -> Option<PathBuf> {
+    let browser_dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/browser");
     let missing = missing_tools(&browser_dir);
-    if !missing.is_empty() {
-        let what = missing.join(", ");
-        if std::env::var_os("CI").is_some() {
-            panic!("the browser test needs {what}; install with: {INSTALL}");
-        }
-        // Straight to stderr, past the test harness's capture, so that the skip is seen.
-        let _ = writeln!(
-            std::io::stderr(),
-            "skipped: the browser test needs {what}; install with: {INSTALL}"
-        );
-        return;
+    if missing.is_empty() {
+        return Some(browser_dir);
     }
+    let what = missing.join(", ");
+    if std::env::var_os("CI").is_some() {
+        panic!("the browser test needs {what}; install with: {INSTALL}");
+    }
+    // Straight to stderr, past the test harness's capture, so that the skip is seen.
+    let _ = writeln!(
+        std::io::stderr(),
+        "skipped: the browser test needs {what}; install with: {INSTALL}"
+    );
+    None
+}
 
-    let scratch = tempfile::tempdir().expect("temp dir");
-    let demo = demo_photos(scratch.path());
+/// A fresh SQLite database in `scratch`.
+async fn fresh_storage(scratch: &Path) -> Storage {
     let database = format!(
         "sqlite://{}?mode=rwc",
-        scratch.path().join("isotint.sqlite").display()
+        scratch.join("isotint.sqlite").display()
     );
-    let storage = Storage::connect(&database).await.expect("database");
-    let state = AppState::new(storage, ServiceConfig::default());
+    Storage::connect(&database).await.expect("database")
+}
+
+/// Serves `storage` with `config` on a free loopback port while `node SCRIPT BASE_URL ARGS…`
+/// runs in `browser_dir`; fails the test, with the script's steps, unless it succeeds.
+async fn run_script(
+    browser_dir: &Path,
+    script: &str,
+    storage: Storage,
+    config: ServiceConfig,
+    args: Vec<String>,
+) {
+    let state = AppState::new(storage, config);
     let listener = tokio::net::TcpListener::bind("127.0.0.1:0")
         .await
         .expect("listen");
@@ -94,14 +113,14 @@ async fn workbench_works_in_a_headless_browser() {
         isotint::service::serve(listener, app(state), &config, std::future::pending()).await
     });
 
-    let script = browser_dir.join("workbench.mjs");
+    let script = browser_dir.join(script);
     let run = {
         let base_url = base_url.clone();
         tokio::task::spawn_blocking(move || {
             Command::new("node")
                 .arg(&script)
                 .arg(&base_url)
-                .arg(&demo)
+                .args(&args)
                 .current_dir(script.parent().expect("tests/browser"))
                 .output()
                 .expect("could not run node")
@@ -118,4 +137,51 @@ async fn workbench_works_in_a_headless_browser() {
         output.status.success(),
         "the workbench failed in the browser against {base_url} (see the steps above)"
     );
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn workbench_works_in_a_headless_browser() {
+    let Some(browser_dir) = browser_dir_or_skip() else {
+        return;
+    };
+    let scratch = tempfile::tempdir().expect("temp dir");
+    let demo = demo_photos(scratch.path());
+    let storage = fresh_storage(scratch.path()).await;
+    let args = vec![demo.display().to_string()];
+    let config = ServiceConfig::default();
+    run_script(&browser_dir, "workbench.mjs", storage, config, args).await;
+}
+
+/// Makes a token `name` with `role` on the database, as `isotint token create` does.
+async fn token(storage: &Storage, name: &str, role: Role) -> String {
+    let token = Token::generate().expect("random bytes");
+    let name: TokenName = name.parse().expect("token name");
+    let origin = Origin::local(Actor::CommandLine);
+    tokens::create(storage, &name, role, &token.sha256(), &origin)
+        .await
+        .expect("token stored");
+    token.reveal().to_string()
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn in_token_mode_the_workbench_asks_for_a_token_and_shows_the_role_it_signed_in_with() {
+    let Some(browser_dir) = browser_dir_or_skip() else {
+        return;
+    };
+    let scratch = tempfile::tempdir().expect("temp dir");
+    let storage = fresh_storage(scratch.path()).await;
+    import_built_in(&storage).await.expect("demo set imported");
+    let listed = calibrations::list(&storage, &ListFilter::default(), None, 1)
+        .await
+        .expect("calibrations listed");
+    let args = vec![
+        token(&storage, "lab-writer", Role::Writer).await,
+        token(&storage, "lab-admin", Role::Admin).await,
+        listed[0].id.to_string(),
+    ];
+    let config = ServiceConfig {
+        access: AccessMode::Tokens,
+        ..ServiceConfig::default()
+    };
+    run_script(&browser_dir, "token_mode.mjs", storage, config, args).await;
 }

@@ -6,6 +6,7 @@ use std::net::{IpAddr, SocketAddr};
 use std::str::FromStr;
 
 use isotint_core::{CoreError, CoreResult};
+use serde::{Deserialize, Serialize};
 
 use crate::domain::shorten;
 use crate::storage::calibrations::sha256_hex;
@@ -57,7 +58,8 @@ impl AccessMode {
 /// What a token may do. Each role may do everything the one before it may: a reader reads
 /// calibrations and makes and reads order maps, a writer also creates, corrects and imports
 /// calibrations, an admin also archives and restores them and reads the audit trail.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum Role {
     /// Reads calibrations, makes and reads order maps.
     Reader,
@@ -111,8 +113,23 @@ pub const MAX_TOKEN_NAME_CHARS: usize = 64;
 
 /// The name of a token: 1–64 ASCII letters, digits, `.`, `_` or `-` (so it never reads as one
 /// of the audit trail's other actors, which contain spaces).
-#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+#[derive(Debug, Clone, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(try_from = "String", into = "String")]
 pub struct TokenName(String);
+
+impl TryFrom<String> for TokenName {
+    type Error = CoreError;
+
+    fn try_from(text: String) -> CoreResult<TokenName> {
+        text.parse()
+    }
+}
+
+impl From<TokenName> for String {
+    fn from(name: TokenName) -> String {
+        name.0
+    }
+}
 
 impl TokenName {
     /// The name as text.

@@ -1,4 +1,5 @@
-//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`, `token`.
+//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`, `token`, `backup`,
+//! `restore`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -21,6 +22,7 @@ use isotint_core::{
 use time::OffsetDateTime;
 
 use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
+use crate::backup::Restored;
 use crate::config::ServiceConfig;
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
@@ -76,6 +78,34 @@ pub enum Command {
     /// service needed).
     #[command(subcommand)]
     Token(TokenCommand),
+    /// Write the whole library (calibrations with their ids, corrections and archived state,
+    /// the audit trail, the tokens' hashes) as files with a manifest of checksums.
+    Backup(BackupArgs),
+    /// Load a backup into an empty database, keeping its ids, in one transaction. Restoring
+    /// into a database that holds exactly that backup changes nothing.
+    Restore(RestoreArgs),
+}
+
+/// Options of `isotint backup`.
+#[derive(Debug, Args)]
+pub struct BackupArgs {
+    /// The database.
+    #[command(flatten)]
+    pub database: DatabaseArg,
+    /// Directory to write the backup into (new or empty).
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
+/// Options of `isotint restore`.
+#[derive(Debug, Args)]
+pub struct RestoreArgs {
+    /// The database (empty, or holding exactly this backup).
+    #[command(flatten)]
+    pub database: DatabaseArg,
+    /// Directory of the backup (as `isotint backup --out` wrote it).
+    #[arg(long)]
+    pub from: PathBuf,
 }
 
 /// The database a command works on.
@@ -542,6 +572,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Boundary(args) => boundary(&args),
         Command::Demo(args) => demo(&args),
         Command::Token(command) => runtime()?.block_on(token(command)),
+        Command::Backup(args) => runtime()?.block_on(backup(&args)),
+        Command::Restore(args) => runtime()?.block_on(restore(&args)),
     }
 }
 
@@ -606,6 +638,31 @@ async fn token(command: TokenCommand) -> anyhow::Result<()> {
                 })?;
             storage.close().await;
             println!("token {} revoked", args.name);
+        }
+    }
+    Ok(())
+}
+
+/// Runs `isotint backup`.
+async fn backup(args: &BackupArgs) -> anyhow::Result<()> {
+    let storage = open_database(&args.database).await?;
+    let written = crate::backup::write(&storage, &args.out).await;
+    storage.close().await;
+    println!("backup of {} written to {}", written?, args.out.display());
+    Ok(())
+}
+
+/// Runs `isotint restore`.
+async fn restore(args: &RestoreArgs) -> anyhow::Result<()> {
+    let storage = open_database(&args.database).await?;
+    let restored = crate::backup::restore(&storage, &args.from).await;
+    storage.close().await;
+    match restored? {
+        Restored::Written(summary) => {
+            println!("restored {summary} from {}", args.from.display())
+        }
+        Restored::AlreadyPresent(summary) => {
+            println!("the database holds this backup already ({summary}); nothing was changed")
         }
     }
     Ok(())

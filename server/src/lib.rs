@@ -4,6 +4,7 @@
 //! Pixel convention everywhere: x to the right, y down; pixel (x, y) covers [x, x+1) × [y, y+1).
 
 pub mod access;
+pub mod backup;
 pub mod calibration_sets;
 pub mod cli;
 pub mod config;

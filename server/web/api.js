@@ -11,25 +11,77 @@ export class ApiError extends Error {
 
 const UNREACHABLE = 'The isotint service could not be reached. Check that it is running, then try again.';
 
+// Sent (as a document event, detail: the ApiError) when the service answers 401: no token, or
+// one that is unknown or revoked. The page asks for a token again.
+export const SIGNED_OUT = 'isotint:signed-out';
+
+const TOKEN_KEY = 'isotint-token';
+
+// The signed-in caller: the token kept for this browser tab (sessionStorage, so it is gone when
+// the tab closes) and what GET /api/v1/session said about it ({mode, name, role, allowed}).
+export const session = {
+  who: null,
+  token() {
+    return sessionStorage.getItem(TOKEN_KEY);
+  },
+  signIn(token) {
+    sessionStorage.setItem(TOKEN_KEY, token);
+  },
+  signOut() {
+    sessionStorage.removeItem(TOKEN_KEY);
+    this.who = null;
+  },
+  // Whether the caller may call an operation, as the API spells it ("POST /api/v1/audit").
+  may(operation) {
+    return Boolean(this.who && this.who.allowed.includes(operation));
+  },
+};
+
+// The Authorization header of the session's token, if there is one.
+function authorization() {
+  const token = session.token();
+  return token ? { Authorization: `Bearer ${token}` } : {};
+}
+
+// Why the service answered 401, in words, by its error code.
+const SIGN_IN_REASONS = {
+  missing_token: 'This service asks for a token.',
+  invalid_token: 'That is not an isotint token (they start with isotint_ and 64 hex digits).',
+  unknown_token: 'The token is unknown here or has been revoked.',
+};
+
+// Rewrites a 401 or 403 answer in words a person can act on; tells the page about a 401.
+function explained(error) {
+  if (error.status === 401) {
+    error.message = `${SIGN_IN_REASONS[error.code] || 'The service asks for a token.'} Sign in with a token from your lab's admin.`;
+    document.dispatchEvent(new CustomEvent(SIGNED_OUT, { detail: error }));
+  } else if (error.status === 403) {
+    const who = session.who;
+    const as = who && who.name ? `You are signed in as ${who.name}, with the role ${who.role}, which` : 'Your token';
+    error.message = `${as} may not do this. Ask your lab's admin for a token with a higher role. (The service said: ${error.message})`;
+  }
+  return error;
+}
+
 // Builds an ApiError from a response body (text) and HTTP status: the service's
 // {"error":{"code","message"}} when present, otherwise a plain description of the status.
 function errorFrom(status, statusText, body) {
   try {
     const parsed = JSON.parse(body);
     if (parsed && parsed.error && typeof parsed.error.message === 'string') {
-      return new ApiError(parsed.error.message, parsed.error.code || 'error', status);
+      return explained(new ApiError(parsed.error.message, parsed.error.code || 'error', status));
     }
   } catch {
     // not JSON: fall through to the generic message
   }
   const what = statusText ? `${status} ${statusText}` : `status ${status}`;
-  return new ApiError(`The service answered ${what}.`, 'http', status);
+  return explained(new ApiError(`The service answered ${what}.`, 'http', status));
 }
 
-async function send(url, init) {
+async function send(url, init = {}) {
   let response;
   try {
-    response = await fetch(url, init);
+    response = await fetch(url, { ...init, headers: { ...init.headers, ...authorization() } });
   } catch {
     throw new ApiError(UNREACHABLE, 'network');
   }
@@ -60,6 +112,7 @@ export function postForm(url, form, onProgress) {
     const xhr = new XMLHttpRequest();
     xhr.open('POST', url);
     xhr.setRequestHeader('Accept', 'application/json');
+    for (const [name, value] of Object.entries(authorization())) xhr.setRequestHeader(name, value);
     xhr.upload.addEventListener('progress', (event) => {
       if (event.lengthComputable) onProgress(event.loaded / event.total);
     });
@@ -98,7 +151,33 @@ async function allCalibrations(q = '', includeArchived = false) {
   return calibrations;
 }
 
+// Follows a click on a download link of the API with the session's token: a plain link cannot
+// send one, so the file is fetched and handed to the browser as a blob. Without a token the
+// link works as it is.
+export async function downloadWithToken(event) {
+  const link = event.target.closest('a[download]');
+  if (!link || !session.token() || !link.getAttribute('href')?.startsWith('/api/')) return;
+  event.preventDefault();
+  try {
+    const url = URL.createObjectURL(new Blob([await getBytes(link.getAttribute('href'))]));
+    const save = document.createElement('a');
+    save.href = url;
+    save.download = link.download;
+    save.click();
+    setTimeout(() => URL.revokeObjectURL(url), 60_000);
+  } catch (error) {
+    window.alert(error.message);
+  }
+}
+
+// One page of a calibration's audit trail ({events, next}), newest first.
+function auditPage(calibration, next = null) {
+  return getJson(next || `/api/v1/audit?${new URLSearchParams({ calibration })}`);
+}
+
 export const api = {
+  session: () => getJson('/api/v1/session'),
+  auditPage,
   calibrationPage,
   allCalibrations,
   calibration: (id) => getJson(`/api/v1/calibrations/${encodeURIComponent(id)}`),

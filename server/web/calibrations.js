@@ -1,7 +1,7 @@
 // The Calibrations page: the lab's list with search, a detail view with the table's colour strip,
 // and a form that makes a new calibration from a beam photo.
 
-import { api } from './api.js';
+import { api, session } from './api.js';
 import { $, showError, fillDl, numberIn, requiredNumber, progress, when } from './dom.js';
 import { TableStrip, fmt } from './plot.js';
 import { labToRgb, css } from './colour.js';
@@ -58,6 +58,7 @@ export class CalibrationsPage {
     $('cal-archive').addEventListener('click', () => this.toggleArchived());
     $('cal-show-archived').addEventListener('change', () => this.refresh());
     $('cal-more').addEventListener('click', () => this.more());
+    $('cal-audit-more').addEventListener('click', () => this.audit(this.current?.id, this.auditNext));
     document.addEventListener(CHANGED, () => this.refresh());
     this.form = new NewCalibrationForm();
   }
@@ -171,12 +172,43 @@ export class CalibrationsPage {
       exportLink.download = `${c.name.replace(/[^\w.-]+/g, '_') || 'calibration'}.json`;
       $('cal-use').href = `#/analyse?calibration=${encodeURIComponent(c.id)}`;
       $('cal-use').hidden = c.archived; // the analysis page offers listed calibrations only
+      if (session.may('GET /api/v1/audit')) await this.audit(c.id);
     } catch (e) {
       $('cal-empty').hidden = true;
       $('cal-detail').hidden = false;
       $('cal-detail-name').textContent = 'Calibration not available';
       fillDl($('cal-detail-meta'), []);
       showError(error, e);
+    }
+  }
+
+  // Lists the audit rows of calibration `id`, newest first: the first page, or the page `next`
+  // names below the rows shown.
+  async audit(id, next = null) {
+    if (!id) return;
+    const tbody = $('cal-audit-rows').tBodies[0];
+    const status = $('cal-audit-status');
+    const more = $('cal-audit-more');
+    if (!next) tbody.replaceChildren();
+    status.textContent = 'Loading…';
+    try {
+      const page = await api.auditPage(id, next);
+      if (this.current?.id !== id) return;
+      for (const e of page.events) {
+        const tr = document.createElement('tr');
+        for (const value of [when(e.at), e.actor, e.action, e.detail, e.address || '']) {
+          const td = document.createElement('td');
+          td.textContent = value;
+          tr.append(td);
+        }
+        tbody.append(tr);
+      }
+      this.auditNext = page.next || null;
+      more.hidden = !this.auditNext;
+      const n = tbody.rows.length;
+      status.textContent = n === 0 ? 'No changes recorded.' : `${n} change${n === 1 ? '' : 's'}${this.auditNext ? ' shown; older ones follow' : ''}, newest first.`;
+    } catch (e) {
+      status.textContent = e.message;
     }
   }
 

@@ -3,7 +3,8 @@
 //! every request in.
 //!
 //! The middleware also records who is asking ([`Origin`]: the token's name or open mode, and
-//! the client's address) for the handlers that write the audit trail.
+//! the client's address) for the handlers that write the audit trail, and the caller's [`Role`]
+//! (an admin's in open mode) for `GET /api/v1/session`.
 //!
 //! The token is looked up in the database on every request (no cache), so a token revoked
 //! through any replica or the command line is refused by every replica from the next request.
@@ -39,6 +40,7 @@ pub enum Access {
 /// operation missing here needs an admin (a test checks that none is missing).
 const POLICY: &[(Method, &str, Access)] = &[
     (Method::GET, "/api/v1/health", Access::Anyone),
+    (Method::GET, "/api/v1/session", READER),
     (Method::GET, super::metrics::ROUTE, READER),
     (Method::GET, "/api/v1/calibrations", READER),
     (Method::GET, "/api/v1/calibrations/{id}", READER),
@@ -69,6 +71,18 @@ fn listed(method: &Method, route: &str) -> Option<Access> {
 /// Who may call an operation: its [`POLICY`] entry, an admin if it has none.
 pub fn access(method: &Method, route: &str) -> Access {
     listed(method, route).unwrap_or(ADMIN)
+}
+
+/// The operations `role` may call, as `METHOD /route`, in the order of [`POLICY`].
+pub fn allowed(role: Role) -> Vec<String> {
+    POLICY
+        .iter()
+        .filter(|(_, _, access)| match access {
+            Access::Anyone => true,
+            Access::AtLeast(needed) => role >= *needed,
+        })
+        .map(|(method, route, _)| format!("{method} {route}"))
+        .collect()
 }
 
 /// Name of the security scheme in the OpenAPI document.
@@ -178,6 +192,8 @@ pub async fn authorize(
             address,
         };
         request.extensions_mut().insert(origin);
+        // Open mode opens every operation: the caller may do what an admin may.
+        request.extensions_mut().insert(Role::Admin);
         return Ok(next.run(request).await);
     }
     let route = request.extensions().get::<MatchedPath>().map_or_else(
@@ -210,6 +226,7 @@ pub async fn authorize(
         address,
     };
     request.extensions_mut().insert(origin);
+    request.extensions_mut().insert(found.role);
     Ok(next.run(request).await)
 }
 
@@ -242,6 +259,18 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn a_reader_may_read_and_map_but_not_write_and_an_admin_may_call_everything() {
+        let reader = allowed(Role::Reader);
+        assert!(reader.contains(&"GET /api/v1/calibrations".to_string()));
+        assert!(reader.contains(&"POST /api/v1/order-maps".to_string()));
+        assert!(!reader.contains(&"POST /api/v1/calibrations".to_string()));
+        let writer = allowed(Role::Writer);
+        assert!(writer.contains(&"POST /api/v1/calibrations/import".to_string()));
+        assert!(!writer.contains(&"GET /api/v1/audit".to_string()));
+        assert_eq!(allowed(Role::Admin).len(), POLICY.len());
     }
 
     #[test]

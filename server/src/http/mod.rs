@@ -12,6 +12,7 @@ pub mod metrics;
 pub mod openapi;
 pub mod order_maps;
 pub mod paging;
+pub mod session;
 pub mod web;
 
 use std::sync::Arc;
@@ -64,6 +65,7 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
         .merge(calibrations::router())
         .merge(order_maps::router())
         .merge(audit::router())
+        .merge(session::router())
         .split_for_parts();
     auth::document(&mut doc);
     (router, doc)

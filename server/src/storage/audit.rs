@@ -2,11 +2,13 @@
 //! change's own transaction (so there is never a change without its row, nor a row without
 //! its change). Read newest first, in pages.
 
+use serde::{Deserialize, Serialize};
+use sqlx::any::AnyRow;
 use sqlx::{Any, Executor, Row};
 use time::OffsetDateTime;
 use uuid::Uuid;
 
-use super::{Storage, StorageError, StorageResult};
+use super::{Storage, StorageResult};
 use crate::access::Origin;
 use crate::domain::{from_unix_ms, unix_ms, CalibrationId};
 
@@ -44,12 +46,14 @@ impl AuditAction {
     }
 }
 
-/// One row of the audit trail.
-#[derive(Debug, Clone, PartialEq)]
+/// One row of the audit trail (also one line of a backup's `audit.jsonl`, `at` in RFC 3339).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct AuditEvent {
     /// Its id (the tie-break of its place in the trail).
     pub id: String,
-    /// When.
+    /// When (to the millisecond).
+    #[serde(with = "time::serde::rfc3339")]
     pub at: OffsetDateTime,
     /// Who: a token name, "open mode", "command line" or "service start".
     pub actor: String,
@@ -71,20 +75,54 @@ pub async fn record<'c, E: Executor<'c, Database = Any>>(
     calibration: Option<CalibrationId>,
     detail: &str,
 ) -> StorageResult<()> {
+    let event = AuditEvent {
+        id: Uuid::new_v4().to_string(),
+        at: OffsetDateTime::now_utc(),
+        actor: origin.actor.text().to_string(),
+        action: action.name().to_string(),
+        calibration_id: calibration.map(|c| c.to_string()),
+        detail: detail.to_string(),
+        address: origin.address.map(|a| a.to_string()),
+    };
+    insert(executor, &event).await
+}
+
+/// Writes `event` as it is (its id and time too): [`record`] for a new change, a restore for
+/// the rows of a backup.
+pub(super) async fn insert<'c, E: Executor<'c, Database = Any>>(
+    executor: E,
+    event: &AuditEvent,
+) -> StorageResult<()> {
     sqlx::query(
         "INSERT INTO audit_events (id, at_ms, actor, action, calibration_id, detail, address) \
          VALUES ($1, $2, $3, $4, $5, $6, $7)",
     )
-    .bind(Uuid::new_v4().to_string())
-    .bind(unix_ms(OffsetDateTime::now_utc()))
-    .bind(origin.actor.text())
-    .bind(action.name())
-    .bind(calibration.map(|c| c.to_string()))
-    .bind(detail)
-    .bind(origin.address.map(|a| a.to_string()))
+    .bind(&event.id)
+    .bind(unix_ms(event.at))
+    .bind(&event.actor)
+    .bind(&event.action)
+    .bind(event.calibration_id.as_deref())
+    .bind(&event.detail)
+    .bind(event.address.as_deref())
     .execute(executor)
     .await?;
     Ok(())
+}
+
+/// The columns an [`AuditEvent`] is read from.
+pub(super) const EVENT_COLUMNS: &str = "id, at_ms, actor, action, calibration_id, detail, address";
+
+/// An [`AuditEvent`] from a row of [`EVENT_COLUMNS`].
+pub(super) fn event_from_row(row: &AnyRow) -> StorageResult<AuditEvent> {
+    Ok(AuditEvent {
+        id: row.try_get("id")?,
+        at: from_unix_ms(row.try_get("at_ms")?),
+        actor: row.try_get("actor")?,
+        action: row.try_get("action")?,
+        calibration_id: row.try_get("calibration_id")?,
+        detail: row.try_get("detail")?,
+        address: row.try_get("address")?,
+    })
 }
 
 /// Up to `limit` events, newest first, of one calibration or of all; after the event at
@@ -96,30 +134,18 @@ pub async fn page(
     limit: i64,
 ) -> StorageResult<Vec<AuditEvent>> {
     let (after_ms, after_id) = after.map_or((i64::MAX, ""), |(at, id)| (unix_ms(at), id));
-    let rows = sqlx::query(
-        "SELECT id, at_ms, actor, action, calibration_id, detail, address FROM audit_events \
+    let sql = format!(
+        "SELECT {EVENT_COLUMNS} FROM audit_events \
          WHERE ($1 = '' OR calibration_id = $1) \
          AND (at_ms < $2 OR (at_ms = $2 AND id > $3)) \
-         ORDER BY at_ms DESC, id LIMIT $4",
-    )
-    .bind(calibration.map_or(String::new(), |c| c.to_string()))
-    .bind(after_ms)
-    .bind(after_id)
-    .bind(limit)
-    .fetch_all(storage.pool())
-    .await?;
-    rows.iter()
-        .map(|row| {
-            Ok(AuditEvent {
-                id: row.try_get("id")?,
-                at: from_unix_ms(row.try_get("at_ms")?),
-                actor: row.try_get("actor")?,
-                action: row.try_get("action")?,
-                calibration_id: row.try_get("calibration_id")?,
-                detail: row.try_get("detail")?,
-                address: row.try_get("address")?,
-            })
-        })
-        .collect::<Result<_, sqlx::Error>>()
-        .map_err(StorageError::from)
+         ORDER BY at_ms DESC, id LIMIT $4"
+    );
+    let rows = sqlx::query(&sql)
+        .bind(calibration.map_or(String::new(), |c| c.to_string()))
+        .bind(after_ms)
+        .bind(after_id)
+        .bind(limit)
+        .fetch_all(storage.pool())
+        .await?;
+    rows.iter().map(event_from_row).collect()
 }

@@ -81,7 +81,8 @@ fn source_kind(source: &TableSource) -> &'static str {
     }
 }
 
-fn parse_id(row: &AnyRow, column: &str) -> StorageResult<Option<CalibrationId>> {
+/// The calibration id in a nullable text column.
+pub(super) fn parse_id(row: &AnyRow, column: &str) -> StorageResult<Option<CalibrationId>> {
     let text: Option<String> = row.try_get(column)?;
     text.map(|t| {
         t.parse()
@@ -172,14 +173,31 @@ pub async fn correctable(storage: &Storage, id: CalibrationId) -> StorageResult<
     check_correctable(storage.pool(), id).await
 }
 
-async fn insert_row<'c, E: Executor<'c, Database = Any>>(
+/// A calibration row to write: a new one (stored now, listed) or one restored from a backup
+/// (with its own id, time of storing and archived state).
+pub(super) struct NewRow<'a> {
+    /// Its id.
+    pub id: CalibrationId,
+    /// The table, parsed.
+    pub table: &'a CalibrationTable,
+    /// The table file, byte for byte.
+    pub table_json: &'a str,
+    /// SHA-256 (hex) of `table_json`.
+    pub content_sha256: &'a str,
+    /// The calibration it corrects.
+    pub supersedes: Option<CalibrationId>,
+    /// When it was stored.
+    pub stored_at: OffsetDateTime,
+    /// Hidden from lists.
+    pub archived: bool,
+}
+
+/// Writes `row` unless a row with the same table file is stored; whether it wrote one.
+pub(super) async fn insert_row<'c, E: Executor<'c, Database = Any>>(
     executor: E,
-    id: CalibrationId,
-    table: &CalibrationTable,
-    table_json: &str,
-    content_sha256: &str,
-    supersedes: Option<CalibrationId>,
+    row: &NewRow<'_>,
 ) -> StorageResult<bool> {
+    let table = row.table;
     let residual = match &table.source {
         TableSource::BeamPhoto {
             residual_de2000, ..
@@ -192,24 +210,25 @@ async fn insert_row<'c, E: Executor<'c, Database = Any>>(
         "INSERT INTO calibrations (id, name, material, light_source, camera, metadata_json, \
          table_json, source_kind, order_step, max_order, residual_de2000, created_at_ms, \
          stored_at_ms, supersedes, archived, content_sha256) \
-         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, 0, $15) \
+         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16) \
          ON CONFLICT (content_sha256) DO NOTHING",
     )
-    .bind(id.to_string())
+    .bind(row.id.to_string())
     .bind(&table.metadata.name)
     .bind(&table.metadata.material)
     .bind(&table.metadata.light_source)
     .bind(&table.metadata.camera)
     .bind(metadata_json)
-    .bind(table_json)
+    .bind(row.table_json)
     .bind(source_kind(&table.source))
     .bind(table.order_step)
     .bind(table.max_order())
     .bind(residual)
     .bind(unix_ms(table.created_at))
-    .bind(unix_ms(OffsetDateTime::now_utc()))
-    .bind(supersedes.map(|s| s.to_string()))
-    .bind(content_sha256)
+    .bind(unix_ms(row.stored_at))
+    .bind(row.supersedes.map(|s| s.to_string()))
+    .bind(i64::from(row.archived))
+    .bind(row.content_sha256)
     .execute(executor)
     .await?;
     Ok(result.rows_affected() == 1)
@@ -227,10 +246,13 @@ async fn id_by_content<'c, E: Executor<'c, Database = Any>>(
         .map_err(|e| StorageError::Corrupt(format!("id: {e}")))
 }
 
-async fn record_import<'c, E: Executor<'c, Database = Any>>(
+/// Records that `file` was imported as calibration `id` at `imported_at` (nothing if that file
+/// was recorded before).
+pub(super) async fn record_import<'c, E: Executor<'c, Database = Any>>(
     executor: E,
     file: &ImportedFile<'_>,
     id: CalibrationId,
+    imported_at: OffsetDateTime,
 ) -> StorageResult<()> {
     sqlx::query(
         "INSERT INTO calibration_imports (file_sha256, file_name, calibration_id, imported_at_ms) \
@@ -239,7 +261,7 @@ async fn record_import<'c, E: Executor<'c, Database = Any>>(
     .bind(file.sha256)
     .bind(file.name)
     .bind(id.to_string())
-    .bind(unix_ms(OffsetDateTime::now_utc()))
+    .bind(unix_ms(imported_at))
     .execute(executor)
     .await?;
     Ok(())
@@ -265,21 +287,28 @@ pub async fn insert(
         check_correctable(&mut *tx, old).await?;
     }
     let id = CalibrationId::random();
-    let created = insert_row(&mut *tx, id, table, table_json, &content, supersedes)
-        .await
-        .map_err(|e| match e {
-            StorageError::Database(ref db) if is_unique_violation(db) => StorageError::Conflict(
-                "the calibration named in supersedes was superseded meanwhile".into(),
-            ),
-            other => other,
-        })?;
+    let new_row = NewRow {
+        id,
+        table,
+        table_json,
+        content_sha256: &content,
+        supersedes,
+        stored_at: OffsetDateTime::now_utc(),
+        archived: false,
+    };
+    let created = insert_row(&mut *tx, &new_row).await.map_err(|e| match e {
+        StorageError::Database(ref db) if is_unique_violation(db) => StorageError::Conflict(
+            "the calibration named in supersedes was superseded meanwhile".into(),
+        ),
+        other => other,
+    })?;
     let stored_id = if created {
         id
     } else {
         id_by_content(&mut *tx, &content).await?
     };
     if let Some(file) = &file {
-        record_import(&mut *tx, file, stored_id).await?;
+        record_import(&mut *tx, file, stored_id, OffsetDateTime::now_utc()).await?;
     }
     if created {
         let (action, detail) = match supersedes {

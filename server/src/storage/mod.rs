@@ -12,6 +12,7 @@
 //! the common pool.
 
 pub mod audit;
+pub mod backup;
 pub mod calibrations;
 pub mod order_maps;
 pub mod tokens;

@@ -27,7 +27,8 @@ pub struct ActiveToken {
     pub last_used_at: Option<OffsetDateTime>,
 }
 
-fn parsed<T: std::str::FromStr>(row: &AnyRow, column: &str) -> StorageResult<T>
+/// A text column parsed into `T` (a token's name or role).
+pub(super) fn parsed<T: std::str::FromStr>(row: &AnyRow, column: &str) -> StorageResult<T>
 where
     T::Err: std::fmt::Display,
 {
