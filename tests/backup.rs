@@ -115,33 +115,30 @@ async fn library(storage: &Storage) -> Library {
     }
 }
 
+/// Imports a rendered table named `name` (a correction of `supersedes` if given); its id.
+async fn store(storage: &Storage, name: &str, supersedes: Option<CalibrationId>) -> CalibrationId {
+    let table = common::table(name);
+    let origin = by_hand();
+    let stored = calibrations::insert(
+        storage,
+        &table,
+        &table.to_json(),
+        supersedes,
+        None,
+        (&origin, AuditAction::Import),
+    )
+    .await
+    .unwrap();
+    stored.row.id
+}
+
 /// Fills `storage` with a small library: the built-in demo set, a table and its correction (the
 /// first one archived), a token in use and a revoked one. Returns the live token.
 async fn fill(storage: &Storage) -> Token {
     import_built_in(storage).await.unwrap();
-    let first = common::table("BT-7 strip, first pour");
-    let a = calibrations::insert(
-        storage,
-        &first,
-        &first.to_json(),
-        None,
-        None,
-        (&by_hand(), AuditAction::Import),
-    )
-    .await
-    .unwrap();
-    let second = common::table("BT-7 strip, second pour");
-    calibrations::insert(
-        storage,
-        &second,
-        &second.to_json(),
-        Some(a.row.id),
-        None,
-        (&by_hand(), AuditAction::Import),
-    )
-    .await
-    .unwrap();
-    calibrations::set_archived(storage, a.row.id, true, &by_hand())
+    let first = store(storage, "BT-7 strip, first pour", None).await;
+    store(storage, "BT-7 strip, second pour", Some(first)).await;
+    calibrations::set_archived(storage, first, true, &by_hand())
         .await
         .unwrap();
     let live = Token::generate().unwrap();
@@ -272,17 +269,7 @@ async fn a_database_holding_anything_else_is_refused_naming_the_difference_and_l
         |Case {
              way, to, backup, ..
          }| async move {
-            let other = common::table("Birchfield bay offcut");
-            calibrations::insert(
-                &to,
-                &other,
-                &other.to_json(),
-                None,
-                None,
-                (&by_hand(), AuditAction::Import),
-            )
-            .await
-            .unwrap();
+            store(&to, "Birchfield bay offcut", None).await;
             let before = library(&to).await;
             let err = format!("{:#}", backup::restore(&to, &backup).await.unwrap_err());
             assert!(

@@ -63,6 +63,32 @@ async fn store(
 }
 
 #[tokio::test]
+async fn a_table_without_a_residual_then_one_with_a_residual_are_stored_on_every_backend() {
+    // On PostgreSQL both inserts go through the one connection the idle pool hands out, whose
+    // prepared insert must take a residual after a missing one.
+    on_every_backend(|storage| async move {
+        let rendered = store(&storage, "Rendered strip, no residual", None)
+            .await
+            .unwrap();
+        assert_eq!(rendered.row.residual_de2000, None);
+        let summary = import_built_in(&storage).await.unwrap();
+        assert_eq!(summary.imported, 1);
+        let beam = calibrations::list(&storage, &ListFilter::default(), None, 500)
+            .await
+            .unwrap()
+            .into_iter()
+            .find(|c| c.source_kind == "beam_photo")
+            .unwrap();
+        let residual = beam.residual_de2000.unwrap();
+        // source: the built-in set's own file, "residual_de2000" of its beam-photo source
+        let (_, bytes) = BUILT_IN[0];
+        let file: serde_json::Value = serde_json::from_slice(bytes).unwrap();
+        assert_eq!(Some(residual), file["source"]["residual_de2000"].as_f64());
+    })
+    .await;
+}
+
+#[tokio::test]
 async fn calibrations_are_stored_listed_superseded_and_archived_on_every_backend() {
     on_every_backend(|storage| async move {
         let first = common::table("Epoxy strip A");

@@ -206,11 +206,16 @@ pub(super) async fn insert_row<'c, E: Executor<'c, Database = Any>>(
     };
     let metadata_json = serde_json::to_string(&table.metadata)
         .map_err(|e| StorageError::Corrupt(format!("metadata: {e}")))?;
+    // The residual is bound as a number always, with $17 saying whether there is one: sqlx
+    // 0.8's Any driver binds `None::<f64>` as a PostgreSQL float4 NULL, which types the
+    // connection's prepared statement so that a later residual (float8) on that connection
+    // fails with "incorrect binary data format in bind parameter 11".
     let result = sqlx::query(
         "INSERT INTO calibrations (id, name, material, light_source, camera, metadata_json, \
          table_json, source_kind, order_step, max_order, residual_de2000, created_at_ms, \
          stored_at_ms, supersedes, archived, content_sha256) \
-         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16) \
+         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, CASE WHEN $17 = 1 THEN $11 END, $12, \
+         $13, $14, $15, $16) \
          ON CONFLICT (content_sha256) DO NOTHING",
     )
     .bind(row.id.to_string())
@@ -223,12 +228,13 @@ pub(super) async fn insert_row<'c, E: Executor<'c, Database = Any>>(
     .bind(source_kind(&table.source))
     .bind(table.order_step)
     .bind(table.max_order())
-    .bind(residual)
+    .bind(residual.unwrap_or(0.0))
     .bind(unix_ms(table.created_at))
     .bind(unix_ms(row.stored_at))
     .bind(row.supersedes.map(|s| s.to_string()))
     .bind(i64::from(row.archived))
     .bind(row.content_sha256)
+    .bind(i64::from(residual.is_some()))
     .execute(executor)
     .await?;
     Ok(result.rows_affected() == 1)
