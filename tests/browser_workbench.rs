@@ -6,7 +6,8 @@
 //!   photo, estimate its edge order from the colours and see a refused estimate explained,
 //!   analyse the disc photo, hover, profile, download the NPY map.
 //! - `token_mode.mjs` (token mode): sign in with a token, see the name and role, the actions
-//!   hidden from a writer, 401 and 403 explained, the audit rows an admin sees.
+//!   hidden from a writer, 401 and 403 explained, the audit rows an admin sees, a download
+//!   that carries the token.
 //!
 //! Needs /usr/bin/chromium, node and `tests/browser/node_modules` (see [`INSTALL`]). Without
 //! them the tests fail when the environment variable `CI` is set and are skipped otherwise.

@@ -2,13 +2,14 @@
 // page asks for a token, explains a refused one in words, signs in a writer and shows their
 // name and role, hides what a writer may not do (archive, the audit trail) and explains a 403
 // in words, keeps the token across a reload of the tab, and after signing in an admin shows
-// the calibration's audit rows and the archive button.
+// the calibration's audit rows and the archive button and downloads its file with the token.
 //
 // Usage: node token_mode.mjs BASE_URL WRITER_TOKEN ADMIN_TOKEN CALIBRATION_ID
 // The tokens are named lab-writer and lab-admin; the calibration was imported into the
 // library (so its audit trail has an import row).
 // Exits 0 when every step passed; prints one line per step and a closing "N passed, N failed".
 
+import fs from 'node:fs';
 import { STEP_TIMEOUT, check, run, shot, step } from './harness.mjs';
 
 const [baseUrl, writerToken, adminToken, calibrationId] = process.argv.slice(2);
@@ -31,7 +32,7 @@ async function whoText(page) {
 
 async function main(browser) {
   const problems = [];
-  const context = await browser.newContext({ viewport: { width: 1366, height: 768 } });
+  const context = await browser.newContext({ viewport: { width: 1366, height: 768 }, acceptDownloads: true });
   const page = await context.newPage();
   page.setDefaultTimeout(STEP_TIMEOUT);
   page.on('pageerror', (e) => problems.push(`page error: ${e.message}`));
@@ -99,6 +100,15 @@ async function main(browser) {
     check(await page.locator('#cal-archive').isVisible(), 'an admin is not offered the archive button');
     check(await whoText(page) === 'Signed in as lab-admin · role admin', `who: ${await whoText(page)}`);
     await shot(page, 'token-mode-admin');
+  });
+
+  await step('the calibration file downloads with the token (a plain link could not send it)', async () => {
+    const [download] = await Promise.all([
+      page.waitForEvent('download'),
+      page.getByRole('link', { name: 'Download calibration file' }).click(),
+    ]);
+    const table = JSON.parse(fs.readFileSync(await download.path(), 'utf8'));
+    check(table.format === 'isotint-calibration', `the download is not a calibration file: ${JSON.stringify(table).slice(0, 80)}`);
   });
 
   await step('the page raised no script errors', async () => {
