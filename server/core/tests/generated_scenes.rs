@@ -135,9 +135,9 @@ fn forty_drawn_scenes_hold_the_targets_met_and_miss_no_more_than_measured() {
     // source: common practice, no source (in a dark field N = 0 is black).
     assert_eq!(counts[4], 0, "zero-order regions");
     // Still missed by some scenes (issue 15 stays open for them); measured counts:
-    // MAE 6, jumps 6, coverage 6, false beyond 9, past table 1. A change that makes any of
-    // them worse fails here.
-    let ceilings = [6, 6, 6, 9, 0, 1];
+    // MAE 6, jumps 6, coverage 6, false beyond 3 (past the table: none of the forty, but
+    // 36 of the 300 held-out scenes). A change that makes any of them worse fails here.
+    let ceilings = [6, 6, 6, 3, 0, 0];
     for ((name, _), (count, ceiling)) in TARGETS.iter().zip(counts.iter().zip(ceilings)) {
         assert!(
             *count <= ceiling,

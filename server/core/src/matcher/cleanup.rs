@@ -330,6 +330,130 @@ pub(super) fn flag_edge_band_near_beyond_range(
     }
 }
 
+/// *Beyond range* says a pixel's order lies past the table's top. Through the material a
+/// field no steeper than the maximum gradient (the steepest the solver resolves) climbs from a
+/// valued pixel q to at most N_q + gradient · d at a distance of d pixels, so the highest order
+/// a pixel can have at resolvable slopes is the least such bound over the valued pixels. Where
+/// that bound stays below the top, the pixel lies in a field steeper than the solver resolves —
+/// its colour is the washed-out mean of fringes packed within the pixel, which looks like
+/// orders past the table but says nothing of its own order — and it is flagged *unreliable*
+/// instead (`flag_unreachable_beyond_as_steep`). No pixel gains a value.
+///
+/// The bound is computed on the labelling's working resolution (blocks of `stride` × `stride`
+/// photo pixels, ≤ 1 megapixel) and propagated through specimen blocks only (the field is
+/// continuous through the material, not across holes), with chamfer steps of 1 and √2 blocks
+/// in two raster passes; both only ever overestimate a distance (paths winding around
+/// holes), which keeps *beyond range*: the cautious side.
+pub(super) struct ClimbBound {
+    /// Highest reachable order per block, fringes: infinite where no valued block reaches,
+    /// −∞ outside the specimen (no bound to keep there).
+    bound: Vec<f32>,
+    width: usize,
+    height: usize,
+    stride: usize,
+}
+
+impl ClimbBound {
+    /// The bound over `pass` (`width` × `height` blocks, `gradient` fringes per block); `None`
+    /// when no block is beyond range.
+    pub(super) fn of(
+        pass: &Pass,
+        gradient: f32,
+        width: usize,
+        height: usize,
+        stride: usize,
+    ) -> Option<ClimbBound> {
+        let flags = &pass.flags;
+        if !flags.iter().any(|f| f.has(PixelFlags::BEYOND_RANGE)) {
+            return None;
+        }
+        let inside = |p: usize| !flags[p].has(PixelFlags::OUTSIDE_MASK);
+        let mut bound: Vec<f32> = pass
+            .order
+            .iter()
+            .zip(flags)
+            .map(|(o, f)| {
+                if f.0 == 0 && o.is_finite() {
+                    *o
+                } else {
+                    f32::INFINITY
+                }
+            })
+            .collect();
+        let diagonal = gradient * std::f32::consts::SQRT_2;
+        // Each block takes the bound of a neighbour already visited plus the climb to it:
+        // (dx, dy, climb) for the forward raster order; the backward pass mirrors them.
+        let earlier = [
+            (-1i64, 0i64, gradient),
+            (-1, -1, diagonal),
+            (0, -1, gradient),
+            (1, -1, diagonal),
+        ];
+        let mut relax = |x: usize, y: usize, sign: i64| {
+            let p = y * width + x;
+            if !inside(p) {
+                return;
+            }
+            for &(dx, dy, climb) in &earlier {
+                let (nx, ny) = (x as i64 + sign * dx, y as i64 + sign * dy);
+                if nx < 0 || ny < 0 || nx >= width as i64 || ny >= height as i64 {
+                    continue;
+                }
+                let q = ny as usize * width + nx as usize;
+                if inside(q) && bound[q] + climb < bound[p] {
+                    bound[p] = bound[q] + climb;
+                }
+            }
+        };
+        for y in 0..height {
+            for x in 0..width {
+                relax(x, y, 1);
+            }
+        }
+        for y in (0..height).rev() {
+            for x in (0..width).rev() {
+                relax(x, y, -1);
+            }
+        }
+        for (b, f) in bound.iter_mut().zip(flags) {
+            if f.has(PixelFlags::OUTSIDE_MASK) {
+                *b = f32::NEG_INFINITY;
+            }
+        }
+        Some(ClimbBound {
+            bound,
+            width,
+            height,
+            stride,
+        })
+    }
+
+    /// Flags *unreliable* instead of *beyond range* each pixel of `pass` (full resolution,
+    /// `width` pixels a row) whose blocks cannot reach `top`. On block means a pixel took its
+    /// flag from the blocks around it, so the highest bound of its own block and the eight
+    /// around it decides; at full resolution (stride 1) the pixel's own bound.
+    pub(super) fn flag_unreachable_beyond_as_steep(&self, pass: &mut Pass, top: f32, width: usize) {
+        let around = usize::from(self.stride > 1);
+        pass.flags
+            .par_iter_mut()
+            .enumerate()
+            .filter(|(_, f)| f.has(PixelFlags::BEYOND_RANGE))
+            .for_each(|(p, f)| {
+                let (bx, by) = ((p % width) / self.stride, (p / width) / self.stride);
+                let reachable = (by.saturating_sub(around)..=(by + around).min(self.height - 1))
+                    .flat_map(|y| {
+                        (bx.saturating_sub(around)..=(bx + around).min(self.width - 1))
+                            .map(move |x| y * self.width + x)
+                    })
+                    .map(|b| self.bound[b])
+                    .fold(f32::NEG_INFINITY, f32::max);
+                if reachable < top {
+                    f.0 = (f.0 & !PixelFlags::BEYOND_RANGE) | PixelFlags::UNRELIABLE;
+                }
+            });
+    }
+}
+
 /// Half-width of the window the repairs fit planes of orders in, pixels.
 pub(super) const REPAIR_RADIUS: i64 = 2;
 
@@ -922,6 +1046,92 @@ pub(super) fn flag_plateaus_at_beyond_range(
     }
 }
 
+/// Orders climb towards a zone past the table. Where the colours past the table resemble the
+/// table's last fringe, the labelling folds back instead: the read orders rise to a ridge near
+/// the top and then fall and wander (a disc's contact read 4.22, 4.07, 4.18, 4.10 over 16
+/// pixels where the truth climbed from 4.4 to 6). So the valued pixels within
+/// [`NEAR_TABLE_TOP`] of the top `top` — where the map's caution already says values may be
+/// aliases — keep their value only where a path from the lower orders reaches them without
+/// ever falling more than [`FOLD_TOLERANCE`] below the highest order met on the way; those
+/// of a region touching *beyond range* that no such path reaches are flagged beyond range
+/// (the cautious reading). Regions of near-top pixels without lower orders beside them are
+/// left to [`flag_unanchored_high_regions`].
+pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize, height: usize) {
+    use std::cmp::Reverse;
+    use std::collections::BinaryHeap;
+    let near = top - NEAR_TABLE_TOP as f32;
+    let valued = |p: usize| pass.flags[p].0 == 0 && pass.order[p].is_finite();
+    let high = |p: usize| valued(p) && pass.order[p] >= near;
+    // Least running maximum (bits of a non-negative f32 order, which sort as the numbers do)
+    // with which each near-top pixel is reached from the lower orders.
+    let n = pass.order.len();
+    let mut reached = vec![u32::MAX; n];
+    let mut queue = BinaryHeap::new();
+    for p in (0..n).filter(|&p| high(p)) {
+        let below = neighbours4(p % width, p / width, width, height)
+            .any(|q| valued(q) && pass.order[q] < near);
+        if below {
+            let key = pass.order[p].max(0.0).to_bits();
+            reached[p] = key;
+            queue.push(Reverse((key, p)));
+        }
+    }
+    while let Some(Reverse((key, p))) = queue.pop() {
+        if key > reached[p] {
+            continue;
+        }
+        let running = f32::from_bits(key);
+        for q in neighbours4(p % width, p / width, width, height) {
+            let running = running - FOLD_DECAY;
+            if !high(q) || pass.order[q] < running - FOLD_TOLERANCE {
+                continue;
+            }
+            let next = running.max(pass.order[q]).max(0.0).to_bits();
+            if next < reached[q] {
+                reached[q] = next;
+                queue.push(Reverse((next, q)));
+            }
+        }
+    }
+    // Unreached near-top pixels, grouped into 4-connected regions; those touching beyond
+    // range and joined to a reached pixel (so lower orders lie beside the region) are folds.
+    let mut seen = vec![false; n];
+    let mut stack = Vec::new();
+    let mut folded = Vec::new();
+    for start in 0..n {
+        if seen[start] || !high(start) || reached[start] != u32::MAX {
+            continue;
+        }
+        seen[start] = true;
+        stack.push(start);
+        let (mut region, mut beyond, mut anchored) = (Vec::new(), false, false);
+        while let Some(p) = stack.pop() {
+            region.push(p);
+            for q in neighbours4(p % width, p / width, width, height) {
+                beyond |= pass.flags[q].has(PixelFlags::BEYOND_RANGE);
+                anchored |= high(q) && reached[q] != u32::MAX;
+                if !seen[q] && high(q) && reached[q] == u32::MAX {
+                    seen[q] = true;
+                    stack.push(q);
+                }
+            }
+        }
+        if beyond && anchored {
+            folded.extend(region);
+        }
+    }
+    for p in folded {
+        pass.flags[p].0 |= PixelFlags::BEYOND_RANGE;
+    }
+}
+
+/// See [`flag_folds_at_beyond_range`]: how far (fringes) read orders may fall below the
+/// highest order on a path from the lower orders, for noise.
+pub(super) const FOLD_TOLERANCE: f32 = 0.05;
+/// See [`flag_folds_at_beyond_range`]: how fast (fringes per pixel) the highest order met is
+/// forgotten, so that noise over a long flat stretch does not build up.
+pub(super) const FOLD_DECAY: f32 = 0.01;
+
 /// See [`flag_plateaus_at_beyond_range`], fringes.
 pub(super) const PLATEAU_BELOW_TOP: f32 = 0.3;
 /// See [`flag_plateaus_at_beyond_range`], fringes per pixel.
@@ -1173,6 +1383,162 @@ mod tests {
         low.order[2] = 3.3;
         flag_edge_band_near_beyond_range(&mut low, top, width, 1);
         assert!(low.flags[2].0 == 0 && low.flags[3].has(PixelFlags::BEYOND_RANGE));
+    }
+
+    #[test]
+    fn beyond_range_no_resolvable_climb_can_reach_becomes_unreliable() {
+        // One row: valued 2.0 at x = 0, beyond range at x = 1..=13. At 0.25 fringe per pixel
+        // the field reaches 2.0 + 0.25·x, the top 4.5 first at x = 10: x = 1..=9 are too close
+        // to a low order to lie past the table and become unreliable; x = 10..=13 stay beyond.
+        // source: common practice, no source (orders are continuous through the material).
+        let (width, top, gradient) = (14, 4.5, 0.25);
+        let row = || {
+            let mut pass = Pass::empty(width);
+            pass.order[0] = 2.0;
+            for f in &mut pass.flags[1..] {
+                f.0 = PixelFlags::BEYOND_RANGE;
+            }
+            pass
+        };
+        let steepen = |pass: &mut Pass| {
+            if let Some(climb) = ClimbBound::of(pass, gradient, width, 1, 1) {
+                climb.flag_unreachable_beyond_as_steep(pass, top, width);
+            }
+        };
+        let mut pass = row();
+        steepen(&mut pass);
+        let unreliable: Vec<usize> = (0..width)
+            .filter(|&p| pass.flags[p].0 == PixelFlags::UNRELIABLE)
+            .collect();
+        assert_eq!(unreliable, (1..=9).collect::<Vec<_>>());
+        assert!(pass.flags[10..]
+            .iter()
+            .all(|f| f.0 == PixelFlags::BEYOND_RANGE));
+        assert!(
+            pass.order[1..].iter().all(|o| o.is_nan()),
+            "no pixel gains a value"
+        );
+        // The field is continuous through the material only: across a pixel outside the mask
+        // nothing bounds the climb.
+        let mut cut = row();
+        cut.flags[1].0 = PixelFlags::OUTSIDE_MASK;
+        steepen(&mut cut);
+        assert!(cut.flags[2..]
+            .iter()
+            .all(|f| f.0 == PixelFlags::BEYOND_RANGE));
+    }
+
+    #[test]
+    fn on_block_means_a_pixel_keeps_beyond_range_while_any_block_around_it_can_reach_the_top() {
+        // Five blocks of 2 × 2 pixels in a row: block 0 valued 1.0, blocks 1–4 beyond range;
+        // one fringe per block, so the bounds climb 1, 2, 3, 4, 5 and the top is 4.4.
+        let blocks = {
+            let mut pass = Pass::empty(5);
+            pass.order[0] = 1.0;
+            for f in &mut pass.flags[1..] {
+                f.0 = PixelFlags::BEYOND_RANGE;
+            }
+            pass
+        };
+        let climb = ClimbBound::of(&blocks, 1.0, 5, 1, 2).unwrap();
+        // Full resolution, 10 × 2: x = 0 valued, x = 1..=9 beyond range (x = 1 lies in block 0
+        // but took the flag of block 1). The highest bound over a pixel's block and its
+        // neighbours: x = 0–1 → 2, x = 2–3 → 3, x = 4–5 → 4, x = 6–9 → 5.
+        let mut pass = Pass::empty(20);
+        for y in 0..2 {
+            pass.order[y * 10] = 1.0;
+            for x in 1..10 {
+                pass.flags[y * 10 + x].0 = PixelFlags::BEYOND_RANGE;
+            }
+        }
+        climb.flag_unreachable_beyond_as_steep(&mut pass, 4.4, 10);
+        let row: Vec<u8> = pass.flags[10..].iter().map(|f| f.0).collect();
+        let (u, b) = (PixelFlags::UNRELIABLE, PixelFlags::BEYOND_RANGE);
+        assert_eq!(row, vec![0, u, u, u, u, u, b, b, b, b]);
+    }
+
+    #[test]
+    fn near_top_orders_that_fall_back_before_beyond_range_are_flagged_as_a_fold() {
+        // One row each, table top 4.4 (near-top band from 3.4), beyond range at the right end.
+        // source: common practice, no source (orders climb continuously towards a zone past
+        // the table; colours past it repeat the table's upper fringes in paler form).
+        let run = |orders: &[f32]| {
+            let width = orders.len() + 1;
+            let mut pass = Pass::empty(width);
+            pass.order[..orders.len()].copy_from_slice(orders);
+            pass.flags[width - 1].0 = PixelFlags::BEYOND_RANGE;
+            flag_folds_at_beyond_range(&mut pass, 4.4, width, 1);
+            (0..orders.len())
+                .filter(|&p| pass.flags[p].has(PixelFlags::BEYOND_RANGE))
+                .collect::<Vec<_>>()
+        };
+        // A climb to a ridge at 4.2 that falls back and wanders before beyond range: from
+        // x = 7, 0.1 below the ridge (past the tolerance), the stretch is a fold.
+        let fold = [3.0, 3.2, 3.4, 3.6, 3.8, 4.0, 4.2, 4.1, 4.0, 3.9, 3.95];
+        assert_eq!(run(&fold), vec![7, 8, 9, 10]);
+        // A climb straight into beyond range keeps every value.
+        let ramp = [3.0, 3.2, 3.4, 3.6, 3.8, 4.0, 4.2, 4.3];
+        assert!(run(&ramp).is_empty());
+        // So does a flat stretch whose noise stays within the tolerance.
+        let flat = [
+            3.0, 3.5, 3.9, 3.96, 3.92, 3.96, 3.92, 3.96, 3.92, 3.96, 3.92,
+        ];
+        assert!(run(&flat).is_empty());
+    }
+
+    #[test]
+    fn the_climb_bound_matches_a_naive_minimum_over_every_valued_pixel() {
+        // A 40 × 150 rectangle, a few valued pixels, the rest beyond range: for every pixel the
+        // flags must follow the least N_q + gradient · (chamfer distance to q) over all valued
+        // pixels q, computed naively. Pixels whose naive bound
+        // lies within 1e-3 of the top are left out: rounding may tip them either way.
+        let (width, height, top, gradient) = (40usize, 150usize, 4.4f32, 0.2f32);
+        let valued = [
+            (0usize, 0usize, 3.9f32),
+            (39, 149, 1.0),
+            (20, 63, 3.0),
+            (20, 66, 2.2),
+            (5, 128, 0.5),
+            (33, 100, 4.1),
+        ];
+        let mut pass = Pass::empty(width * height);
+        pass.flags
+            .iter_mut()
+            .for_each(|f| f.0 = PixelFlags::BEYOND_RANGE);
+        for &(x, y, o) in &valued {
+            pass.flags[y * width + x].0 = 0;
+            pass.order[y * width + x] = o;
+        }
+        let naive = |p: usize| {
+            let (x, y) = (p % width, p / width);
+            valued
+                .iter()
+                .map(|&(qx, qy, o)| {
+                    let (dx, dy) = (x.abs_diff(qx) as f32, y.abs_diff(qy) as f32);
+                    let (long, short) = (dx.max(dy), dx.min(dy));
+                    o + gradient * (long - short) + gradient * std::f32::consts::SQRT_2 * short
+                })
+                .fold(f32::INFINITY, f32::min)
+        };
+        let before = pass.flags.clone();
+        let climb = ClimbBound::of(&pass, gradient, width, height, 1).unwrap();
+        climb.flag_unreachable_beyond_as_steep(&mut pass, top, width);
+        let (mut steep, mut kept) = (0, 0);
+        for p in (0..width * height).filter(|&p| before[p].0 != 0) {
+            let bound = naive(p);
+            if (bound - top).abs() < 1e-3 {
+                continue;
+            }
+            let expected = if bound < top {
+                steep += 1;
+                PixelFlags::UNRELIABLE
+            } else {
+                kept += 1;
+                PixelFlags::BEYOND_RANGE
+            };
+            assert_eq!(pass.flags[p].0, expected, "pixel {p}, bound {bound}");
+        }
+        assert!(steep > 500 && kept > 500, "{steep} {kept}");
     }
 
     #[test]

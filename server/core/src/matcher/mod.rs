@@ -23,9 +23,12 @@
 //!    subsampled chroma; a window fit (`window_fit`) grows values further into steep flanks
 //!    by fitting a plane of orders to each 5 × 5 window against the table blurred as a
 //!    camera blurs steep fringes; flat plateaus against a beyond-range region confirmed by a
-//!    near-top rim are flagged beyond range, then valued regions joined to neither the
-//!    specimen's edge nor a hint without a jump (`flag_cut_off_regions`); and a 5 × 5 mean
-//!    that keeps ramps exact smooths the result. Last, at full resolution, the edge band
+//!    near-top rim, and near-top stretches that fold back before it (`flag_folds_at_beyond_range`),
+//!    are flagged beyond range, then valued regions joined to neither the
+//!    specimen's edge nor a hint without a jump (`flag_cut_off_regions`); *beyond range* that
+//!    no climb at the maximum gradient from a valued pixel can reach is a field too steep to
+//!    resolve, flagged *unreliable* instead (`ClimbBound`, applied last at full resolution);
+//!    and a 5 × 5 mean that keeps ramps exact smooths the result. Last, at full resolution, the edge band
 //!    (pixels mixed with the dark background) near beyond-range pixels is flagged beyond
 //!    range too (`flag_edge_band_near_beyond_range`).
 //! 4. **Exposure compensation** (optional, `exposure_fit`): a per-channel gain and a radial
@@ -375,6 +378,7 @@ fn solve_pass(
             height,
         );
         flag_plateaus_at_beyond_range(&mut pass, top, width, height);
+        flag_folds_at_beyond_range(&mut pass, top, width, height);
         flag_cut_off_regions(&mut pass, &hinted, width, height, 1.5 * gradient);
     }
     smooth(&mut pass, width, height, gradient, None);
@@ -704,14 +708,22 @@ pub(crate) fn solve(
         }
     }
     let working = Working::new(photo, mask, FULL_RESOLUTION_LIMIT);
+    let scaled = working.scale(options);
     let pass = solve_pass(
         &working.lab(&exposure, black),
         working.stride,
         &working.inside,
         table,
         max_order,
-        &working.scale(options),
+        &scaled,
         Stage::Final,
+    );
+    let climb = ClimbBound::of(
+        &pass,
+        scaled.max_gradient as f32,
+        working.width as usize,
+        working.height as usize,
+        working.stride as usize,
     );
     let mut pass = if working.stride == 1 {
         pass
@@ -735,6 +747,9 @@ pub(crate) fn solve(
         photo.width() as usize,
         photo.height() as usize,
     );
+    if let Some(climb) = climb {
+        climb.flag_unreachable_beyond_as_steep(&mut pass, max_order as f32, photo.width() as usize);
+    }
     let statistics = statistics(&pass, max_order);
     let uncertainty = order_uncertainty(&pass, table, max_order);
     Ok(OrderMap {
