@@ -306,7 +306,10 @@ impl Prediction {
             if ![x, y, s].iter().all(|v| v.is_finite()) {
                 return Err(CoreError::invalid(
                     "prediction",
-                    format!("line {}: every value must be a finite number (no NaN)", i + 1),
+                    format!(
+                        "line {}: every value must be a finite number (no NaN)",
+                        i + 1
+                    ),
                 ));
             }
             if s < 0.0 {
@@ -436,7 +439,11 @@ impl RowSums {
             abs: self.abs + o.abs,
             signed: self.signed + o.signed,
             sq: self.sq + o.sq,
-            max: if o.max.0 > self.max.0 { o.max } else { self.max },
+            max: if o.max.0 > self.max.0 {
+                o.max
+            } else {
+                self.max
+            },
         }
     }
 }
@@ -567,8 +574,7 @@ mod tests {
     #[test]
     fn two_pairs_give_the_similarity_through_them() {
         // Hand-built: scale 0.5 mm/px, turned +90° (x onto y), shifted by (5, 5) mm.
-        let r = Registration::fit(&[pair(0.0, 0.0, 5.0, 5.0), pair(10.0, 0.0, 5.0, 10.0)])
-            .unwrap();
+        let r = Registration::fit(&[pair(0.0, 0.0, 5.0, 5.0), pair(10.0, 0.0, 5.0, 10.0)]).unwrap();
         assert_eq!(r.kind, RegistrationKind::Similarity);
         assert!(close(r.model_of(0.0, 10.0), [0.0, 5.0]), "{r:?}");
         assert!((r.mm_per_px - 0.5).abs() < 1e-12 && !r.mirrored && r.rms_mm < 1e-12);

@@ -84,7 +84,7 @@ impl SeriesSpec {
         }
         if loads_n.len() != photos {
             return Err(CoreError::invalid(
-                "load_n",
+                "loads_n",
                 format!(
                     "give one load per photo, in the photos' order: {photos} photos but {} loads",
                     loads_n.len()
@@ -94,7 +94,7 @@ impl SeriesSpec {
         for (i, load) in loads_n.iter().enumerate() {
             if !(load.is_finite() && *load > 0.0) {
                 return Err(CoreError::invalid(
-                    "load_n",
+                    "loads_n",
                     format!("load {} must be a positive number of N, got {load}", i + 1),
                 ));
             }
@@ -219,7 +219,7 @@ pub fn fit_series(spec: &SeriesSpec, mask: &Mask, orders: &[Vec<f32>]) -> CoreRe
     let (w, h) = (mask.width() as usize, mask.height() as usize);
     if orders.len() != spec.loads_n.len() {
         return Err(CoreError::invalid(
-            "load_n",
+            "loads_n",
             format!(
                 "{} order maps for {} loads",
                 orders.len(),
@@ -263,10 +263,11 @@ pub fn fit_series(spec: &SeriesSpec, mask: &Mask, orders: &[Vec<f32>]) -> CoreRe
             row
         })
         .collect();
-    let (fitted, nonlinear, slope_sum, sq_sum, readings) = sums.iter().fold(
-        (0, 0, 0.0, 0.0, 0),
-        |(a, b, c, d, e), (f, g, s, q, r)| (a + f, b + g, c + s, d + q, e + r),
-    );
+    let (fitted, nonlinear, slope_sum, sq_sum, readings) = sums
+        .iter()
+        .fold((0, 0, 0.0, 0.0, 0), |(a, b, c, d, e), (f, g, s, q, r)| {
+            (a + f, b + g, c + s, d + q, e + r)
+        });
     let specimen_pixels = inside.iter().filter(|&&v| v).count();
     if fitted == 0 {
         return Err(CoreError::invalid(
@@ -294,7 +295,7 @@ pub fn fit_series(spec: &SeriesSpec, mask: &Mask, orders: &[Vec<f32>]) -> CoreRe
             let at_centre = measured / centre.curvature(&central, disc.diameter_mm);
             if at_centre <= 0.0 {
                 return Err(CoreError::invalid(
-                    "load_n",
+                    "loads_n",
                     format!(
                         "the orders at the disc's centre do not grow with the load (slope \
                          {at_centre:.3e} fringes per N)"
@@ -506,14 +507,14 @@ mod tests {
             other => panic!("{other:?}"),
         };
         assert_eq!(field(SeriesSpec::new(1, vec![5.0], None, None)), "photo");
-        assert_eq!(field(SeriesSpec::new(2, vec![5.0], None, None)), "load_n");
+        assert_eq!(field(SeriesSpec::new(2, vec![5.0], None, None)), "loads_n");
         assert_eq!(
             field(SeriesSpec::new(2, vec![5.0, 0.0], None, None)),
-            "load_n"
+            "loads_n"
         );
         assert_eq!(
             field(SeriesSpec::new(2, vec![5.0, f64::NAN], None, None)),
-            "load_n"
+            "loads_n"
         );
         assert_eq!(
             field(SeriesSpec::new(2, vec![5.0, 6.0], Some(-40.0), None)),

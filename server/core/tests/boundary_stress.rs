@@ -8,7 +8,9 @@ use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::{BendingBeamField, HoleField, OrderField};
 use isotint_core::stress::{PlateWithHole, StressOpticLaw};
-use isotint_core::{map_orders, CoreError, MapOptions, OrderMap, PixelFlags, PixelPoint, PixelRect};
+use isotint_core::{
+    map_orders, CoreError, MapOptions, OrderMap, PixelFlags, PixelPoint, PixelRect,
+};
 
 /// f_σ = 10.5 N/mm per fringe, h = 6 mm: 1.75 MPa per fringe.
 fn law() -> StressOpticLaw {

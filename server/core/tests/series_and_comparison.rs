@@ -3,9 +3,8 @@
 
 mod common;
 
-use std::fmt::Write;
-
 use isotint_core::comparison::{compare, PointPair, Prediction, Registration};
+use isotint_core::render::demo::{disc_prediction_csv, disc_registration_pairs};
 use isotint_core::render::DiscField;
 use isotint_core::series::{map_series, SeriesSpec};
 use isotint_core::stress::{DiscInCompression, StressOpticLaw};
@@ -94,7 +93,10 @@ fn a_rendered_disc_load_series_gives_the_material_fringe_value_within_two_percen
         bad.linearity_rms, bad.nonlinear_share
     );
     assert!(bad.linearity_rms > 2.0 * s.linearity_rms, "{bad:?}");
-    assert!(bad.nonlinear_share > 3.0 * s.nonlinear_share.max(0.01), "{bad:?}");
+    assert!(
+        bad.nonlinear_share > 3.0 * s.nonlinear_share.max(0.01),
+        "{bad:?}"
+    );
 }
 
 #[test]
@@ -118,31 +120,6 @@ fn a_series_of_photos_of_different_sizes_is_refused_naming_the_photo() {
     }
 }
 
-/// The closed-form σ1 − σ2 of the disc at `load_n` as a prediction CSV, on a polar grid of
-/// nodes in a model frame with its origin at the disc's centre and its y axis pointing up.
-fn disc_prediction_csv(load_n: f64) -> String {
-    let disc = DiscInCompression::new(DIAMETER_MM, THICKNESS_MM, load_n).unwrap();
-    let r = 0.5 * DIAMETER_MM;
-    let mut csv = String::from("x_mm,y_mm,s1_minus_s2_mpa\n");
-    writeln!(
-        csv,
-        "0,0,{}",
-        disc.stress_at(0.0, 0.0).principal_difference()
-    )
-    .unwrap();
-    for i in 1..=50 {
-        let rho = r * f64::from(i) / 50.0;
-        for k in 0..96 {
-            let theta = f64::from(k) * std::f64::consts::TAU / 96.0;
-            let (x, y_up) = (rho * theta.cos(), rho * theta.sin());
-            // The closed form's y points down, the model's up.
-            let s = disc.stress_at(x, -y_up).principal_difference();
-            writeln!(csv, "{x},{y_up},{s}").unwrap();
-        }
-    }
-    csv
-}
-
 #[test]
 fn a_deliberately_shifted_registration_gives_a_clearly_larger_difference() {
     let load = load_for_centre_order(1.5);
@@ -155,20 +132,13 @@ fn a_deliberately_shifted_registration_gives_a_clearly_larger_difference() {
     )
     .unwrap();
     let law = StressOpticLaw::new(FRINGE_VALUE, THICKNESS_MM).unwrap();
-    let prediction = Prediction::from_csv(&disc_prediction_csv(load)).unwrap();
+    let field = disc_field(load);
+    let prediction = Prediction::from_csv(&disc_prediction_csv(&field.disc)).unwrap();
     // Three pairs: centre, right-hand and top points of the disc; the model's y is up.
     let pairs = |shift_mm: f64| {
-        let (c, r) = (CENTRE_PX, RADIUS_PX);
-        [
-            (c, c, 0.0, 0.0),
-            (c + r, c, 20.0, 0.0),
-            (c, c - r, 0.0, 20.0),
-        ]
-        .map(|(x_px, y_px, x_mm, y_mm)| PointPair {
-            x_px,
-            y_px,
-            x_mm: x_mm + shift_mm,
-            y_mm,
+        disc_registration_pairs(&field).map(|p| PointPair {
+            x_mm: p.x_mm + shift_mm,
+            ..p
         })
     };
     let right = Registration::fit(&pairs(0.0)).unwrap();
@@ -193,10 +163,7 @@ fn a_deliberately_shifted_registration_gives_a_clearly_larger_difference() {
     );
     // source: Timoshenko & Goodier §41 closed form as the prediction; the photo reads it within
     // a few per cent of the centre stress where both are known.
-    assert!(
-        good.mean_abs_difference_mpa < 0.05 * centre_mpa,
-        "{good:?}"
-    );
+    assert!(good.mean_abs_difference_mpa < 0.05 * centre_mpa, "{good:?}");
     assert!(good.compared_pixels > 10_000 && good.model_coverage > 0.95);
     assert!(
         shifted.mean_abs_difference_mpa > 2.0 * good.mean_abs_difference_mpa,

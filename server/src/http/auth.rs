@@ -47,6 +47,8 @@ const POLICY: &[(Method, &str, Access)] = &[
     (Method::GET, "/api/v1/order-maps/{id}", READER),
     (Method::GET, "/api/v1/order-maps/{id}/{file}", READER),
     (Method::POST, "/api/v1/order-maps/{id}/boundary", READER),
+    (Method::POST, "/api/v1/order-maps/{id}/comparison", READER),
+    (Method::POST, "/api/v1/series", READER),
     (Method::POST, "/api/v1/calibrations", WRITER),
     (Method::POST, "/api/v1/calibrations/import", WRITER),
     (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),

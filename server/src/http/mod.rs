@@ -12,6 +12,7 @@ pub mod metrics;
 pub mod openapi;
 pub mod order_maps;
 pub mod paging;
+pub mod series;
 pub mod web;
 
 use std::sync::Arc;
@@ -63,6 +64,7 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
         .merge(health::router())
         .merge(calibrations::router())
         .merge(order_maps::router())
+        .merge(series::router())
         .merge(audit::router())
         .split_for_parts();
     auth::document(&mut doc);
