@@ -283,14 +283,7 @@ async fn a_load_series_in_one_request_answers_the_fringe_value_of_a_rendered_dis
         .await;
     answered(&reply, StatusCode::OK);
     let v = reply.json();
-    for field in [
-        "fringe_value",
-        "slope_fringes_per_n",
-        "linearity_rms",
-        "nonlinear_share",
-    ] {
-        assert!(v[field].is_number(), "{field} missing: {v}");
-    }
+    common::assert_numbers(&v, &common::SERIES_FIELDS);
     // source: Timoshenko & Goodier, Theory of Elasticity §41: σ1 − σ2 = 8P/(πDh) at the centre.
     let f = v["fringe_value"].as_f64().unwrap();
     assert!(
@@ -390,14 +383,7 @@ async fn a_stored_map_compared_with_the_closed_form_differs_little_and_much_more
     let reply = post_json(&svc, &uri, request(&prediction, pairs(0.0))).await;
     answered(&reply, StatusCode::OK);
     let good = reply.json();
-    for field in [
-        "mean_abs_difference_mpa",
-        "rms_difference_mpa",
-        "max_abs_difference_mpa",
-        "compared_pixels",
-    ] {
-        assert!(good[field].is_number(), "{field} missing: {good}");
-    }
+    common::assert_numbers(&good, &common::COMPARISON_FIELDS);
     let reply = post_json(&svc, &uri, request(&prediction, pairs(4.0))).await;
     answered(&reply, StatusCode::OK);
     let shifted = reply.json();

@@ -831,15 +831,12 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
     assert!(!Path::new(&out).exists(), "nothing was written");
 }
 
-/// `isotint boundary` on the demo plate with a hole, with `extra` arguments.
-fn boundary_of_plate(extra: &[&str]) -> Output {
-    let (calibration, photo, mask) = (
-        path("calibration.json"),
-        path("plate-hole.png"),
-        path("plate-hole-mask.png"),
-    );
+/// `isotint COMMAND` with the demo calibration, the demo's `photo` and `mask` files, and `extra`
+/// arguments.
+fn on_demo(command: &str, photo: &str, mask: &str, extra: &[&str]) -> Output {
+    let (calibration, photo, mask) = (path("calibration.json"), path(photo), path(mask));
     let mut args = vec![
-        "boundary",
+        command,
         "--calibration",
         &calibration,
         "--photo",
@@ -849,6 +846,11 @@ fn boundary_of_plate(extra: &[&str]) -> Output {
     ];
     args.extend_from_slice(extra);
     isotint(&args)
+}
+
+/// `isotint boundary` on the demo plate with a hole, with `extra` arguments.
+fn boundary_of_plate(extra: &[&str]) -> Output {
+    on_demo("boundary", "plate-hole.png", "plate-hole-mask.png", extra)
 }
 
 #[test]
@@ -1157,14 +1159,7 @@ fn series_prints_the_fringe_value_of_a_rendered_disc_load_series_within_two_perc
         ],
     ));
     let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
-    for field in [
-        "fringe_value",
-        "slope_fringes_per_n",
-        "linearity_rms",
-        "nonlinear_share",
-    ] {
-        assert!(v[field].is_number(), "{field} missing: {v}");
-    }
+    common::assert_numbers(&v, &common::SERIES_FIELDS);
     let f = v["fringe_value"].as_f64().unwrap();
     println!("rendered disc series: {v}");
     // source: Timoshenko & Goodier, Theory of Elasticity §41: σ1 − σ2 = 8P/(πDh) at the centre.
@@ -1228,19 +1223,7 @@ fn series_refuses_bad_input_naming_the_flag_and_writes_nothing() {
 
 /// `isotint compare` on the demo disc and its prediction, with `pairs` and `extra` arguments.
 fn compare_demo_disc(prediction: &str, pairs: &[String], extra: &[&str]) -> Output {
-    let (calibration, photo, mask) = (
-        path("calibration.json"),
-        path("disc.png"),
-        path("disc-mask.png"),
-    );
     let mut args = vec![
-        "compare",
-        "--calibration",
-        &calibration,
-        "--photo",
-        &photo,
-        "--mask",
-        &mask,
         "--fringe-value-n-per-mm",
         "10.5",
         "--thickness-mm",
@@ -1252,7 +1235,7 @@ fn compare_demo_disc(prediction: &str, pairs: &[String], extra: &[&str]) -> Outp
         args.extend(["--pair", pair]);
     }
     args.extend_from_slice(extra);
-    isotint(&args)
+    on_demo("compare", "disc.png", "disc-mask.png", &args)
 }
 
 /// The demo's registration pairs as `--pair` values, each model x shifted by `shift_mm`.
@@ -1282,14 +1265,7 @@ fn compare_prints_small_differences_for_the_demo_disc_and_large_ones_when_misreg
         serde_json::from_str(printed.trim()).expect("one JSON object")
     };
     let good = run(0.0, &["--out", &difference_file, "--json"]);
-    for field in [
-        "mean_abs_difference_mpa",
-        "rms_difference_mpa",
-        "max_abs_difference_mpa",
-        "compared_pixels",
-    ] {
-        assert!(good[field].is_number(), "{field} missing: {good}");
-    }
+    common::assert_numbers(&good, &common::COMPARISON_FIELDS);
     let shifted = run(4.0, &["--json"]);
     let (g, s) = (
         good["mean_abs_difference_mpa"].as_f64().unwrap(),

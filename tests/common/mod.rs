@@ -477,3 +477,26 @@ pub fn assert_no_uncertainty_without_an_order(orders: &[f32], uncertainty: &[f32
         assert!(u.is_nan() || *u >= 0.0, "pixel {i} has σ = {u}");
     }
 }
+
+/// The fields a load series answers at least (the contract).
+pub const SERIES_FIELDS: [&str; 4] = [
+    "fringe_value",
+    "slope_fringes_per_n",
+    "linearity_rms",
+    "nonlinear_share",
+];
+
+/// The fields a comparison answers at least (the contract).
+pub const COMPARISON_FIELDS: [&str; 4] = [
+    "mean_abs_difference_mpa",
+    "rms_difference_mpa",
+    "max_abs_difference_mpa",
+    "compared_pixels",
+];
+
+/// Asserts that every one of `fields` in `v` is a number.
+pub fn assert_numbers(v: &Value, fields: &[&str]) {
+    for field in fields {
+        assert!(v[field].is_number(), "{field} missing: {v}");
+    }
+}
