@@ -177,7 +177,8 @@ pub struct LoadSeries {
 /// Maps each photo of a series with `table` and fits it. The photos are taken one at a time
 /// (decoded by the iterator, mapped, reduced to their orders), so only one photo is held at
 /// once. Every photo must have the mask's size: refused naming `mask` when the first does not,
-/// `photo` when a later one differs from the first.
+/// `photo` when a later one differs from the first. A photo that cannot be decoded is named by
+/// its place in the series.
 pub fn map_series(
     spec: &SeriesSpec,
     photos: impl IntoIterator<Item = CoreResult<Photo>>,
@@ -187,7 +188,11 @@ pub fn map_series(
 ) -> CoreResult<LoadSeries> {
     let mut orders = Vec::with_capacity(spec.loads_n.len());
     for (i, photo) in photos.into_iter().enumerate() {
-        let photo = photo?;
+        let photo = photo.map_err(|e| match e {
+            CoreError::Decode(m) => CoreError::Decode(format!("photo {}: {m}", i + 1)),
+            CoreError::TooLarge(m) => CoreError::TooLarge(format!("photo {}: {m}", i + 1)),
+            other => other,
+        })?;
         let size = (photo.width(), photo.height());
         if size != (mask.width(), mask.height()) {
             let (field, other) = if i == 0 {
