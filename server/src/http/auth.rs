@@ -247,6 +247,21 @@ mod tests {
     }
 
     #[test]
+    fn engineering_results_are_documented_and_need_only_a_reader() {
+        let (_, doc) = super::super::api();
+        for route in ["/api/v1/series", "/api/v1/order-maps/{id}/comparison"] {
+            assert!(doc.paths.paths.contains_key(route), "{route} undocumented");
+        }
+        for route in [
+            "/api/v1/series",
+            "/api/v1/order-maps/{id}/comparison",
+            "/api/v1/order-maps/{id}/boundary",
+        ] {
+            assert_eq!(access(&Method::POST, route), READER, "{route}");
+        }
+    }
+
+    #[test]
     fn archiving_needs_an_admin_and_health_needs_nobody() {
         let archive = access(&Method::POST, "/api/v1/calibrations/{id}/archive");
         assert_eq!(archive, Access::AtLeast(Role::Admin));
