@@ -1,10 +1,11 @@
 //! Engineering results through the real router on a fresh temporary database: σ1 − σ2 maps
-//! and figures of stored and one-shot order maps, and their refusals.
+//! and figures of stored and one-shot order maps, load series, comparisons with a predicted
+//! field, and their refusals.
 
 mod common;
 
 use axum::http::StatusCode;
-use common::{disc_photo, get, import_id, service, table, Form, Reply, TestService};
+use common::{disc_photo, disc_photo_at, get, import_id, service, table, Form, Reply, TestService};
 use isotint_core::export::read_npy_f32;
 
 /// The law of these tests: f_σ = 10.5 N/mm per fringe, h = 6 mm, so 1.75 MPa per fringe.
@@ -253,4 +254,173 @@ async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_b
     assert_eq!(stored_maps(&svc).await, 1, "the boundary stores nothing");
     let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
     assert!(doc["paths"]["/api/v1/order-maps/{id}/boundary"]["post"].is_object());
+}
+
+/// The multipart form of a load series of the test disc photographed at `loads` (N) and
+/// reported at `given` (N), with the calibration `id`.
+fn series_form(id: &str, loads: &[f64], given: &serde_json::Value) -> Form {
+    let mut form = Form::new().text("calibration", id);
+    for (i, load) in loads.iter().enumerate() {
+        let disc = disc_photo_at(*load, 360);
+        if i == 0 {
+            form = form.file("mask", "mask.png", "image/png", disc.mask_png);
+        }
+        form = form.file("photo", &format!("disc-{i}.png"), "image/png", disc.png);
+    }
+    form.json("series", given)
+}
+
+#[tokio::test]
+async fn a_load_series_in_one_request_answers_the_fringe_value_of_a_rendered_disc_and_stores_nothing(
+) {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    // Centre orders 1 and 2.5: P = N·π·D·f_σ/8 = N · 172.8 N.
+    let loads = [172.8, 432.0];
+    let given = serde_json::json!({"loads_n": loads, "disc_diameter_mm": 40, "thickness_mm": 6});
+    let reply = series_form(&id, &loads, &given)
+        .post(&svc.app, "/api/v1/series")
+        .await;
+    answered(&reply, StatusCode::OK);
+    let v = reply.json();
+    common::assert_numbers(&v, &common::SERIES_FIELDS);
+    // source: Timoshenko & Goodier, Theory of Elasticity §41: σ1 − σ2 = 8P/(πDh) at the centre.
+    let f = v["fringe_value"].as_f64().unwrap();
+    assert!(
+        (f - common::DISC_FRINGE_VALUE).abs() <= 0.02 * common::DISC_FRINGE_VALUE,
+        "{v}"
+    );
+    let reply = series_form(&id, &loads, &given)
+        .post(&svc.app, "/api/v1/series?format=slope")
+        .await;
+    answered(&reply, StatusCode::OK);
+    let (rows, cols, slope) = read_npy_f32(&reply.body).unwrap();
+    assert_eq!((rows, cols), (360, 360));
+    assert_eq!(
+        slope.iter().filter(|s| s.is_finite()).count() as u64,
+        v["fitted_pixels"].as_u64().unwrap()
+    );
+    assert_eq!(stored_maps(&svc).await, 0);
+}
+
+#[tokio::test]
+async fn bad_load_series_are_refused_naming_the_field_and_store_nothing() {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let loads = serde_json::json!({"loads_n": [200, 400]});
+    refused_naming(
+        &series_form(&id, &[200.0], &serde_json::json!({"loads_n": [200]}))
+            .post(&svc.app, "/api/v1/series")
+            .await,
+        "photo",
+    );
+    for given in [
+        serde_json::json!({"loads_n": [200]}),
+        serde_json::json!({"loads_n": [200, 0]}),
+        serde_json::json!({"loads_n": [200, -1]}),
+    ] {
+        refused_naming(
+            &series_form(&id, &[200.0, 400.0], &given)
+                .post(&svc.app, "/api/v1/series")
+                .await,
+            "loads_n",
+        );
+    }
+    refused_naming(
+        &series_form(
+            &id,
+            &[200.0, 400.0],
+            &serde_json::json!({"loads_n": [200, 400], "thickness_mm": 6}),
+        )
+        .post(&svc.app, "/api/v1/series")
+        .await,
+        "disc_diameter_mm",
+    );
+    // Photos of different sizes.
+    let small = disc_photo_at(400.0, 340);
+    let form =
+        series_form(&id, &[200.0], &loads).file("photo", "small.png", "image/png", small.png);
+    let reply = form.post(&svc.app, "/api/v1/series").await;
+    refused_naming(&reply, "photo 2 is 340×340");
+    assert_eq!(stored_maps(&svc).await, 0);
+}
+
+#[tokio::test]
+async fn a_stored_map_compared_with_the_closed_form_differs_little_and_much_more_when_misregistered(
+) {
+    use isotint_core::render::demo::{disc_prediction_csv, disc_registration_pairs};
+    use isotint_core::render::DiscField;
+    use isotint_core::stress::DiscInCompression;
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let load = 432.0; // centre order 2.5
+    let disc = disc_photo_at(load, 360);
+    let form = Form::new()
+        .file("photo", "disc.png", "image/png", disc.png)
+        .text("calibration", &id)
+        .file("mask", "disc-mask.png", "image/png", disc.mask_png);
+    let reply = form.post(&svc.app, "/api/v1/order-maps").await;
+    answered(&reply, StatusCode::CREATED);
+    let map = reply.json()["id"].as_str().unwrap().to_string();
+    let uri = format!("/api/v1/order-maps/{map}/comparison");
+    let field = DiscField::new(
+        isotint_core::PixelPoint { x: 180.0, y: 180.0 },
+        160.0,
+        DiscInCompression::new(common::DISC_DIAMETER_MM, 6.0, load).unwrap(),
+        common::DISC_FRINGE_VALUE,
+    )
+    .unwrap();
+    let prediction = disc_prediction_csv(&field.disc);
+    let pairs = |shift_mm: f64| -> serde_json::Value {
+        disc_registration_pairs(&field)
+            .iter()
+            .map(|p| {
+                serde_json::json!({"x_px": p.x_px, "y_px": p.y_px, "x_mm": p.x_mm + shift_mm, "y_mm": p.y_mm})
+            })
+            .collect()
+    };
+    let request = |prediction: &str, pairs: serde_json::Value| serde_json::json!({"fringe_value": 11, "thickness": 6, "prediction": prediction, "pairs": pairs});
+    let reply = post_json(&svc, &uri, request(&prediction, pairs(0.0))).await;
+    answered(&reply, StatusCode::OK);
+    let good = reply.json();
+    common::assert_numbers(&good, &common::COMPARISON_FIELDS);
+    let reply = post_json(&svc, &uri, request(&prediction, pairs(4.0))).await;
+    answered(&reply, StatusCode::OK);
+    let shifted = reply.json();
+    let (g, s) = (
+        good["mean_abs_difference_mpa"].as_f64().unwrap(),
+        shifted["mean_abs_difference_mpa"].as_f64().unwrap(),
+    );
+    // source: the prediction is Timoshenko & Goodier's closed form for the disc (§41); its
+    // centre σ1 − σ2 is 8P/(πDh) = 4.58 MPa.
+    assert!(g < 0.25 && s > 2.0 * g, "{good} / {shifted}");
+
+    let on_a_line = serde_json::json!([
+        {"x_px": 100, "y_px": 100, "x_mm": 0, "y_mm": 0},
+        {"x_px": 150, "y_px": 150, "x_mm": 5, "y_mm": 0},
+        {"x_px": 200, "y_px": 200, "x_mm": 0, "y_mm": 5}
+    ]);
+    for (body, field) in [
+        (
+            request("x,y,s\n0,0,1\n1,0,NaN\n0,1,2\n", pairs(0.0)),
+            "prediction",
+        ),
+        (request("0,0,1\n1,0,1\n", pairs(0.0)), "prediction"),
+        (request(&prediction, on_a_line), "pairs"),
+        (
+            request(
+                &prediction,
+                serde_json::Value::Array(pairs(0.0).as_array().unwrap()[..1].to_vec()),
+            ),
+            "pairs",
+        ),
+        (request(&prediction, pairs(500.0)), "pairs"),
+        (
+            serde_json::json!({"fringe_value": 0, "thickness": 6, "prediction": prediction, "pairs": pairs(0.0)}),
+            "fringe_value_n_per_mm",
+        ),
+    ] {
+        refused_naming(&post_json(&svc, &uri, body).await, field);
+    }
+    assert_eq!(stored_maps(&svc).await, 1);
 }

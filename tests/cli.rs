@@ -831,15 +831,12 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
     assert!(!Path::new(&out).exists(), "nothing was written");
 }
 
-/// `isotint boundary` on the demo plate with a hole, with `extra` arguments.
-fn boundary_of_plate(extra: &[&str]) -> Output {
-    let (calibration, photo, mask) = (
-        path("calibration.json"),
-        path("plate-hole.png"),
-        path("plate-hole-mask.png"),
-    );
+/// `isotint COMMAND` with the demo calibration, the demo's `photo` and `mask` files, and `extra`
+/// arguments.
+fn on_demo(command: &str, photo: &str, mask: &str, extra: &[&str]) -> Output {
+    let (calibration, photo, mask) = (path("calibration.json"), path(photo), path(mask));
     let mut args = vec![
-        "boundary",
+        command,
         "--calibration",
         &calibration,
         "--photo",
@@ -849,6 +846,11 @@ fn boundary_of_plate(extra: &[&str]) -> Output {
     ];
     args.extend_from_slice(extra);
     isotint(&args)
+}
+
+/// `isotint boundary` on the demo plate with a hole, with `extra` arguments.
+fn boundary_of_plate(extra: &[&str]) -> Output {
+    on_demo("boundary", "plate-hole.png", "plate-hole-mask.png", extra)
 }
 
 #[test]
@@ -1093,4 +1095,228 @@ fn bad_token_arguments_are_refused_naming_their_flag() {
         let stderr = String::from_utf8_lossy(&output.stderr);
         assert!(stderr.contains(flag), "{args:?}: {stderr}");
     }
+}
+
+/// Writes the test disc photographed at `loads` (N) into a fresh directory with its mask and a
+/// rendered calibration table; returns the directory and the photo paths.
+fn disc_series_files(loads: &[f64]) -> (PathBuf, Vec<String>) {
+    let dir = tempfile::tempdir().unwrap().keep();
+    std::fs::write(
+        dir.join("table.json"),
+        common::table("series table").to_json(),
+    )
+    .unwrap();
+    let mut photos = Vec::new();
+    for (i, load) in loads.iter().enumerate() {
+        let disc = common::disc_photo_at(*load, 360);
+        let photo = dir.join(format!("disc-{i}.png"));
+        std::fs::write(&photo, &disc.png).unwrap();
+        std::fs::write(dir.join("mask.png"), &disc.mask_png).unwrap();
+        photos.push(photo.to_str().unwrap().to_string());
+    }
+    (dir, photos)
+}
+
+/// `isotint series` on the files of [`disc_series_files`] with `photos` and `loads` paired in
+/// order, and `extra` arguments.
+fn series_of(dir: &Path, photos: &[&str], loads: &[&str], extra: &[&str]) -> Output {
+    let (table, mask) = (
+        dir.join("table.json").to_str().unwrap().to_string(),
+        dir.join("mask.png").to_str().unwrap().to_string(),
+    );
+    let mut args = vec!["series", "--calibration", &table, "--mask", &mask];
+    for photo in photos {
+        args.extend(["--photo", photo]);
+    }
+    for load in loads {
+        args.extend(["--load-n", load]);
+    }
+    args.extend_from_slice(extra);
+    isotint(&args)
+}
+
+#[test]
+fn series_prints_the_fringe_value_of_a_rendered_disc_load_series_within_two_percent() {
+    // Centre orders 1, 2 and 3: P = N·π·D·f_σ/8 = N · 172.8 N.
+    let loads = [172.8, 345.6, 518.4];
+    let (dir, photos) = disc_series_files(&loads);
+    let slope_file = dir.join("slope.npy");
+    let photos: Vec<&str> = photos.iter().map(String::as_str).collect();
+    let load_text: Vec<String> = loads.iter().map(|l| l.to_string()).collect();
+    let load_text: Vec<&str> = load_text.iter().map(String::as_str).collect();
+    let printed = ok(series_of(
+        &dir,
+        &photos,
+        &load_text,
+        &[
+            "--disc-diameter-mm",
+            "40",
+            "--thickness-mm",
+            "6",
+            "--out",
+            slope_file.to_str().unwrap(),
+            "--json",
+        ],
+    ));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    common::assert_numbers(&v, &common::SERIES_FIELDS);
+    let f = v["fringe_value"].as_f64().unwrap();
+    println!("rendered disc series: {v}");
+    // source: Timoshenko & Goodier, Theory of Elasticity §41: σ1 − σ2 = 8P/(πDh) at the centre.
+    assert!(
+        (f - common::DISC_FRINGE_VALUE).abs() <= 0.02 * common::DISC_FRINGE_VALUE,
+        "{v}"
+    );
+    let (rows, cols, slope) = read_npy_f32(&std::fs::read(&slope_file).unwrap()).unwrap();
+    assert_eq!((rows, cols), (360, 360));
+    assert_eq!(
+        slope.iter().filter(|s| s.is_finite()).count() as u64,
+        v["fitted_pixels"].as_u64().unwrap()
+    );
+    // The short flag names still parse.
+    let printed = ok(series_of(
+        &dir,
+        &photos[..2],
+        &[],
+        &[
+            "--load",
+            load_text[0],
+            "--load",
+            load_text[1],
+            "--disc-diameter",
+            "40",
+        ],
+    ));
+    assert!(printed.contains("fringe value"), "{printed}");
+}
+
+#[test]
+fn series_refuses_bad_input_naming_the_flag_and_writes_nothing() {
+    let (dir, photos) = disc_series_files(&[200.0, 400.0]);
+    let small = dir.join("small.png");
+    std::fs::write(&small, common::disc_photo_at(300.0, 340).png).unwrap();
+    let small = small.to_str().unwrap();
+    let slope_file = dir.join("never-slope.npy");
+    let out = ["--out", slope_file.to_str().unwrap(), "--json"];
+    let (a, b) = (photos[0].as_str(), photos[1].as_str());
+    for (photos, loads, needle) in [
+        (&[a][..], &["200"][..], "invalid --photo"),
+        (&[a, b][..], &["200"][..], "invalid --load-n"),
+        (&[a, b][..], &["200", "0"][..], "invalid --load-n"),
+        (&[a, b][..], &["200", "-5"][..], "invalid --load-n"),
+        (&[a, small][..], &["200", "300"][..], "invalid --photo"),
+    ] {
+        let output = series_of(&dir, photos, loads, &out);
+        assert!(!output.status.success(), "{photos:?} {loads:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{loads:?}: {stderr}");
+    }
+    let output = series_of(
+        &dir,
+        &[a, b],
+        &["200", "400"],
+        &["--thickness-mm", "6", "--json"],
+    );
+    assert!(String::from_utf8_lossy(&output.stderr).contains("invalid --disc-diameter-mm"));
+    assert!(!slope_file.exists(), "nothing was written");
+}
+
+/// `isotint compare` on the demo disc and its prediction, with `pairs` and `extra` arguments.
+fn compare_demo_disc(prediction: &str, pairs: &[String], extra: &[&str]) -> Output {
+    let mut args = vec![
+        "--fringe-value-n-per-mm",
+        "10.5",
+        "--thickness-mm",
+        "6",
+        "--prediction",
+        prediction,
+    ];
+    for pair in pairs {
+        args.extend(["--pair", pair]);
+    }
+    args.extend_from_slice(extra);
+    on_demo("compare", "disc.png", "disc-mask.png", &args)
+}
+
+/// The demo's registration pairs as `--pair` values, each model x shifted by `shift_mm`.
+fn demo_pairs(shift_mm: f64) -> Vec<String> {
+    scenario()["disc"]["prediction_pairs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| {
+            format!(
+                "{},{},{},{}",
+                p["x_px"],
+                p["y_px"],
+                p["x_mm"].as_f64().unwrap() + shift_mm,
+                p["y_mm"]
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn compare_prints_small_differences_for_the_demo_disc_and_large_ones_when_misregistered() {
+    let difference_file = path("disc-difference.npy");
+    let prediction = path("disc-prediction.csv");
+    let run = |shift_mm: f64, extra: &[&str]| -> Value {
+        let printed = ok(compare_demo_disc(&prediction, &demo_pairs(shift_mm), extra));
+        serde_json::from_str(printed.trim()).expect("one JSON object")
+    };
+    let good = run(0.0, &["--out", &difference_file, "--json"]);
+    common::assert_numbers(&good, &common::COMPARISON_FIELDS);
+    let shifted = run(4.0, &["--json"]);
+    let (g, s) = (
+        good["mean_abs_difference_mpa"].as_f64().unwrap(),
+        shifted["mean_abs_difference_mpa"].as_f64().unwrap(),
+    );
+    println!("demo disc against its closed form: mean |Δ| {g:.4} MPa; shifted 4 mm: {s:.4} MPa");
+    // source: the prediction is Timoshenko & Goodier's closed form for the disc (§41); the
+    // demo's centre σ1 − σ2 is about 5.1 MPa.
+    assert!(g < 0.25, "{good}");
+    assert!(s > 2.0 * g, "{shifted}");
+    let (rows, cols, difference) = read_npy_f32(&std::fs::read(&difference_file).unwrap()).unwrap();
+    assert_eq!((rows, cols), (600, 600));
+    assert_eq!(
+        difference.iter().filter(|d| d.is_finite()).count() as u64,
+        good["compared_pixels"].as_u64().unwrap()
+    );
+}
+
+#[test]
+fn compare_refuses_bad_predictions_and_pairs_naming_the_flag_and_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let nan = dir.path().join("nan.csv");
+    std::fs::write(&nan, "x,y,s\n0,0,1\n10,0,NaN\n0,10,2\n").unwrap();
+    let good = path("disc-prediction.csv");
+    let out = dir.path().join("never.npy");
+    let out = out.to_str().unwrap();
+    let pairs = demo_pairs(0.0);
+    let on_a_line = vec![
+        "300,300,0,0".to_string(),
+        "400,300,10,0".to_string(),
+        "500,300,20,0".to_string(),
+    ];
+    for (prediction, pairs, needle) in [
+        (nan.to_str().unwrap(), pairs.clone(), "invalid --prediction"),
+        (good.as_str(), pairs[..1].to_vec(), "invalid --pair"),
+        (good.as_str(), on_a_line, "invalid --pair"),
+        (
+            good.as_str(),
+            demo_pairs(500.0),
+            "invalid --pair: the registration leaves the specimen outside the model",
+        ),
+        (
+            good.as_str(),
+            vec!["1,2,3".into(), "4,5,6,7".into()],
+            "--pair",
+        ),
+    ] {
+        let output = compare_demo_disc(prediction, &pairs, &["--out", out, "--json"]);
+        assert!(!output.status.success(), "{pairs:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{pairs:?}: {stderr}");
+    }
+    assert!(!Path::new(out).exists(), "nothing was written");
 }

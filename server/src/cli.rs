@@ -1,5 +1,5 @@
-//! The command line: `serve`, `calibrate`, `map`, `boundary`, `demo`, `token`, `backup`,
-//! `restore`.
+//! The command line: `serve`, `calibrate`, `map`, `boundary`, `series`, `compare`, `demo`,
+//! `token`, `backup`, `restore`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -10,10 +10,12 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
 use isotint_core::beam::estimate::ESTIMATE_CAUTION;
 use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
 use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
+use isotint_core::comparison::{compare, difference_csv, PointPair, Prediction, Registration};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
+use isotint_core::series::{LoadSeries, SeriesSpec};
 use isotint_core::stress::{maximum_text, StressOpticLaw, STRESS_CAUTION};
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
@@ -71,6 +73,12 @@ pub enum Command {
     /// Free-edge stress |σ_t| = N·f_σ/h along the specimen's outline (from the mask), its
     /// maximum and, with a nominal stress, K_t.
     Boundary(BoundaryArgs),
+    /// Fit a load series: photos of one specimen at known loads, the slope of each pixel's
+    /// order against the load, how linearly it scales and, for a disc, the material fringe value.
+    Series(SeriesArgs),
+    /// Compare the measured σ1 − σ2 with a finite-element prediction (CSV of nodes) registered
+    /// to the photo by point pairs.
+    Compare(CompareArgs),
     /// Write the demo scenario (rendered photos, masks, true orders) and a calibration
     /// measured on its beam photo.
     Demo(DemoArgs),
@@ -426,6 +434,77 @@ pub struct BoundaryArgs {
     pub json: bool,
 }
 
+/// Options of `isotint series`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct SeriesArgs {
+    /// Calibration file (JSON, as written by `isotint calibrate`).
+    #[arg(long)]
+    pub calibration: PathBuf,
+    /// Mask image of the photos' size; non-zero = specimen (for a disc: the disc alone).
+    #[arg(long)]
+    pub mask: PathBuf,
+    /// A photo of the series (repeat, at least twice; all of one size, one view).
+    #[arg(long = "photo", required = true)]
+    pub photos: Vec<PathBuf>,
+    /// Load of the photo in the same place, N (repeat once per --photo, in the same order).
+    #[arg(long = "load-n", alias = "load")]
+    pub loads_n: Vec<f64>,
+    /// Diameter of a disc in diametral compression, mm: adds its fringe value from the centre,
+    /// where σ1 − σ2 = 8P/(πDh).
+    #[arg(long, alias = "disc-diameter")]
+    pub disc_diameter_mm: Option<f64>,
+    /// The disc's thickness, mm (with --disc-diameter-mm): adds its stress per fringe f_σ/h.
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: Option<f64>,
+    /// Also write the slope of every pixel, fringes per N, to this .npy file (float32, NaN =
+    /// not fitted).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Print one JSON object (fringe_value, slope_fringes_per_n, linearity_rms,
+    /// nonlinear_share, …) instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Options of `isotint compare`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct CompareArgs {
+    /// Calibration file (JSON, as written by `isotint calibrate`).
+    #[arg(long)]
+    pub calibration: PathBuf,
+    /// Specimen photo (PNG, JPEG or TIFF).
+    #[arg(long)]
+    pub photo: PathBuf,
+    /// Mask image of the photo's size; non-zero = specimen.
+    #[arg(long)]
+    pub mask: PathBuf,
+    /// Material fringe value f_σ, N/mm per fringe.
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm.
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: f64,
+    /// The predicted σ1 − σ2: CSV of nodes x_mm,y_mm,stress_mpa (model coordinates, mm; MPa);
+    /// one header row allowed.
+    #[arg(long)]
+    pub prediction: PathBuf,
+    /// A pixel and the model point it shows: XPX,YPX,XMM,YMM (pixel-edge coordinates, mm;
+    /// repeat: two pairs give a similarity, three or more a least-squares affine map, needed
+    /// when the model's y axis points up).
+    #[arg(long = "pair", value_parser = parse_pair, allow_hyphen_values = true)]
+    pub pairs: Vec<PointPair>,
+    /// Also write measured − predicted, MPa: .npy (float32, NaN = not compared) or .csv
+    /// (x,y,difference_mpa).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Print one JSON object (mean_abs_difference_mpa, rms_difference_mpa,
+    /// max_abs_difference_mpa, compared_pixels, …) instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
 /// Options of `isotint demo`.
 #[derive(Debug, Args)]
 pub struct DemoArgs {
@@ -453,6 +532,10 @@ fn positive_duration(text: &str) -> Result<Duration, String> {
 
 fn parse_region(text: &str) -> Result<PixelRect, String> {
     PixelRect::parse(text).map_err(|e| e.to_string())
+}
+
+fn parse_pair(text: &str) -> Result<PointPair, String> {
+    PointPair::parse(text).map_err(|e| e.to_string())
 }
 
 fn parse_hint(text: &str) -> Result<OrderHint, String> {
@@ -500,6 +583,10 @@ const FIELD_FLAGS: &[(&str, &str)] = &[
     ("out", "--out"),
     ("stress_out", "--stress-out"),
     ("nominal_stress_mpa", "--nominal-stress-mpa"),
+    ("loads_n", "--load-n"),
+    ("disc_diameter_mm", "--disc-diameter-mm"),
+    ("prediction", "--prediction"),
+    ("pairs", "--pair"),
 ];
 
 /// The flag that carries an API field (the field itself if no flag does).
@@ -570,6 +657,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Calibrate(args) => calibrate(&args),
         Command::Map(args) => map(&args),
         Command::Boundary(args) => boundary(&args),
+        Command::Series(args) => series(&args),
+        Command::Compare(args) => compare_prediction(&args),
         Command::Demo(args) => demo(&args),
         Command::Token(command) => runtime()?.block_on(token(command)),
         Command::Backup(args) => runtime()?.block_on(backup(&args)),
@@ -869,6 +958,178 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
     println!(
         "  edge points         {} sampled, {} with a value\n  stress caution      {}",
         result.edge_points, result.valued_points, result.caution
+    );
+    Ok(())
+}
+
+fn series(args: &SeriesArgs) -> anyhow::Result<()> {
+    if let Some(out) = &args.out {
+        let mut inputs = vec![
+            ("--mask", Some(&args.mask)),
+            ("--calibration", Some(&args.calibration)),
+        ];
+        inputs.extend(args.photos.iter().map(|p| ("--photo", Some(p))));
+        refuse_overwriting(&inputs, "--out", out)?;
+        if !out.to_string_lossy().to_ascii_lowercase().ends_with(".npy") {
+            anyhow::bail!(
+                "--out {}: the slope map is written as NPY; use a .npy file",
+                out.display()
+            );
+        }
+    }
+    let spec = SeriesSpec::new(
+        args.photos.len(),
+        args.loads_n.clone(),
+        args.disc_diameter_mm,
+        args.thickness_mm,
+    )
+    .in_flags()?;
+    let table = read_table(&args.calibration)?;
+    let mask = read(&args.mask, "mask")?;
+    let photos = args
+        .photos
+        .iter()
+        .map(|p| read(p, "photo"))
+        .collect::<anyhow::Result<Vec<_>>>()?;
+    let result =
+        pipeline::series(&spec, &photos, &mask, &table, &DecodeLimits::default()).in_flags()?;
+    if let Some(out) = &args.out {
+        write(out, &pipeline::slope_npy(&result))?;
+    }
+    if args.json {
+        println!("{}", serde_json::to_string(&result)?);
+    } else {
+        print!("{}", series_text(&result));
+    }
+    Ok(())
+}
+
+/// The lines `isotint series` prints about a fitted series.
+fn series_text(s: &LoadSeries) -> String {
+    let optional =
+        |v: Option<f64>, unit: &str| v.map_or("—".into(), |v| format!("{v:.4} {unit}"));
+    let loads: Vec<String> = s.loads_n.iter().map(|p| format!("{p}")).collect();
+    let mut out = format!(
+        "  photos              {} at {} N
+  fitted pixels       {} of {} specimen pixels          (a value in two or more photos)
+  slope at centre     {} (at {:.1}, {:.1}; {} pixels)
+           mean slope          {:.4e} fringes/N
+  linearity rms       {:.4} fringes
+           not linear          {:.2} % of fitted pixels (residual rms above {} fringe)
+",
+        s.photos,
+        loads.join(", "),
+        s.fitted_pixels,
+        s.specimen_pixels,
+        s.slope_fringes_per_n
+            .map_or("—".into(), |v| format!("{v:.4e} fringes/N")),
+        s.centre_x,
+        s.centre_y,
+        s.centre_pixels,
+        s.mean_slope_fringes_per_n,
+        s.linearity_rms,
+        100.0 * s.nonlinear_share,
+        s.nonlinear_tolerance
+    );
+    if s.disc.is_some() {
+        out += &format!(
+            "  fringe value        {}
+  stress per fringe   {}
+  caution             {}
+",
+            optional(s.fringe_value, "N/mm per fringe"),
+            optional(s.stress_per_fringe_mpa, "MPa"),
+            s.caution
+        );
+    }
+    out
+}
+
+fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
+    if let Some(out) = &args.out {
+        let inputs = [
+            ("--photo", Some(&args.photo)),
+            ("--mask", Some(&args.mask)),
+            ("--calibration", Some(&args.calibration)),
+            ("--prediction", Some(&args.prediction)),
+        ];
+        refuse_overwriting(&inputs, "--out", out)?;
+    }
+    let format = match &args.out {
+        None => None,
+        Some(out) => match OutputFormat::from_path(&out.to_string_lossy()) {
+            Ok(f @ (OutputFormat::Npy | OutputFormat::Csv)) => Some(f),
+            _ => anyhow::bail!(
+                "--out {}: use .npy (float32 MPa) or .csv (x,y,difference_mpa)",
+                out.display()
+            ),
+        },
+    };
+    let law = StressOpticLaw::new(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
+    let registration = Registration::fit(&args.pairs).in_flags()?;
+    let text = String::from_utf8(read(&args.prediction, "prediction")?).map_err(|_| {
+        anyhow::anyhow!(
+            "--prediction {} is not UTF-8 text",
+            args.prediction.display()
+        )
+    })?;
+    let prediction = Prediction::from_csv(&text).in_flags()?;
+    let table = read_table(&args.calibration)?;
+    let photo = read(&args.photo, "photo")?;
+    let mask = read(&args.mask, "mask")?;
+    let map = pipeline::map(
+        &photo,
+        Some(&mask),
+        &table,
+        &MapOptions::default(),
+        &DecodeLimits::default(),
+    )
+    .in_flags()?;
+    let result = compare(&map, &law, &prediction, &registration).in_flags()?;
+    if let (Some(out), Some(format)) = (&args.out, format) {
+        let bytes = match format {
+            OutputFormat::Csv => difference_csv(&result),
+            _ => export::npy_f32(
+                &result.difference,
+                result.height as usize,
+                result.width as usize,
+            ),
+        };
+        write(out, &bytes)?;
+    }
+    if args.json {
+        println!("{}", serde_json::to_string(&result)?);
+        return Ok(());
+    }
+    println!(
+        "  compared pixels     {} of {} specimen pixels ({:.1} % inside the model)
+           measured − predicted mean {:+.3}, mean |Δ| {:.3}, rms {:.3} MPa
+           max |Δ|             {} at ({:.1}, {:.1})
+           registration        {:?} from {} pairs, rms {:.3} mm, {:.4} mm/px{}
+           stress caution      {}",
+        result.compared_pixels,
+        result.specimen_pixels,
+        100.0 * result.model_coverage,
+        result.mean_difference_mpa,
+        result.mean_abs_difference_mpa,
+        result.rms_difference_mpa,
+        maximum_text(
+            result.max_abs_difference_mpa,
+            "MPa",
+            result.max_is_lower_bound
+        ),
+        result.max_x,
+        result.max_y,
+        result.registration.kind,
+        result.registration.pairs,
+        result.registration.rms_mm,
+        result.registration.mm_per_px,
+        if result.registration.mirrored {
+            ", mirrored"
+        } else {
+            ""
+        },
+        result.caution
     );
     Ok(())
 }

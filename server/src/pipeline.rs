@@ -1,9 +1,10 @@
-//! The pixel work shared by the CLI and the HTTP service: decode, calibrate, map. Every
+//! The pixel work shared by the CLI and the HTTP service: decode, calibrate, map, load series. Every
 //! function here is synchronous and CPU-bound; the service calls them inside
 //! `tokio::task::spawn_blocking`.
 
 use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
 use isotint_core::export;
+use isotint_core::series::{map_series, LoadSeries, SeriesSpec};
 use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
 
 /// Decodes a beam photo and builds a calibration table from it.
@@ -27,6 +28,26 @@ pub fn map(
     let photo = Photo::decode(photo, limits)?;
     let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
     isotint_core::map_orders(&photo, table, mask.as_ref(), options)
+}
+
+/// Decodes the mask and maps the photos of a load series with `table` (one photo decoded at a
+/// time), then fits it (`series::map_series`).
+pub fn series<P: AsRef<[u8]>>(
+    spec: &SeriesSpec,
+    photos: &[P],
+    mask: &[u8],
+    table: &CalibrationTable,
+    limits: &DecodeLimits,
+) -> CoreResult<LoadSeries> {
+    let mask = Mask::decode(mask, limits)?;
+    let photos = photos.iter().map(|p| Photo::decode(p.as_ref(), limits));
+    map_series(spec, photos, &mask, table, &MapOptions::default())
+}
+
+/// A load series' slope map, fringes per N, as NPY float32 of shape (height, width), NaN where a
+/// pixel was not fitted: the CLI's `--out` and the API's `slope` format.
+pub fn slope_npy(series: &LoadSeries) -> Vec<u8> {
+    export::npy_f32(&series.slope, series.height as usize, series.width as usize)
 }
 
 /// The map's standard uncertainty (1 σ) of the order, fringes, as NPY float32 of shape

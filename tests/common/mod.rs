@@ -399,16 +399,31 @@ pub fn beam_photo() -> (RenderedPhoto, PixelRect) {
     (render(&beam, 600, 240, 1), region)
 }
 
+/// Diameter of the test disc, mm.
+pub const DISC_DIAMETER_MM: f64 = 40.0;
+/// Material fringe value of the test disc, N/mm per fringe.
+pub const DISC_FRINGE_VALUE: f64 = 11.0;
+
 /// A disc in diametral compression (360 × 360 px, 40 mm across, 700 N, f_σ = 11 N/mm).
 pub fn disc_photo() -> RenderedPhoto {
+    disc_photo_at(700.0, 360)
+}
+
+/// The test disc (radius 160 px, 6 mm thick) under `load_n` N, centred in a `size` × `size`
+/// photo.
+pub fn disc_photo_at(load_n: f64, size: u32) -> RenderedPhoto {
+    let centre = f64::from(size) / 2.0;
     let disc = DiscField::new(
-        PixelPoint { x: 180.0, y: 180.0 },
+        PixelPoint {
+            x: centre,
+            y: centre,
+        },
         160.0,
-        DiscInCompression::new(40.0, 6.0, 700.0).unwrap(),
-        11.0,
+        DiscInCompression::new(DISC_DIAMETER_MM, 6.0, load_n).unwrap(),
+        DISC_FRINGE_VALUE,
     )
     .unwrap();
-    render(&disc, 360, 360, 2)
+    render(&disc, size, size, 2)
 }
 
 /// The region as the API's JSON object.
@@ -460,5 +475,28 @@ pub fn assert_no_uncertainty_without_an_order(orders: &[f32], uncertainty: &[f32
             "pixel {i} has no order but σ = {u}"
         );
         assert!(u.is_nan() || *u >= 0.0, "pixel {i} has σ = {u}");
+    }
+}
+
+/// The fields a load series answers at least (the contract).
+pub const SERIES_FIELDS: [&str; 4] = [
+    "fringe_value",
+    "slope_fringes_per_n",
+    "linearity_rms",
+    "nonlinear_share",
+];
+
+/// The fields a comparison answers at least (the contract).
+pub const COMPARISON_FIELDS: [&str; 4] = [
+    "mean_abs_difference_mpa",
+    "rms_difference_mpa",
+    "max_abs_difference_mpa",
+    "compared_pixels",
+];
+
+/// Asserts that every one of `fields` in `v` is a number.
+pub fn assert_numbers(v: &Value, fields: &[&str]) {
+    for field in fields {
+        assert!(v[field].is_number(), "{field} missing: {v}");
     }
 }

@@ -7,6 +7,7 @@ pub mod beam;
 pub mod boundary;
 pub mod calibration;
 pub mod colour;
+pub mod comparison;
 pub mod error;
 pub mod export;
 pub mod exposure;
@@ -14,6 +15,7 @@ pub mod geometry;
 mod matcher;
 pub mod order_map;
 pub mod render;
+pub mod series;
 pub mod stress;
 
 pub use calibration::{CalibrationMetadata, CalibrationTable, TableEntry, TableSource};

@@ -1,18 +1,15 @@
 //! Free-edge stress and K_t along a specimen's edge: a hand-built order map with exact answers,
 //! and rendered photos against closed forms.
 
+mod common;
+
 use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
-use isotint_core::render::effects::{develop, PhotoEffects, PhotoEncoding};
-use isotint_core::render::{
-    render_scene, rendered_table, BendingBeamField, CameraModel, HoleField, LightSource,
-    OrderField, QuarterWavePlates, RenderSetup, Renderer,
-};
+use isotint_core::render::{BendingBeamField, HoleField, OrderField};
 use isotint_core::stress::{PlateWithHole, StressOpticLaw};
 use isotint_core::{
-    map_orders, CalibrationMetadata, CoreError, DecodeLimits, MapOptions, OrderMap, Photo,
-    PixelFlags, PixelPoint, PixelRect,
+    map_orders, CoreError, MapOptions, OrderMap, PixelFlags, PixelPoint, PixelRect,
 };
 
 /// f_σ = 10.5 N/mm per fringe, h = 6 mm: 1.75 MPa per fringe.
@@ -133,29 +130,9 @@ fn bad_edges_are_refused_naming_their_field() {
 /// Maps the photo of `field` (`width` × `height`, rendered with blur and noise, 8-bit PNG) with
 /// a rendered table up to 4 fringes under the same light.
 fn rendered_map(field: &dyn OrderField, width: u32, height: u32) -> OrderMap {
-    let renderer = Renderer::new(RenderSetup::default()).unwrap();
-    let scene = render_scene(field, &renderer, width, height, 2).unwrap();
-    let effects = PhotoEffects {
-        blur_sigma_px: 0.6,
-        noise_sigma_codes: 1.0,
-        seed: 5,
-        ..PhotoEffects::default()
-    };
-    let png = develop(&scene.image, &effects, PhotoEncoding::Png8).unwrap();
-    let photo = Photo::decode(&png, &DecodeLimits::default()).unwrap();
-    let table = rendered_table(
-        LightSource::Daylight,
-        CameraModel::Colorimetric,
-        QuarterWavePlates::Ideal,
-        4.0,
-        0.01,
-        CalibrationMetadata {
-            name: "boundary test".into(),
-            ..Default::default()
-        },
-    )
-    .unwrap();
-    map_orders(&photo, &table, Some(&scene.mask), &MapOptions::default()).unwrap()
+    let (photo, mask) = common::rendered_photo(field, width, height, 5);
+    let table = common::rendered_daylight_table();
+    map_orders(&photo, &table, Some(&mask), &MapOptions::default()).unwrap()
 }
 
 #[test]

@@ -361,6 +361,7 @@ fn the_demo_scenario_ships_photos_masks_true_orders_and_a_description() {
         "beam-true-order.npy",
         "disc.png",
         "disc-mask.png",
+        "disc-prediction.csv",
         "plate-hole.png",
         "plate-hole-mask.png",
         "scenario.json",

@@ -49,6 +49,8 @@ const POLICY: &[(Method, &str, Access)] = &[
     (Method::GET, "/api/v1/order-maps/{id}", READER),
     (Method::GET, "/api/v1/order-maps/{id}/{file}", READER),
     (Method::POST, "/api/v1/order-maps/{id}/boundary", READER),
+    (Method::POST, "/api/v1/order-maps/{id}/comparison", READER),
+    (Method::POST, "/api/v1/series", READER),
     (Method::POST, "/api/v1/calibrations", WRITER),
     (Method::POST, "/api/v1/calibrations/import", WRITER),
     (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),
@@ -271,6 +273,21 @@ mod tests {
         assert!(writer.contains(&"POST /api/v1/calibrations/import".to_string()));
         assert!(!writer.contains(&"GET /api/v1/audit".to_string()));
         assert_eq!(allowed(Role::Admin).len(), POLICY.len());
+    }
+
+    #[test]
+    fn engineering_results_are_documented_and_need_only_a_reader() {
+        let (_, doc) = super::super::api();
+        for route in ["/api/v1/series", "/api/v1/order-maps/{id}/comparison"] {
+            assert!(doc.paths.paths.contains_key(route), "{route} undocumented");
+        }
+        for route in [
+            "/api/v1/series",
+            "/api/v1/order-maps/{id}/comparison",
+            "/api/v1/order-maps/{id}/boundary",
+        ] {
+            assert_eq!(access(&Method::POST, route), READER, "{route}");
+        }
     }
 
     #[test]

@@ -22,6 +22,16 @@ impl Form {
         multipart: Result<Multipart, MultipartRejection>,
         expected: &'static [&'static str],
     ) -> Result<Form, ApiError> {
+        Form::read_repeating(multipart, expected, &[]).await
+    }
+
+    /// Reads every part of `multipart`, in order. Parts not in `expected` are refused, and
+    /// repeated parts unless named in `repeatable`.
+    pub async fn read_repeating(
+        multipart: Result<Multipart, MultipartRejection>,
+        expected: &'static [&'static str],
+        repeatable: &[&str],
+    ) -> Result<Form, ApiError> {
         let mut multipart = multipart?;
         let mut parts: Vec<(String, Bytes)> = Vec::new();
         while let Some(field) = multipart.next_field().await? {
@@ -36,7 +46,7 @@ impl Form {
                     ),
                 ));
             }
-            if parts.iter().any(|(n, _)| *n == name) {
+            if !repeatable.contains(&name.as_str()) && parts.iter().any(|(n, _)| *n == name) {
                 return Err(ApiError::bad_request(
                     "repeated_field",
                     format!("multipart field {name:?} appears more than once"),
@@ -52,6 +62,24 @@ impl Form {
     pub fn take(&mut self, name: &str) -> Option<Bytes> {
         let i = self.parts.iter().position(|(n, _)| n == name)?;
         Some(self.parts.swap_remove(i).1)
+    }
+
+    /// Removes and returns every part `name`, in the order they came.
+    pub fn take_all(&mut self, name: &str) -> Vec<Bytes> {
+        let (taken, kept) = std::mem::take(&mut self.parts)
+            .into_iter()
+            .partition(|(n, _)| n == name);
+        self.parts = kept;
+        taken.into_iter().map(|(_, bytes)| bytes).collect()
+    }
+
+    /// Removes the part `name` and parses it as an id; 400 naming it if missing, 422 naming it
+    /// if it is not one.
+    pub fn require_id<K: IdKind>(&mut self, name: &'static str) -> Result<Id<K>, ApiError> {
+        let bytes = self.require(name)?;
+        let text = std::str::from_utf8(&bytes)
+            .map_err(|_| isotint_core::CoreError::invalid(name, "is not UTF-8 text"))?;
+        Ok(text.parse()?)
     }
 
     /// Removes and returns the part `name`; 400 naming it if missing.

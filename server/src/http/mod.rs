@@ -12,6 +12,7 @@ pub mod metrics;
 pub mod openapi;
 pub mod order_maps;
 pub mod paging;
+pub mod series;
 pub mod session;
 pub mod web;
 
@@ -64,6 +65,7 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
         .merge(health::router())
         .merge(calibrations::router())
         .merge(order_maps::router())
+        .merge(series::router())
         .merge(audit::router())
         .merge(session::router())
         .split_for_parts();

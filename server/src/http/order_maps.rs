@@ -1,6 +1,7 @@
 //! `/api/v1/order-maps`: map a specimen photo with a stored calibration; fetch stored results
 //! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, and σ1 − σ2 in MPa as
-//! stress-npy, stress-preview, stress-csv) until they expire.
+//! stress-npy, stress-preview, stress-csv) until they expire; their free-edge stress and their
+//! comparison with a finite-element prediction.
 
 use axum::body::Bytes;
 use axum::extract::multipart::MultipartRejection;
@@ -10,6 +11,7 @@ use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
 use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath};
+use isotint_core::comparison::{compare, Comparison, PointPair, Prediction, Registration};
 use isotint_core::export::{self, OutputFormat};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
@@ -34,6 +36,7 @@ pub fn router() -> OpenApiRouter<AppState> {
         .routes(routes!(get_order_map))
         .routes(routes!(get_order_map_file))
         .routes(routes!(boundary))
+        .routes(routes!(comparison))
 }
 
 /// JSON body of `POST /api/v1/order-maps/{id}/boundary`. The short names
@@ -54,6 +57,26 @@ pub struct BoundaryRequest {
     /// specimen on one side; without it, the whole outline of the map's mask.
     #[schema(value_type = Option<Vec<Object>>)]
     pub polyline: Option<Vec<PixelPoint>>,
+}
+
+/// JSON body of `POST /api/v1/order-maps/{id}/comparison`.
+#[derive(Debug, Deserialize, ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ComparisonRequest {
+    /// Material fringe value f_σ, N/mm per fringe (positive).
+    #[serde(alias = "fringe_value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm (positive).
+    #[serde(alias = "thickness")]
+    pub thickness_mm: f64,
+    /// The predicted σ1 − σ2 as CSV text: rows x_mm,y_mm,stress_mpa (model coordinates in mm,
+    /// MPa, ≥ 0), one header row allowed, at least three nodes not on one line.
+    pub prediction: String,
+    /// At least two point pairs [{x_px, y_px, x_mm, y_mm}]: a pixel (pixel-edge coordinates)
+    /// and the model point it shows. Two give a similarity, three or more a least-squares
+    /// affine map (needed when the model's y axis points up).
+    #[schema(value_type = Vec<Object>)]
+    pub pairs: Vec<PointPair>,
 }
 
 /// Query of `POST /api/v1/order-maps`.
@@ -375,10 +398,7 @@ async fn create_order_map(
         .transpose()?;
     let admission = state.jobs.admit()?;
     let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
-    let calibration_text = form.require("calibration")?;
-    let calibration_id: CalibrationId = std::str::from_utf8(&calibration_text)
-        .map_err(|_| CoreError::invalid("calibration", "is not UTF-8 text"))?
-        .parse()?;
+    let calibration_id: CalibrationId = form.require_id("calibration")?;
     let options: MapOptions = match form.take("options") {
         Some(bytes) => parse_json("options", &bytes)?,
         None => MapOptions::default(),
@@ -493,6 +513,41 @@ async fn boundary(
     let (_, map) = store::load(&state.storage, id).await?;
     let result = admission
         .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
+        .await??;
+    Ok(Json(result))
+}
+
+/// Compares a stored map's σ1 − σ2 (N·f_σ/h) with a finite-element prediction: the CSV's nodes
+/// are triangulated and interpolated linearly, registered to the photo by the point pairs, and
+/// every specimen pixel with a value inside the model is compared (measured − predicted).
+/// Answers `mean_abs_difference_mpa`, `rms_difference_mpa`, `max_abs_difference_mpa` (with
+/// where), `compared_pixels`, the registration used and how much of the specimen the model
+/// covers. Nothing is stored.
+#[utoipa::path(post, path = "/api/v1/order-maps/{id}/comparison", tag = "order-maps",
+    params(("id" = String, Path, description = "Order-map id")),
+    request_body(content = ComparisonRequest, content_type = "application/json"),
+    responses((status = 200, description = "Difference statistics", body = Object),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
+              (status = 410, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
+async fn comparison(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+    body: Result<Bytes, BytesRejection>,
+) -> Result<Json<Comparison>, ApiError> {
+    let id: OrderMapId = path_id(&id)?;
+    let request: ComparisonRequest = parse_json("comparison", &body?)?;
+    let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
+    let registration = Registration::fit(&request.pairs)?;
+    let row = store::get(&state.storage, id).await?;
+    refuse_expired(&row)?;
+    let admission = state.jobs.admit()?;
+    let (_, map) = store::load(&state.storage, id).await?;
+    let result = admission
+        .run(move || {
+            let prediction = Prediction::from_csv(&request.prediction)?;
+            compare(&map, &law, &prediction, &registration)
+        })
         .await??;
     Ok(Json(result))
 }

@@ -9,6 +9,7 @@ use super::effects::{develop, encode_mask_png, PhotoEffects, PhotoEncoding};
 use super::fields::{BendingBeamField, DiscField, HoleField, OrderField};
 use super::scene::render_scene;
 use super::{CameraModel, LightSource, QuarterWavePlates, RenderSetup, Renderer};
+use crate::comparison::PointPair;
 use crate::error::CoreResult;
 use crate::export::npy_f32;
 use crate::geometry::{PixelPoint, PixelRect};
@@ -104,6 +105,11 @@ pub struct DiscDescription {
     pub centre_order: f64,
     /// Effects applied to the photo.
     pub effects: PhotoEffects,
+    /// A stand-in for a finite-element prediction: the closed-form σ1 − σ2 on a polar grid of
+    /// nodes (CSV x_mm,y_mm,stress_mpa; origin at the centre, y up).
+    pub prediction: String,
+    /// Point pairs registering that prediction to the photo (centre, right and top points).
+    pub prediction_pairs: Vec<PointPair>,
 }
 
 /// Files and load of the demo plate with a hole.
@@ -182,6 +188,47 @@ fn encoding_label(encoding: PhotoEncoding) -> String {
         PhotoEncoding::Jpeg { quality } => format!("JPEG quality {quality}, 4:2:0"),
         PhotoEncoding::JpegFullChroma { quality } => format!("JPEG quality {quality}, 4:4:4"),
     }
+}
+
+/// The closed-form σ1 − σ2 of `disc` (Timoshenko & Goodier) on a polar grid of nodes — the
+/// centre, then 50 rings of 96 nodes out to the rim — as a prediction CSV (header
+/// `x_mm,y_mm,stress_mpa`), in a model frame with its origin at the disc's centre and its y
+/// axis pointing up, as finite-element models usually have it.
+pub fn disc_prediction_csv(disc: &DiscInCompression) -> String {
+    use std::fmt::Write;
+    let radius = 0.5 * disc.diameter_mm;
+    let mut csv = String::from("x_mm,y_mm,stress_mpa\n");
+    let node = |csv: &mut String, x: f64, y_up: f64| {
+        // The closed form's y points down.
+        let s = disc.stress_at(x, -y_up).principal_difference();
+        let _ = writeln!(csv, "{x:.6},{y_up:.6},{s:.6}");
+    };
+    node(&mut csv, 0.0, 0.0);
+    for ring in 1..=50 {
+        let rho = radius * f64::from(ring) / 50.0;
+        for k in 0..96 {
+            let theta = f64::from(k) * std::f64::consts::TAU / 96.0;
+            node(&mut csv, rho * theta.cos(), rho * theta.sin());
+        }
+    }
+    csv
+}
+
+/// Three point pairs registering [`disc_prediction_csv`] to a photo of `disc`: its centre, its
+/// right-hand point and its top point.
+pub fn disc_registration_pairs(disc: &DiscField) -> [PointPair; 3] {
+    let (c, r, radius_mm) = (disc.centre, disc.radius_px, 0.5 * disc.disc.diameter_mm);
+    [
+        (c.x, c.y, 0.0, 0.0),
+        (c.x + r, c.y, radius_mm, 0.0),
+        (c.x, c.y - r, 0.0, radius_mm),
+    ]
+    .map(|(x_px, y_px, x_mm, y_mm)| PointPair {
+        x_px,
+        y_px,
+        x_mm,
+        y_mm,
+    })
 }
 
 impl DemoScenario {
@@ -290,6 +337,8 @@ impl DemoScenario {
                 field: disc,
                 centre_order: disc.law.order(disc.disc.centre_stress_difference_mpa()),
                 effects: photo_fx,
+                prediction: "disc-prediction.csv".into(),
+                prediction_pairs: disc_registration_pairs(&disc).to_vec(),
             },
             plate: PlateDescription {
                 photo: "plate-hole.png".into(),
@@ -307,6 +356,13 @@ impl DemoScenario {
             .into_iter()
             .flat_map(|r| r.files)
             .collect();
+        files.push(DemoFile {
+            name: description.disc.prediction.clone(),
+            description: "closed-form σ1−σ2 of the disc on scattered nodes, as a stand-in for a \
+                          finite-element prediction (mm, MPa, y up)"
+                .into(),
+            bytes: disc_prediction_csv(&disc.disc).into_bytes(),
+        });
         files.push(DemoFile {
             name: "scenario.json".into(),
             description: "what was drawn: regions, loads, material, light and camera".into(),

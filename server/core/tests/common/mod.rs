@@ -69,3 +69,43 @@ pub fn paint(width: u32, height: u32, truth: &[f64], brightness: f32) -> Photo {
         .collect();
     Photo::from_srgb8(width, height, pixels).unwrap()
 }
+
+/// A photo of `field` (`width` × `height`) rendered under daylight with light blur and noise,
+/// as an 8-bit PNG decoded again, and its mask (pixel centres on the specimen).
+pub fn rendered_photo(
+    field: &dyn isotint_core::render::OrderField,
+    width: u32,
+    height: u32,
+    seed: u64,
+) -> (Photo, isotint_core::Mask) {
+    use isotint_core::render::effects::{develop, PhotoEffects, PhotoEncoding};
+    use isotint_core::render::{render_scene, RenderSetup, Renderer};
+    let renderer = Renderer::new(RenderSetup::default()).unwrap();
+    let scene = render_scene(field, &renderer, width, height, 2).unwrap();
+    let effects = PhotoEffects {
+        blur_sigma_px: 0.6,
+        noise_sigma_codes: 1.0,
+        seed,
+        ..PhotoEffects::default()
+    };
+    let png = develop(&scene.image, &effects, PhotoEncoding::Png8).unwrap();
+    let photo = Photo::decode(&png, &isotint_core::DecodeLimits::default()).unwrap();
+    (photo, scene.mask)
+}
+
+/// A table rendered under the same light as [`rendered_photo`], up to 4 fringes.
+pub fn rendered_daylight_table() -> CalibrationTable {
+    use isotint_core::render::{rendered_table, CameraModel, LightSource, QuarterWavePlates};
+    rendered_table(
+        LightSource::Daylight,
+        CameraModel::Colorimetric,
+        QuarterWavePlates::Ideal,
+        4.0,
+        0.01,
+        CalibrationMetadata {
+            name: "rendered daylight table".into(),
+            ..Default::default()
+        },
+    )
+    .unwrap()
+}

@@ -1,0 +1,143 @@
+//! `/api/v1/series`: a load series in one request — several photos of one specimen at known
+//! loads, fitted pixel by pixel (slope of the order against the load, linearity, pixels that
+//! do not scale) and, for a disc, the material fringe value. Nothing is stored.
+
+use axum::extract::multipart::MultipartRejection;
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Multipart, Query, State};
+use axum::http::header;
+use axum::response::{IntoResponse, Response};
+use axum::Json;
+use isotint_core::export::OutputFormat;
+use isotint_core::series::{LoadSeries, SeriesSpec};
+use isotint_core::{CoreError, CoreResult};
+use serde::Deserialize;
+use utoipa::{IntoParams, ToSchema};
+use utoipa_axum::router::OpenApiRouter;
+use utoipa_axum::routes;
+
+use super::error::{ApiError, ErrorBody};
+use super::form::{parse_json, Form};
+use super::AppState;
+use crate::domain::{shorten, CalibrationId};
+use crate::pipeline;
+
+/// Routes of this module.
+pub fn router() -> OpenApiRouter<AppState> {
+    OpenApiRouter::new().routes(routes!(create_series))
+}
+
+/// The `series` part of `POST /api/v1/series`.
+#[derive(Debug, Deserialize, ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SeriesRequest {
+    /// One load per `photo` part, in the same order, N (positive).
+    #[serde(alias = "loads", alias = "load_n")]
+    pub loads_n: Vec<f64>,
+    /// Diameter of a disc in diametral compression, mm: adds `fringe_value` from its centre,
+    /// where σ1 − σ2 = 8P/(πDh).
+    #[serde(default, alias = "disc_diameter")]
+    pub disc_diameter_mm: Option<f64>,
+    /// The disc's thickness, mm (with `disc_diameter_mm`): adds `stress_per_fringe_mpa`.
+    #[serde(default, alias = "thickness")]
+    pub thickness_mm: Option<f64>,
+}
+
+/// Multipart body of `POST /api/v1/series`.
+#[derive(ToSchema)]
+pub struct SeriesForm {
+    /// Calibration id.
+    #[schema(value_type = String, format = Uuid)]
+    pub calibration: String,
+    /// Mask PNG of the photos' size; non-zero = specimen (for a disc, the disc alone).
+    #[schema(value_type = String, format = Binary)]
+    pub mask: Vec<u8>,
+    /// The photos (PNG, JPEG or TIFF), one part each, at least two, all of one size.
+    #[schema(value_type = Vec<String>, format = Binary)]
+    pub photo: Vec<Vec<u8>>,
+    /// JSON: `loads_n` (one per photo, N), `disc_diameter_mm`, `thickness_mm`.
+    #[schema(value_type = Object)]
+    pub series: SeriesRequest,
+}
+
+/// Query of `POST /api/v1/series`.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct SeriesQuery {
+    /// `slope`: answer with the slope of every pixel, fringes per N, as NPY float32 (height,
+    /// width; NaN = not fitted) instead of the JSON figures.
+    pub format: Option<String>,
+}
+
+/// Fits a load series: every photo is mapped with the calibration and the mask, then each
+/// specimen pixel's order is fitted against the load through the origin. Answers
+/// `slope_fringes_per_n` (at the mask's centroid), `linearity_rms` (fringes),
+/// `nonlinear_share` (pixels whose residual rms exceeds 0.1 fringe) and, with
+/// `disc_diameter_mm`, `fringe_value` (N/mm per fringe) from the disc's centre. Nothing is
+/// stored.
+#[utoipa::path(post, path = "/api/v1/series", tag = "order-maps", params(SeriesQuery),
+    request_body(content = SeriesForm, content_type = "multipart/form-data"),
+    responses((status = 200, description = "The fitted series; with format=slope the slope map instead, as NPY \
+                (application/octet-stream)", body = Object),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
+              (status = 408, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 415, body = ErrorBody), (status = 422, body = ErrorBody),
+              (status = 503, body = ErrorBody), (status = 504, body = ErrorBody)))]
+async fn create_series(
+    State(state): State<AppState>,
+    query: Result<Query<SeriesQuery>, QueryRejection>,
+    multipart: Result<Multipart, MultipartRejection>,
+) -> Result<Response, ApiError> {
+    let Query(query) = query?;
+    let slope_file = match query.format.as_deref() {
+        None => false,
+        Some("slope") => true,
+        Some(other) => {
+            return Err(CoreError::invalid(
+                "format",
+                format!("{:?} is not slope", shorten(other, 40)),
+            )
+            .into())
+        }
+    };
+    let admission = state.jobs.admit()?;
+    let mut form = Form::read_repeating(
+        multipart,
+        &["calibration", "mask", "photo", "series"],
+        &["photo"],
+    )
+    .await?;
+    let request: SeriesRequest = parse_json("series", &form.require("series")?)?;
+    let photos = form.take_all("photo");
+    let spec = SeriesSpec::new(
+        photos.len(),
+        request.loads_n,
+        request.disc_diameter_mm,
+        request.thickness_mm,
+    )?;
+    let calibration_id: CalibrationId = form.require_id("calibration")?;
+    let mask = form.require("mask")?;
+    let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
+    let limits = state.config.decode_limits;
+    let (series, file) = admission
+        .run(move || -> CoreResult<(LoadSeries, Option<Vec<u8>>)> {
+            let series = pipeline::series(&spec, &photos, &mask, &table, &limits)?;
+            let file = slope_file.then(|| pipeline::slope_npy(&series));
+            Ok((series, file))
+        })
+        .await??;
+    if let Some(bytes) = file {
+        return Ok((
+            [
+                (header::CONTENT_TYPE, OutputFormat::Npy.content_type()),
+                (
+                    header::CONTENT_DISPOSITION,
+                    "attachment; filename=\"series-slope.npy\"",
+                ),
+            ],
+            bytes,
+        )
+            .into_response());
+    }
+    Ok(Json(series).into_response())
+}
