@@ -428,6 +428,18 @@ async fn the_command_line_backs_up_restores_once_and_refuses_a_non_empty_directo
     assert!(made.status.success(), "{stderr}");
     assert!(stdout.contains("backup of 3 calibrations"), "{stdout}");
 
+    // A mistyped database path is refused, naming the flag, and no empty database appears.
+    let nowhere = dir.path().join("mistyped.sqlite");
+    let typo = format!("sqlite://{}?mode=rwc", nowhere.display());
+    let refused = isotint(&["backup", "--database", &typo, "--out", out_arg]);
+    let (_, stderr) = text(&refused);
+    assert!(!refused.status.success());
+    assert!(
+        stderr.contains("--database") && stderr.contains("no SQLite database"),
+        "{stderr}"
+    );
+    assert!(!nowhere.exists());
+
     let twice = isotint(&["backup", "--database", &source.url(), "--out", out_arg]);
     let (_, stderr) = text(&twice);
     assert!(!twice.status.success());

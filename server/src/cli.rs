@@ -734,11 +734,29 @@ async fn token(command: TokenCommand) -> anyhow::Result<()> {
 
 /// Runs `isotint backup`.
 async fn backup(args: &BackupArgs) -> anyhow::Result<()> {
+    // Opening a SQLite URL creates a missing file: a mistyped path would back up an empty
+    // library without a word.
+    if let Some(file) = sqlite_file(&args.database.database).filter(|f| !f.exists()) {
+        anyhow::bail!(
+            "--database: no SQLite database at {}; nothing to back up",
+            file.display()
+        );
+    }
     let storage = open_database(&args.database).await?;
     let written = crate::backup::write(&storage, &args.out).await;
     storage.close().await;
     println!("backup of {} written to {}", written?, args.out.display());
     Ok(())
+}
+
+/// The file of a `sqlite:` database URL (`sqlite://FILE?…` or `sqlite:FILE`), `None` for other
+/// databases and for an in-memory one.
+fn sqlite_file(url: &str) -> Option<PathBuf> {
+    let rest = url
+        .strip_prefix("sqlite://")
+        .or_else(|| url.strip_prefix("sqlite:"))?;
+    let file = rest.split('?').next().unwrap_or_default();
+    (!file.is_empty() && file != ":memory:").then(|| PathBuf::from(file))
 }
 
 /// Runs `isotint restore`.

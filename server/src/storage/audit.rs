@@ -76,7 +76,9 @@ pub async fn record<'c, E: Executor<'c, Database = Any>>(
     detail: &str,
 ) -> StorageResult<()> {
     let event = AuditEvent {
-        id: Uuid::new_v4().to_string(),
+        // Time-ordered (version 7, ordered within this process even in one millisecond), so
+        // that events of one millisecond list newest first too.
+        id: Uuid::now_v7().to_string(),
         at: OffsetDateTime::now_utc(),
         actor: origin.actor.text().to_string(),
         action: action.name().to_string(),
@@ -137,8 +139,8 @@ pub async fn page(
     let sql = format!(
         "SELECT {EVENT_COLUMNS} FROM audit_events \
          WHERE ($1 = '' OR calibration_id = $1) \
-         AND (at_ms < $2 OR (at_ms = $2 AND id > $3)) \
-         ORDER BY at_ms DESC, id LIMIT $4"
+         AND (at_ms < $2 OR (at_ms = $2 AND id < $3)) \
+         ORDER BY at_ms DESC, id DESC LIMIT $4"
     );
     let rows = sqlx::query(&sql)
         .bind(calibration.map_or(String::new(), |c| c.to_string()))
