@@ -229,7 +229,6 @@ fn case(seed: u64, calibration: &str, bases: &[Vec<u8>]) -> (&'static str, Form)
 async fn thousands_of_damaged_uploads_answer_2xx_or_a_json_4xx_and_never_a_5xx() {
     let svc = service_with(ServiceConfig {
         max_jobs: 2,
-        job_queue: 2 * IN_FLIGHT,
         ..ServiceConfig::default()
     })
     .await;

@@ -12,6 +12,7 @@ use isotint::domain::{CalibrationId, OrderMapId};
 use isotint::storage::audit::AuditAction;
 use isotint::storage::calibrations::{self, ListFilter};
 use isotint::storage::{order_maps, Storage, StorageError};
+use isotint_core::compact;
 use isotint_core::export::read_npy_f32;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
@@ -226,7 +227,7 @@ fn small_map() -> OrderMap {
     OrderMap {
         width: 3,
         height: 2,
-        order: vec![0.5, 1.25, f32::NAN, 2.0, 3.5, f32::NAN],
+        order: vec![0.5, 1.25, f32::NAN, 2.00004, 3.5, f32::NAN],
         residual: vec![1.0; 6],
         margin: vec![4.0; 6],
         flags: vec![
@@ -259,7 +260,9 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
     on_every_backend(|storage| async move {
         let cal = store(&storage, "Map strip", None).await.unwrap();
         let map = small_map();
-        let row = order_maps::insert(&storage, cal.row.id, &map, Duration::from_secs(3600))
+        let bands = compact::encode_map(&map).unwrap();
+        let hour = Duration::from_secs(3600);
+        let row = order_maps::insert(&storage, cal.row.id, &map, &bands, hour)
             .await
             .unwrap();
         let (meta, back) = order_maps::load(&storage, row.id).await.unwrap();
@@ -267,6 +270,9 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
         assert_eq!((back.width, back.height), (3, 2));
         assert_eq!(back.order[1], 1.25);
         assert!(back.order[2].is_nan());
+        // Kept to 1e-4 fringe: 2.00004 is 20 000.4 steps, stored as 20 000.
+        assert_eq!(back.order[3], 2.0);
+        assert_eq!(back.flags[2], PixelFlags(PixelFlags::OUTSIDE_MASK));
         assert_eq!(back.flags[5], PixelFlags(PixelFlags::UNRELIABLE));
         assert_eq!(back.uncertainty[3], 0.125);
         assert!(back.uncertainty[5].is_nan());
@@ -413,10 +419,12 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                 let imported = write(&tables[0], None).await.map(|i| i.created);
                 let corrected = write(&tables[1], Some(own)).await.map(|i| i.created);
                 let rival = write(&tables[2], Some(shared)).await.map(|_| ());
-                let stored =
-                    order_maps::insert(&storage, own, &small_map(), Duration::from_secs(60))
-                        .await
-                        .map(|_| ());
+                let map = small_map();
+                let bands = compact::encode_map(&map).unwrap();
+                let minute = Duration::from_secs(60);
+                let stored = order_maps::insert(&storage, own, &map, &bands, minute)
+                    .await
+                    .map(|_| ());
                 (imported, corrected, rival, stored)
             });
         }

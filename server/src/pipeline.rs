@@ -3,7 +3,6 @@
 //! `tokio::task::spawn_blocking`.
 
 use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
-use isotint_core::export;
 use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
 
 /// Decodes a beam photo and builds a calibration table from it.
@@ -29,9 +28,15 @@ pub fn map(
     isotint_core::map_orders(&photo, table, mask.as_ref(), options)
 }
 
-/// The map's standard uncertainty (1 σ) of the order, fringes, as NPY float32 of shape
-/// (height, width), NaN where there is no value: the `uncertainty` file of the API and the CLI's
-/// `--uncertainty-out`.
-pub fn uncertainty_npy(map: &OrderMap) -> Vec<u8> {
-    export::npy_f32(&map.uncertainty, map.height as usize, map.width as usize)
+/// Peak memory of a map or calibration job per pixel of its photo, bytes: decoding, mapping,
+/// the finished map and its compact form, measured on a 12-megapixel photo (see
+/// docs/validation.md, "Memory under load").
+pub const JOB_BYTES_PER_PIXEL: u64 = 40;
+
+/// The memory a job on `photo` will take, estimated from the photo's header alone (nothing
+/// is decoded), bytes: [`JOB_BYTES_PER_PIXEL`] per pixel plus the request's `request_bytes`.
+/// A header that cannot be read, or a size past `limits`, is refused as the decoder would.
+pub fn job_memory(photo: &[u8], request_bytes: usize, limits: &DecodeLimits) -> CoreResult<u64> {
+    let (width, height) = isotint_core::colour::image_size(photo, limits, "photo")?;
+    Ok(u64::from(width) * u64::from(height) * JOB_BYTES_PER_PIXEL + request_bytes as u64)
 }
