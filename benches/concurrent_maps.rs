@@ -366,6 +366,7 @@ async fn main() {
     let (photo, pixels) = (large, PIXELS_12MP);
 
     println!("3. {CLIENTS} concurrent 12-MP requests, stored");
+    let before = status_bytes("VmRSS:");
     reset_peak();
     let started = Instant::now();
     bench
@@ -373,8 +374,9 @@ async fn main() {
         .await
         .print("   12-MP maps", started.elapsed());
     println!(
-        "   peak resident memory {:.0} MiB",
-        mib(status_bytes("VmHWM:"))
+        "   peak resident memory {:.0} MiB ({:.0} MiB before the step)",
+        mib(status_bytes("VmHWM:")),
+        mib(before)
     );
 
     let id = stored["id"].as_str().unwrap_or_default().to_string();
@@ -394,6 +396,7 @@ async fn main() {
     );
 
     println!("5. {CLIENTS} concurrent CSV downloads of it");
+    let before = status_bytes("VmRSS:");
     reset_peak();
     let started = Instant::now();
     let mut downloads = bench
@@ -401,8 +404,9 @@ async fn main() {
         .await;
     downloads.print("   CSV downloads", started.elapsed());
     println!(
-        "   {:.0} MiB each; peak resident memory {:.0} MiB",
+        "   {:.0} MiB each; peak resident memory {:.0} MiB ({:.0} MiB before the step)",
         mib(downloads.bytes / downloads.latencies.len().max(1) as u64),
-        mib(status_bytes("VmHWM:"))
+        mib(status_bytes("VmHWM:")),
+        mib(before)
     );
 }

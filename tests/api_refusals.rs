@@ -459,7 +459,7 @@ async fn a_photo_too_large_for_the_whole_memory_budget_is_refused_413_naming_the
     })
     .await;
     let id = import_id(&svc.app, &table("Strip for the budget")).await;
-    // 1000 × 1000 pixels at 40 bytes each is about 38 MiB, over a 16 MiB budget: refused from
+    // 1000 × 1000 pixels at 32 bytes each is about 31 MiB, over a 16 MiB budget: refused from
     // the header, before any decoding and without waiting.
     let reply = Form::new()
         .file("photo", "p.png", "image/png", grey_png(1000, 1000))

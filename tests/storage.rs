@@ -17,6 +17,7 @@ use isotint_core::export::read_npy_f32;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::{OrderMap, PixelFlags};
+use sqlx::Row;
 use time::OffsetDateTime;
 
 /// Runs `check` on a fresh SQLite database, then on a fresh PostgreSQL database if one is
@@ -297,7 +298,8 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
 }
 
 #[tokio::test]
-async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_backend() {
+async fn a_map_stored_before_the_uncertainty_column_is_converted_to_bands_and_reads_back_as_nan_on_every_backend(
+) {
     common::on_every_empty_database(|url, _| async move {
         // The schema as it was before `0002_order_map_uncertainty.sql`: the first migration only.
         let first = tempfile::tempdir().unwrap();
@@ -351,8 +353,16 @@ async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_b
         .unwrap();
         pool.close().await;
 
-        // Connecting applies the later migrations to the stored map.
+        // Connecting applies the later migrations to the stored map and converts it to bands,
+        // emptying its old arrays.
         let storage = Storage::connect(&url).await.unwrap();
+        let converted =
+            sqlx::query("SELECT band_rows, CAST(LENGTH(orders) AS BIGINT) AS old FROM order_maps")
+                .fetch_one(storage.pool())
+                .await
+                .unwrap();
+        assert_eq!(converted.get::<i64, _>("band_rows"), 32);
+        assert_eq!(converted.get::<i64, _>("old"), 0);
         let (_, back) = order_maps::load(&storage, map).await.unwrap();
         assert_eq!(back.order[1], 1.25);
         assert_eq!(back.uncertainty.len(), 6);

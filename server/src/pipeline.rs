@@ -29,9 +29,10 @@ pub fn map(
 }
 
 /// Peak memory of a map or calibration job per pixel of its photo, bytes: decoding, mapping,
-/// the finished map and its compact form, measured on a 12-megapixel photo (see
-/// docs/validation.md, "Memory under load").
-pub const JOB_BYTES_PER_PIXEL: u64 = 40;
+/// the finished map, its compact form and storing it measured 24.6 on a 12-megapixel JPEG
+/// (`cargo bench --bench concurrent_maps`, docs/validation.md); 32 leaves room for a mask
+/// (3 bytes a pixel) and the allocator.
+pub const JOB_BYTES_PER_PIXEL: u64 = 32;
 
 /// The memory a job on `photo` will take, estimated from the photo's header alone (nothing
 /// is decoded), bytes: [`JOB_BYTES_PER_PIXEL`] per pixel plus the request's `request_bytes`.

@@ -252,7 +252,7 @@ impl Write for SharedBuffer {
 enum Output {
     Bytes(Vec<u8>),
     Png {
-        stream: png::StreamWriter<'static, SharedBuffer>,
+        stream: Box<png::StreamWriter<'static, SharedBuffer>>,
         buffer: SharedBuffer,
     },
 }
@@ -303,7 +303,10 @@ fn png_stream(
         .write_header()
         .and_then(png::Writer::into_stream_writer)
         .map_err(png_error)?;
-    Ok(Output::Png { stream, buffer })
+    Ok(Output::Png {
+        stream: Box::new(stream),
+        buffer,
+    })
 }
 
 impl FileWriter {
@@ -442,10 +445,11 @@ impl FileWriter {
                 let mut raw = Vec::with_capacity((w + panel.width() as usize) * 3);
                 for (row, y) in (0..rows.count()).zip(y0..) {
                     raw.clear();
-                    for i in row * w..(row + 1) * w {
-                        let c = preview_flag_colour(rows.flags[i]).unwrap_or_else(|| {
-                            if values[i].is_finite() {
-                                scale_colour(f64::from(values[i]) / self.bar_top)
+                    let span = row * w..(row + 1) * w;
+                    for (flags, value) in rows.flags[span.clone()].iter().zip(&values[span]) {
+                        let c = preview_flag_colour(*flags).unwrap_or_else(|| {
+                            if value.is_finite() {
+                                scale_colour(f64::from(*value) / self.bar_top)
                             } else {
                                 [230, 0, 200]
                             }

@@ -142,7 +142,7 @@ impl JobGate {
                      memory budget of {} MiB; send a smaller photo (fewer pixels) or ask for a \
                      larger --memory-budget-mib",
                     mib(size.memory_bytes),
-                    budget * UNIT_BYTES >> 20
+                    mib(budget * UNIT_BYTES)
                 ),
             ));
         };
