@@ -58,7 +58,7 @@ async fn a_client_that_sends_headers_and_half_a_header_line_is_cut_off() {
 }
 
 #[tokio::test]
-async fn a_client_that_sends_headers_and_then_no_body_is_answered_408_and_frees_its_job_place() {
+async fn a_client_that_sends_headers_and_then_no_body_is_answered_408_and_holds_no_job_slot() {
     let server = start(ServiceConfig {
         max_jobs: 1,
         ..short_time_outs()
@@ -81,8 +81,8 @@ async fn a_client_that_sends_headers_and_then_no_body_is_answered_408_and_frees_
         assert!(answer.starts_with("HTTP/1.1 408"), "{path}: {answer:?}");
         assert!(answer.contains("body_timeout"), "{path}: {answer:?}");
     }
-    // The single job place is free again: a photo request is refused for its content, not
-    // for a full queue.
+    // The single job slot was never taken (it is taken once a body has arrived): a photo
+    // request is refused for its content, not for a full service.
     let client = reqwest::Client::new();
     let reply = client
         .post(format!("http://{}/api/v1/order-maps", server.addr))
