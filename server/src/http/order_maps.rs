@@ -396,8 +396,8 @@ async fn get_order_map_file(
     request_body(content = BoundaryRequest, content_type = "application/json"),
     responses((status = 200, description = "Free-edge stress and K_t", body = Object),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
-              (status = 410, body = ErrorBody), (status = 422, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 410, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn boundary(
     State(state): State<AppState>,
     Path(id): Path<String>,
