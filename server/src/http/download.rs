@@ -139,7 +139,8 @@ impl Downloads {
                 tokio::time::timeout(time_limit, produce(writer, shape, bands, &sender)).await;
             match outcome {
                 Ok(Ok(())) => done.store(true, Ordering::SeqCst),
-                Ok(Err(e)) => tracing::warn!(error = ?e, "a download failed before its end"),
+                // Most often the client went away.
+                Ok(Err(e)) => tracing::info!(error = ?e, "a download ended before the file did"),
                 Err(_) => {
                     tracing::warn!(limit = ?time_limit, "a download was cut off at its time limit");
                     if let Some(ConnectionCut(notify)) = cut {
