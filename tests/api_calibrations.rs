@@ -329,10 +329,7 @@ async fn contend(svc: &common::TestService) {
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn concurrent_imports_corrections_and_stored_maps_answer_201_or_409_on_every_backend() {
-    let config = isotint::config::ServiceConfig {
-        job_queue: 16,
-        ..isotint::config::ServiceConfig::default()
-    };
+    let config = isotint::config::ServiceConfig::default();
     contend(&common::service_with(config.clone()).await).await;
     match common::PostgresDatabase::create().await {
         Some(db) => {

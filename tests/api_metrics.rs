@@ -6,6 +6,7 @@ mod common;
 use axum::http::{header, StatusCode};
 use common::{get, grey_png, import_id, service, service_with, table, Form, TestService};
 use isotint::config::ServiceConfig;
+use isotint::http::jobs::JobSize;
 
 /// The text of `/metrics`, asserting a 200 in the OpenMetrics text format.
 async fn scrape(svc: &TestService) -> String {
@@ -76,7 +77,14 @@ async fn a_map_job_is_admitted_timed_and_leaves_no_job_running_or_waiting() {
 
     let text = scrape(&svc).await;
     assert_eq!(sample(&text, "isotint_jobs_admitted_total"), Some(1.0));
-    assert_eq!(sample(&text, "isotint_jobs_refused_total"), Some(0.0));
+    assert_eq!(
+        sample(&text, "isotint_jobs_refused_total{reason=\"wait_limit\"}"),
+        None
+    );
+    assert_eq!(
+        sample(&text, "isotint_memory_budget_in_use_bytes"),
+        Some(0.0)
+    );
     assert!(sample(&text, "isotint_job_duration_seconds_count") >= Some(1.0));
     assert!(sample(&text, "isotint_job_wait_seconds_count") >= Some(1.0));
     assert_eq!(sample(&text, "isotint_jobs_running"), Some(0.0));
@@ -84,15 +92,25 @@ async fn a_map_job_is_admitted_timed_and_leaves_no_job_running_or_waiting() {
 }
 
 #[tokio::test]
-async fn a_job_refused_for_want_of_a_place_is_counted_beside_the_one_holding_it() {
+async fn a_job_refused_at_the_wait_limit_is_counted_beside_the_memory_the_holder_takes() {
     let svc = service_with(ServiceConfig {
         max_jobs: 1,
-        job_queue: 0,
+        memory_budget_bytes: 64 << 20,
+        job_wait_limit: std::time::Duration::from_millis(50),
         ..ServiceConfig::default()
     })
     .await;
     let id = import_id(&svc.app, &table("Strip for the queue")).await;
-    let holder = svc.state.jobs.admit().unwrap();
+    // 3 MiB and a byte: counted in whole MiB, 4 MiB of the budget.
+    let holder = svc
+        .state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: (3 << 20) + 1,
+            waiting_bytes: 0,
+        })
+        .await
+        .unwrap();
     assert_eq!(
         map_grey_photo(&svc, &id).await,
         StatusCode::SERVICE_UNAVAILABLE
@@ -100,15 +118,25 @@ async fn a_job_refused_for_want_of_a_place_is_counted_beside_the_one_holding_it(
 
     let text = scrape(&svc).await;
     assert_eq!(sample(&text, "isotint_jobs_admitted_total"), Some(1.0));
-    assert_eq!(sample(&text, "isotint_jobs_refused_total"), Some(1.0));
     assert_eq!(
-        sample(&text, "isotint_jobs_waiting"),
-        Some(1.0),
-        "the held place has not started running"
+        sample(&text, "isotint_jobs_refused_total{reason=\"wait_limit\"}"),
+        Some(1.0)
+    );
+    assert_eq!(sample(&text, "isotint_jobs_running"), Some(1.0));
+    assert_eq!(sample(&text, "isotint_jobs_waiting"), Some(0.0));
+    assert_eq!(
+        sample(&text, "isotint_memory_budget_in_use_bytes"),
+        Some(f64::from(4u32 << 20))
+    );
+    assert_eq!(
+        sample(&text, "isotint_memory_budget_bytes"),
+        Some(f64::from(64u32 << 20))
     );
     drop(holder);
+    let text = scrape(&svc).await;
+    assert_eq!(sample(&text, "isotint_jobs_running"), Some(0.0));
     assert_eq!(
-        sample(&scrape(&svc).await, "isotint_jobs_waiting"),
+        sample(&text, "isotint_memory_budget_in_use_bytes"),
         Some(0.0)
     );
 }

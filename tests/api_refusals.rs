@@ -11,6 +11,7 @@ use common::{
     Form, Reply, TestService,
 };
 use isotint::config::ServiceConfig;
+use isotint::http::jobs::JobSize;
 use serde_json::json;
 
 /// Asserts status and that the error message mentions `needle`.
@@ -378,20 +379,28 @@ async fn bad_map_options_and_unknown_ids_are_refused() {
 }
 
 #[tokio::test]
-async fn a_full_job_queue_answers_503_with_retry_after() {
+async fn a_request_that_would_wait_past_the_wait_limit_answers_503_with_retry_after() {
     let svc = service_with(ServiceConfig {
         max_jobs: 1,
-        job_queue: 0,
+        job_wait_limit: Duration::from_millis(50),
         ..ServiceConfig::default()
     })
     .await;
-    let held = svc.state.jobs.admit().unwrap();
+    let held = svc
+        .state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: 1,
+            waiting_bytes: 0,
+        })
+        .await
+        .unwrap();
     let reply = Form::new()
         .file("photo", "p.png", "image/png", grey_png(100, 60))
         .json("spec", &beam_spec())
         .post(&svc.app, "/api/v1/calibrations")
         .await;
-    refused(&reply, StatusCode::SERVICE_UNAVAILABLE, "retry");
+    refused(&reply, StatusCode::SERVICE_UNAVAILABLE, "wait limit");
     assert_eq!(reply.headers["retry-after"], "2");
     drop(held);
     let reply = Form::new()
@@ -401,6 +410,75 @@ async fn a_full_job_queue_answers_503_with_retry_after() {
         .await;
     refused(&reply, StatusCode::UNPROCESSABLE_ENTITY, "outside");
     still_serving_with_no_calibrations(&svc).await;
+}
+
+#[tokio::test]
+async fn a_request_whose_upload_would_pass_the_queues_memory_limit_answers_503_at_once() {
+    let svc = service_with(ServiceConfig {
+        max_jobs: 1,
+        queue_memory_bytes: 16,
+        ..ServiceConfig::default()
+    })
+    .await;
+    let id = import_id(&svc.app, &table("Strip for the queue's memory")).await;
+    let held = svc
+        .state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: 1,
+            waiting_bytes: 0,
+        })
+        .await
+        .unwrap();
+    let photo = grey_png(100, 60);
+    assert!(photo.len() > 16, "{} bytes", photo.len());
+    let started = Instant::now();
+    let reply = Form::new()
+        .file("photo", "p.png", "image/png", photo)
+        .text("calibration", &id)
+        .post(&svc.app, "/api/v1/order-maps")
+        .await;
+    refused(
+        &reply,
+        StatusCode::SERVICE_UNAVAILABLE,
+        "limit of the queue",
+    );
+    assert_eq!(reply.headers["retry-after"], "2");
+    assert!(
+        started.elapsed() < ServiceConfig::default().job_wait_limit,
+        "refused without waiting"
+    );
+    drop(held);
+}
+
+#[tokio::test]
+async fn a_photo_too_large_for_the_whole_memory_budget_is_refused_413_naming_the_budget() {
+    let svc = service_with(ServiceConfig {
+        memory_budget_bytes: 16 << 20,
+        ..ServiceConfig::default()
+    })
+    .await;
+    let id = import_id(&svc.app, &table("Strip for the budget")).await;
+    // 1000 × 1000 pixels at 32 bytes each is about 31 MiB, over a 16 MiB budget: refused from
+    // the header, before any decoding and without waiting.
+    let reply = Form::new()
+        .file("photo", "p.png", "image/png", grey_png(1000, 1000))
+        .text("calibration", &id)
+        .post(&svc.app, "/api/v1/order-maps")
+        .await;
+    refused(
+        &reply,
+        StatusCode::PAYLOAD_TOO_LARGE,
+        "memory budget of 16 MiB",
+    );
+    assert_eq!(reply.error_code(), "too_large");
+    // A photo that fits is mapped.
+    let reply = Form::new()
+        .file("photo", "p.png", "image/png", grey_png(100, 60))
+        .text("calibration", &id)
+        .post(&svc.app, "/api/v1/order-maps")
+        .await;
+    assert_eq!(reply.status, StatusCode::CREATED);
 }
 
 #[tokio::test]

@@ -4,46 +4,17 @@
 
 mod common;
 
-use std::net::SocketAddr;
 use std::time::Duration;
 
 use axum::body::Body;
 use axum::http::{header, Request, StatusCode};
-use common::{get, grey_png, import_id, post, send, service_with, table, Form, TestService};
+use common::{get, grey_png, import_id, post, send, service_with, start, table, Form};
 use isotint::config::ServiceConfig;
-use isotint::http::app;
 use tokio::io::{AsyncReadExt, AsyncWriteExt};
-use tokio::net::{TcpListener, TcpStream};
-use tokio::sync::oneshot;
+use tokio::net::TcpStream;
 
 /// Longest any step of these tests may wait before it counts as hung (a bound, not a target).
 const HUNG: Duration = Duration::from_secs(20);
-
-/// A service listening on a loopback port, stopped when dropped.
-struct RunningService {
-    addr: SocketAddr,
-    _stop: oneshot::Sender<()>,
-    _svc: TestService,
-}
-
-async fn start(config: ServiceConfig) -> RunningService {
-    let svc = service_with(config).await;
-    let listener = TcpListener::bind("127.0.0.1:0").await.unwrap();
-    let addr = listener.local_addr().unwrap();
-    let (stop, stopped) = oneshot::channel::<()>();
-    let (router, config) = (app(svc.state.clone()), svc.state.config.clone());
-    tokio::spawn(async move {
-        isotint::service::serve(listener, router, &config, async {
-            let _ = stopped.await;
-        })
-        .await;
-    });
-    RunningService {
-        addr,
-        _stop: stop,
-        _svc: svc,
-    }
-}
 
 /// Reads until the server closes the connection (bounded by [`HUNG`]).
 async fn read_until_closed(stream: &mut TcpStream) -> String {
@@ -87,10 +58,9 @@ async fn a_client_that_sends_headers_and_half_a_header_line_is_cut_off() {
 }
 
 #[tokio::test]
-async fn a_client_that_sends_headers_and_then_no_body_is_answered_408_and_frees_its_job_place() {
+async fn a_client_that_sends_headers_and_then_no_body_is_answered_408_and_holds_no_job_slot() {
     let server = start(ServiceConfig {
         max_jobs: 1,
-        job_queue: 0,
         ..short_time_outs()
     })
     .await;
@@ -111,8 +81,8 @@ async fn a_client_that_sends_headers_and_then_no_body_is_answered_408_and_frees_
         assert!(answer.starts_with("HTTP/1.1 408"), "{path}: {answer:?}");
         assert!(answer.contains("body_timeout"), "{path}: {answer:?}");
     }
-    // The single job place is free again: a photo request is refused for its content, not
-    // for a full queue.
+    // The single job slot was never taken (it is taken once a body has arrived): a photo
+    // request is refused for its content, not for a full service.
     let client = reqwest::Client::new();
     let reply = client
         .post(format!("http://{}/api/v1/order-maps", server.addr))

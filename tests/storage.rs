@@ -12,10 +12,12 @@ use isotint::domain::{CalibrationId, OrderMapId};
 use isotint::storage::audit::AuditAction;
 use isotint::storage::calibrations::{self, ListFilter};
 use isotint::storage::{order_maps, Storage, StorageError};
+use isotint_core::compact;
 use isotint_core::export::read_npy_f32;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::{OrderMap, PixelFlags};
+use sqlx::Row;
 use time::OffsetDateTime;
 
 /// Runs `check` on a fresh SQLite database, then on a fresh PostgreSQL database if one is
@@ -252,7 +254,7 @@ fn small_map() -> OrderMap {
     OrderMap {
         width: 3,
         height: 2,
-        order: vec![0.5, 1.25, f32::NAN, 2.0, 3.5, f32::NAN],
+        order: vec![0.5, 1.25, f32::NAN, 2.00004, 3.5, f32::NAN],
         residual: vec![1.0; 6],
         margin: vec![4.0; 6],
         flags: vec![
@@ -285,7 +287,9 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
     on_every_backend(|storage| async move {
         let cal = store(&storage, "Map strip", None).await.unwrap();
         let map = small_map();
-        let row = order_maps::insert(&storage, cal.row.id, &map, Duration::from_secs(3600))
+        let bands = compact::encode_map(&map).unwrap();
+        let hour = Duration::from_secs(3600);
+        let row = order_maps::insert(&storage, cal.row.id, &map, &bands, hour)
             .await
             .unwrap();
         let (meta, back) = order_maps::load(&storage, row.id).await.unwrap();
@@ -293,6 +297,9 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
         assert_eq!((back.width, back.height), (3, 2));
         assert_eq!(back.order[1], 1.25);
         assert!(back.order[2].is_nan());
+        // Kept to 1e-4 fringe: 2.00004 is 20 000.4 steps, stored as 20 000.
+        assert_eq!(back.order[3], 2.0);
+        assert_eq!(back.flags[2], PixelFlags(PixelFlags::OUTSIDE_MASK));
         assert_eq!(back.flags[5], PixelFlags(PixelFlags::UNRELIABLE));
         assert_eq!(back.uncertainty[3], 0.125);
         assert!(back.uncertainty[5].is_nan());
@@ -317,7 +324,8 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
 }
 
 #[tokio::test]
-async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_backend() {
+async fn a_map_stored_before_the_uncertainty_column_is_converted_to_bands_and_reads_back_as_nan_on_every_backend(
+) {
     common::on_every_empty_database(|url, _| async move {
         // The schema as it was before `0002_order_map_uncertainty.sql`: the first migration only.
         let first = tempfile::tempdir().unwrap();
@@ -371,8 +379,16 @@ async fn a_map_stored_before_the_uncertainty_column_reads_back_as_nan_on_every_b
         .unwrap();
         pool.close().await;
 
-        // Connecting applies the later migrations to the stored map.
+        // Connecting applies the later migrations to the stored map and converts it to bands,
+        // emptying its old arrays.
         let storage = Storage::connect(&url).await.unwrap();
+        let converted =
+            sqlx::query("SELECT band_rows, CAST(LENGTH(orders) AS BIGINT) AS old FROM order_maps")
+                .fetch_one(storage.pool())
+                .await
+                .unwrap();
+        assert_eq!(converted.get::<i64, _>("band_rows"), 32);
+        assert_eq!(converted.get::<i64, _>("old"), 0);
         let (_, back) = order_maps::load(&storage, map).await.unwrap();
         assert_eq!(back.order[1], 1.25);
         assert_eq!(back.uncertainty.len(), 6);
@@ -439,10 +455,12 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                 let imported = write(&tables[0], None).await.map(|i| i.created);
                 let corrected = write(&tables[1], Some(own)).await.map(|i| i.created);
                 let rival = write(&tables[2], Some(shared)).await.map(|_| ());
-                let stored =
-                    order_maps::insert(&storage, own, &small_map(), Duration::from_secs(60))
-                        .await
-                        .map(|_| ());
+                let map = small_map();
+                let bands = compact::encode_map(&map).unwrap();
+                let minute = Duration::from_secs(60);
+                let stored = order_maps::insert(&storage, own, &map, &bands, minute)
+                    .await
+                    .map(|_| ());
                 (imported, corrected, rival, stored)
             });
         }

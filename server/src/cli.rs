@@ -11,7 +11,7 @@ use isotint_core::beam::estimate::ESTIMATE_CAUTION;
 use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
 use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
 use isotint_core::comparison::{compare, difference_csv, PointPair, Prediction, Registration};
-use isotint_core::export::{self, OutputFormat};
+use isotint_core::export::{self, FileKind, OutputFormat};
 use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
@@ -25,7 +25,7 @@ use time::OffsetDateTime;
 
 use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::backup::Restored;
-use crate::config::ServiceConfig;
+use crate::config::{machine_memory_budget, ServiceConfig};
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
 use crate::storage::tokens::{self, TokenRow};
@@ -205,14 +205,23 @@ pub struct ServeArgs {
         value_parser = at_least_one
     )]
     pub max_jobs: usize,
-    /// Jobs that may wait for a slot; further requests get 503 with Retry-After.
-    #[arg(
-        long,
-        env = "ISOTINT_JOB_QUEUE",
-        hide_env_values = true,
-        default_value_t = 4
-    )]
-    pub job_queue: usize,
+    /// Memory that admitted jobs may take together, MiB (each job's estimate from its photo's
+    /// header); default half the machine's (or control group's) memory.
+    #[arg(long, env = "ISOTINT_MEMORY_BUDGET_MIB", hide_env_values = true, value_parser = clap::value_parser!(u64).range(1..))]
+    pub memory_budget_mib: Option<u64>,
+    /// Largest total of uploads waiting for admission, MiB; past it requests get 503 with
+    /// Retry-After. Default a quarter of the memory budget.
+    #[arg(long, env = "ISOTINT_QUEUE_MEMORY_MIB", hide_env_values = true, value_parser = clap::value_parser!(u64).range(1..))]
+    pub queue_memory_mib: Option<u64>,
+    /// Longest a request waits for admission (e.g. 60s); past it 503 with Retry-After.
+    #[arg(long, env = "ISOTINT_JOB_WAIT_LIMIT", hide_env_values = true, default_value = "60s", value_parser = positive_duration)]
+    pub job_wait_limit: Duration,
+    /// File downloads of stored maps streamed at once; past it 503 with Retry-After.
+    #[arg(long, env = "ISOTINT_MAX_DOWNLOADS", hide_env_values = true, default_value_t = 8, value_parser = at_least_one)]
+    pub max_downloads: usize,
+    /// Longest a file download may take (e.g. 10m); a slower reader is cut off.
+    #[arg(long, env = "ISOTINT_DOWNLOAD_TIME_LIMIT", hide_env_values = true, default_value = "10m", value_parser = positive_duration)]
+    pub download_time_limit: Duration,
     /// Time limit of one request (e.g. 90s, 2m).
     #[arg(long, env = "ISOTINT_REQUEST_TIMEOUT", hide_env_values = true, default_value = "120s", value_parser = positive_duration)]
     pub request_timeout: Duration,
@@ -277,10 +286,19 @@ impl AuthSetting {
 impl ServeArgs {
     /// The service configuration these options describe.
     pub fn config(&self) -> ServiceConfig {
+        let budget = self
+            .memory_budget_mib
+            .map_or_else(machine_memory_budget, |m| m.saturating_mul(1 << 20));
         ServiceConfig {
             upload_limit_bytes: self.upload_limit_mib.saturating_mul(1 << 20),
             max_jobs: self.max_jobs,
-            job_queue: self.job_queue,
+            memory_budget_bytes: budget,
+            queue_memory_bytes: self
+                .queue_memory_mib
+                .map_or(budget / 4, |m| m.saturating_mul(1 << 20)),
+            job_wait_limit: self.job_wait_limit,
+            max_downloads: self.max_downloads,
+            download_time_limit: self.download_time_limit,
             request_timeout: self.request_timeout,
             header_timeout: self.header_timeout,
             body_timeout: self.body_timeout,
@@ -1241,7 +1259,10 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         &DecodeLimits::default(),
     )
     .in_flags()?;
-    write(&args.out, &export::encode(&map, outputs.orders).in_flags()?)?;
+    write(
+        &args.out,
+        &export::encode(&map, FileKind::Orders(outputs.orders)).in_flags()?,
+    )?;
     println!(
         "{}×{} order map ({}) written to {}",
         map.width,
@@ -1250,7 +1271,7 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         args.out.display()
     );
     if let Some(u) = &args.uncertainty_out {
-        write(u, &pipeline::uncertainty_npy(&map))?;
+        write(u, &export::encode(&map, FileKind::Uncertainty).in_flags()?)?;
         println!(
             "{}×{} order uncertainty (1 σ, npy) written to {}",
             map.width,
@@ -1260,7 +1281,10 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     }
     if let (Some(path), Some(format), Some(law)) = (&args.stress_out, outputs.stress, &outputs.law)
     {
-        write(path, &export::encode_stress(&map, law, format).in_flags()?)?;
+        write(
+            path,
+            &export::encode(&map, FileKind::Stress(format, *law)).in_flags()?,
+        )?;
         println!(
             "{}×{} σ1−σ2 map, MPa ({}) written to {}",
             map.width,

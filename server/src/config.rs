@@ -12,10 +12,20 @@ use crate::access::AccessMode;
 pub struct ServiceConfig {
     /// Largest accepted request body, bytes.
     pub upload_limit_bytes: usize,
-    /// Calibration and map jobs that run at once.
+    /// Calibration and map jobs that run at once (CPU slots).
     pub max_jobs: usize,
-    /// Jobs that may wait for a free slot; one more is refused with 503.
-    pub job_queue: usize,
+    /// Memory that admitted jobs may take together, bytes (each job's estimate from its
+    /// photo's header, see `pipeline::job_memory`).
+    pub memory_budget_bytes: u64,
+    /// Largest total of request bodies waiting for admission, bytes; a request that would pass
+    /// it is refused with 503.
+    pub queue_memory_bytes: u64,
+    /// Longest wait for admission; a request that would wait longer is refused with 503.
+    pub job_wait_limit: Duration,
+    /// File downloads of order maps streamed at once; one more is refused with 503.
+    pub max_downloads: usize,
+    /// Longest a file download may take; a slower reader is cut off.
+    pub download_time_limit: Duration,
     /// Time limit of one request.
     pub request_timeout: Duration,
     /// Time a connection has to send a request's headers, from its opening or from the end
@@ -44,7 +54,11 @@ impl Default for ServiceConfig {
         ServiceConfig {
             upload_limit_bytes: 64 << 20,
             max_jobs: 2,
-            job_queue: 4,
+            memory_budget_bytes: machine_memory_budget(),
+            queue_memory_bytes: machine_memory_budget() / 4,
+            job_wait_limit: Duration::from_secs(60),
+            max_downloads: 8,
+            download_time_limit: Duration::from_secs(600),
             request_timeout: Duration::from_secs(120),
             header_timeout: Duration::from_secs(30),
             body_timeout: Duration::from_secs(30),
@@ -58,5 +72,35 @@ impl Default for ServiceConfig {
             calibration_sets: None,
             access: AccessMode::Open,
         }
+    }
+}
+
+/// The default memory budget of the jobs: half of the machine's memory, or of the control
+/// group's limit where that is lower (`/proc/meminfo` `MemTotal`, cgroup v2 `memory.max` or v1
+/// `memory.limit_in_bytes`); 2 GiB where neither can be read.
+pub fn machine_memory_budget() -> u64 {
+    let total = std::fs::read_to_string("/proc/meminfo")
+        .ok()
+        .and_then(|text| {
+            let line = text.lines().find(|l| l.starts_with("MemTotal:"))?;
+            let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+            Some(kib * 1024)
+        });
+    let cgroup = [
+        "/sys/fs/cgroup/memory.max",
+        "/sys/fs/cgroup/memory/memory.limit_in_bytes",
+    ]
+    .iter()
+    .find_map(|path| {
+        std::fs::read_to_string(path)
+            .ok()?
+            .trim()
+            .parse::<u64>()
+            .ok()
+    });
+    match (total, cgroup) {
+        (Some(t), Some(c)) => t.min(c) / 2,
+        (Some(m), None) | (None, Some(m)) => m / 2,
+        (None, None) => 2 << 30,
     }
 }

@@ -50,9 +50,16 @@ pub fn slope_npy(series: &LoadSeries) -> Vec<u8> {
     export::npy_f32(&series.slope, series.height as usize, series.width as usize)
 }
 
-/// The map's standard uncertainty (1 σ) of the order, fringes, as NPY float32 of shape
-/// (height, width), NaN where there is no value: the `uncertainty` file of the API and the CLI's
-/// `--uncertainty-out`.
-pub fn uncertainty_npy(map: &OrderMap) -> Vec<u8> {
-    export::npy_f32(&map.uncertainty, map.height as usize, map.width as usize)
+/// Peak memory of a map or calibration job per pixel of its photo, bytes: decoding, mapping,
+/// the finished map, its compact form and storing it measured 24.6 on a 12-megapixel JPEG
+/// (`cargo bench --bench concurrent_maps`, docs/validation.md); 32 leaves room for a mask
+/// (3 bytes a pixel) and the allocator.
+pub const JOB_BYTES_PER_PIXEL: u64 = 32;
+
+/// The memory a job on `photo` will take, estimated from the photo's header alone (nothing
+/// is decoded), bytes: [`JOB_BYTES_PER_PIXEL`] per pixel plus the request's `request_bytes`.
+/// A header that cannot be read, or a size past `limits`, is refused as the decoder would.
+pub fn job_memory(photo: &[u8], request_bytes: usize, limits: &DecodeLimits) -> CoreResult<u64> {
+    let (width, height) = isotint_core::colour::image_size(photo, limits, "photo")?;
+    Ok(u64::from(width) * u64::from(height) * JOB_BYTES_PER_PIXEL + request_bytes as u64)
 }

@@ -22,6 +22,7 @@ use tower::Layer;
 use crate::access::AccessMode;
 use crate::calibration_sets::import_at_start;
 use crate::config::ServiceConfig;
+use crate::http::download::ConnectionCut;
 use crate::http::{app, AppState};
 use crate::storage::{order_maps, Storage};
 
@@ -96,12 +97,17 @@ pub async fn serve(
             () = &mut shutdown => break,
         };
         // The client's address, for the audit trail (`ConnectInfo` in the request).
-        let app = Extension(ConnectInfo(peer)).layer(app.clone());
+        // And a way to close it, for downloads whose reader is too slow.
+        let cut = ConnectionCut::default();
+        let app = Extension(ConnectInfo(peer)).layer(Extension(cut.clone()).layer(app.clone()));
         let service = TowerToHyperService::new(app);
         let connection = graceful.watch(http.serve_connection(TokioIo::new(stream), service));
         tokio::spawn(async move {
-            if let Err(e) = connection.await {
-                tracing::debug!(%peer, error = %e, "connection ended with an error");
+            tokio::select! {
+                ended = connection => if let Err(e) = ended {
+                    tracing::debug!(%peer, error = %e, "connection ended with an error");
+                },
+                () = cut.0.notified() => tracing::info!(%peer, "connection closed: a download passed its time limit"),
             }
             drop(slot);
         });

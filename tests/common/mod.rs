@@ -500,3 +500,32 @@ pub fn assert_numbers(v: &Value, fields: &[&str]) {
         assert!(v[field].is_number(), "{field} missing: {v}");
     }
 }
+
+/// A service listening on a loopback port, stopped when dropped.
+pub struct RunningService {
+    /// Where it listens.
+    pub addr: std::net::SocketAddr,
+    _stop: tokio::sync::oneshot::Sender<()>,
+    /// The service behind it.
+    pub svc: TestService,
+}
+
+/// Starts a fresh service with `config` on a loopback port.
+pub async fn start(config: ServiceConfig) -> RunningService {
+    let svc = service_with(config).await;
+    let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.unwrap();
+    let addr = listener.local_addr().unwrap();
+    let (stop, stopped) = tokio::sync::oneshot::channel::<()>();
+    let (router, config) = (app(svc.state.clone()), svc.state.config.clone());
+    tokio::spawn(async move {
+        isotint::service::serve(listener, router, &config, async {
+            let _ = stopped.await;
+        })
+        .await;
+    });
+    RunningService {
+        addr,
+        _stop: stop,
+        svc,
+    }
+}

@@ -43,22 +43,25 @@ impl Default for DecodeLimits {
     }
 }
 
-/// Decodes any supported image (PNG, JPEG, TIFF) after checking its header against `limits`.
-/// `what` names the input in error messages ("photo", "mask").
-pub(crate) fn decode_dynamic(
-    bytes: &[u8],
-    limits: &DecodeLimits,
-    what: &str,
-) -> CoreResult<DynamicImage> {
+/// Reads the size of an image (PNG, JPEG, TIFF) from its header alone and checks it against
+/// `limits`; returns (width, height) in pixels and the format. Nothing is decoded, so it is
+/// cheap and allocates no pixel buffer. `what` names the input in error messages ("photo",
+/// "mask").
+pub fn image_size(bytes: &[u8], limits: &DecodeLimits, what: &str) -> CoreResult<(u32, u32)> {
+    probe(bytes, limits, what).map(|(width, height, _)| (width, height))
+}
+
+fn reader<'a>(bytes: &'a [u8], what: &str) -> CoreResult<ImageReader<Cursor<&'a [u8]>>> {
+    ImageReader::new(Cursor::new(bytes))
+        .with_guessed_format()
+        .map_err(|e| CoreError::Decode(format!("{what}: {e}")))
+}
+
+fn probe(bytes: &[u8], limits: &DecodeLimits, what: &str) -> CoreResult<(u32, u32, ImageFormat)> {
     if bytes.is_empty() {
         return Err(CoreError::Decode(format!("the {what} is empty (0 bytes)")));
     }
-    let reader = || {
-        ImageReader::new(Cursor::new(bytes))
-            .with_guessed_format()
-            .map_err(|e| CoreError::Decode(format!("{what}: {e}")))
-    };
-    let probe = reader()?;
+    let probe = reader(bytes, what)?;
     let Some(probe_format) = probe.format() else {
         return Err(CoreError::Decode(format!(
             "the {what} is not a PNG, JPEG or TIFF file"
@@ -79,10 +82,21 @@ pub(crate) fn decode_dynamic(
             limits.max_side, limits.max_pixels
         )));
     }
+    Ok((width, height, probe_format))
+}
+
+/// Decodes any supported image (PNG, JPEG, TIFF) after checking its header against `limits`.
+/// `what` names the input in error messages ("photo", "mask").
+pub(crate) fn decode_dynamic(
+    bytes: &[u8],
+    limits: &DecodeLimits,
+    what: &str,
+) -> CoreResult<DynamicImage> {
+    let (_, _, probe_format) = probe(bytes, limits, what)?;
     if probe_format == ImageFormat::Jpeg {
         return decode_jpeg_strictly(bytes, limits, what);
     }
-    let mut decoder = reader()?;
+    let mut decoder = reader(bytes, what)?;
     let mut image_limits = image::Limits::default();
     image_limits.max_image_width = Some(limits.max_side);
     image_limits.max_image_height = Some(limits.max_side);

@@ -2,8 +2,9 @@
 //! σ1 − σ2 map in MPa (NPY, preview PNG, CSV).
 
 use std::io::Write;
+use std::sync::{Arc, Mutex};
 
-use image::{ImageEncoder, Rgb, RgbImage};
+use image::{Rgb, RgbImage};
 
 use crate::error::{CoreError, CoreResult};
 use crate::order_map::{MapStatistics, OrderMap, PixelFlags};
@@ -93,66 +94,436 @@ impl OutputFormat {
     }
 }
 
-/// Encodes `map` in `format`.
-pub fn encode(map: &OrderMap, format: OutputFormat) -> CoreResult<Vec<u8>> {
-    match format {
-        OutputFormat::Npy => Ok(npy_f32(&map.order, map.height as usize, map.width as usize)),
-        OutputFormat::Png16 => png16(map),
-        OutputFormat::Preview => {
-            preview(map, &map.order, bar_top(&map.statistics), COLOUR_BAR_TITLE)
+/// Whole rows of a map, row-major with `width` pixels a row: what a [`FileWriter`] is fed.
+/// Every slice holds the same number of pixels, a multiple of `width`.
+#[derive(Debug, Clone, Copy)]
+pub struct Rows<'a> {
+    /// Pixels per row.
+    pub width: usize,
+    /// Fringe orders, NaN = no value.
+    pub order: &'a [f32],
+    /// Colour residuals, ΔE\*ab.
+    pub residual: &'a [f32],
+    /// Flag bits.
+    pub flags: &'a [PixelFlags],
+    /// Standard uncertainty (1 σ) of the order, fringes, NaN = no value.
+    pub uncertainty: &'a [f32],
+}
+
+impl Rows<'_> {
+    /// Number of rows.
+    pub fn count(&self) -> usize {
+        self.order.len() / self.width.max(1)
+    }
+
+    /// Rows `first..end` of these (counted from the first of these).
+    pub fn slice(&self, first: usize, end: usize) -> Self {
+        let span = first * self.width..end * self.width;
+        Rows {
+            width: self.width,
+            order: &self.order[span.clone()],
+            residual: &self.residual[span.clone()],
+            flags: &self.flags[span.clone()],
+            uncertainty: &self.uncertainty[span],
         }
-        OutputFormat::Csv => Ok(csv(map, "x,y,order,residual,flags", |i| {
-            let (o, r) = (map.order[i], map.residual[i]);
-            if o.is_finite() {
-                format!("{o:.4},{r:.2}")
-            } else {
-                ",".to_string()
-            }
-        })),
     }
 }
 
-/// Encodes the σ1 − σ2 map of `map` through `law`, MPa, in `format`: NPY float32 (NaN = no
-/// value), a preview whose bar runs from 0 to the stress at the table's last order, or CSV
-/// `x,y,stress_mpa,flags`. There is no 16-bit PNG of stresses.
-pub fn encode_stress(
-    map: &OrderMap,
-    law: &StressOpticLaw,
-    format: OutputFormat,
-) -> CoreResult<Vec<u8>> {
-    let stress = law.stress_map_mpa(&map.order);
-    match format {
-        OutputFormat::Npy => Ok(npy_f32(&stress, map.height as usize, map.width as usize)),
-        OutputFormat::Png16 => Err(CoreError::invalid(
-            "format",
-            "a stress map is written as NPY, preview PNG or CSV, not as a 16-bit PNG",
-        )),
-        OutputFormat::Preview => preview(
-            map,
-            &stress,
-            law.stress_difference_mpa(bar_top(&map.statistics)),
-            STRESS_BAR_TITLE,
-        ),
-        OutputFormat::Csv => Ok(csv(map, "x,y,stress_mpa,flags", |i| {
-            let s = stress[i];
-            if s.is_finite() {
-                format!("{s:.4}")
-            } else {
-                String::new()
-            }
-        })),
+impl OrderMap {
+    /// All of the map's rows.
+    pub fn rows(&self) -> Rows<'_> {
+        Rows {
+            width: self.width as usize,
+            order: &self.order,
+            residual: &self.residual,
+            flags: &self.flags,
+            uncertainty: &self.uncertainty,
+        }
     }
+}
+
+/// What a file of a map holds: its orders in an [`OutputFormat`], σ1 − σ2 in MPa through a
+/// stress-optic law (NPY, preview or CSV), the 1 σ uncertainty of the orders (NPY float32) or
+/// the flag bits (NPY uint8).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum FileKind {
+    /// Fringe orders.
+    Orders(OutputFormat),
+    /// σ1 − σ2, MPa, through the law.
+    Stress(OutputFormat, StressOpticLaw),
+    /// Standard uncertainty (1 σ) of the order, fringes, NPY float32, NaN = no value.
+    Uncertainty,
+    /// Per-pixel flag bits, NPY uint8.
+    Flags,
+}
+
+impl FileKind {
+    /// Parses the API's `format` names: one of the orders' formats, `uncertainty`, `flags`, or
+    /// `stress-` and `npy`, `preview` or `csv`, which need `law`. An unknown name is refused
+    /// naming `format`, a stress format without a law naming `fringe_value_n_per_mm`.
+    pub fn from_name(name: &str, law: Option<StressOpticLaw>) -> CoreResult<Self> {
+        let unknown = || {
+            let shown: String = name.chars().take(40).collect();
+            CoreError::invalid(
+                "format",
+                format!(
+                    "{shown:?} is not one of npy, png16, preview, csv, uncertainty, flags, \
+                     stress-npy, stress-preview, stress-csv"
+                ),
+            )
+        };
+        match name.strip_prefix("stress-") {
+            Some(stress) => {
+                let format = OutputFormat::from_name(stress)
+                    .ok()
+                    .filter(|f| *f != OutputFormat::Png16)
+                    .ok_or_else(unknown)?;
+                let law = law.ok_or_else(|| {
+                    CoreError::invalid(
+                        "fringe_value_n_per_mm",
+                        format!("is required (with thickness_mm) for format {name}"),
+                    )
+                })?;
+                Ok(FileKind::Stress(format, law))
+            }
+            None => match name {
+                "uncertainty" => Ok(FileKind::Uncertainty),
+                "flags" => Ok(FileKind::Flags),
+                _ => OutputFormat::from_name(name)
+                    .map(FileKind::Orders)
+                    .map_err(|_| unknown()),
+            },
+        }
+    }
+
+    /// MIME type of the file.
+    pub fn content_type(self) -> &'static str {
+        match self {
+            FileKind::Orders(format) | FileKind::Stress(format, _) => format.content_type(),
+            FileKind::Uncertainty | FileKind::Flags => OutputFormat::Npy.content_type(),
+        }
+    }
+
+    /// The file's name for a map named `stem`.
+    pub fn file_name(self, stem: &str) -> String {
+        match self {
+            FileKind::Orders(format) => format!("{stem}.{}", format.extension()),
+            FileKind::Stress(format, _) => format!("{stem}-stress.{}", format.extension()),
+            FileKind::Uncertainty => format!("{stem}-uncertainty.npy"),
+            FileKind::Flags => format!("{stem}-flags.npy"),
+        }
+    }
+}
+
+/// Encodes the whole of `map` as a file of `kind`.
+pub fn encode(map: &OrderMap, kind: FileKind) -> CoreResult<Vec<u8>> {
+    let mut writer = FileWriter::new(kind, map.width, map.height, &map.statistics)?;
+    let mut out = writer.header();
+    out.extend(writer.write(map.rows())?);
+    out.extend(writer.finish()?);
+    Ok(out)
+}
+
+/// A byte buffer shared between a PNG stream writer and the [`FileWriter`] that drains it.
+#[derive(Debug, Clone, Default)]
+struct SharedBuffer(Arc<Mutex<Vec<u8>>>);
+
+impl SharedBuffer {
+    fn take(&self) -> Vec<u8> {
+        std::mem::take(&mut *self.0.lock().unwrap_or_else(|e| e.into_inner()))
+    }
+}
+
+impl Write for SharedBuffer {
+    fn write(&mut self, bytes: &[u8]) -> std::io::Result<usize> {
+        self.0
+            .lock()
+            .unwrap_or_else(|e| e.into_inner())
+            .extend_from_slice(bytes);
+        Ok(bytes.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
+
+/// Where encoded rows go: plain bytes (NPY, CSV) or a PNG stream.
+enum Output {
+    Bytes(Vec<u8>),
+    Png {
+        stream: Box<png::StreamWriter<'static, SharedBuffer>>,
+        buffer: SharedBuffer,
+    },
+}
+
+/// Encodes a map's file row by row, so that a file of any size is made with memory for a
+/// few rows at a time: feed it all rows in order ([`FileWriter::write`] returns the bytes
+/// ready so far), then [`FileWriter::finish`]. The bytes of [`FileWriter::header`],
+/// of each `write` and of `finish`, in that order, are the file.
+pub struct FileWriter {
+    kind: FileKind,
+    width: u32,
+    height: u32,
+    next_row: u32,
+    /// The value at the top of a preview's colour bar, in the bar's unit.
+    bar_top: f64,
+    /// The preview's part right of the map, its full height.
+    panel: Option<RgbImage>,
+    header: Vec<u8>,
+    output: Output,
+}
+
+impl std::fmt::Debug for FileWriter {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("FileWriter")
+            .field("kind", &self.kind)
+            .field("width", &self.width)
+            .field("height", &self.height)
+            .field("next_row", &self.next_row)
+            .finish_non_exhaustive()
+    }
+}
+
+fn png_error(e: impl std::fmt::Display) -> CoreError {
+    CoreError::Encode(format!("png: {e}"))
+}
+
+fn png_stream(
+    width: u32,
+    height: u32,
+    colour: png::ColorType,
+    depth: png::BitDepth,
+) -> CoreResult<Output> {
+    let buffer = SharedBuffer::default();
+    let mut encoder = png::Encoder::new(buffer.clone(), width, height);
+    encoder.set_color(colour);
+    encoder.set_depth(depth);
+    let stream = encoder
+        .write_header()
+        .and_then(png::Writer::into_stream_writer)
+        .map_err(png_error)?;
+    Ok(Output::Png {
+        stream: Box::new(stream),
+        buffer,
+    })
+}
+
+impl FileWriter {
+    /// A writer of a `kind` file of a `width` × `height` map with `statistics` (the preview's
+    /// colour bar reads the table's last order from them).
+    pub fn new(
+        kind: FileKind,
+        width: u32,
+        height: u32,
+        statistics: &MapStatistics,
+    ) -> CoreResult<Self> {
+        let (rows, cols) = (height as usize, width as usize);
+        let top = bar_top(statistics);
+        let mut panel = None;
+        let mut bar_top_value = top;
+        let plain = |header: Vec<u8>| (header, Output::Bytes(Vec::new()));
+        let (header, output) = match kind {
+            FileKind::Orders(OutputFormat::Npy)
+            | FileKind::Stress(OutputFormat::Npy, _)
+            | FileKind::Uncertainty => plain(npy_header("<f4", rows, cols)),
+            FileKind::Flags => plain(npy_header("|u1", rows, cols)),
+            FileKind::Orders(OutputFormat::Csv) => plain(b"x,y,order,residual,flags\n".to_vec()),
+            FileKind::Stress(OutputFormat::Csv, _) => plain(b"x,y,stress_mpa,flags\n".to_vec()),
+            FileKind::Orders(OutputFormat::Png16) => (
+                Vec::new(),
+                png_stream(
+                    width,
+                    height,
+                    png::ColorType::Grayscale,
+                    png::BitDepth::Sixteen,
+                )?,
+            ),
+            FileKind::Stress(OutputFormat::Png16, _) => {
+                return Err(CoreError::invalid(
+                    "format",
+                    "a stress map is written as NPY, preview PNG or CSV, not as a 16-bit PNG",
+                ))
+            }
+            FileKind::Orders(OutputFormat::Preview)
+            | FileKind::Stress(OutputFormat::Preview, _) => {
+                let (top, title) = match kind {
+                    FileKind::Stress(_, law) => (law.stress_difference_mpa(top), STRESS_BAR_TITLE),
+                    _ => (top, COLOUR_BAR_TITLE),
+                };
+                bar_top_value = top;
+                let side = preview_panel(width, height, top, title);
+                let output = png_stream(
+                    width + side.width(),
+                    side.height(),
+                    png::ColorType::Rgb,
+                    png::BitDepth::Eight,
+                )?;
+                panel = Some(side);
+                (Vec::new(), output)
+            }
+        };
+        Ok(FileWriter {
+            kind,
+            width,
+            height,
+            next_row: 0,
+            bar_top: bar_top_value,
+            panel,
+            header,
+            output,
+        })
+    }
+
+    /// The file's first bytes (NPY header, CSV header line, PNG signature and header).
+    pub fn header(&mut self) -> Vec<u8> {
+        let mut out = std::mem::take(&mut self.header);
+        if let Output::Png { buffer, .. } = &self.output {
+            out.extend(buffer.take());
+        }
+        out
+    }
+
+    /// Encodes the next `rows`; returns the bytes ready so far. Rows past the map's height,
+    /// or of another width, are refused.
+    pub fn write(&mut self, rows: Rows<'_>) -> CoreResult<Vec<u8>> {
+        let count = rows.count() as u32;
+        if rows.width != self.width as usize || self.next_row + count > self.height {
+            return Err(CoreError::Encode(format!(
+                "{count} rows of {} pixels do not continue a {}×{} map at row {}",
+                rows.width, self.width, self.height, self.next_row
+            )));
+        }
+        let y0 = self.next_row as usize;
+        self.next_row += count;
+        let stress = match self.kind {
+            FileKind::Stress(_, law) => Some(law.stress_map_mpa(rows.order)),
+            _ => None,
+        };
+        let values = stress.as_deref().unwrap_or(rows.order);
+        let w = rows.width;
+        match (&mut self.output, self.kind) {
+            (Output::Bytes(out), FileKind::Flags) => out.extend(rows.flags.iter().map(|f| f.0)),
+            (Output::Bytes(out), FileKind::Uncertainty) => {
+                out.extend(rows.uncertainty.iter().flat_map(|v| v.to_le_bytes()));
+            }
+            (Output::Bytes(out), FileKind::Orders(OutputFormat::Csv)) => {
+                out.reserve(values.len() * 24);
+                for (i, (o, r)) in values.iter().zip(rows.residual).enumerate() {
+                    let _ = write!(out, "{},{},", i % w, y0 + i / w);
+                    if o.is_finite() {
+                        let _ = write!(out, "{o:.4},{r:.2}");
+                    } else {
+                        out.push(b',');
+                    }
+                    let _ = writeln!(out, ",{}", rows.flags[i].0);
+                }
+            }
+            (Output::Bytes(out), FileKind::Stress(OutputFormat::Csv, _)) => {
+                out.reserve(values.len() * 20);
+                for (i, s) in values.iter().enumerate() {
+                    let _ = write!(out, "{},{},", i % w, y0 + i / w);
+                    if s.is_finite() {
+                        let _ = write!(out, "{s:.4}");
+                    }
+                    let _ = writeln!(out, ",{}", rows.flags[i].0);
+                }
+            }
+            (Output::Bytes(out), _) => {
+                out.extend(values.iter().flat_map(|v| v.to_le_bytes()));
+            }
+            (Output::Png { stream, .. }, FileKind::Orders(OutputFormat::Png16)) => {
+                let mut raw = Vec::with_capacity(values.len() * 2);
+                for v in values {
+                    // PNG stores 16-bit samples big-endian.
+                    raw.extend_from_slice(&png16_grey(*v).to_be_bytes());
+                }
+                stream.write_all(&raw).map_err(png_error)?;
+            }
+            (Output::Png { stream, .. }, _) => {
+                let panel = self.panel.as_ref().ok_or_else(|| png_error("no panel"))?;
+                let mut raw = Vec::with_capacity((w + panel.width() as usize) * 3);
+                for (row, y) in (0..rows.count()).zip(y0..) {
+                    raw.clear();
+                    let span = row * w..(row + 1) * w;
+                    for (flags, value) in rows.flags[span.clone()].iter().zip(&values[span]) {
+                        let c = preview_flag_colour(*flags).unwrap_or_else(|| {
+                            if value.is_finite() {
+                                scale_colour(f64::from(*value) / self.bar_top)
+                            } else {
+                                [230, 0, 200]
+                            }
+                        });
+                        raw.extend_from_slice(&c);
+                    }
+                    raw.extend_from_slice(panel_row(panel, y as u32));
+                    stream.write_all(&raw).map_err(png_error)?;
+                }
+            }
+        }
+        Ok(self.take_output())
+    }
+
+    fn take_output(&mut self) -> Vec<u8> {
+        match &mut self.output {
+            Output::Bytes(out) => std::mem::take(out),
+            Output::Png { buffer, .. } => buffer.take(),
+        }
+    }
+
+    /// Ends the file; returns its last bytes. Refused unless every row was written.
+    pub fn finish(mut self) -> CoreResult<Vec<u8>> {
+        if self.next_row != self.height {
+            return Err(CoreError::Encode(format!(
+                "the file ended after {} of {} rows",
+                self.next_row, self.height
+            )));
+        }
+        let mut out = self.header();
+        out.extend(self.take_output());
+        if let Output::Png { mut stream, buffer } = self.output {
+            // A preview taller than the map (for its bar's title): white below the map.
+            if let Some(panel) = &self.panel {
+                let white = vec![255u8; self.width as usize * 3];
+                for y in self.height..panel.height() {
+                    stream.write_all(&white).map_err(png_error)?;
+                    stream.write_all(panel_row(panel, y)).map_err(png_error)?;
+                }
+            }
+            stream.finish().map_err(png_error)?;
+            out.extend(buffer.take());
+        }
+        Ok(out)
+    }
+}
+
+/// The 16-bit PNG's grey value of an order: round(order × 1000), 65535 where there is none.
+fn png16_grey(order: f32) -> u16 {
+    if order.is_finite() {
+        (order * PNG16_SCALE)
+            .round()
+            .clamp(0.0, f32::from(PNG16_NO_VALUE - 1)) as u16
+    } else {
+        PNG16_NO_VALUE
+    }
+}
+
+/// Row `y` of the preview's panel, RGB bytes.
+fn panel_row(panel: &RgbImage, y: u32) -> &[u8] {
+    let stride = panel.width() as usize * 3;
+    let start = y as usize * stride;
+    &panel.as_raw()[start..start + stride]
 }
 
 /// NPY version 1.0 header for a 2-D C-order array of `descr` (e.g. `<f4`), padded so that
 /// magic, version, length and dictionary together fill a multiple of 64 bytes.
-fn npy_header(descr: &str, rows: usize, cols: usize, payload: usize) -> Vec<u8> {
+fn npy_header(descr: &str, rows: usize, cols: usize) -> Vec<u8> {
     let dict =
         format!("{{'descr': '{descr}', 'fortran_order': False, 'shape': ({rows}, {cols}), }}");
     let unpadded = 10 + dict.len() + 1;
     let padding = (64 - unpadded % 64) % 64;
     let header_len = dict.len() + padding + 1;
-    let mut out = Vec::with_capacity(10 + header_len + payload);
+    let mut out = Vec::with_capacity(10 + header_len);
     out.extend_from_slice(b"\x93NUMPY\x01\x00");
     out.extend_from_slice(&(header_len as u16).to_le_bytes());
     out.extend_from_slice(dict.as_bytes());
@@ -163,7 +534,7 @@ fn npy_header(descr: &str, rows: usize, cols: usize, payload: usize) -> Vec<u8> 
 
 /// NPY version 1.0 bytes of a little-endian float32 array of shape (rows, cols), C order.
 pub fn npy_f32(values: &[f32], rows: usize, cols: usize) -> Vec<u8> {
-    let mut out = npy_header("<f4", rows, cols, values.len() * 4);
+    let mut out = npy_header("<f4", rows, cols);
     for v in values {
         out.extend_from_slice(&v.to_le_bytes());
     }
@@ -214,26 +585,6 @@ pub fn read_npy_f32(bytes: &[u8]) -> CoreResult<(usize, usize, Vec<f32>)> {
         .map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]]))
         .collect();
     Ok((rows, cols, values))
-}
-
-fn png16(map: &OrderMap) -> CoreResult<Vec<u8>> {
-    let mut raw = Vec::with_capacity(map.order.len() * 2);
-    for v in &map.order {
-        let grey = if v.is_finite() {
-            (v * PNG16_SCALE)
-                .round()
-                .clamp(0.0, f32::from(PNG16_NO_VALUE - 1)) as u16
-        } else {
-            PNG16_NO_VALUE
-        };
-        // PNG stores 16-bit samples big-endian.
-        raw.extend_from_slice(&grey.to_be_bytes());
-    }
-    let mut out = Vec::new();
-    image::codecs::png::PngEncoder::new(&mut out)
-        .write_image(&raw, map.width, map.height, image::ExtendedColorType::L16)
-        .map_err(|e| CoreError::Encode(e.to_string()))?;
-    Ok(out)
 }
 
 /// Colour of a flagged pixel in the preview: outside mask dark grey, beyond range white,
@@ -347,15 +698,15 @@ fn bar_top(s: &MapStatistics) -> f64 {
     }
 }
 
-/// The false-colour picture of `values` (one per pixel of `map`, in the bar's unit) beside a
-/// colour bar from 0 to `top` titled `title`; flagged pixels in their flag colours.
-fn preview(map: &OrderMap, values: &[f32], top: f64, title: &str) -> CoreResult<Vec<u8>> {
-    let (w, h) = (map.width, map.height);
-    // Beside the map: a gap, the bar, its ticks and numbers, the title written upwards. The
-    // picture is at least tall enough for the title; the bar leaves half a text height at each
-    // end so that the end numbers fit.
+/// The part of a preview right of a `w` × `h` map: a colour bar from 0 to `top` (in the bar's
+/// unit) titled `title`, its ticks and numbers. As tall as the picture, which is at least tall
+/// enough for the title.
+fn preview_panel(w: u32, h: u32, top: f64, title: &str) -> RgbImage {
+    // Beside the map: a gap, the bar, its ticks and numbers, the title written upwards. The bar
+    // leaves half a text height at each end so that the end numbers fit. Coordinates here are
+    // the picture's less `w`.
     let bar_w = (w / 12).clamp(24, 120);
-    let bar_x = w + bar_w / 3;
+    let bar_x = bar_w / 3;
     let margin = GLYPH_PX / 2;
     let height = h.max((title.len() as u32 + 1) * GLYPH_PX);
     let labels = colour_bar_labels(top, height - 2 * margin);
@@ -364,19 +715,6 @@ fn preview(map: &OrderMap, values: &[f32], top: f64, title: &str) -> CoreResult<
     let title_x = label_x + (widest + 1) * GLYPH_PX;
     let width = title_x + GLYPH_PX + margin;
     let mut img = RgbImage::from_pixel(width, height, Rgb([255, 255, 255]));
-    for y in 0..h {
-        for x in 0..w {
-            let i = (y * w + x) as usize;
-            let c = preview_flag_colour(map.flags[i]).unwrap_or_else(|| {
-                if values[i].is_finite() {
-                    scale_colour(f64::from(values[i]) / top)
-                } else {
-                    [230, 0, 200]
-                }
-            });
-            img.put_pixel(x, y, Rgb(c));
-        }
-    }
     let bar_rows = height - 2 * margin;
     for row in 0..bar_rows {
         let colour = Rgb(scale_colour(1.0 - f64::from(row) / f64::from(bar_rows - 1)));
@@ -392,36 +730,7 @@ fn preview(map: &OrderMap, values: &[f32], top: f64, title: &str) -> CoreResult<
     }
     let title_px = title.len() as u32 * GLYPH_PX;
     draw_text(&mut img, title, title_x, (height + title_px) / 2 - 1, true);
-    let mut out = Vec::new();
-    image::codecs::png::PngEncoder::new(&mut out)
-        .write_image(
-            img.as_raw(),
-            img.width(),
-            img.height(),
-            image::ExtendedColorType::Rgb8,
-        )
-        .map_err(|e| CoreError::Encode(e.to_string()))?;
-    Ok(out)
-}
-
-/// CSV of `map`, one line `x,y,…,flags` per pixel under `header`; `cells(i)` writes the
-/// columns between y and flags of pixel `i` (empty cells where there is no value).
-fn csv(map: &OrderMap, header: &str, cells: impl Fn(usize) -> String) -> Vec<u8> {
-    let mut out = Vec::with_capacity(map.order.len() * 24);
-    let _ = writeln!(out, "{header}");
-    let w = map.width as usize;
-    for (i, flags) in map.flags.iter().enumerate() {
-        let _ = writeln!(out, "{},{},{},{}", i % w, i / w, cells(i), flags.0);
-    }
-    out
-}
-
-/// NPY version 1.0 bytes of an unsigned 8-bit array of shape (rows, cols), C order — used for
-/// the per-pixel [`PixelFlags`] bits.
-pub fn npy_u8(values: &[u8], rows: usize, cols: usize) -> Vec<u8> {
-    let mut out = npy_header("|u1", rows, cols, values.len());
-    out.extend_from_slice(values);
-    out
+    img
 }
 
 #[cfg(test)]
@@ -498,7 +807,7 @@ mod tests {
     #[test]
     fn the_preview_colours_the_tables_last_order_as_the_top_of_its_bar() {
         let map = three_pixel_map();
-        let png = encode(&map, OutputFormat::Preview).unwrap();
+        let png = encode(&map, FileKind::Orders(OutputFormat::Preview)).unwrap();
         let img = image::load_from_memory(&png).unwrap().to_rgb8();
         // Tall enough for the title: 13 text heights of 8 px; the bar spans rows 4 to 99.
         assert_eq!(img.height(), 104);
@@ -538,17 +847,19 @@ mod tests {
         map.order[0] = f32::NAN;
         map.flags[0] = PixelFlags(PixelFlags::UNRELIABLE);
         let law = StressOpticLaw::new(10.5, 6.0).unwrap();
-        let npy = encode_stress(&map, &law, OutputFormat::Npy).unwrap();
+        let npy = encode(&map, FileKind::Stress(OutputFormat::Npy, law)).unwrap();
         let (rows, cols, stress) = read_npy_f32(&npy).unwrap();
         assert_eq!((rows, cols), (1, 3));
         assert!(stress[0].is_nan());
         assert!((stress[1] - 3.85).abs() < 1e-5 && (stress[2] - 7.7).abs() < 1e-5);
-        let csv = String::from_utf8(encode_stress(&map, &law, OutputFormat::Csv).unwrap()).unwrap();
+        let csv =
+            String::from_utf8(encode(&map, FileKind::Stress(OutputFormat::Csv, law)).unwrap())
+                .unwrap();
         assert_eq!(
             csv,
             "x,y,stress_mpa,flags\n0,0,,4\n1,0,3.8500,0\n2,0,7.7000,0\n"
         );
-        let err = encode_stress(&map, &law, OutputFormat::Png16).unwrap_err();
+        let err = encode(&map, FileKind::Stress(OutputFormat::Png16, law)).unwrap_err();
         assert!(
             matches!(
                 err,
@@ -565,7 +876,7 @@ mod tests {
     fn the_stress_preview_bar_runs_to_the_stress_at_the_tables_last_order_and_is_titled_in_mpa() {
         let map = three_pixel_map();
         let law = StressOpticLaw::new(10.5, 6.0).unwrap();
-        let png = encode_stress(&map, &law, OutputFormat::Preview).unwrap();
+        let png = encode(&map, FileKind::Stress(OutputFormat::Preview, law)).unwrap();
         let img = image::load_from_memory(&png).unwrap().to_rgb8();
         // Tall enough for the 21-character title: 22 text heights of 8 px.
         assert_eq!(img.height(), 176);
@@ -602,6 +913,54 @@ mod tests {
             texts,
             ["0", "0.005", "0.01", "0.015", "0.02", "0.025", "0.03", "0.035", "0.04"]
         );
+    }
+
+    #[test]
+    fn a_file_written_a_row_at_a_time_reads_as_the_file_written_at_once() {
+        let mut map = three_pixel_map();
+        map.width = 1;
+        map.height = 3;
+        map.order[1] = f32::NAN;
+        map.flags[1] = PixelFlags(PixelFlags::BEYOND_RANGE);
+        let law = StressOpticLaw::new(10.5, 6.0).unwrap();
+        for kind in [
+            FileKind::Orders(OutputFormat::Npy),
+            FileKind::Orders(OutputFormat::Csv),
+            FileKind::Orders(OutputFormat::Png16),
+            FileKind::Orders(OutputFormat::Preview),
+            FileKind::Stress(OutputFormat::Csv, law),
+            FileKind::Uncertainty,
+            FileKind::Flags,
+        ] {
+            let whole = encode(&map, kind).unwrap();
+            let mut writer = FileWriter::new(kind, 1, 3, &map.statistics).unwrap();
+            let mut parts = writer.header();
+            for y in 0..3 {
+                parts.extend(writer.write(map.rows().slice(y, y + 1)).unwrap());
+            }
+            parts.extend(writer.finish().unwrap());
+            match kind {
+                FileKind::Orders(OutputFormat::Png16 | OutputFormat::Preview) => {
+                    let decoded = |b: &[u8]| image::load_from_memory(b).unwrap().into_bytes();
+                    assert_eq!(decoded(&parts), decoded(&whole), "{kind:?}");
+                }
+                _ => assert_eq!(parts, whole, "{kind:?}"),
+            }
+        }
+        let csv = String::from_utf8(encode(&map, FileKind::Orders(OutputFormat::Csv)).unwrap());
+        assert_eq!(
+            csv.unwrap(),
+            "x,y,order,residual,flags\n0,0,0.0000,0.50,0\n0,1,,,2\n0,2,4.4000,0.50,0\n"
+        );
+        let flags = encode(&map, FileKind::Flags).unwrap();
+        assert_eq!(&flags[flags.len() - 3..], &[0, 2, 0]);
+    }
+
+    #[test]
+    fn a_file_missing_rows_is_refused_at_its_end() {
+        let map = three_pixel_map();
+        let writer = FileWriter::new(FileKind::Flags, 3, 2, &map.statistics).unwrap();
+        assert!(matches!(writer.finish(), Err(CoreError::Encode(_))));
     }
 
     #[test]

@@ -7,6 +7,7 @@ pub mod beam;
 pub mod boundary;
 pub mod calibration;
 pub mod colour;
+pub mod compact;
 pub mod comparison;
 pub mod error;
 pub mod export;

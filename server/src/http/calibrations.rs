@@ -445,7 +445,6 @@ async fn create_calibration(
     origin: Origin,
     multipart: Result<Multipart, MultipartRejection>,
 ) -> Result<Response, ApiError> {
-    let admission = state.jobs.admit()?;
     let mut form = Form::read(multipart, &["photo", "spec"]).await?;
     let request: BeamRequest = parse_json("spec", &form.require("spec")?)?;
     let (supersedes, dry_run) = (request.supersedes, request.dry_run);
@@ -455,6 +454,7 @@ async fn create_calibration(
         store::correctable(&state.storage, old).await?;
     }
     let limits = state.config.decode_limits;
+    let admission = state.jobs.admit(form.job_size(&photo, &limits)?).await?;
     let calibration = admission
         .run(move || pipeline::calibrate(&photo, &spec, &limits))
         .await??;

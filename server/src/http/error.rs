@@ -70,8 +70,11 @@ pub enum ApiError {
         /// What is wrong, naming the field.
         message: String,
     },
-    /// 503: all job slots and queue places are taken; retry after the given seconds.
+    /// 503: the service cannot take the request now (admission wait or queue memory past its
+    /// limit, the download cap reached); retry after the given seconds.
     Busy {
+        /// What is full, and when to retry.
+        message: String,
         /// Seconds to wait before retrying.
         retry_after_s: u64,
     },
@@ -155,11 +158,9 @@ impl ApiError {
             ApiError::Unprocessable { code, message } => {
                 (StatusCode::UNPROCESSABLE_ENTITY, code, message.clone())
             }
-            ApiError::Busy { retry_after_s } => (
-                StatusCode::SERVICE_UNAVAILABLE,
-                "busy",
-                format!("all job slots are taken; retry in {retry_after_s} s"),
-            ),
+            ApiError::Busy { message, .. } => {
+                (StatusCode::SERVICE_UNAVAILABLE, "busy", message.clone())
+            }
             ApiError::TimedOut(limit) => (
                 StatusCode::GATEWAY_TIMEOUT,
                 "timeout",
@@ -213,7 +214,7 @@ impl IntoResponse for ApiError {
             response.extensions_mut().insert(DatabaseFailure(e.kind()));
         }
         let retry_after_s = match self {
-            ApiError::Busy { retry_after_s } => Some(retry_after_s),
+            ApiError::Busy { retry_after_s, .. } => Some(retry_after_s),
             ApiError::Database(StorageError::Busy(_)) => Some(RETRY_AFTER_S),
             _ => None,
         };

@@ -6,7 +6,10 @@ use axum::extract::multipart::MultipartRejection;
 use axum::extract::Multipart;
 use serde::de::DeserializeOwned;
 
+use isotint_core::DecodeLimits;
+
 use super::error::ApiError;
+use super::jobs::JobSize;
 use crate::domain::{shorten, Id, IdKind};
 
 /// The parts of a multipart form, by name.
@@ -56,6 +59,16 @@ impl Form {
             parts.push((name, bytes));
         }
         Ok(Form { parts, expected })
+    }
+
+    /// What a job on `photo` (taken from this form) needs: its memory estimate from the photo's
+    /// header, this request's bytes included, and the bytes held while it waits.
+    pub fn job_size(&self, photo: &[u8], limits: &DecodeLimits) -> Result<JobSize, ApiError> {
+        let held = photo.len() + self.parts.iter().map(|(_, b)| b.len()).sum::<usize>();
+        Ok(JobSize {
+            memory_bytes: crate::pipeline::job_memory(photo, held, limits)?,
+            waiting_bytes: held as u64,
+        })
     }
 
     /// Removes and returns the part `name`, if present.

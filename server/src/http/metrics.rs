@@ -41,6 +41,34 @@ struct DatabaseLabels {
     kind: &'static str,
 }
 
+/// Why a pixel job was refused.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Refusal {
+    /// 413: its memory estimate exceeds the whole memory budget.
+    TooLarge,
+    /// 503: it would have waited past the wait limit.
+    WaitLimit,
+    /// 503: the request bodies waiting would have passed the queue's memory limit.
+    QueueMemory,
+}
+
+impl Refusal {
+    /// The label value: `too_large`, `wait_limit`, `queue_memory`.
+    fn label(self) -> &'static str {
+        match self {
+            Refusal::TooLarge => "too_large",
+            Refusal::WaitLimit => "wait_limit",
+            Refusal::QueueMemory => "queue_memory",
+        }
+    }
+}
+
+/// Labels of the refused-jobs counter.
+#[derive(Debug, Clone, PartialEq, Eq, Hash, EncodeLabelSet)]
+struct RefusalLabels {
+    reason: &'static str,
+}
+
 /// A database failure behind an answer, as a response extension: the kind (`busy`, `fault`,
 /// `corrupt`, …) that [`track`] counts.
 #[derive(Debug, Clone, Copy)]
@@ -52,14 +80,21 @@ pub struct Metrics {
     registry: Arc<Registry>,
     requests: Family<RequestLabels, Counter>,
     database_errors: Family<DatabaseLabels, Counter>,
-    /// Jobs given a place among the running or waiting ones.
+    /// Jobs admitted (given their memory and a CPU slot).
     pub jobs_admitted: Counter,
-    /// Jobs refused with 503 because every place was taken.
-    pub jobs_refused: Counter,
-    /// Jobs running now.
+    jobs_refused: Family<RefusalLabels, Counter>,
+    /// Jobs running now (holding a CPU slot).
     pub jobs_running: Gauge,
-    /// Admitted jobs not yet running (the queue).
+    /// Requests waiting for admission now (the queue).
     pub jobs_waiting: Gauge,
+    /// The memory budget of the jobs, bytes.
+    pub memory_budget_bytes: Gauge,
+    /// The part of the memory budget that admitted jobs hold now, bytes.
+    pub memory_in_use_bytes: Gauge,
+    /// File downloads streaming now.
+    pub downloads_active: Gauge,
+    /// File downloads refused with 503 because the cap was reached.
+    pub downloads_refused: Counter,
     job_wait_seconds: Histogram,
     job_duration_seconds: Histogram,
 }
@@ -77,9 +112,13 @@ impl Metrics {
         let requests = Family::<RequestLabels, Counter>::default();
         let database_errors = Family::<DatabaseLabels, Counter>::default();
         let jobs_admitted = Counter::default();
-        let jobs_refused = Counter::default();
+        let jobs_refused = Family::<RefusalLabels, Counter>::default();
         let jobs_running = Gauge::default();
         let jobs_waiting = Gauge::default();
+        let memory_budget_bytes = Gauge::default();
+        let memory_in_use_bytes = Gauge::default();
+        let downloads_active = Gauge::default();
+        let downloads_refused = Counter::default();
         // 1 ms to about 2 min for waits, 10 ms to about 20 min for jobs.
         let job_wait_seconds = Histogram::new(exponential_buckets(0.001, 4.0, 10));
         let job_duration_seconds = Histogram::new(exponential_buckets(0.01, 4.0, 10));
@@ -96,12 +135,13 @@ impl Metrics {
         );
         registry.register(
             "jobs_admitted",
-            "Pixel jobs given a place among the running or waiting ones",
+            "Pixel jobs admitted (given their memory and a CPU slot)",
             jobs_admitted.clone(),
         );
         registry.register(
             "jobs_refused",
-            "Pixel jobs refused with 503 because every place was taken",
+            "Pixel jobs refused, by reason (too_large: 413, over the whole memory budget; \
+             wait_limit, queue_memory: 503 with Retry-After)",
             jobs_refused.clone(),
         );
         registry.register(
@@ -111,12 +151,32 @@ impl Metrics {
         );
         registry.register(
             "jobs_waiting",
-            "Admitted pixel jobs not yet running (queue depth)",
+            "Pixel-job requests waiting for admission (queue depth)",
             jobs_waiting.clone(),
         );
         registry.register(
+            "memory_budget_bytes",
+            "Memory budget of the pixel jobs, bytes",
+            memory_budget_bytes.clone(),
+        );
+        registry.register(
+            "memory_budget_in_use_bytes",
+            "Part of the memory budget held by admitted pixel jobs now, bytes",
+            memory_in_use_bytes.clone(),
+        );
+        registry.register(
+            "downloads_active",
+            "Files of order maps streaming now",
+            downloads_active.clone(),
+        );
+        registry.register(
+            "downloads_refused",
+            "File downloads refused with 503 because the cap on concurrent downloads was reached",
+            downloads_refused.clone(),
+        );
+        registry.register(
             "job_wait_seconds",
-            "Seconds each pixel job waited for a job slot",
+            "Seconds each admitted pixel job waited for its memory and CPU slot",
             job_wait_seconds.clone(),
         );
         registry.register(
@@ -132,9 +192,22 @@ impl Metrics {
             jobs_refused,
             jobs_running,
             jobs_waiting,
+            memory_budget_bytes,
+            memory_in_use_bytes,
+            downloads_active,
+            downloads_refused,
             job_wait_seconds,
             job_duration_seconds,
         }
+    }
+
+    /// Counts a refused job.
+    pub fn refused(&self, reason: Refusal) {
+        self.jobs_refused
+            .get_or_create(&RefusalLabels {
+                reason: reason.label(),
+            })
+            .inc();
     }
 
     /// Records a job's wait for its slot.

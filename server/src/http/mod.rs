@@ -4,6 +4,7 @@
 pub mod audit;
 pub mod auth;
 pub mod calibrations;
+pub mod download;
 pub mod error;
 pub mod form;
 pub mod health;
@@ -41,6 +42,8 @@ pub struct AppState {
     pub config: Arc<ServiceConfig>,
     /// Admission control of pixel jobs.
     pub jobs: jobs::JobGate,
+    /// The cap on concurrent file downloads.
+    pub downloads: download::Downloads,
     /// Counters served at `/metrics`.
     pub metrics: metrics::Metrics,
 }
@@ -49,11 +52,17 @@ impl AppState {
     /// State for `storage` under `config`.
     pub fn new(storage: Storage, config: ServiceConfig) -> Self {
         let metrics = metrics::Metrics::new();
-        let jobs = jobs::JobGate::new(config.max_jobs, config.job_queue, metrics.clone());
+        let jobs = jobs::JobGate::new(&config, metrics.clone());
+        let downloads = download::Downloads::new(
+            config.max_downloads,
+            config.download_time_limit,
+            metrics.clone(),
+        );
         AppState {
             storage,
             config: Arc::new(config),
             jobs,
+            downloads,
             metrics,
         }
     }

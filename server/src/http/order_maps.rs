@@ -9,10 +9,12 @@ use axum::extract::rejection::{BytesRejection, QueryRejection};
 use axum::extract::{Multipart, Path, Query, State};
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
+use axum::Extension;
 use axum::Json;
 use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath};
+use isotint_core::compact;
 use isotint_core::comparison::{compare, Comparison, PointPair, Prediction, Registration};
-use isotint_core::export::{self, OutputFormat};
+use isotint_core::export::{self, FileKind, OutputFormat};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
 use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
@@ -22,10 +24,12 @@ use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
+use super::download::{Bands, ConnectionCut, MapShape};
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
+use super::jobs::JobSize;
 use super::AppState;
-use crate::domain::{rfc3339, shorten, CalibrationId, OrderMapId};
+use crate::domain::{rfc3339, CalibrationId, OrderMapId};
 use crate::pipeline;
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
@@ -258,107 +262,6 @@ impl OrderMapResource {
     }
 }
 
-/// A downloadable representation of a map.
-#[derive(Debug, Clone, Copy)]
-enum Representation {
-    Orders(OutputFormat),
-    Stress(OutputFormat, StressOpticLaw),
-    Uncertainty,
-    Flags,
-}
-
-impl Representation {
-    /// Parses a `format` name: one of the orders' output formats, `uncertainty`, `flags`, or
-    /// `stress-` and `npy`, `preview` or `csv`, which need `law`. An unknown name is refused
-    /// naming `format`, a stress format without a law naming `fringe_value_n_per_mm`.
-    fn parse(name: &str, law: Option<StressOpticLaw>) -> CoreResult<Self> {
-        let unknown = || {
-            CoreError::invalid(
-                "format",
-                format!(
-                    "{:?} is not one of npy, png16, preview, csv, uncertainty, flags, \
-                     stress-npy, stress-preview, stress-csv",
-                    shorten(name, 40)
-                ),
-            )
-        };
-        match name.strip_prefix("stress-") {
-            Some(stress) => {
-                let format = OutputFormat::from_name(stress)
-                    .ok()
-                    .filter(|f| *f != OutputFormat::Png16)
-                    .ok_or_else(unknown)?;
-                let law = law.ok_or_else(|| {
-                    CoreError::invalid(
-                        "fringe_value_n_per_mm",
-                        format!("is required (with thickness_mm) for format {name}"),
-                    )
-                })?;
-                Ok(Representation::Stress(format, law))
-            }
-            None => match name {
-                "uncertainty" => Ok(Representation::Uncertainty),
-                "flags" => Ok(Representation::Flags),
-                _ => OutputFormat::from_name(name)
-                    .map(Representation::Orders)
-                    .map_err(|_| unknown()),
-            },
-        }
-    }
-
-    fn encode(self, map: &OrderMap) -> CoreResult<Vec<u8>> {
-        match self {
-            Representation::Orders(format) => export::encode(map, format),
-            Representation::Stress(format, law) => export::encode_stress(map, &law, format),
-            Representation::Uncertainty => Ok(pipeline::uncertainty_npy(map)),
-            Representation::Flags => {
-                let bits: Vec<u8> = map.flags.iter().map(|f| f.0).collect();
-                Ok(export::npy_u8(
-                    &bits,
-                    map.height as usize,
-                    map.width as usize,
-                ))
-            }
-        }
-    }
-
-    fn content_type(self) -> &'static str {
-        match self {
-            Representation::Orders(format) | Representation::Stress(format, _) => {
-                format.content_type()
-            }
-            Representation::Uncertainty | Representation::Flags => OutputFormat::Npy.content_type(),
-        }
-    }
-
-    fn file_name(self, stem: &str) -> String {
-        match self {
-            Representation::Orders(format) => format!("{stem}.{}", format.extension()),
-            Representation::Stress(format, _) => format!("{stem}-stress.{}", format.extension()),
-            Representation::Uncertainty => format!("{stem}-uncertainty.npy"),
-            Representation::Flags => format!("{stem}-flags.npy"),
-        }
-    }
-}
-
-fn file_response(representation: Representation, stem: &str, bytes: Vec<u8>) -> Response {
-    let disposition = format!(
-        "attachment; filename=\"{}\"",
-        representation.file_name(stem)
-    );
-    (
-        [
-            (
-                header::CONTENT_TYPE,
-                representation.content_type().to_string(),
-            ),
-            (header::CONTENT_DISPOSITION, disposition),
-        ],
-        bytes,
-    )
-        .into_response()
-}
-
 fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
     if row.expires_at <= OffsetDateTime::now_utc() {
         return Err(ApiError::Gone(format!(
@@ -385,6 +288,7 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
               (status = 504, body = ErrorBody)))]
 async fn create_order_map(
     State(state): State<AppState>,
+    cut: Option<Extension<ConnectionCut>>,
     query: Result<Query<CreateQuery>, QueryRejection>,
     stress: Result<Query<StressQuery>, QueryRejection>,
     multipart: Result<Multipart, MultipartRejection>,
@@ -394,9 +298,10 @@ async fn create_order_map(
     let format = query
         .format
         .as_deref()
-        .map(|name| Representation::parse(name, law))
+        .map(|name| FileKind::from_name(name, law))
         .transpose()?;
-    let admission = state.jobs.admit()?;
+    // A file answer streams like a download: its place is taken before the upload is read.
+    let download = format.map(|_| state.downloads.start()).transpose()?;
     let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
     let calibration_id: CalibrationId = form.require_id("calibration")?;
     let options: MapOptions = match form.take("options") {
@@ -408,17 +313,31 @@ async fn create_order_map(
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     options.validate(&table)?;
     let limits = state.config.decode_limits;
-    let (map, file) = admission
-        .run(move || -> CoreResult<(OrderMap, Option<Vec<u8>>)> {
+    let admission = state.jobs.admit(form.job_size(&photo, &limits)?).await?;
+    // The job holds its admission until its results are stored.
+    let (map, bands) = admission
+        .run(move || -> CoreResult<(OrderMap, Vec<Vec<u8>>)> {
             let map = pipeline::map(&photo, mask.as_deref(), &table, &options, &limits)?;
-            let file = format.map(|f| f.encode(&map)).transpose()?;
-            Ok((map, file))
+            let bands = compact::encode_map(&map)?;
+            Ok((map, bands))
         })
         .await??;
-    if let (Some(representation), Some(bytes)) = (format, file) {
-        return Ok(file_response(representation, "order-map", bytes));
+    if let (Some(kind), Some(slot)) = (format, download) {
+        drop(admission);
+        let shape = MapShape {
+            width: map.width,
+            height: map.height,
+            statistics: map.statistics,
+        };
+        drop(map);
+        let bands = Bands::Made(std::sync::Arc::new(bands));
+        return state
+            .downloads
+            .stream(slot, kind, shape, bands, "order-map", cut.map(|c| c.0));
     }
-    let row = store::insert(&state.storage, calibration_id, &map, state.config.retention).await?;
+    let retention = state.config.retention;
+    let row = store::insert(&state.storage, calibration_id, &map, &bands, retention).await?;
+    drop(admission);
     let location = format!("/api/v1/order-maps/{}", row.id);
     Ok((
         StatusCode::CREATED,
@@ -460,12 +379,13 @@ async fn get_order_map(
               (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn get_order_map_file(
     State(state): State<AppState>,
+    cut: Option<Extension<ConnectionCut>>,
     Path((id, file)): Path<(String, String)>,
     stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
     let law = stress?.0.law()?;
-    let representation = Representation::parse(&file, law).map_err(|e| match e {
+    let kind = FileKind::from_name(&file, law).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
         } => ApiError::NotFound(e.to_string()),
@@ -473,15 +393,17 @@ async fn get_order_map_file(
     })?;
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
-    let (_, map) = store::load(&state.storage, id).await?;
-    let bytes = tokio::task::spawn_blocking(move || representation.encode(&map))
-        .await
-        .map_err(|e| ApiError::Internal(format!("encoding failed: {e}")))??;
-    Ok(file_response(
-        representation,
-        &format!("order-map-{id}"),
-        bytes,
-    ))
+    let slot = state.downloads.start()?;
+    let shape = MapShape {
+        width: row.width,
+        height: row.height,
+        statistics: statistics_from_json(&row.statistics),
+    };
+    let bands = Bands::Stored(state.storage.clone(), id);
+    let stem = format!("order-map-{id}");
+    state
+        .downloads
+        .stream(slot, kind, shape, bands, &stem, cut.map(|c| c.0))
 }
 
 /// The free-edge stress |σ_t| = N·f_σ/h of a stored map along its mask's outline (or a
@@ -494,22 +416,30 @@ async fn get_order_map_file(
     request_body(content = BoundaryRequest, content_type = "application/json"),
     responses((status = 200, description = "Free-edge stress and K_t", body = Object),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
-              (status = 410, body = ErrorBody), (status = 422, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 410, body = ErrorBody), (status = 413, body = ErrorBody),
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn boundary(
     State(state): State<AppState>,
     Path(id): Path<String>,
     body: Result<Bytes, BytesRejection>,
 ) -> Result<Json<BoundaryStress>, ApiError> {
     let id: OrderMapId = path_id(&id)?;
-    let request: BoundaryRequest = parse_json("boundary", &body?)?;
+    let body = body?;
+    let request: BoundaryRequest = parse_json("boundary", &body)?;
     let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
     let path = request
         .polyline
         .map_or(EdgePath::Outline, EdgePath::Polyline);
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
-    let admission = state.jobs.admit()?;
+    let pixels = u64::from(row.width) * u64::from(row.height);
+    let admission = state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: pixels * pipeline::JOB_BYTES_PER_PIXEL,
+            waiting_bytes: body.len() as u64,
+        })
+        .await?;
     let (_, map) = store::load(&state.storage, id).await?;
     let result = admission
         .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))

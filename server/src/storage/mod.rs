@@ -177,7 +177,8 @@ async fn open_pool(url: &str, backend: Backend, connections: u32) -> StorageResu
 
 impl Storage {
     /// Connects (creating a missing SQLite file), switches SQLite to WAL mode, opens its single
-    /// write connection and applies pending migrations.
+    /// write connection, applies pending migrations and converts order maps stored before bands
+    /// existed (`order_maps::convert_legacy`).
     pub async fn connect(url: &str) -> StorageResult<Storage> {
         sqlx::any::install_default_drivers();
         let backend = Backend::from_url(url)?;
@@ -193,11 +194,19 @@ impl Storage {
             Backend::Postgres => pool.clone(),
         };
         MIGRATOR.run(&writer).await?;
-        Ok(Storage {
+        let storage = Storage {
             pool,
             writer,
             backend,
-        })
+        };
+        let converted = order_maps::convert_legacy(&storage).await?;
+        if converted > 0 {
+            tracing::info!(
+                converted,
+                "order maps stored before bands converted to bands"
+            );
+        }
+        Ok(storage)
     }
 
     /// The backend behind the pool.

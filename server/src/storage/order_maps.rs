@@ -1,8 +1,10 @@
 //! Order-map results, stored in the database (so that any replica can serve them) until they
-//! expire. Per-pixel arrays are BLOBs: little-endian float32 for orders, residuals, margins and
-//! uncertainties, one byte per pixel for flags. Maps stored before the uncertainty column
-//! existed (NULL there) read back with an all-NaN uncertainty.
+//! expire. The pixels are kept in compact form (`isotint_core::compact`): one row of
+//! `order_map_bands` per band of rows, so that a file of any map is streamed a band at a time.
+//! Maps stored before bands existed (per-pixel float32 BLOBs in `order_maps`) are converted
+//! when the service starts ([`convert_legacy`]).
 
+use isotint_core::compact;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::{OrderMap, PixelFlags};
@@ -36,10 +38,6 @@ pub struct OrderMapRow {
 
 const META_COLUMNS: &str =
     "id, calibration_id, width, height, statistics_json, exposure_json, created_at_ms, expires_at_ms";
-
-fn f32_bytes(values: &[f32]) -> Vec<u8> {
-    values.iter().flat_map(|v| v.to_le_bytes()).collect()
-}
 
 fn f32_values(column: &str, bytes: &[u8], pixels: usize) -> StorageResult<Vec<f32>> {
     if bytes.len() != pixels * 4 {
@@ -81,11 +79,13 @@ fn meta_from_row(row: &AnyRow) -> StorageResult<OrderMapRow> {
     })
 }
 
-/// Stores a finished map (one INSERT, so never half-written); returns its row.
+/// Stores a finished map, given in compact form as `bands` (from `compact::encode_map`), in
+/// one transaction, so never half-written; returns its row.
 pub async fn insert(
     storage: &Storage,
     calibration_id: CalibrationId,
     map: &OrderMap,
+    bands: &[Vec<u8>],
     retention: std::time::Duration,
 ) -> StorageResult<OrderMapRow> {
     let id = OrderMapId::random();
@@ -93,11 +93,11 @@ pub async fn insert(
     let expires_at = created_at + retention;
     let statistics = serde_json::to_value(map.statistics)
         .map_err(|e| StorageError::Corrupt(format!("statistics: {e}")))?;
-    let flags: Vec<u8> = map.flags.iter().map(|f| f.0).collect();
+    let mut tx = storage.writer().begin().await?;
     sqlx::query(
         "INSERT INTO order_maps (id, calibration_id, created_at_ms, expires_at_ms, width, height, \
-         statistics_json, exposure_json, orders, residuals, margins, flags, uncertainties) \
-         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)",
+         statistics_json, exposure_json, orders, residuals, margins, flags, band_rows) \
+         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $9, $9, $9, $10)",
     )
     .bind(id.to_string())
     .bind(calibration_id.to_string())
@@ -107,13 +107,12 @@ pub async fn insert(
     .bind(i64::from(map.height))
     .bind(statistics.to_string())
     .bind(serde_json::to_string(&map.exposure).unwrap_or_default())
-    .bind(f32_bytes(&map.order))
-    .bind(f32_bytes(&map.residual))
-    .bind(f32_bytes(&map.margin))
-    .bind(flags)
-    .bind(f32_bytes(&map.uncertainty))
-    .execute(storage.writer())
+    .bind(Vec::<u8>::new())
+    .bind(i64::from(compact::BAND_ROWS))
+    .execute(&mut *tx)
     .await?;
+    insert_bands(&mut tx, id, bands).await?;
+    tx.commit().await?;
     Ok(OrderMapRow {
         id,
         calibration_id,
@@ -124,6 +123,22 @@ pub async fn insert(
         created_at,
         expires_at,
     })
+}
+
+async fn insert_bands(
+    tx: &mut sqlx::Transaction<'static, sqlx::Any>,
+    id: OrderMapId,
+    bands: &[Vec<u8>],
+) -> StorageResult<()> {
+    for (index, data) in (0i64..).zip(bands) {
+        sqlx::query("INSERT INTO order_map_bands (order_map_id, band, data) VALUES ($1, $2, $3)")
+            .bind(id.to_string())
+            .bind(index)
+            .bind(data.as_slice())
+            .execute(&mut **tx)
+            .await?;
+    }
+    Ok(())
 }
 
 fn not_found(id: OrderMapId) -> StorageError {
@@ -168,8 +183,34 @@ pub fn statistics_from_json(s: &serde_json::Value) -> MapStatistics {
     }
 }
 
-/// The whole stored map, pixel arrays included, ready for `export::encode`.
+/// Band `index` of stored map `id`, in compact form (`compact::decode_band`).
+pub async fn band(storage: &Storage, id: OrderMapId, index: u32) -> StorageResult<Vec<u8>> {
+    let row = sqlx::query("SELECT data FROM order_map_bands WHERE order_map_id = $1 AND band = $2")
+        .bind(id.to_string())
+        .bind(i64::from(index))
+        .fetch_optional(storage.pool())
+        .await?
+        .ok_or_else(|| not_found(id))?;
+    Ok(row.try_get("data")?)
+}
+
+/// The whole stored map, read band by band (margins are not stored: NaN).
 pub async fn load(storage: &Storage, id: OrderMapId) -> StorageResult<(OrderMapRow, OrderMap)> {
+    let meta = get(storage, id).await?;
+    let mut bands = Vec::new();
+    for index in 0..compact::band_count(meta.height) {
+        bands.push(band(storage, id, index).await?);
+    }
+    let (width, height) = (meta.width, meta.height);
+    let (exposure, statistics) = (meta.exposure, statistics_from_json(&meta.statistics));
+    let map = compact::decode_map(&bands, width, height, exposure, statistics)
+        .map_err(|e| StorageError::Corrupt(format!("order map {id}: {e}")))?;
+    Ok((meta, map))
+}
+
+/// A map stored before bands existed, from its per-pixel float32 BLOBs (NULL uncertainties
+/// read as NaN).
+async fn load_legacy(storage: &Storage, id: OrderMapId) -> StorageResult<OrderMap> {
     let sql = format!(
         "SELECT {META_COLUMNS}, orders, residuals, margins, flags, uncertainties FROM order_maps \
          WHERE id = $1"
@@ -189,7 +230,7 @@ pub async fn load(storage: &Storage, id: OrderMapId) -> StorageResult<(OrderMapR
             flags.len()
         )));
     }
-    let map = OrderMap {
+    Ok(OrderMap {
         width: meta.width,
         height: meta.height,
         order: f32_values("orders", &blob("orders")?, pixels)?,
@@ -202,16 +243,56 @@ pub async fn load(storage: &Storage, id: OrderMapId) -> StorageResult<(OrderMapR
         },
         exposure: meta.exposure,
         statistics: statistics_from_json(&meta.statistics),
-    };
-    Ok((meta, map))
+    })
+}
+
+/// Converts every map stored before bands existed into bands, one map at a time, each in one
+/// transaction (its bands written, its old arrays emptied); returns how many.
+pub async fn convert_legacy(storage: &Storage) -> StorageResult<u64> {
+    let ids: Vec<String> = sqlx::query("SELECT id FROM order_maps WHERE band_rows = 0")
+        .fetch_all(storage.pool())
+        .await?
+        .iter()
+        .map(|row| row.try_get("id"))
+        .collect::<Result<_, _>>()?;
+    for id in &ids {
+        let id: OrderMapId = id.parse().map_err(corrupt_id("id"))?;
+        let map = load_legacy(storage, id).await?;
+        let bands = tokio::task::spawn_blocking(move || compact::encode_map(&map))
+            .await
+            .map_err(|e| StorageError::Corrupt(format!("compacting order map {id}: {e}")))?
+            .map_err(|e| StorageError::Corrupt(format!("compacting order map {id}: {e}")))?;
+        let mut tx = storage.writer().begin().await?;
+        insert_bands(&mut tx, id, &bands).await?;
+        sqlx::query(
+            "UPDATE order_maps SET band_rows = $1, orders = $2, residuals = $2, margins = $2, \
+             flags = $2, uncertainties = NULL WHERE id = $3",
+        )
+        .bind(i64::from(compact::BAND_ROWS))
+        .bind(Vec::<u8>::new())
+        .bind(id.to_string())
+        .execute(&mut *tx)
+        .await?;
+        tx.commit().await?;
+    }
+    Ok(ids.len() as u64)
 }
 
 /// Deletes maps that expired before `now`; returns how many.
 pub async fn purge_expired(storage: &Storage, now: OffsetDateTime) -> StorageResult<u64> {
+    let mut tx = storage.writer().begin().await?;
+    sqlx::query(
+        "DELETE FROM order_map_bands WHERE order_map_id IN \
+         (SELECT id FROM order_maps WHERE expires_at_ms < $1)",
+    )
+    .bind(unix_ms(now))
+    .execute(&mut *tx)
+    .await?;
     let result = sqlx::query("DELETE FROM order_maps WHERE expires_at_ms < $1")
         .bind(unix_ms(now))
-        .execute(storage.writer())
+        .execute(&mut *tx)
         .await?;
+    tx.commit().await?;
     Ok(result.rows_affected())
 }
 
