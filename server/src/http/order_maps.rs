@@ -14,7 +14,7 @@ use axum::Json;
 use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath};
 use isotint_core::compact;
 use isotint_core::comparison::{compare, Comparison, PointPair, Prediction, Registration};
-use isotint_core::export::{self, FileKind, OutputFormat};
+use isotint_core::export::FileKind;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
 use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
@@ -471,7 +471,17 @@ async fn comparison(
     let registration = Registration::fit(&request.pairs)?;
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
-    let admission = state.jobs.admit()?;
+    let pixels = u64::from(row.width) * u64::from(row.height);
+    let prediction_bytes = request.prediction.len() as u64;
+    // The map, plus the prediction parsed and triangulated: a few dozen bytes a node, and a
+    // node takes a dozen bytes or more of CSV.
+    let admission = state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: pixels * pipeline::JOB_BYTES_PER_PIXEL + 8 * prediction_bytes,
+            waiting_bytes: prediction_bytes,
+        })
+        .await?;
     let (_, map) = store::load(&state.storage, id).await?;
     let result = admission
         .run(move || {

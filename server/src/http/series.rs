@@ -18,6 +18,7 @@ use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, Form};
+use super::jobs::JobSize;
 use super::AppState;
 use crate::domain::{shorten, CalibrationId};
 use crate::pipeline;
@@ -100,7 +101,6 @@ async fn create_series(
             .into())
         }
     };
-    let admission = state.jobs.admit()?;
     let mut form = Form::read_repeating(
         multipart,
         &["calibration", "mask", "photo", "series"],
@@ -119,6 +119,20 @@ async fn create_series(
     let mask = form.require("mask")?;
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     let limits = state.config.decode_limits;
+    // Photos are mapped one at a time, and each map's orders are kept for the fit: one map
+    // job's memory plus a float a pixel per photo, with every part of the request held.
+    let held = photos.iter().chain([&mask]).map(|p| p.len()).sum::<usize>();
+    let first = photos.first().map_or(&[][..], |p| &p[..]);
+    let one = pipeline::job_memory(first, held, &limits)?;
+    let (width, height) = isotint_core::colour::image_size(first, &limits, "photo")?;
+    let per_photo = u64::from(width) * u64::from(height) * std::mem::size_of::<f32>() as u64;
+    let admission = state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: one + per_photo * photos.len() as u64,
+            waiting_bytes: held as u64,
+        })
+        .await?;
     let (series, file) = admission
         .run(move || -> CoreResult<(LoadSeries, Option<Vec<u8>>)> {
             let series = pipeline::series(&spec, &photos, &mask, &table, &limits)?;
