@@ -1,5 +1,5 @@
 //! The command line: `serve`, `calibrate`, `map`, `boundary`, `series`, `compare`, `demo`,
-//! `token`, `backup`, `restore`.
+//! `token`, `backup`, `restore`, `client`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -25,6 +25,7 @@ use time::OffsetDateTime;
 
 use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::backup::Restored;
+use crate::client::{ClientFormat, MapRun, SomeFailed, EXIT_SOME_FAILED};
 use crate::config::{machine_memory_budget, ServiceConfig};
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
@@ -92,6 +93,49 @@ pub enum Command {
     /// Load a backup into an empty database, keeping its ids, in one transaction. Restoring
     /// into a database that holds exactly that backup changes nothing.
     Restore(RestoreArgs),
+    /// Work a running service from a script: many photos at once, retried while it is busy.
+    #[command(subcommand)]
+    Client(ClientCommand),
+}
+
+/// `isotint client` commands.
+#[derive(Debug, Subcommand)]
+pub enum ClientCommand {
+    /// Map photos on a running service, writing OUT_DIR/<photo stem>.<format> for each. Exit
+    /// code 0 when every photo was mapped, 3 when some were not, 1 when none was sent.
+    Map(ClientMapArgs),
+}
+
+/// Options of `isotint client map`.
+#[derive(Debug, Args)]
+pub struct ClientMapArgs {
+    /// The service's base URL (http://HOST:PORT).
+    #[arg(long, env = "ISOTINT_SERVER")]
+    pub server: String,
+    /// API token, for a service that asks for one.
+    #[arg(long, env = "ISOTINT_TOKEN", hide_env_values = true)]
+    pub token: Option<String>,
+    /// Id of the calibration to map with.
+    #[arg(long)]
+    pub calibration: String,
+    /// Mask PNG (white = specimen) sent with every photo.
+    #[arg(long)]
+    pub mask: Option<PathBuf>,
+    /// File of each map: npy, png16 or csv.
+    #[arg(long, value_enum, default_value_t = ClientFormat::Npy)]
+    pub format: ClientFormat,
+    /// Photos sent at once.
+    #[arg(long, default_value_t = 2, value_parser = clap::value_parser!(u16).range(1..=64))]
+    pub jobs: u16,
+    /// How often one photo is sent again after the service answers 503 (busy).
+    #[arg(long, default_value_t = 10)]
+    pub retries: u32,
+    /// Directory the maps are written into (made if missing).
+    #[arg(long)]
+    pub out_dir: PathBuf,
+    /// The photos (PNG, TIFF or JPEG).
+    #[arg(required = true, value_name = "PHOTO")]
+    pub photos: Vec<PathBuf>,
 }
 
 /// Options of `isotint backup`.
@@ -681,6 +725,19 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Token(command) => runtime()?.block_on(token(command)),
         Command::Backup(args) => runtime()?.block_on(backup(&args)),
         Command::Restore(args) => runtime()?.block_on(restore(&args)),
+        Command::Client(ClientCommand::Map(args)) => {
+            runtime()?.block_on(crate::client::map_photos(MapRun {
+                server: args.server,
+                token: args.token,
+                calibration: args.calibration,
+                mask: args.mask,
+                format: args.format,
+                jobs: usize::from(args.jobs),
+                retries: args.retries,
+                out_dir: args.out_dir,
+                photos: args.photos,
+            }))
+        }
     }
 }
 
@@ -775,6 +832,16 @@ fn sqlite_file(url: &str) -> Option<PathBuf> {
         .or_else(|| url.strip_prefix("sqlite:"))?;
     let file = rest.split('?').next().unwrap_or_default();
     (!file.is_empty() && file != ":memory:").then(|| PathBuf::from(file))
+}
+
+/// The process's exit code after `error`: [`EXIT_SOME_FAILED`] when a client run mapped only
+/// some of its photos, 1 otherwise.
+pub fn exit_code(error: &anyhow::Error) -> u8 {
+    if error.downcast_ref::<SomeFailed>().is_some() {
+        EXIT_SOME_FAILED
+    } else {
+        1
+    }
 }
 
 /// Runs `isotint restore`.

@@ -7,6 +7,7 @@ pub mod access;
 pub mod backup;
 pub mod calibration_sets;
 pub mod cli;
+pub mod client;
 pub mod config;
 pub mod domain;
 pub mod http;
