@@ -11,7 +11,7 @@ use common::{
     Form, Reply, TestService,
 };
 use isotint::config::ServiceConfig;
-use isotint::http::jobs::JobSize;
+use isotint::http::jobs::{Admission, JobSize};
 use serde_json::json;
 
 /// Asserts status and that the error message mentions `needle`.
@@ -378,6 +378,18 @@ async fn bad_map_options_and_unknown_ids_are_refused() {
     assert_eq!(get(&svc.app, "/api/v1/health").await.status, StatusCode::OK);
 }
 
+/// Takes the one job slot of `svc` (a service with `max_jobs: 1`) until the result is dropped.
+async fn take_the_only_slot(svc: &TestService) -> Admission {
+    svc.state
+        .jobs
+        .admit(JobSize {
+            memory_bytes: 1,
+            waiting_bytes: 0,
+        })
+        .await
+        .unwrap()
+}
+
 #[tokio::test]
 async fn a_request_that_would_wait_past_the_wait_limit_answers_503_with_retry_after() {
     let svc = service_with(ServiceConfig {
@@ -386,15 +398,7 @@ async fn a_request_that_would_wait_past_the_wait_limit_answers_503_with_retry_af
         ..ServiceConfig::default()
     })
     .await;
-    let held = svc
-        .state
-        .jobs
-        .admit(JobSize {
-            memory_bytes: 1,
-            waiting_bytes: 0,
-        })
-        .await
-        .unwrap();
+    let held = take_the_only_slot(&svc).await;
     let reply = Form::new()
         .file("photo", "p.png", "image/png", grey_png(100, 60))
         .json("spec", &beam_spec())
@@ -421,15 +425,7 @@ async fn a_request_whose_upload_would_pass_the_queues_memory_limit_answers_503_a
     })
     .await;
     let id = import_id(&svc.app, &table("Strip for the queue's memory")).await;
-    let held = svc
-        .state
-        .jobs
-        .admit(JobSize {
-            memory_bytes: 1,
-            waiting_bytes: 0,
-        })
-        .await
-        .unwrap();
+    let held = take_the_only_slot(&svc).await;
     let photo = grey_png(100, 60);
     assert!(photo.len() > 16, "{} bytes", photo.len());
     let started = Instant::now();

@@ -25,7 +25,7 @@ use time::OffsetDateTime;
 
 use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::backup::Restored;
-use crate::client::{ClientFormat, MapRun, SomeFailed, EXIT_SOME_FAILED};
+use crate::client::{ClientFormat, SomeFailed, EXIT_SOME_FAILED};
 use crate::config::{machine_memory_budget, ServiceConfig};
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
@@ -107,7 +107,7 @@ pub enum ClientCommand {
 }
 
 /// Options of `isotint client map`.
-#[derive(Debug, Args)]
+#[derive(Debug, Clone, Args)]
 pub struct ClientMapArgs {
     /// The service's base URL (http://HOST:PORT).
     #[arg(long, env = "ISOTINT_SERVER")]
@@ -464,6 +464,24 @@ pub struct MapArgs {
     pub stress_out: Option<PathBuf>,
 }
 
+/// The stress-optic law's inputs, for commands that need them.
+#[derive(Debug, Args)]
+pub struct MaterialArgs {
+    /// Material fringe value f_σ, N/mm per fringe.
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: f64,
+    /// Model thickness h, mm.
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: f64,
+}
+
+impl MaterialArgs {
+    /// σ1 − σ2 = N·f_σ/h from these flags; errors name the flag at fault.
+    fn law(&self) -> anyhow::Result<StressOpticLaw> {
+        StressOpticLaw::new(self.fringe_value_n_per_mm, self.thickness_mm).in_flags()
+    }
+}
+
 /// Options of `isotint boundary`.
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
@@ -478,12 +496,9 @@ pub struct BoundaryArgs {
     /// (not where it meets the photo's border).
     #[arg(long)]
     pub mask: PathBuf,
-    /// Material fringe value f_σ, N/mm per fringe.
-    #[arg(long, alias = "fringe-value")]
-    pub fringe_value_n_per_mm: f64,
-    /// Model thickness h, mm.
-    #[arg(long, alias = "thickness")]
-    pub thickness_mm: f64,
+    /// The material fringe value and thickness.
+    #[command(flatten)]
+    pub material: MaterialArgs,
     /// Nominal stress σ_nom, MPa: adds K_t = σ_max / σ_nom.
     #[arg(long, alias = "nominal-stress")]
     pub nominal_stress_mpa: Option<f64>,
@@ -542,12 +557,9 @@ pub struct CompareArgs {
     /// Mask image of the photo's size; non-zero = specimen.
     #[arg(long)]
     pub mask: PathBuf,
-    /// Material fringe value f_σ, N/mm per fringe.
-    #[arg(long, alias = "fringe-value")]
-    pub fringe_value_n_per_mm: f64,
-    /// Model thickness h, mm.
-    #[arg(long, alias = "thickness")]
-    pub thickness_mm: f64,
+    /// The material fringe value and thickness.
+    #[command(flatten)]
+    pub material: MaterialArgs,
     /// The predicted σ1 − σ2: CSV of nodes x_mm,y_mm,stress_mpa (model coordinates, mm; MPa);
     /// one header row allowed.
     #[arg(long)]
@@ -726,17 +738,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Backup(args) => runtime()?.block_on(backup(&args)),
         Command::Restore(args) => runtime()?.block_on(restore(&args)),
         Command::Client(ClientCommand::Map(args)) => {
-            runtime()?.block_on(crate::client::map_photos(MapRun {
-                server: args.server,
-                token: args.token,
-                calibration: args.calibration,
-                mask: args.mask,
-                format: args.format,
-                jobs: usize::from(args.jobs),
-                retries: args.retries,
-                out_dir: args.out_dir,
-                photos: args.photos,
-            }))
+            runtime()?.block_on(crate::client::map_photos(args))
         }
     }
 }
@@ -1023,7 +1025,7 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         ];
         refuse_overwriting(&inputs, "--out", out)?;
     }
-    let law = StressOpticLaw::new(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
+    let law = args.material.law()?;
     let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
     let mask = read(&args.mask, "mask")?;
@@ -1168,7 +1170,7 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
             ),
         },
     };
-    let law = StressOpticLaw::new(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
+    let law = args.material.law()?;
     let registration = Registration::fit(&args.pairs).in_flags()?;
     let text = String::from_utf8(read(&args.prediction, "prediction")?).map_err(|_| {
         anyhow::anyhow!(

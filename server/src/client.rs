@@ -15,6 +15,8 @@ use reqwest::StatusCode;
 use tokio::sync::Semaphore;
 use tokio::task::JoinSet;
 
+use crate::cli::ClientMapArgs;
+
 /// The file an order map comes back as.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum ClientFormat {
@@ -44,29 +46,6 @@ impl ClientFormat {
     }
 }
 
-/// One `isotint client map` run, parsed from the command line.
-#[derive(Debug, Clone)]
-pub struct MapRun {
-    /// The service's base URL, e.g. `http://lab-host:8080`.
-    pub server: String,
-    /// Bearer token, for a service in token mode.
-    pub token: Option<String>,
-    /// The calibration's id.
-    pub calibration: String,
-    /// Mask PNG sent with every photo.
-    pub mask: Option<PathBuf>,
-    /// The file each map comes back as.
-    pub format: ClientFormat,
-    /// Photos sent at once.
-    pub jobs: usize,
-    /// How often one photo is retried after a 503.
-    pub retries: u32,
-    /// Where `<photo stem>.<format>` files are written.
-    pub out_dir: PathBuf,
-    /// The photos.
-    pub photos: Vec<PathBuf>,
-}
-
 /// Some photos could not be mapped (the others were): the exit code says so.
 #[derive(Debug, thiserror::Error)]
 #[error("{failed} of {total} photos were not mapped")]
@@ -90,7 +69,7 @@ const REQUEST_TIME_LIMIT: Duration = Duration::from_secs(600);
 /// Maps every photo of `run`, writing `out_dir/<stem>.<ext>`; prints one line per photo (or a
 /// progress bar on a terminal) and a summary. Fails before sending anything when the flags do
 /// not make sense, and with [`SomeFailed`] when some photos were not mapped.
-pub async fn map_photos(run: MapRun) -> anyhow::Result<()> {
+pub async fn map_photos(run: ClientMapArgs) -> anyhow::Result<()> {
     let outputs = output_paths(&run)?;
     let mask = match &run.mask {
         Some(path) => Some(
@@ -123,7 +102,7 @@ pub async fn map_photos(run: MapRun) -> anyhow::Result<()> {
     } else {
         None
     };
-    let slots = Arc::new(Semaphore::new(run.jobs.max(1)));
+    let slots = Arc::new(Semaphore::new(usize::from(run.jobs)));
     let shared = Arc::new((http, url, run.clone(), mask));
     let mut tasks = JoinSet::new();
     for (photo, out) in run.photos.iter().cloned().zip(outputs) {
@@ -172,7 +151,7 @@ pub async fn map_photos(run: MapRun) -> anyhow::Result<()> {
 
 /// `out_dir/<stem>.<ext>` for each photo; refuses two photos with one stem (one file would
 /// overwrite the other) and an output that is one of the inputs.
-fn output_paths(run: &MapRun) -> anyhow::Result<Vec<PathBuf>> {
+fn output_paths(run: &ClientMapArgs) -> anyhow::Result<Vec<PathBuf>> {
     let mut outputs: Vec<PathBuf> = Vec::with_capacity(run.photos.len());
     for photo in &run.photos {
         let stem = photo
@@ -213,7 +192,7 @@ fn same_file(a: &Path, b: &Path) -> bool {
 async fn map_one(
     http: &reqwest::Client,
     url: &str,
-    run: &MapRun,
+    run: &ClientMapArgs,
     mask: Option<&[u8]>,
     photo: &Path,
     out: &Path,
@@ -301,7 +280,7 @@ mod tests {
 
     #[test]
     fn two_photos_with_one_stem_are_refused_before_anything_is_sent() {
-        let run = MapRun {
+        let run = ClientMapArgs {
             server: "http://127.0.0.1:9".into(),
             token: None,
             calibration: "x".into(),
@@ -317,7 +296,7 @@ mod tests {
             err.contains("PHOTO") && err.contains("maps/disc.png"),
             "{err}"
         );
-        let one = MapRun {
+        let one = ClientMapArgs {
             photos: vec![PathBuf::from("a/disc.jpg")],
             ..run
         };

@@ -60,6 +60,25 @@ pub const JOB_BYTES_PER_PIXEL: u64 = 32;
 /// is decoded), bytes: [`JOB_BYTES_PER_PIXEL`] per pixel plus the request's `request_bytes`.
 /// A header that cannot be read, or a size past `limits`, is refused as the decoder would.
 pub fn job_memory(photo: &[u8], request_bytes: usize, limits: &DecodeLimits) -> CoreResult<u64> {
+    Ok(photo_pixels(photo, limits)? * JOB_BYTES_PER_PIXEL + request_bytes as u64)
+}
+
+/// The memory a load series of `photos` photos the size of `first` will take, bytes: the
+/// photos are mapped one at a time, and each map's orders (a float a pixel) are kept for the
+/// fit; plus the request's `request_bytes`. Read from `first`'s header alone, as
+/// [`job_memory`].
+pub fn series_memory(
+    first: &[u8],
+    photos: usize,
+    request_bytes: usize,
+    limits: &DecodeLimits,
+) -> CoreResult<u64> {
+    let per_pixel = JOB_BYTES_PER_PIXEL + (photos * std::mem::size_of::<f32>()) as u64;
+    Ok(photo_pixels(first, limits)? * per_pixel + request_bytes as u64)
+}
+
+/// Pixels of `photo`, from its header alone.
+fn photo_pixels(photo: &[u8], limits: &DecodeLimits) -> CoreResult<u64> {
     let (width, height) = isotint_core::colour::image_size(photo, limits, "photo")?;
-    Ok(u64::from(width) * u64::from(height) * JOB_BYTES_PER_PIXEL + request_bytes as u64)
+    Ok(u64::from(width) * u64::from(height))
 }

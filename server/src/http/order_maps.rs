@@ -27,7 +27,7 @@ use utoipa_axum::routes;
 use super::download::{Bands, ConnectionCut, MapShape};
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
-use super::jobs::JobSize;
+use super::jobs::{Admission, JobSize};
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId, OrderMapId};
 use crate::pipeline;
@@ -430,21 +430,34 @@ async fn boundary(
     let path = request
         .polyline
         .map_or(EdgePath::Outline, EdgePath::Polyline);
+    let (admission, map) = admit_stored_map(&state, id, 0, body.len() as u64).await?;
+    let result = admission
+        .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
+        .await??;
+    Ok(Json(result))
+}
+
+/// Admits a job on the stored map `id` (refused when it has expired) and loads the map: the
+/// job's memory is a map job's for its pixels plus `extra_bytes`, with `waiting_bytes` of the
+/// request held while it waits.
+async fn admit_stored_map(
+    state: &AppState,
+    id: OrderMapId,
+    extra_bytes: u64,
+    waiting_bytes: u64,
+) -> Result<(Admission, OrderMap), ApiError> {
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
     let pixels = u64::from(row.width) * u64::from(row.height);
     let admission = state
         .jobs
         .admit(JobSize {
-            memory_bytes: pixels * pipeline::JOB_BYTES_PER_PIXEL,
-            waiting_bytes: body.len() as u64,
+            memory_bytes: pixels * pipeline::JOB_BYTES_PER_PIXEL + extra_bytes,
+            waiting_bytes,
         })
         .await?;
     let (_, map) = store::load(&state.storage, id).await?;
-    let result = admission
-        .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
-        .await??;
-    Ok(Json(result))
+    Ok((admission, map))
 }
 
 /// Compares a stored map's σ1 − σ2 (N·f_σ/h) with a finite-element prediction: the CSV's nodes
@@ -469,20 +482,11 @@ async fn comparison(
     let request: ComparisonRequest = parse_json("comparison", &body?)?;
     let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
     let registration = Registration::fit(&request.pairs)?;
-    let row = store::get(&state.storage, id).await?;
-    refuse_expired(&row)?;
-    let pixels = u64::from(row.width) * u64::from(row.height);
     let prediction_bytes = request.prediction.len() as u64;
-    // The map, plus the prediction parsed and triangulated: a few dozen bytes a node, and a
-    // node takes a dozen bytes or more of CSV.
-    let admission = state
-        .jobs
-        .admit(JobSize {
-            memory_bytes: pixels * pipeline::JOB_BYTES_PER_PIXEL + 8 * prediction_bytes,
-            waiting_bytes: prediction_bytes,
-        })
-        .await?;
-    let (_, map) = store::load(&state.storage, id).await?;
+    // Besides the map, the prediction parsed and triangulated: a few dozen bytes a node, and
+    // a node takes a dozen bytes or more of CSV.
+    let (admission, map) =
+        admit_stored_map(&state, id, 8 * prediction_bytes, prediction_bytes).await?;
     let result = admission
         .run(move || {
             let prediction = Prediction::from_csv(&request.prediction)?;

@@ -119,17 +119,12 @@ async fn create_series(
     let mask = form.require("mask")?;
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     let limits = state.config.decode_limits;
-    // Photos are mapped one at a time, and each map's orders are kept for the fit: one map
-    // job's memory plus a float a pixel per photo, with every part of the request held.
     let held = photos.iter().chain([&mask]).map(|p| p.len()).sum::<usize>();
     let first = photos.first().map_or(&[][..], |p| &p[..]);
-    let one = pipeline::job_memory(first, held, &limits)?;
-    let (width, height) = isotint_core::colour::image_size(first, &limits, "photo")?;
-    let per_photo = u64::from(width) * u64::from(height) * std::mem::size_of::<f32>() as u64;
     let admission = state
         .jobs
         .admit(JobSize {
-            memory_bytes: one + per_photo * photos.len() as u64,
+            memory_bytes: pipeline::series_memory(first, photos.len(), held, &limits)?,
             waiting_bytes: held as u64,
         })
         .await?;
