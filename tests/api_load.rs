@@ -95,6 +95,7 @@ fn ramp_map(width: u32, height: u32) -> OrderMap {
             mean_order: 1.0,
             mean_residual: 0.5,
             table_max_order: 5.0,
+            ambiguous_colour: false,
         },
     }
 }

@@ -1396,7 +1396,7 @@ pub fn statistics_text(s: &MapStatistics, law: Option<&StressOpticLaw>) -> Strin
             t.thickness_mm
         );
     }
-    if let Some(c) = s.range_caution() {
+    if let Some(c) = s.caution() {
         out += &format!("  caution             {c}\n");
     }
     out

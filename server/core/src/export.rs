@@ -800,6 +800,7 @@ mod tests {
                 mean_order: 2.2,
                 mean_residual: 0.5,
                 table_max_order: 4.4,
+                ambiguous_colour: false,
             },
         }
     }

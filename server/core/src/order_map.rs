@@ -175,6 +175,10 @@ pub struct MapStatistics {
     /// [`MapOptions::max_order`] where that is lower (NaN for results stored before it was
     /// recorded).
     pub table_max_order: f64,
+    /// The photo shows one colour that orders more than half a fringe apart explain about
+    /// equally well at plausible exposures: no pixel got a value (a hint settles it).
+    #[serde(default)]
+    pub ambiguous_colour: bool,
 }
 
 /// Orders within this many fringes of [`MapStatistics::table_max_order`] may be aliases of
@@ -188,9 +192,18 @@ impl MapStatistics {
         self.beyond_range_share > 0.0
     }
 
-    /// A caution when part of the specimen lies past the calibration's range or the orders come
-    /// within [`NEAR_TABLE_TOP`] of its last order: there the stress may be higher than read.
-    pub fn range_caution(&self) -> Option<String> {
+    /// A caution when the photo's one colour is ambiguous, when part of the specimen lies past
+    /// the calibration's range or when the orders come within [`NEAR_TABLE_TOP`] of its last
+    /// order: there the stress may be higher than read.
+    pub fn caution(&self) -> Option<String> {
+        if self.ambiguous_colour {
+            return Some(
+                "The specimen shows a single colour that orders more than half a fringe apart \
+                 explain about equally well at plausible exposures, so no pixel was given a \
+                 value. Give a known order at one point (a hint) to settle it."
+                    .to_string(),
+            );
+        }
         let beyond = self.beyond_range_share > 0.0;
         let near_top = self.max_order > self.table_max_order - NEAR_TABLE_TOP;
         let top = self.table_max_order;
@@ -282,6 +295,7 @@ mod tests {
             mean_order: 1.0,
             mean_residual: 1.0,
             table_max_order: 4.4,
+            ambiguous_colour: false,
         }
     }
 
@@ -326,18 +340,16 @@ mod tests {
 
     #[test]
     fn a_range_caution_is_given_past_the_table_or_within_a_fringe_of_its_top_and_not_otherwise() {
-        assert_eq!(statistics(0.0, 3.3).range_caution(), None);
-        let near = statistics(0.0, 3.5).range_caution().expect("near the top");
+        assert_eq!(statistics(0.0, 3.3).caution(), None);
+        let near = statistics(0.0, 3.5).caution().expect("near the top");
         assert!(
             near.contains("within a fringe") && near.contains("4.40"),
             "{near}"
         );
-        let past = statistics(0.012, 4.3)
-            .range_caution()
-            .expect("past the table");
+        let past = statistics(0.012, 4.3).caution().expect("past the table");
         assert!(past.contains("1.2 %") && past.contains("beyond"), "{past}");
         let speck = statistics(0.0002, 2.0)
-            .range_caution()
+            .caution()
             .expect("a small zone past it");
         assert!(speck.starts_with("Less than 0.1 %"), "{speck}");
         // Results stored before the table's top was recorded: only the beyond-range share counts.
@@ -345,6 +357,20 @@ mod tests {
             table_max_order: f64::NAN,
             ..statistics(0.0, 4.3)
         };
-        assert_eq!(old.range_caution(), None);
+        assert_eq!(old.caution(), None);
+    }
+
+    #[test]
+    fn an_ambiguous_colour_is_cautioned_before_anything_else() {
+        let ambiguous = MapStatistics {
+            ambiguous_colour: true,
+            valued_pixels: 0,
+            ..statistics(0.0, f64::NAN)
+        };
+        let text = ambiguous.caution().expect("a caution");
+        assert!(
+            text.contains("single colour") && text.contains("hint"),
+            "{text}"
+        );
     }
 }

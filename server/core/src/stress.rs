@@ -372,6 +372,7 @@ mod tests {
             mean_order: 1.0,
             mean_residual: 1.0,
             table_max_order: 4.4,
+            ambiguous_colour: false,
         }
     }
 

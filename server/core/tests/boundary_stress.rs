@@ -49,6 +49,7 @@ fn rectangle_map() -> OrderMap {
             mean_order: 1.0,
             mean_residual: 0.0,
             table_max_order: 4.0,
+            ambiguous_colour: false,
         },
     }
 }

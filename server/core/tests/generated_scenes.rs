@@ -134,10 +134,22 @@ fn forty_drawn_scenes_hold_the_targets_met_and_miss_no_more_than_measured() {
     // Met in every scene of the draw: the zero order of unloaded beam ends reads 0.
     // source: common practice, no source (in a dark field N = 0 is black).
     assert_eq!(counts[4], 0, "zero-order regions");
+    // No scene is read confidently wrong: a uniform field whose one colour two orders explain
+    // at plausible exposures gets no value rather than the wrong fringe everywhere.
+    // source: common practice, no source (colours repeat from order to order).
+    for (scenario, s) in &rows {
+        assert!(
+            !(s.jumps > 0.5),
+            "seed {}: {:.0} % of its valued pixels a fringe off",
+            scenario.seed,
+            100.0 * s.jumps
+        );
+    }
     // Still missed by some scenes (issue 15 stays open for them); measured counts:
-    // MAE 6, jumps 6, coverage 6, false beyond 3 (past the table: none of the forty, but
-    // 36 of the 300 held-out scenes). A change that makes any of them worse fails here.
-    let ceilings = [6, 6, 6, 3, 0, 0];
+    // MAE 5, jumps 5, coverage 7 (one an ambiguous uniform field, unvalued), false beyond 3
+    // (past the table: none of the forty, but 36 of the 300 held-out scenes). A change that
+    // makes any of them worse fails here.
+    let ceilings = [5, 5, 7, 3, 0, 0];
     for ((name, _), (count, ceiling)) in TARGETS.iter().zip(counts.iter().zip(ceilings)) {
         assert!(
             *count <= ceiling,

@@ -252,7 +252,7 @@ impl OrderMapResource {
             height: r.height,
             calibration_id: r.calibration_id,
             max_is_lower_bound: statistics.max_is_lower_bound(),
-            caution: statistics.range_caution(),
+            caution: statistics.caution(),
             stress: law.map(|law| StressResource::new(&r.statistics, law, r.id)),
             statistics: r.statistics,
             exposure: r.exposure,

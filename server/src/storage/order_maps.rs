@@ -180,6 +180,10 @@ pub fn statistics_from_json(s: &serde_json::Value) -> MapStatistics {
         mean_order: figure(s, "mean_order"),
         mean_residual: figure(s, "mean_residual"),
         table_max_order: figure(s, "table_max_order"),
+        ambiguous_colour: s
+            .get("ambiguous_colour")
+            .and_then(serde_json::Value::as_bool)
+            .unwrap_or(false),
     }
 }
 

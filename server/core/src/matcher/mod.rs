@@ -386,6 +386,18 @@ fn solve_pass(
     pass
 }
 
+/// Every valued pixel flagged unreliable and its value cleared: the whole reading is in doubt.
+fn flag_valued_unreliable(pass: &mut Pass) {
+    pass.order
+        .par_iter_mut()
+        .zip(pass.flags.par_iter_mut())
+        .filter(|(o, _)| o.is_finite())
+        .for_each(|(o, f)| {
+            f.0 |= PixelFlags::UNRELIABLE;
+            *o = f32::NAN;
+        });
+}
+
 /// No value where a pixel carries a flag.
 fn clear_flagged(pass: &mut Pass) {
     pass.order
@@ -550,6 +562,7 @@ fn statistics(pass: &Pass, max_order: f64) -> MapStatistics {
             f64::NAN
         },
         table_max_order: max_order,
+        ambiguous_colour: false,
     }
 }
 
@@ -674,6 +687,7 @@ pub(crate) fn solve(
     let max_order = options.top_order(table);
     let black = table_black(table);
     let mut exposure = ExposureCorrection::NONE;
+    let mut ambiguous = false;
     if options.exposure_compensation {
         let working = Working::new(photo, mask, PRELIMINARY_LIMIT);
         let scaled = working.scale(options);
@@ -694,11 +708,16 @@ pub(crate) fn solve(
                 &scaled,
                 Stage::Preliminary,
             );
-            match fit_exposure(&working, table, &preliminary) {
+            match fit_exposure(&working, table, &preliminary, !options.hints.is_empty()) {
                 Some(fit) => {
-                    let settled = fit.gain.iter().all(|g| (g - 1.0).abs() < SETTLED_GAIN)
-                        && fit.vignetting < SETTLED_GAIN;
-                    exposure = fit;
+                    let settled = fit
+                        .correction
+                        .gain
+                        .iter()
+                        .all(|g| (g - 1.0).abs() < SETTLED_GAIN)
+                        && fit.correction.vignetting < SETTLED_GAIN;
+                    exposure = fit.correction;
+                    ambiguous = fit.ambiguous;
                     if settled {
                         break;
                     }
@@ -750,7 +769,13 @@ pub(crate) fn solve(
     if let Some(climb) = climb {
         climb.flag_unreachable_beyond_as_steep(&mut pass, max_order as f32, photo.width() as usize);
     }
-    let statistics = statistics(&pass, max_order);
+    if ambiguous {
+        flag_valued_unreliable(&mut pass);
+    }
+    let statistics = MapStatistics {
+        ambiguous_colour: ambiguous,
+        ..statistics(&pass, max_order)
+    };
     let uncertainty = order_uncertainty(&pass, table, max_order);
     Ok(OrderMap {
         width: photo.width(),
