@@ -688,7 +688,7 @@ fn draw_text(img: &mut RgbImage, text: &str, x: u32, y: u32, upwards: bool) {
 /// The order at the top of the preview's colour bar, fringes: the highest order the map could
 /// read (the table's last order); for results stored without it, the map's highest order
 /// rounded up.
-fn bar_top(s: &MapStatistics) -> f64 {
+pub fn bar_top(s: &MapStatistics) -> f64 {
     if s.table_max_order.is_finite() && s.table_max_order > 0.0 {
         s.table_max_order
     } else if s.max_order.is_finite() && s.max_order > 0.0 {
