@@ -328,7 +328,7 @@ impl SpecimenFields {
         let refuse_others = |others: &[(&'static str, Option<f64>)]| -> CoreResult<()> {
             match others.iter().find(|(_, v)| v.is_some()) {
                 Some((field, _)) => Err(CoreError::invalid(
-                    *field,
+                    field,
                     format!("does not apply to a {} specimen", kind.name()),
                 )),
                 None => Ok(()),
