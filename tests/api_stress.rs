@@ -468,7 +468,20 @@ async fn a_coatings_stored_map_answers_the_parts_stress_and_the_coatings_strain_
         assert!(o.is_nan() == s.is_nan());
         assert!(o.is_nan() || (f64::from(*o) * per_fringe - f64::from(*s)).abs() < 1e-3);
     }
+    let strain_link = stress["links"]["strain_npy"].as_str().unwrap();
+    let (_, _, strain) = read_npy_f32(&get(&svc.app, strain_link).await.body).unwrap();
+    for (o, e) in orders.iter().zip(&strain) {
+        assert!(o.is_nan() == e.is_nan() && (o.is_nan() || (o * 1000.0 - e).abs() < 1e-2));
+    }
     let map = v["id"].as_str().unwrap();
+    refused_naming(
+        &get(
+            &svc.app,
+            &format!("/api/v1/order-maps/{map}/strain-npy?{LAW}"),
+        )
+        .await,
+        "strain_fringe_value_um",
+    );
     for (query, field) in [
         (
             "specimen=mirror&fringe_value_n_per_mm=10.5&thickness_mm=6",

@@ -837,6 +837,7 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
 #[test]
 fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
     let (orders_file, stress_file) = (path("coating-orders.npy"), path("coating-stress.npy"));
+    let strain_file = path("coating-strain.npy");
     let printed = ok(map_plate(
         &path("plate-hole.png"),
         &orders_file,
@@ -853,6 +854,8 @@ fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
             "0.3",
             "--stress-out",
             &stress_file,
+            "--strain-out",
+            &strain_file,
         ],
     ));
     // source: ε1 − ε2 = N·f_ε/(2·t_c) for a coating in reflection (common practice, no
@@ -861,9 +864,11 @@ fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
     let per_fringe = 200_000.0 / 1.3 * 1e-3;
     let (_, _, orders) = read_npy_f32(&std::fs::read(&orders_file).unwrap()).unwrap();
     let (_, _, stress) = read_npy_f32(&std::fs::read(&stress_file).unwrap()).unwrap();
-    for (o, s) in orders.iter().zip(&stress) {
-        assert!(o.is_nan() == s.is_nan());
+    let (_, _, strain) = read_npy_f32(&std::fs::read(&strain_file).unwrap()).unwrap();
+    for ((o, s), e) in orders.iter().zip(&stress).zip(&strain) {
+        assert!(o.is_nan() == s.is_nan() && o.is_nan() == e.is_nan());
         assert!(o.is_nan() || (f64::from(*o) * per_fringe - f64::from(*s)).abs() < 1e-3);
+        assert!(o.is_nan() || (o * 1000.0 - e).abs() < 1e-2);
     }
     assert!(printed.contains("(153.8462 MPa per fringe)"), "{printed}");
     assert!(printed.contains("ε1−ε2"), "{printed}");
@@ -885,6 +890,17 @@ fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
     assert!(slice.contains("slice thickness h: 2.5 mm"), "{slice}");
     for (extra, needle) in [
         (&["--specimen", "mirror"][..], "--specimen"),
+        (
+            &[
+                "--fringe-value",
+                "10.5",
+                "--thickness",
+                "6",
+                "--strain-out",
+                "e.npy",
+            ][..],
+            "--strain-out e.npy needs --strain-fringe-value-um",
+        ),
         (&["--specimen", "coating"][..], "--strain-fringe-value-um"),
         (
             &[

@@ -467,6 +467,10 @@ pub struct MapArgs {
     /// (x,y,stress_mpa,flags).
     #[arg(long)]
     pub stress_out: Option<PathBuf>,
+    /// Also write a coating's ε1 − ε2 map, µε, to this file (needs a coating's flags); .npy,
+    /// .preview.png (numbered µε bar) or .csv (x,y,strain_microstrain,flags).
+    #[arg(long)]
+    pub strain_out: Option<PathBuf>,
 }
 
 /// The specimen: how fringe orders become stresses. A transmission model (default) or a
@@ -1445,11 +1449,11 @@ fn report(args: &ReportArgs) -> anyhow::Result<()> {
 }
 
 /// What `isotint map` writes, checked before any work: the orders' format, the specimen (if
-/// given) and the stress map's format (if asked for).
+/// given) and the stress and strain files (if asked for).
 struct MapOutputs {
     orders: OutputFormat,
     specimen: Option<Specimen>,
-    stress: Option<OutputFormat>,
+    scaled: Vec<(PathBuf, FileKind)>,
 }
 
 /// Checks the output paths of `isotint map` before any work: none is an input file or another
@@ -1465,6 +1469,7 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
         ("--out", Some(&args.out)),
         ("--uncertainty-out", args.uncertainty_out.as_ref()),
         ("--stress-out", args.stress_out.as_ref()),
+        ("--strain-out", args.strain_out.as_ref()),
     ];
     for (i, (flag, path)) in outputs.iter().enumerate() {
         let Some(path) = path else { continue };
@@ -1488,25 +1493,37 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
         }
     }
     let specimen = args.specimen.specimen()?;
-    let stress = match (&args.stress_out, specimen) {
-        (None, _) => None,
-        (Some(path), None) => anyhow::bail!(
-            "--stress-out {} needs --fringe-value-n-per-mm and --thickness-mm (or a coating's \
-             flags)",
-            path.display()
-        ),
-        (Some(path), Some(_)) => match OutputFormat::from_path(&path.to_string_lossy()) {
+    let mut scaled = Vec::new();
+    for (flag, path, prefix) in [
+        ("--stress-out", &args.stress_out, "stress-"),
+        ("--strain-out", &args.strain_out, "strain-"),
+    ] {
+        let Some(path) = path else { continue };
+        let format = match OutputFormat::from_path(&path.to_string_lossy()) {
             Ok(OutputFormat::Png16) | Err(_) => anyhow::bail!(
-                "--stress-out {}: use .npy (float32 MPa), .preview.png or .csv",
+                "{flag} {}: use .npy (float32), .preview.png or .csv",
                 path.display()
             ),
-            Ok(format) => Some(format),
-        },
-    };
+            Ok(format) => format,
+        };
+        let kind =
+            FileKind::from_name(&format!("{prefix}{}", format.name()), specimen).map_err(|e| {
+                match e {
+                    CoreError::Invalid { field, message } => anyhow::anyhow!(
+                        "{flag} {} needs {}: {}",
+                        path.display(),
+                        flag_of(field),
+                        with_flags(&message)
+                    ),
+                    other => other.into(),
+                }
+            })?;
+        scaled.push((path.clone(), kind));
+    }
     Ok(MapOutputs {
         orders,
         specimen,
-        stress,
+        scaled,
     })
 }
 
@@ -1553,18 +1570,16 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             u.display()
         );
     }
-    if let (Some(path), Some(format), Some(specimen)) =
-        (&args.stress_out, outputs.stress, &outputs.specimen)
-    {
-        write(
-            path,
-            &export::encode(&map, FileKind::Stress(format, specimen.law())).in_flags()?,
-        )?;
+    for (path, kind) in &outputs.scaled {
+        write(path, &export::encode(&map, *kind).in_flags()?)?;
         println!(
-            "{}×{} σ1−σ2 map, MPa ({}) written to {}",
+            "{}×{} {} written to {}",
             map.width,
             map.height,
-            format.name(),
+            match kind {
+                FileKind::Strain(..) => "ε1−ε2 map, µε",
+                _ => "σ1−σ2 map, MPa",
+            },
             path.display()
         );
     }

@@ -83,12 +83,6 @@ impl StressOpticLaw {
         stress_difference_mpa * self.thickness_mm / self.fringe_value_n_per_mm
     }
 
-    /// σ1 − σ2 in MPa of every pixel of an order array (row-major; NaN where the order is).
-    pub fn stress_map_mpa(&self, orders: &[f32]) -> Vec<f32> {
-        let per_order = (self.fringe_value_n_per_mm / self.thickness_mm) as f32;
-        orders.iter().map(|n| n * per_order).collect()
-    }
-
     /// The stress figures of a map with `statistics`.
     pub fn statistics(&self, statistics: &MapStatistics) -> StressStatistics {
         StressStatistics {

@@ -1,7 +1,8 @@
 //! `/api/v1/order-maps`: map a specimen photo with a stored calibration; fetch stored results
-//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, and σ1 − σ2 in MPa as
-//! stress-npy, stress-preview, stress-csv) until they expire; their free-edge stress and their
-//! comparison with a finite-element prediction.
+//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, σ1 − σ2 in MPa as
+//! stress-npy, stress-preview, stress-csv, and a coating's ε1 − ε2 in µε as strain-npy,
+//! strain-preview, strain-csv) until they expire; their free-edge stress and their comparison
+//! with a finite-element prediction.
 
 use axum::body::Bytes;
 use axum::extract::multipart::MultipartRejection;
@@ -91,8 +92,9 @@ pub struct ComparisonRequest {
 pub struct CreateQuery {
     /// `npy`, `png16`, `preview`, `csv`, `uncertainty` (1 σ of the order, fringes, NPY float32,
     /// NaN = no value), `flags`, or σ1 − σ2 in MPa as `stress-npy` (float32, NaN = no value),
-    /// `stress-preview` or `stress-csv` (these need `fringe_value_n_per_mm` and `thickness_mm`):
-    /// answer with that file instead of storing the map.
+    /// `stress-preview` or `stress-csv` (these need a specimen: `fringe_value_n_per_mm` and
+    /// `thickness_mm`, or a coating's fields), or a coating's ε1 − ε2 in µε as `strain-npy`,
+    /// `strain-preview` or `strain-csv`: answer with that file instead of storing the map.
     pub format: Option<String>,
 }
 
@@ -198,7 +200,8 @@ pub struct OrderMapLinks {
     pub flags: String,
 }
 
-/// Where to fetch a stored map's σ1 − σ2 files (the law's fields in the query).
+/// Where to fetch a stored map's σ1 − σ2 files (the specimen's fields in the query), and a
+/// coating's ε1 − ε2 files.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct StressLinks {
     /// σ1 − σ2, MPa, NPY float32 (height, width), NaN = no value.
@@ -207,6 +210,15 @@ pub struct StressLinks {
     pub preview: String,
     /// CSV `x,y,stress_mpa,flags`.
     pub csv: String,
+    /// A coating's ε1 − ε2, µε: NPY float32 (`strain-npy`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain_npy: Option<String>,
+    /// A coating's ε1 − ε2 preview PNG with a numbered µε colour bar (`strain-preview`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain_preview: Option<String>,
+    /// A coating's ε1 − ε2 as CSV `x,y,strain_microstrain,flags` (`strain-csv`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain_csv: Option<String>,
 }
 
 /// σ1 − σ2 figures of a map through the request's specimen.
@@ -228,6 +240,7 @@ impl StressResource {
     fn new(statistics: &serde_json::Value, specimen: Specimen, id: OrderMapId) -> Self {
         let query = specimen_query(&specimen);
         let link = |kind: &str| format!("/api/v1/order-maps/{id}/{kind}?{query}");
+        let coating = specimen.kind() == SpecimenKind::Coating;
         StressResource {
             statistics: specimen.statistics(&statistics_from_json(statistics)),
             caution: STRESS_CAUTION.to_string(),
@@ -235,6 +248,9 @@ impl StressResource {
                 npy: link("stress-npy"),
                 preview: link("stress-preview"),
                 csv: link("stress-csv"),
+                strain_npy: coating.then(|| link("strain-npy")),
+                strain_preview: coating.then(|| link("strain-preview")),
+                strain_csv: coating.then(|| link("strain-csv")),
             },
         }
     }
@@ -344,7 +360,7 @@ async fn create_order_map(
     let format = query
         .format
         .as_deref()
-        .map(|name| FileKind::from_name(name, specimen.map(|s| s.law())))
+        .map(|name| FileKind::from_name(name, specimen))
         .transpose()?;
     // A file answer streams like a download: its place is taken before the upload is read.
     let download = format.map(|_| state.downloads.start()).transpose()?;
@@ -413,11 +429,11 @@ async fn get_order_map(
 /// A stored order map as a file: `npy`, `png16`, `preview`, `csv`, `uncertainty` (NPY float32
 /// of the order's standard uncertainty, 1 σ in fringes, NaN = no value), `flags` (NPY uint8 of
 /// the flag bits: 1 outside mask, 2 beyond range, 4 unreliable), or σ1 − σ2 in MPa as
-/// `stress-npy`, `stress-preview`, `stress-csv` (with `fringe_value_n_per_mm` and
-/// `thickness_mm`).
+/// `stress-npy`, `stress-preview`, `stress-csv` (with a specimen's fields), or a coating's
+/// ε1 − ε2 in µε as `strain-npy`, `strain-preview`, `strain-csv`.
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id"),
-           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview or stress-csv"),
+           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview, stress-csv, strain-npy, strain-preview or strain-csv"),
            StressQuery),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
@@ -430,8 +446,8 @@ async fn get_order_map_file(
     stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
-    let law = stress?.0.specimen()?.map(|s| s.law());
-    let kind = FileKind::from_name(&file, law).map_err(|e| match e {
+    let specimen = stress?.0.specimen()?;
+    let kind = FileKind::from_name(&file, specimen).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
         } => ApiError::NotFound(e.to_string()),
