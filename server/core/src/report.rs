@@ -618,7 +618,7 @@ impl Document {
 
     fn heading(&mut self, text: &str) {
         self.ensure(40.0);
-        self.y -= 12.0;
+        self.y -= 22.0;
         self.text_in(BOLD, MARGIN, self.y, 11.5, text);
         self.y -= 4.0;
     }
