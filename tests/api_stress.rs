@@ -424,3 +424,186 @@ async fn a_stored_map_compared_with_the_closed_form_differs_little_and_much_more
     }
     assert_eq!(stored_maps(&svc).await, 1);
 }
+
+/// A coating on steel: f_ε = 4 µm, t_c = 2 mm (1000 µε per fringe), E = 200 000 MPa, ν = 0.3.
+const COATING: &str = "specimen=coating&strain_fringe_value_um=4&coating_thickness_mm=2&\
+                       youngs_modulus_mpa=200000&poisson_ratio=0.3";
+
+#[tokio::test]
+async fn a_coatings_stored_map_answers_the_parts_stress_and_the_coatings_strain_and_refuses_bad_fields(
+) {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let reply = disc_form(&id)
+        .post(&svc.app, &format!("/api/v1/order-maps?{COATING}"))
+        .await;
+    answered(&reply, StatusCode::CREATED);
+    let v = reply.json();
+    let max_order = v["statistics"]["max_order"].as_f64().unwrap();
+    let stress = &v["stress"];
+    // source: ε1 − ε2 = N·f_ε/(2·t_c) for a coating in reflection (common practice, no source);
+    // σ1 − σ2 = E/(1 + ν)·(ε1 − ε2) (Hooke's law in plane stress, from memory). Hand-worked:
+    // 4e-3 / 4 = 1000 µε per fringe; 200 000 / 1.3 · 1e-3 = 153.846 MPa per fringe.
+    let per_fringe = 200_000.0 / 1.3 * 1e-3;
+    assert_eq!(stress["specimen"]["kind"], "coating", "{stress}");
+    assert!(
+        (stress["strain"]["max_strain_microstrain"].as_f64().unwrap() - 1000.0 * max_order).abs()
+            < 1e-6,
+        "{stress}"
+    );
+    assert!(
+        (stress["max_stress_mpa"].as_f64().unwrap() - per_fringe * max_order).abs() < 1e-6,
+        "{stress}"
+    );
+    let link = stress["links"]["npy"].as_str().unwrap();
+    assert!(link.contains("specimen=coating"), "{link}");
+    let (_, _, orders) = read_npy_f32(
+        &get(&svc.app, v["links"]["npy"].as_str().unwrap())
+            .await
+            .body,
+    )
+    .unwrap();
+    let (_, _, mpa) = read_npy_f32(&get(&svc.app, link).await.body).unwrap();
+    for (o, s) in orders.iter().zip(&mpa) {
+        assert!(o.is_nan() == s.is_nan());
+        assert!(o.is_nan() || (f64::from(*o) * per_fringe - f64::from(*s)).abs() < 1e-3);
+    }
+    let strain_link = stress["links"]["strain_npy"].as_str().unwrap();
+    let (_, _, strain) = read_npy_f32(&get(&svc.app, strain_link).await.body).unwrap();
+    for (o, e) in orders.iter().zip(&strain) {
+        assert!(o.is_nan() == e.is_nan() && (o.is_nan() || (o * 1000.0 - e).abs() < 1e-2));
+    }
+    let map = v["id"].as_str().unwrap();
+    refused_naming(
+        &get(
+            &svc.app,
+            &format!("/api/v1/order-maps/{map}/strain-npy?{LAW}"),
+        )
+        .await,
+        "strain_fringe_value_um",
+    );
+    for (query, field) in [
+        (
+            "specimen=mirror&fringe_value_n_per_mm=10.5&thickness_mm=6",
+            "specimen",
+        ),
+        (
+            "specimen=coating&strain_fringe_value_um=4&coating_thickness_mm=2&poisson_ratio=0.3",
+            "youngs_modulus_mpa",
+        ),
+        (&COATING.replace("0.3", "0.5"), "poisson_ratio"),
+        (&format!("{COATING}&thickness_mm=6"), "thickness_mm"),
+        ("specimen=slice", "fringe_value_n_per_mm"),
+    ] {
+        refused_naming(
+            &get(&svc.app, &format!("/api/v1/order-maps/{map}?{query}")).await,
+            field,
+        );
+    }
+}
+
+/// The multipart form of a report on the test disc with calibration `id` and `report` JSON.
+fn report_form(id: &str, report: &serde_json::Value) -> Form {
+    disc_form(id).json("report", report)
+}
+
+#[tokio::test]
+async fn a_report_request_answers_a_pdf_with_the_edges_maximum_and_the_caution_and_stores_nothing()
+{
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let inputs = serde_json::json!({"fringe_value": 10.5, "thickness": 6, "nominal_stress": 1.75});
+    let reply = report_form(&id, &inputs)
+        .post(&svc.app, "/api/v1/reports")
+        .await;
+    answered(&reply, StatusCode::OK);
+    assert_eq!(reply.headers["content-type"], "application/pdf");
+    assert!(reply.body.starts_with(b"%PDF-"));
+    assert_eq!(stored_maps(&svc).await, 0, "a report stores nothing");
+    // The same photo's boundary through a stored map gives the number the report prints.
+    let stored = disc_form(&id).post(&svc.app, "/api/v1/order-maps").await;
+    let map = stored.json()["id"].as_str().unwrap().to_string();
+    let edge = post_json(&svc, &format!("/api/v1/order-maps/{map}/boundary"), inputs).await;
+    let edge = edge.json();
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("report.pdf");
+    std::fs::write(&file, &reply.body).unwrap();
+    match std::process::Command::new("pdftotext")
+        .arg(&file)
+        .arg("-")
+        .output()
+    {
+        Ok(out) => {
+            let text = String::from_utf8(out.stdout).unwrap();
+            let text = text.split_whitespace().collect::<Vec<_>>().join(" ");
+            let maximum = isotint_core::stress::maximum_text(
+                edge["max_stress_mpa"].as_f64().unwrap(),
+                "MPa",
+                edge["max_is_lower_bound"].as_bool().unwrap(),
+            );
+            assert!(text.contains(&maximum), "{maximum} missing from: {text}");
+            assert!(text.contains(&format!("(id {id})")), "{text}");
+            assert!(
+                text.contains("local codes and licensed engineering practice"),
+                "{text}"
+            );
+        }
+        Err(e) if std::env::var_os("CI").is_none() => {
+            eprintln!("skipped the text check: pdftotext not available ({e})");
+        }
+        Err(e) => panic!("pdftotext is needed under CI (poppler-utils): {e}"),
+    }
+}
+
+#[tokio::test]
+async fn bad_report_requests_are_refused_naming_the_field() {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    for (report, field) in [
+        (
+            serde_json::json!({"thickness_mm": 6}),
+            "fringe_value_n_per_mm",
+        ),
+        (serde_json::json!({}), "fringe_value_n_per_mm"),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "nominal_stress_mpa": 0}),
+            "nominal_stress_mpa",
+        ),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "mm_per_px": -1}),
+            "mm_per_px",
+        ),
+        (
+            serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "polyline": [{"x": 10, "y": 10}, {"x": 900, "y": 10}]}),
+            "polyline",
+        ),
+        (
+            serde_json::json!({"specimen": "coating", "strain_fringe_value_um": 4}),
+            "coating_thickness_mm",
+        ),
+    ] {
+        let reply = report_form(&id, &report)
+            .post(&svc.app, "/api/v1/reports")
+            .await;
+        refused_naming(&reply, field);
+    }
+    let reply = disc_form(&id).post(&svc.app, "/api/v1/reports").await;
+    assert!(reply.status.is_client_error());
+    assert!(
+        reply.error_message().contains("report"),
+        "{}",
+        reply.error_message()
+    );
+    let unknown = report_form(
+        &id,
+        &serde_json::json!({"fringe_value": 10.5, "thickness": 6, "colour": 1}),
+    )
+    .post(&svc.app, "/api/v1/reports")
+    .await;
+    assert!(unknown.status.is_client_error());
+    assert!(
+        unknown.error_message().contains("colour"),
+        "{}",
+        unknown.error_message()
+    );
+}

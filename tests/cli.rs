@@ -746,9 +746,10 @@ fn map_with_a_fringe_value_and_thickness_reports_stress_figures_and_writes_the_s
         .lines()
         .find(|l| l.trim_start().starts_with("σ1−σ2"))
         .unwrap_or_else(|| panic!("no stress line in {printed}"));
+    assert!(line.contains("(1.7500 MPa per fringe)"), "{line}");
     assert!(
-        line.contains("MPa") && line.contains("f_σ 10.5 N/mm, h 6 mm"),
-        "{line}"
+        printed.contains("f_sigma: 10.5 N/mm per fringe; model thickness h: 6 mm"),
+        "{printed}"
     );
     assert!(
         printed.contains("do not replace, engineering judgement"),
@@ -783,8 +784,11 @@ fn a_maximum_past_the_calibrations_range_is_printed_as_a_lower_bound() {
         mean_order: 1.0,
         mean_residual: 1.0,
         table_max_order: 4.4,
+        ambiguous_colour: false,
     };
-    let law = isotint_core::stress::StressOpticLaw::new(10.5, 6.0).unwrap();
+    let law = isotint_core::stress::Specimen::Transmission(
+        isotint_core::stress::StressOpticLaw::new(10.5, 6.0).unwrap(),
+    );
     let text = cli::statistics_text(&statistics, Some(&law));
     assert!(text.contains("max at least 4.000 fringes"), "{text}");
     assert!(text.contains("max at least 7.000 MPa"), "{text}");
@@ -829,6 +833,96 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&out).exists(), "nothing was written");
+}
+
+#[test]
+fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
+    let (orders_file, stress_file) = (path("coating-orders.npy"), path("coating-stress.npy"));
+    let strain_file = path("coating-strain.npy");
+    let printed = ok(map_plate(
+        &path("plate-hole.png"),
+        &orders_file,
+        &[
+            "--specimen",
+            "coating",
+            "--strain-fringe-value-um",
+            "4",
+            "--coating-thickness-mm",
+            "2",
+            "--youngs-modulus-mpa",
+            "200000",
+            "--poisson-ratio",
+            "0.3",
+            "--stress-out",
+            &stress_file,
+            "--strain-out",
+            &strain_file,
+        ],
+    ));
+    // source: ε1 − ε2 = N·f_ε/(2·t_c) for a coating in reflection (common practice, no
+    // source) and σ1 − σ2 = E/(1 + ν)·(ε1 − ε2) (Hooke's law, plane stress, from memory).
+    // Hand-worked: 4e-3 mm / 4 mm = 1000 µε per fringe; 200 000 / 1.3 · 1e-3 = 153.846 MPa.
+    let per_fringe = 200_000.0 / 1.3 * 1e-3;
+    let (_, _, orders) = read_npy_f32(&std::fs::read(&orders_file).unwrap()).unwrap();
+    let (_, _, stress) = read_npy_f32(&std::fs::read(&stress_file).unwrap()).unwrap();
+    let (_, _, strain) = read_npy_f32(&std::fs::read(&strain_file).unwrap()).unwrap();
+    for ((o, s), e) in orders.iter().zip(&stress).zip(&strain) {
+        assert!(o.is_nan() == s.is_nan() && o.is_nan() == e.is_nan());
+        assert!(o.is_nan() || (f64::from(*o) * per_fringe - f64::from(*s)).abs() < 1e-3);
+        assert!(o.is_nan() || (o * 1000.0 - e).abs() < 1e-2);
+    }
+    assert!(printed.contains("(153.8462 MPa per fringe)"), "{printed}");
+    assert!(printed.contains("ε1−ε2"), "{printed}");
+    assert!(printed.contains("µε"), "{printed}");
+    // A slice: f_σ at the critical temperature 0.35 N/mm, slice 2.5 mm → 0.14 MPa per fringe.
+    let slice = ok(map_plate(
+        &path("plate-hole.png"),
+        &orders_file,
+        &[
+            "--specimen",
+            "slice",
+            "--fringe-value-n-per-mm",
+            "0.35",
+            "--thickness-mm",
+            "2.5",
+        ],
+    ));
+    assert!(slice.contains("(0.1400 MPa per fringe)"), "{slice}");
+    assert!(slice.contains("slice thickness h: 2.5 mm"), "{slice}");
+    for (extra, needle) in [
+        (&["--specimen", "mirror"][..], "--specimen"),
+        (
+            &[
+                "--fringe-value",
+                "10.5",
+                "--thickness",
+                "6",
+                "--strain-out",
+                "e.npy",
+            ][..],
+            "--strain-out e.npy needs --strain-fringe-value-um",
+        ),
+        (&["--specimen", "coating"][..], "--strain-fringe-value-um"),
+        (
+            &[
+                "--strain-fringe-value-um",
+                "4",
+                "--coating-thickness-mm",
+                "2",
+                "--youngs-modulus-mpa",
+                "200000",
+                "--poisson-ratio",
+                "0.7",
+            ][..],
+            "invalid --poisson-ratio",
+        ),
+    ] {
+        let output = map_plate(&path("plate-hole.png"), &path("never-coating.npy"), extra);
+        assert!(!output.status.success(), "{extra:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{extra:?}: {stderr}");
+    }
+    assert!(!Path::new(&path("never-coating.npy")).exists());
 }
 
 /// `isotint COMMAND` with the demo calibration, the demo's `photo` and `mask` files, and `extra`
@@ -927,6 +1021,165 @@ fn boundary_refuses_bad_numbers_naming_the_flag_and_writes_nothing() {
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&edge_file).exists(), "nothing was written");
+}
+
+/// Points on the demo hole's edge right of its centre, from −30° to 30°, as `--polyline`
+/// spells them.
+fn polyline_beside_the_demo_hole() -> String {
+    let s = scenario();
+    let centre = &s["plate"]["field"]["centre"];
+    let (cx, cy) = (centre["x"].as_f64().unwrap(), centre["y"].as_f64().unwrap());
+    let radius = s["plate"]["field"]["radius_px"].as_f64().unwrap();
+    (-3..=3)
+        .map(|i| {
+            let a = f64::from(i) * 10f64.to_radians();
+            format!("{:.2},{:.2}", cx + radius * a.cos(), cy + radius * a.sin())
+        })
+        .collect::<Vec<_>>()
+        .join(";")
+}
+
+#[test]
+fn boundary_samples_a_polyline_given_as_semicolon_separated_points() {
+    let s = scenario();
+    let remote = s["plate"]["remote_order"].as_f64().unwrap() * 10.5 / 6.0;
+    let polyline = polyline_beside_the_demo_hole();
+    let printed = ok(boundary_of_plate(&[
+        "--fringe-value",
+        "10.5",
+        "--thickness",
+        "6",
+        "--nominal-stress",
+        &remote.to_string(),
+        "--polyline",
+        &polyline,
+        "--json",
+    ]));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    // source: Kirsch (1898), K_t = 3 beside the hole; 5 % for the 70-px hole as above.
+    let kt = v["kt"].as_f64().unwrap();
+    assert!((kt - 3.0).abs() <= 0.05 * 3.0, "{v}");
+    // The polyline's chords are about 12 px long: a few dozen points, not the whole outline.
+    let points = v["edge_points"].as_u64().unwrap();
+    assert!((50..120).contains(&points), "{v}");
+    for (bad, needle) in [
+        ("10,10", "invalid --polyline"),
+        ("10,10;x,4", "--polyline"),
+        ("10,10;9000,10", "invalid --polyline"),
+    ] {
+        let output = boundary_of_plate(&[
+            "--fringe-value",
+            "10.5",
+            "--thickness",
+            "6",
+            "--polyline",
+            bad,
+        ]);
+        assert!(!output.status.success(), "{bad} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{bad}: {stderr}");
+    }
+}
+
+/// The text of a PDF file as `pdftotext` reads it, whitespace runs made single spaces; `None`
+/// when the tool is missing outside CI (under CI its absence fails).
+fn pdf_text(file: &str) -> Option<String> {
+    let output = match Command::new("pdftotext").args([file, "-"]).output() {
+        Ok(output) => output,
+        Err(e) if std::env::var_os("CI").is_none() => {
+            eprintln!("skipped: pdftotext not available ({e}); apt-get install poppler-utils");
+            return None;
+        }
+        Err(e) => panic!("pdftotext is needed under CI (poppler-utils): {e}"),
+    };
+    assert!(output.status.success());
+    let text = String::from_utf8(output.stdout).unwrap();
+    Some(text.split_whitespace().collect::<Vec<_>>().join(" "))
+}
+
+#[test]
+fn report_writes_a_pdf_whose_text_gives_the_maximum_edge_stress_and_the_caution() {
+    let s = scenario();
+    let remote = (s["plate"]["remote_order"].as_f64().unwrap() * 10.5 / 6.0).to_string();
+    let material = [
+        "--fringe-value",
+        "10.5",
+        "--thickness",
+        "6",
+        "--nominal-stress",
+        &remote,
+    ];
+    let mut json = material.to_vec();
+    json.push("--json");
+    let v: Value = serde_json::from_str(ok(boundary_of_plate(&json)).trim()).unwrap();
+    let report = path("plate-report.pdf");
+    let mut args = material.to_vec();
+    args.extend(["--load-n", "420", "--mm-per-px", "0.1", "--out", &report]);
+    ok(on_demo(
+        "report",
+        "plate-hole.png",
+        "plate-hole-mask.png",
+        &args,
+    ));
+    let pdf = std::fs::read(&report).unwrap();
+    assert!(pdf.starts_with(b"%PDF-"));
+    let Some(text) = pdf_text(&report) else {
+        return;
+    };
+    let maximum = isotint_core::stress::maximum_text(
+        v["max_stress_mpa"].as_f64().unwrap(),
+        "MPa",
+        v["max_is_lower_bound"].as_bool().unwrap(),
+    );
+    assert!(text.contains(&maximum), "{maximum} missing from: {text}");
+    for needed in [
+        "calibration: ",
+        "SHA-256",
+        "load: 420 N",
+        "scale: 0.1 mm per px",
+        "K_t = sigma_max / sigma_nom",
+        "local codes and licensed engineering practice",
+    ] {
+        assert!(text.contains(needed), "{needed:?} missing from: {text}");
+    }
+}
+
+#[test]
+fn report_refuses_missing_or_bad_inputs_naming_the_flag_and_writes_nothing() {
+    let report = path("never-report.pdf");
+    for (extra, needle) in [
+        (&[][..], "--fringe-value-n-per-mm"),
+        (
+            &[
+                "--fringe-value",
+                "10.5",
+                "--thickness",
+                "6",
+                "--mm-per-px",
+                "0",
+            ][..],
+            "invalid --mm-per-px",
+        ),
+        (
+            &[
+                "--fringe-value",
+                "10.5",
+                "--thickness",
+                "6",
+                "--load-n",
+                "-3",
+            ][..],
+            "invalid --load-n",
+        ),
+    ] {
+        let mut args = extra.to_vec();
+        args.extend(["--out", &report]);
+        let output = on_demo("report", "plate-hole.png", "plate-hole-mask.png", &args);
+        assert!(!output.status.success(), "{extra:?} succeeded");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(stderr.contains(needle), "{extra:?}: {stderr}");
+    }
+    assert!(!Path::new(&report).exists(), "nothing was written");
 }
 
 /// The access mode a started service logged.

@@ -277,6 +277,7 @@ fn small_map() -> OrderMap {
             mean_order: 1.8125,
             mean_residual: f64::NAN,
             table_max_order: 4.4,
+            ambiguous_colour: false,
         },
     }
 }

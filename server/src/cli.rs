@@ -1,5 +1,5 @@
-//! The command line: `serve`, `calibrate`, `map`, `boundary`, `series`, `compare`, `demo`,
-//! `token`, `backup`, `restore`, `client`.
+//! The command line: `serve`, `calibrate`, `map`, `boundary`, `series`, `compare`, `report`,
+//! `demo`, `token`, `backup`, `restore`, `client`.
 
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -15,8 +15,11 @@ use isotint_core::export::{self, FileKind, OutputFormat};
 use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
+use isotint_core::report::{ReportInputs, ReportOptions};
 use isotint_core::series::{LoadSeries, SeriesSpec};
-use isotint_core::stress::{maximum_text, StressOpticLaw, STRESS_CAUTION};
+use isotint_core::stress::{
+    maximum_text, Specimen, SpecimenFields, SpecimenKind, StressOpticLaw, STRESS_CAUTION,
+};
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
     OrderHint, PixelRect,
@@ -80,6 +83,10 @@ pub enum Command {
     /// Compare the measured σ1 − σ2 with a finite-element prediction (CSV of nodes) registered
     /// to the photo by point pairs.
     Compare(CompareArgs),
+    /// Write a PDF report of one photo: every input, the order and stress maps with numbered
+    /// colour bars, the free-edge stress profile with its maximum and K_t, the map's figures,
+    /// the flags and the caution.
+    Report(ReportArgs),
     /// Write the demo scenario (rendered photos, masks, true orders) and a calibration
     /// measured on its beam photo.
     Demo(DemoArgs),
@@ -450,18 +457,67 @@ pub struct MapArgs {
     /// file (float32, NaN = no value).
     #[arg(long)]
     pub uncertainty_out: Option<PathBuf>,
-    /// Material fringe value f_σ, N/mm per fringe; with --thickness-mm the command also reports
-    /// σ1 − σ2 = N·f_σ/h statistics, MPa.
-    #[arg(long, alias = "fringe-value")]
-    pub fringe_value_n_per_mm: Option<f64>,
-    /// Model thickness h along the light path, mm (with --fringe-value-n-per-mm).
-    #[arg(long, alias = "thickness")]
-    pub thickness_mm: Option<f64>,
-    /// Also write the σ1 − σ2 map, MPa, to this file (needs --fringe-value-n-per-mm and
-    /// --thickness-mm); the format follows the extension: .npy (float32, NaN = no value),
-    /// .preview.png (false colour, numbered MPa bar), .csv (x,y,stress_mpa,flags).
+    /// How orders become stresses: with these the command also reports σ1 − σ2 statistics, MPa
+    /// (and a coating's ε1 − ε2, µε).
+    #[command(flatten)]
+    pub specimen: SpecimenArgs,
+    /// Also write the σ1 − σ2 map, MPa, to this file (needs a specimen: --fringe-value-n-per-mm
+    /// and --thickness-mm, or a coating's flags); the format follows the extension: .npy
+    /// (float32, NaN = no value), .preview.png (false colour, numbered MPa bar), .csv
+    /// (x,y,stress_mpa,flags).
     #[arg(long)]
     pub stress_out: Option<PathBuf>,
+    /// Also write a coating's ε1 − ε2 map, µε, to this file (needs a coating's flags); .npy,
+    /// .preview.png (numbered µε bar) or .csv (x,y,strain_microstrain,flags).
+    #[arg(long)]
+    pub strain_out: Option<PathBuf>,
+}
+
+/// The specimen: how fringe orders become stresses. A transmission model (default) or a
+/// frozen-stress slice takes --fringe-value-n-per-mm and --thickness-mm; a coating takes
+/// --strain-fringe-value-um, --coating-thickness-mm, --youngs-modulus-mpa and --poisson-ratio.
+#[derive(Debug, Args)]
+pub struct SpecimenArgs {
+    /// transmission (σ1 − σ2 = N·f_σ/h), slice (a frozen-stress slice: f_σ at the critical
+    /// temperature, h the slice's thickness) or coating (in reflection: ε1 − ε2 = N·f_ε/(2·t_c),
+    /// σ1 − σ2 = E/(1 + ν)·(ε1 − ε2)).
+    #[arg(long, value_parser = parse_specimen_kind)]
+    pub specimen: Option<SpecimenKind>,
+    /// Material fringe value f_σ, N/mm per fringe (of a slice: at the critical temperature).
+    #[arg(long, alias = "fringe-value")]
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Thickness h along the light path, mm (of a model or slice).
+    #[arg(long, alias = "thickness")]
+    pub thickness_mm: Option<f64>,
+    /// Coating: strain fringe value f_ε, µm per fringe.
+    #[arg(long)]
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating: thickness t_c, mm.
+    #[arg(long)]
+    pub coating_thickness_mm: Option<f64>,
+    /// Coating: Young's modulus E of the coated part, MPa.
+    #[arg(long)]
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Coating: Poisson's ratio ν of the coated part (0 ≤ ν < 0.5).
+    #[arg(long)]
+    pub poisson_ratio: Option<f64>,
+}
+
+impl SpecimenArgs {
+    /// The specimen these flags describe (`None` when none is given); errors name the flag.
+    fn specimen(&self) -> anyhow::Result<Option<Specimen>> {
+        SpecimenFields {
+            specimen: self.specimen,
+            fringe_value_n_per_mm: self.fringe_value_n_per_mm,
+            thickness_mm: self.thickness_mm,
+            strain_fringe_value_um: self.strain_fringe_value_um,
+            coating_thickness_mm: self.coating_thickness_mm,
+            youngs_modulus_mpa: self.youngs_modulus_mpa,
+            poisson_ratio: self.poisson_ratio,
+        }
+        .specimen()
+        .in_flags()
+    }
 }
 
 /// The stress-optic law's inputs, for commands that need them.
@@ -502,6 +558,10 @@ pub struct BoundaryArgs {
     /// Nominal stress σ_nom, MPa: adds K_t = σ_max / σ_nom.
     #[arg(long, alias = "nominal-stress")]
     pub nominal_stress_mpa: Option<f64>,
+    /// Sample along this polyline instead of the mask's outline: "X1,Y1;X2,Y2;…" in
+    /// pixel-edge coordinates (at least two points, inside the photo, the specimen on one side).
+    #[arg(long, value_parser = parse_polyline, allow_hyphen_values = true)]
+    pub polyline: Option<Polyline>,
     /// Also write every edge point to this CSV file
     /// (x,y,normal_x,normal_y,order,stress_mpa,beyond_range).
     #[arg(long)]
@@ -579,6 +639,43 @@ pub struct CompareArgs {
     pub json: bool,
 }
 
+/// Options of `isotint report`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct ReportArgs {
+    /// Calibration file (JSON, as written by `isotint calibrate`).
+    #[arg(long)]
+    pub calibration: PathBuf,
+    /// Specimen photo (PNG, JPEG or TIFF).
+    #[arg(long)]
+    pub photo: PathBuf,
+    /// Mask image of the photo's size; non-zero = specimen. Its outline is the edge sampled.
+    #[arg(long)]
+    pub mask: PathBuf,
+    /// How orders become stresses (required: --fringe-value-n-per-mm and --thickness-mm, or a
+    /// coating's flags).
+    #[command(flatten)]
+    pub specimen: SpecimenArgs,
+    /// Nominal stress σ_nom, MPa: adds K_t = σ_max / σ_nom.
+    #[arg(long, alias = "nominal-stress")]
+    pub nominal_stress_mpa: Option<f64>,
+    /// The load the photo was taken at, N (stated in the report).
+    #[arg(long, alias = "load")]
+    pub load_n: Option<f64>,
+    /// Image scale, mm per pixel: positions are also given in mm.
+    #[arg(long)]
+    pub mm_per_px: Option<f64>,
+    /// Sample the edge along this polyline instead of the mask's outline: "X1,Y1;X2,Y2;…".
+    #[arg(long, value_parser = parse_polyline, allow_hyphen_values = true)]
+    pub polyline: Option<Polyline>,
+    /// Title of the report's first page.
+    #[arg(long)]
+    pub title: Option<String>,
+    /// Where to write the report (PDF).
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
 /// Options of `isotint demo`.
 #[derive(Debug, Args)]
 pub struct DemoArgs {
@@ -610,6 +707,38 @@ fn parse_region(text: &str) -> Result<PixelRect, String> {
 
 fn parse_pair(text: &str) -> Result<PointPair, String> {
     PointPair::parse(text).map_err(|e| e.to_string())
+}
+
+fn parse_specimen_kind(text: &str) -> Result<SpecimenKind, String> {
+    SpecimenKind::from_name(text).map_err(|e| e.to_string())
+}
+
+/// The points of a `--polyline` flag, in pixel-edge coordinates.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Polyline(pub Vec<PixelPoint>);
+
+/// "X1,Y1;X2,Y2;…" as points; each pair two finite numbers.
+fn parse_polyline(text: &str) -> Result<Polyline, String> {
+    text.split(';')
+        .filter(|p| !p.trim().is_empty())
+        .map(|pair| {
+            let parts: Vec<&str> = pair.split(',').map(str::trim).collect();
+            let [x, y] = parts[..] else {
+                return Err(format!("expected X,Y between the semicolons, got {pair:?}"));
+            };
+            let number = |s: &str| {
+                s.parse::<f64>()
+                    .ok()
+                    .filter(|v| v.is_finite())
+                    .ok_or_else(|| format!("{s:?} is not a finite number"))
+            };
+            Ok(PixelPoint {
+                x: number(x)?,
+                y: number(y)?,
+            })
+        })
+        .collect::<Result<Vec<_>, _>>()
+        .map(Polyline)
 }
 
 fn parse_hint(text: &str) -> Result<OrderHint, String> {
@@ -661,6 +790,15 @@ const FIELD_FLAGS: &[(&str, &str)] = &[
     ("disc_diameter_mm", "--disc-diameter-mm"),
     ("prediction", "--prediction"),
     ("pairs", "--pair"),
+    ("polyline", "--polyline"),
+    ("specimen", "--specimen"),
+    ("strain_fringe_value_um", "--strain-fringe-value-um"),
+    ("coating_thickness_mm", "--coating-thickness-mm"),
+    ("youngs_modulus_mpa", "--youngs-modulus-mpa"),
+    ("poisson_ratio", "--poisson-ratio"),
+    ("load_n", "--load-n"),
+    ("mm_per_px", "--mm-per-px"),
+    ("title", "--title"),
 ];
 
 /// The flag that carries an API field (the field itself if no flag does).
@@ -733,6 +871,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Boundary(args) => boundary(&args),
         Command::Series(args) => series(&args),
         Command::Compare(args) => compare_prediction(&args),
+        Command::Report(args) => report(&args),
         Command::Demo(args) => demo(&args),
         Command::Token(command) => runtime()?.block_on(token(command)),
         Command::Backup(args) => runtime()?.block_on(backup(&args)),
@@ -1012,8 +1151,15 @@ fn refuse_overwriting(
 
 /// Reads and checks a calibration file.
 fn read_table(path: &Path) -> anyhow::Result<CalibrationTable> {
-    CalibrationTable::from_json(&read(path, "calibration")?)
-        .with_context(|| format!("{} is not a usable calibration file", path.display()))
+    read_table_file(path).map(|(table, _)| table)
+}
+
+/// A calibration file's table and its bytes.
+fn read_table_file(path: &Path) -> anyhow::Result<(CalibrationTable, Vec<u8>)> {
+    let bytes = read(path, "calibration")?;
+    let table = CalibrationTable::from_json(&bytes)
+        .with_context(|| format!("{} is not a usable calibration file", path.display()))?;
+    Ok((table, bytes))
 }
 
 fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
@@ -1038,8 +1184,11 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         &DecodeLimits::default(),
     )
     .in_flags()?;
-    let result =
-        boundary_stress(&map, &law, args.nominal_stress_mpa, &EdgePath::Outline).in_flags()?;
+    let path = args
+        .polyline
+        .clone()
+        .map_or(EdgePath::Outline, |p| EdgePath::Polyline(p.0));
+    let result = boundary_stress(&map, &law, args.nominal_stress_mpa, &path).in_flags()?;
     if let Some(out) = &args.out {
         write(out, &edge_csv(&result))?;
     }
@@ -1239,12 +1388,72 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// What `isotint map` writes, checked before any work: the orders' format, the stress-optic
-/// law (if given) and the stress map's format (if asked for).
+fn report(args: &ReportArgs) -> anyhow::Result<()> {
+    let inputs = [
+        ("--photo", Some(&args.photo)),
+        ("--mask", Some(&args.mask)),
+        ("--calibration", Some(&args.calibration)),
+    ];
+    refuse_overwriting(&inputs, "--out", &args.out)?;
+    let specimen = args.specimen.specimen()?.ok_or_else(|| {
+        anyhow::anyhow!(
+            "a report needs --fringe-value-n-per-mm and --thickness-mm (or, for a coating, \
+             --strain-fringe-value-um, --coating-thickness-mm, --youngs-modulus-mpa and \
+             --poisson-ratio)"
+        )
+    })?;
+    let options = ReportOptions {
+        nominal_stress_mpa: args.nominal_stress_mpa,
+        load_n: args.load_n,
+        mm_per_px: args.mm_per_px,
+        title: args.title.clone(),
+    };
+    options.validate().in_flags()?;
+    let (table, table_bytes) = read_table_file(&args.calibration)?;
+    let file_name = |p: &Path| {
+        p.file_name().map_or_else(
+            || p.display().to_string(),
+            |n| n.to_string_lossy().into_owned(),
+        )
+    };
+    let inputs = ReportInputs {
+        photo_name: file_name(&args.photo),
+        calibration_name: table.metadata.name.clone(),
+        calibration_id: format!(
+            "file {}, SHA-256 {}",
+            file_name(&args.calibration),
+            crate::storage::calibrations::sha256_hex(&table_bytes)
+        ),
+        material: table.metadata.material.clone(),
+        specimen,
+        edge: args
+            .polyline
+            .clone()
+            .map_or(EdgePath::Outline, |p| EdgePath::Polyline(p.0)),
+        options,
+    };
+    let photo = read(&args.photo, "photo")?;
+    let mask = read(&args.mask, "mask")?;
+    let pdf = pipeline::report(
+        &photo,
+        Some(&mask),
+        &table,
+        &MapOptions::default(),
+        &DecodeLimits::default(),
+        &inputs,
+    )
+    .in_flags()?;
+    write(&args.out, &pdf)?;
+    println!("report written to {}", args.out.display());
+    Ok(())
+}
+
+/// What `isotint map` writes, checked before any work: the orders' format, the specimen (if
+/// given) and the stress and strain files (if asked for).
 struct MapOutputs {
     orders: OutputFormat,
-    law: Option<StressOpticLaw>,
-    stress: Option<OutputFormat>,
+    specimen: Option<Specimen>,
+    scaled: Vec<(PathBuf, FileKind)>,
 }
 
 /// Checks the output paths of `isotint map` before any work: none is an input file or another
@@ -1260,6 +1469,7 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
         ("--out", Some(&args.out)),
         ("--uncertainty-out", args.uncertainty_out.as_ref()),
         ("--stress-out", args.stress_out.as_ref()),
+        ("--strain-out", args.strain_out.as_ref()),
     ];
     for (i, (flag, path)) in outputs.iter().enumerate() {
         let Some(path) = path else { continue };
@@ -1282,26 +1492,38 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
             );
         }
     }
-    let law =
-        StressOpticLaw::from_fields(args.fringe_value_n_per_mm, args.thickness_mm).in_flags()?;
-    let stress = match (&args.stress_out, law) {
-        (None, _) => None,
-        (Some(path), None) => anyhow::bail!(
-            "--stress-out {} needs --fringe-value-n-per-mm and --thickness-mm",
-            path.display()
-        ),
-        (Some(path), Some(_)) => match OutputFormat::from_path(&path.to_string_lossy()) {
+    let specimen = args.specimen.specimen()?;
+    let mut scaled = Vec::new();
+    for (flag, path, prefix) in [
+        ("--stress-out", &args.stress_out, "stress-"),
+        ("--strain-out", &args.strain_out, "strain-"),
+    ] {
+        let Some(path) = path else { continue };
+        let format = match OutputFormat::from_path(&path.to_string_lossy()) {
             Ok(OutputFormat::Png16) | Err(_) => anyhow::bail!(
-                "--stress-out {}: use .npy (float32 MPa), .preview.png or .csv",
+                "{flag} {}: use .npy (float32), .preview.png or .csv",
                 path.display()
             ),
-            Ok(format) => Some(format),
-        },
-    };
+            Ok(format) => format,
+        };
+        let kind =
+            FileKind::from_name(&format!("{prefix}{}", format.name()), specimen).map_err(|e| {
+                match e {
+                    CoreError::Invalid { field, message } => anyhow::anyhow!(
+                        "{flag} {} needs {}: {}",
+                        path.display(),
+                        flag_of(field),
+                        with_flags(&message)
+                    ),
+                    other => other.into(),
+                }
+            })?;
+        scaled.push((path.clone(), kind));
+    }
     Ok(MapOutputs {
         orders,
-        law,
-        stress,
+        specimen,
+        scaled,
     })
 }
 
@@ -1348,28 +1570,30 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             u.display()
         );
     }
-    if let (Some(path), Some(format), Some(law)) = (&args.stress_out, outputs.stress, &outputs.law)
-    {
-        write(
-            path,
-            &export::encode(&map, FileKind::Stress(format, *law)).in_flags()?,
-        )?;
+    for (path, kind) in &outputs.scaled {
+        write(path, &export::encode(&map, *kind).in_flags()?)?;
         println!(
-            "{}×{} σ1−σ2 map, MPa ({}) written to {}",
+            "{}×{} {} written to {}",
             map.width,
             map.height,
-            format.name(),
+            match kind {
+                FileKind::Strain(..) => "ε1−ε2 map, µε",
+                _ => "σ1−σ2 map, MPa",
+            },
             path.display()
         );
     }
-    print!("{}", statistics_text(&map.statistics, outputs.law.as_ref()));
+    print!(
+        "{}",
+        statistics_text(&map.statistics, outputs.specimen.as_ref())
+    );
     Ok(())
 }
 
-/// The lines `isotint map` prints about a map: its figures, the σ1 − σ2 figures when a law is
-/// given (with the stress caution), and its range caution if it has one. A maximum that is only
-/// a lower bound says "at least".
-pub fn statistics_text(s: &MapStatistics, law: Option<&StressOpticLaw>) -> String {
+/// The lines `isotint map` prints about a map: its figures, the σ1 − σ2 figures (and a
+/// coating's ε1 − ε2) when a specimen is given (with the stress caution), and its range caution
+/// if it has one. A maximum that is only a lower bound says "at least".
+pub fn statistics_text(s: &MapStatistics, specimen: Option<&Specimen>) -> String {
     let lower_bound = s.max_is_lower_bound();
     let mut out = format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
@@ -1384,17 +1608,27 @@ pub fn statistics_text(s: &MapStatistics, law: Option<&StressOpticLaw>) -> Strin
         maximum_text(s.max_order, "fringes", lower_bound),
         s.mean_residual
     );
-    if let Some(law) = law {
-        let t = law.statistics(s);
+    if let Some(specimen) = specimen {
+        let figures = specimen.statistics(s);
+        let t = figures.stress;
         out += &format!(
-            "  σ1−σ2               min {:.3}, mean {:.3}, max {} (f_σ {} N/mm, h {} mm)\n  \
-             stress caution      {STRESS_CAUTION}\n",
+            "  specimen            {}\n  σ1−σ2               min {:.3}, mean {:.3}, max {} \
+             ({:.4} MPa per fringe)\n",
+            specimen.input_lines().join("; "),
             t.min_stress_mpa,
             t.mean_stress_mpa,
             maximum_text(t.max_stress_mpa, "MPa", t.max_is_lower_bound),
-            t.fringe_value_n_per_mm,
-            t.thickness_mm
+            figures.stress_per_fringe_mpa
         );
+        if let Some(e) = figures.strain {
+            out += &format!(
+                "  ε1−ε2               min {:.1}, mean {:.1}, max {}\n",
+                e.min_strain_microstrain,
+                e.mean_strain_microstrain,
+                maximum_text(e.max_strain_microstrain, "µε", e.max_is_lower_bound)
+            );
+        }
+        out += &format!("  stress caution      {STRESS_CAUTION}\n");
     }
     if let Some(c) = s.caution() {
         out += &format!("  caution             {c}\n");

@@ -4,6 +4,7 @@
 
 use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
 use isotint_core::export;
+use isotint_core::report::{report_pdf, ReportInputs};
 use isotint_core::series::{map_series, LoadSeries, SeriesSpec};
 use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
 
@@ -28,6 +29,24 @@ pub fn map(
     let photo = Photo::decode(photo, limits)?;
     let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
     isotint_core::map_orders(&photo, table, mask.as_ref(), options)
+}
+
+/// Decodes a specimen photo (and mask, if any), maps it with `table` and writes its PDF report
+/// (`report::report_pdf`), decoding the photo once for both.
+pub fn report(
+    photo: &[u8],
+    mask: Option<&[u8]>,
+    table: &CalibrationTable,
+    options: &MapOptions,
+    limits: &DecodeLimits,
+    inputs: &ReportInputs,
+) -> CoreResult<Vec<u8>> {
+    inputs.options.validate()?;
+    let photo = Photo::decode(photo, limits)?;
+    let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
+    let map = isotint_core::map_orders(&photo, table, mask.as_ref(), options)?;
+    drop(mask);
+    report_pdf(&photo, &map, inputs)
 }
 
 /// Decodes the mask and maps the photos of a load series with `table` (one photo decoded at a

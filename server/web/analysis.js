@@ -104,6 +104,7 @@ export class AnalysisPage {
       $(id).addEventListener('input', () => this.drawProfile());
     }
     $('an-run').addEventListener('click', () => this.run());
+    $('an-report').addEventListener('click', () => this.report());
     document.addEventListener(CHANGED, () => this.loadCalibrations());
     new ResizeObserver(() => this.drawLegend()).observe($('an-view'));
     this.toolChanged();
@@ -432,6 +433,50 @@ export class AnalysisPage {
     );
   }
 
+  // The multipart form that maps the photo with `calibration`: photo, mask (if any), options.
+  async mapForm(calibration) {
+    const form = new FormData();
+    form.append('photo', this.photo.file, this.photo.file.name);
+    form.append('calibration', calibration);
+    const mask = await this.maskBlob();
+    if (mask) form.append('mask', mask, 'mask.png');
+    form.append(
+      'options',
+      JSON.stringify({ hints: this.hints, exposure_compensation: $('an-exposure').checked, max_order: null }),
+    );
+    return form;
+  }
+
+  // Asks the service for the PDF report of the mapped photo (the same photo, calibration, mask
+  // and options, with the stress fields) and saves it.
+  async report() {
+    const error = $('an-error');
+    showError(error, null);
+    const button = $('an-report');
+    button.disabled = true;
+    try {
+      const fringeValue = requiredNumber($('an-fringe-value'), { positive: true });
+      const thickness = requiredNumber($('an-thickness'), { positive: true });
+      const form = await this.mapForm($('an-calibration').value);
+      if (!form.has('mask')) throw new Error('The report needs the specimen’s outline or mask: its edge is where the free-edge stress is read.');
+      form.append('report', JSON.stringify({ fringe_value_n_per_mm: fringeValue, thickness_mm: thickness }));
+      $('an-progress-text').textContent = 'Writing the report…';
+      const blob = await api.report(form);
+      const url = URL.createObjectURL(blob);
+      const save = document.createElement('a');
+      save.href = url;
+      save.download = `stress-report-${this.result.id}.pdf`;
+      save.click();
+      setTimeout(() => URL.revokeObjectURL(url), 60_000);
+      $('an-progress-text').textContent = 'Report saved.';
+    } catch (e) {
+      $('an-progress-text').textContent = '';
+      showError(error, e);
+    } finally {
+      button.disabled = false;
+    }
+  }
+
   async run() {
     const error = $('an-error');
     showError(error, null);
@@ -447,15 +492,7 @@ export class AnalysisPage {
         $('an-calibration').focus();
         throw new Error('Choose a calibration.');
       }
-      form = new FormData();
-      form.append('photo', this.photo.file, this.photo.file.name);
-      form.append('calibration', calibration);
-      const mask = await this.maskBlob();
-      if (mask) form.append('mask', mask, 'mask.png');
-      form.append(
-        'options',
-        JSON.stringify({ hints: this.hints, exposure_compensation: $('an-exposure').checked, max_order: null }),
-      );
+      form = await this.mapForm(calibration);
     } catch (e) {
       showError(error, e);
       return;

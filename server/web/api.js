@@ -134,6 +134,11 @@ export function postForm(url, form, onProgress) {
   });
 }
 
+// POSTs multipart form data and answers the reply's body as a Blob (a file the service made).
+export async function postFormForBlob(url, form) {
+  return (await send(url, { method: 'POST', body: form })).blob();
+}
+
 // One page of calibrations ({calibrations, total, next}): the first page of a search, or the
 // page a previous page's `next` link names.
 function calibrationPage(q = '', includeArchived = false, next = null) {
@@ -186,4 +191,5 @@ export const api = {
   restore: (id) => postJson(`/api/v1/calibrations/${encodeURIComponent(id)}/restore`),
   createCalibration: (form, onProgress) => postForm('/api/v1/calibrations', form, onProgress),
   createOrderMap: (form, onProgress) => postForm('/api/v1/order-maps', form, onProgress),
+  report: (form) => postFormForBlob('/api/v1/reports', form),
 };

@@ -264,6 +264,15 @@ async function main(browser) {
     console.log(`# npy shape (${rows}, ${cols})`);
   });
 
+  await step('the report button saves a PDF of the mapped photo', async () => {
+    const [download] = await Promise.all([page.waitForEvent('download'), page.getByRole('button', { name: 'Report (PDF)' }).click()]);
+    const file = path.join(fs.mkdtempSync(path.join(os.tmpdir(), 'isotint-report-')), download.suggestedFilename());
+    await download.saveAs(file);
+    const head = fs.readFileSync(file).subarray(0, 5).toString('latin1');
+    check(head === '%PDF-', `the report download starts ${JSON.stringify(head)}`);
+    check(/^stress-report-.*\.pdf$/.test(download.suggestedFilename()), `report file ${download.suggestedFilename()}`);
+  });
+
   await step('the page logged no errors and loaded nothing from elsewhere', async () => {
     check(problems.length === 0, problems.join('\n'));
   });

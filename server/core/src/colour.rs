@@ -304,6 +304,27 @@ impl Photo {
         }
     }
 
+    /// sRGB-encoded 8-bit samples of a copy at most `max_side` pixels on its longer side
+    /// (each pixel the photo's pixel under its centre; 16-bit samples keep their high byte):
+    /// width, height and row-major RGB bytes. For pictures of the photo, not for measuring.
+    pub fn thumbnail_rgb8(&self, max_side: u32) -> (u32, u32, Vec<u8>) {
+        let (w, h) = thumbnail_size(self.width, self.height, max_side);
+        let mut out = Vec::with_capacity(3 * (w * h) as usize);
+        for ty in 0..h {
+            let y = source_index(ty, h, self.height);
+            for tx in 0..w {
+                let i = (y * self.width + source_index(tx, w, self.width)) as usize;
+                out.extend(match &self.pixels {
+                    SrgbPixels::Eight(p) => [p[i].red, p[i].green, p[i].blue],
+                    SrgbPixels::Sixteen(p) => {
+                        [p[i].red, p[i].green, p[i].blue].map(|c| (c >> 8) as u8)
+                    }
+                });
+            }
+        }
+        (w, h, out)
+    }
+
     /// Linear-light sRGB of pixel index `i` (row-major), components 0–1.
     pub fn linear(&self, i: usize) -> LinSrgb<f32> {
         match &self.pixels {
@@ -325,6 +346,23 @@ impl Photo {
             }
         }
     }
+}
+
+/// The size of a copy of a `width` × `height` image at most `max_side` pixels on its longer
+/// side (the image's own size when it is smaller), keeping its proportions; at least 1 × 1.
+pub fn thumbnail_size(width: u32, height: u32, max_side: u32) -> (u32, u32) {
+    let longer = width.max(height).max(1);
+    if longer <= max_side {
+        return (width.max(1), height.max(1));
+    }
+    let scale = |v: u32| ((u64::from(v) * u64::from(max_side) / u64::from(longer)) as u32).max(1);
+    (scale(width), scale(height))
+}
+
+/// The source row (or column) of a copy's row `t`, for a copy `copy` long of a source `source`
+/// long: the one under the copy pixel's centre.
+pub fn source_index(t: u32, copy: u32, source: u32) -> u32 {
+    (((2 * u64::from(t) + 1) * u64::from(source) / (2 * u64::from(copy))) as u32).min(source - 1)
 }
 
 /// A CIELAB (D65) image, row-major, pixel (x, y) at index `y * width + x`.

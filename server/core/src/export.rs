@@ -8,7 +8,7 @@ use image::{Rgb, RgbImage};
 
 use crate::error::{CoreError, CoreResult};
 use crate::order_map::{MapStatistics, OrderMap, PixelFlags};
-use crate::stress::StressOpticLaw;
+use crate::stress::{Coating, Specimen, StressOpticLaw};
 
 /// Scale of the 16-bit PNG: grey value = round(order × 1000); N = value / 1000.
 pub const PNG16_SCALE: f32 = 1000.0;
@@ -143,14 +143,16 @@ impl OrderMap {
 }
 
 /// What a file of a map holds: its orders in an [`OutputFormat`], σ1 − σ2 in MPa through a
-/// stress-optic law (NPY, preview or CSV), the 1 σ uncertainty of the orders (NPY float32) or
-/// the flag bits (NPY uint8).
+/// stress-optic law or a coating's ε1 − ε2 in µε (NPY, preview or CSV), the 1 σ uncertainty of
+/// the orders (NPY float32) or the flag bits (NPY uint8).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum FileKind {
     /// Fringe orders.
     Orders(OutputFormat),
     /// σ1 − σ2, MPa, through the law.
     Stress(OutputFormat, StressOpticLaw),
+    /// ε1 − ε2 of a coating, µε: N·f_ε/(2·t_c).
+    Strain(OutputFormat, Coating),
     /// Standard uncertainty (1 σ) of the order, fringes, NPY float32, NaN = no value.
     Uncertainty,
     /// Per-pixel flag bits, NPY uint8.
@@ -159,32 +161,48 @@ pub enum FileKind {
 
 impl FileKind {
     /// Parses the API's `format` names: one of the orders' formats, `uncertainty`, `flags`, or
-    /// `stress-` and `npy`, `preview` or `csv`, which need `law`. An unknown name is refused
-    /// naming `format`, a stress format without a law naming `fringe_value_n_per_mm`.
-    pub fn from_name(name: &str, law: Option<StressOpticLaw>) -> CoreResult<Self> {
+    /// `stress-` or `strain-` and `npy`, `preview` or `csv`, which need a specimen (strains a
+    /// coating). An unknown name is refused naming `format`, a stress format without a specimen
+    /// naming `fringe_value_n_per_mm`, a strain format without a coating
+    /// `strain_fringe_value_um`.
+    pub fn from_name(name: &str, specimen: Option<Specimen>) -> CoreResult<Self> {
         let unknown = || {
             let shown: String = name.chars().take(40).collect();
             CoreError::invalid(
                 "format",
                 format!(
                     "{shown:?} is not one of npy, png16, preview, csv, uncertainty, flags, \
-                     stress-npy, stress-preview, stress-csv"
+                     stress-npy, stress-preview, stress-csv, strain-npy, strain-preview, \
+                     strain-csv"
                 ),
             )
         };
-        match name.strip_prefix("stress-") {
-            Some(stress) => {
-                let format = OutputFormat::from_name(stress)
-                    .ok()
-                    .filter(|f| *f != OutputFormat::Png16)
-                    .ok_or_else(unknown)?;
-                let law = law.ok_or_else(|| {
-                    CoreError::invalid(
-                        "fringe_value_n_per_mm",
-                        format!("is required (with thickness_mm) for format {name}"),
-                    )
-                })?;
-                Ok(FileKind::Stress(format, law))
+        let scaled = |rest: &str| {
+            OutputFormat::from_name(rest)
+                .ok()
+                .filter(|f| *f != OutputFormat::Png16)
+                .ok_or_else(unknown)
+        };
+        if let Some(rest) = name.strip_prefix("stress-") {
+            let format = scaled(rest)?;
+            let law = specimen.map(|s| s.law()).ok_or_else(|| {
+                CoreError::invalid(
+                    "fringe_value_n_per_mm",
+                    format!("is required (with thickness_mm) for format {name}"),
+                )
+            })?;
+            return Ok(FileKind::Stress(format, law));
+        }
+        match name.strip_prefix("strain-") {
+            Some(rest) => {
+                let format = scaled(rest)?;
+                match specimen {
+                    Some(Specimen::Coating(c)) => Ok(FileKind::Strain(format, c.coating)),
+                    _ => Err(CoreError::invalid(
+                        "strain_fringe_value_um",
+                        format!("is required (a coating's fields) for format {name}"),
+                    )),
+                }
             }
             None => match name {
                 "uncertainty" => Ok(FileKind::Uncertainty),
@@ -199,7 +217,9 @@ impl FileKind {
     /// MIME type of the file.
     pub fn content_type(self) -> &'static str {
         match self {
-            FileKind::Orders(format) | FileKind::Stress(format, _) => format.content_type(),
+            FileKind::Orders(format)
+            | FileKind::Stress(format, _)
+            | FileKind::Strain(format, _) => format.content_type(),
             FileKind::Uncertainty | FileKind::Flags => OutputFormat::Npy.content_type(),
         }
     }
@@ -209,8 +229,22 @@ impl FileKind {
         match self {
             FileKind::Orders(format) => format!("{stem}.{}", format.extension()),
             FileKind::Stress(format, _) => format!("{stem}-stress.{}", format.extension()),
+            FileKind::Strain(format, _) => format!("{stem}-strain.{}", format.extension()),
             FileKind::Uncertainty => format!("{stem}-uncertainty.npy"),
             FileKind::Flags => format!("{stem}-flags.npy"),
+        }
+    }
+}
+
+impl FileKind {
+    /// A stress or strain file's value per fringe (MPa or µε) and its colour bar's title.
+    fn per_fringe(self) -> Option<(f64, &'static str)> {
+        match self {
+            FileKind::Stress(_, law) => Some((law.stress_difference_mpa(1.0), STRESS_BAR_TITLE)),
+            FileKind::Strain(_, coating) => {
+                Some((coating.strain_difference(1.0) * 1e6, STRAIN_BAR_TITLE))
+            }
+            _ => None,
         }
     }
 }
@@ -326,10 +360,14 @@ impl FileWriter {
         let (header, output) = match kind {
             FileKind::Orders(OutputFormat::Npy)
             | FileKind::Stress(OutputFormat::Npy, _)
+            | FileKind::Strain(OutputFormat::Npy, _)
             | FileKind::Uncertainty => plain(npy_header("<f4", rows, cols)),
             FileKind::Flags => plain(npy_header("|u1", rows, cols)),
             FileKind::Orders(OutputFormat::Csv) => plain(b"x,y,order,residual,flags\n".to_vec()),
             FileKind::Stress(OutputFormat::Csv, _) => plain(b"x,y,stress_mpa,flags\n".to_vec()),
+            FileKind::Strain(OutputFormat::Csv, _) => {
+                plain(b"x,y,strain_microstrain,flags\n".to_vec())
+            }
             FileKind::Orders(OutputFormat::Png16) => (
                 Vec::new(),
                 png_stream(
@@ -339,17 +377,19 @@ impl FileWriter {
                     png::BitDepth::Sixteen,
                 )?,
             ),
-            FileKind::Stress(OutputFormat::Png16, _) => {
+            FileKind::Stress(OutputFormat::Png16, _) | FileKind::Strain(OutputFormat::Png16, _) => {
                 return Err(CoreError::invalid(
                     "format",
-                    "a stress map is written as NPY, preview PNG or CSV, not as a 16-bit PNG",
+                    "a stress or strain map is written as NPY, preview PNG or CSV, not as a \
+                     16-bit PNG",
                 ))
             }
             FileKind::Orders(OutputFormat::Preview)
-            | FileKind::Stress(OutputFormat::Preview, _) => {
-                let (top, title) = match kind {
-                    FileKind::Stress(_, law) => (law.stress_difference_mpa(top), STRESS_BAR_TITLE),
-                    _ => (top, COLOUR_BAR_TITLE),
+            | FileKind::Stress(OutputFormat::Preview, _)
+            | FileKind::Strain(OutputFormat::Preview, _) => {
+                let (top, title) = match kind.per_fringe() {
+                    Some((per_fringe, title)) => (per_fringe * top, title),
+                    None => (top, COLOUR_BAR_TITLE),
                 };
                 bar_top_value = top;
                 let side = preview_panel(width, height, top, title);
@@ -396,10 +436,10 @@ impl FileWriter {
         }
         let y0 = self.next_row as usize;
         self.next_row += count;
-        let stress = match self.kind {
-            FileKind::Stress(_, law) => Some(law.stress_map_mpa(rows.order)),
-            _ => None,
-        };
+        let stress = self.kind.per_fringe().map(|(per_fringe, _)| {
+            let k = per_fringe as f32;
+            rows.order.iter().map(|n| n * k).collect::<Vec<f32>>()
+        });
         let values = stress.as_deref().unwrap_or(rows.order);
         let w = rows.width;
         match (&mut self.output, self.kind) {
@@ -419,7 +459,8 @@ impl FileWriter {
                     let _ = writeln!(out, ",{}", rows.flags[i].0);
                 }
             }
-            (Output::Bytes(out), FileKind::Stress(OutputFormat::Csv, _)) => {
+            (Output::Bytes(out), FileKind::Stress(OutputFormat::Csv, _))
+            | (Output::Bytes(out), FileKind::Strain(OutputFormat::Csv, _)) => {
                 out.reserve(values.len() * 20);
                 for (i, s) in values.iter().enumerate() {
                     let _ = write!(out, "{},{},", i % w, y0 + i / w);
@@ -617,6 +658,9 @@ pub const COLOUR_BAR_TITLE: &str = "fringe order";
 /// Title of the stress preview's colour bar (σ1 − σ2 in MPa; the preview's font is ASCII).
 pub const STRESS_BAR_TITLE: &str = "sigma1 - sigma2 (MPa)";
 
+/// Title of a coating's strain preview's colour bar (ε1 − ε2 in µε).
+pub const STRAIN_BAR_TITLE: &str = "eps1 - eps2 (microstrain)";
+
 /// One number of the preview's colour bar.
 #[derive(Debug, Clone, PartialEq)]
 pub struct BarLabel {
@@ -688,7 +732,7 @@ fn draw_text(img: &mut RgbImage, text: &str, x: u32, y: u32, upwards: bool) {
 /// The order at the top of the preview's colour bar, fringes: the highest order the map could
 /// read (the table's last order); for results stored without it, the map's highest order
 /// rounded up.
-fn bar_top(s: &MapStatistics) -> f64 {
+pub fn bar_top(s: &MapStatistics) -> f64 {
     if s.table_max_order.is_finite() && s.table_max_order > 0.0 {
         s.table_max_order
     } else if s.max_order.is_finite() && s.max_order > 0.0 {
@@ -871,6 +915,41 @@ mod tests {
             ),
             "{err}"
         );
+    }
+
+    #[test]
+    fn a_coatings_strain_map_is_the_order_times_its_strain_per_fringe_and_needs_a_coating() {
+        // source: ε1 − ε2 = N·f_ε/(2·t_c) for a coating read in reflection (common practice, no
+        // source). Hand-worked: f_ε = 4 µm, t_c = 2 mm → 1000 µε per fringe, so orders 0, 2.2,
+        // 4.4 read 0, 2200, 4400 µε.
+        let map = three_pixel_map();
+        let coating = Coating::new(4.0, 2.0).unwrap();
+        let csv =
+            String::from_utf8(encode(&map, FileKind::Strain(OutputFormat::Csv, coating)).unwrap())
+                .unwrap();
+        assert_eq!(
+            csv,
+            "x,y,strain_microstrain,flags\n0,0,0.0000,0\n1,0,2200.0000,0\n2,0,4400.0000,0\n"
+        );
+        let law = StressOpticLaw::new(10.5, 6.0).unwrap();
+        let transmission = Some(Specimen::Transmission(law));
+        let e = FileKind::from_name("strain-npy", transmission).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                CoreError::Invalid {
+                    field: "strain_fringe_value_um",
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        assert_eq!(
+            FileKind::from_name("stress-csv", transmission).unwrap(),
+            FileKind::Stress(OutputFormat::Csv, law)
+        );
+        let png = encode(&map, FileKind::Strain(OutputFormat::Preview, coating)).unwrap();
+        assert!(png.starts_with(b"\x89PNG"));
     }
 
     #[test]

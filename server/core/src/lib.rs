@@ -16,6 +16,7 @@ pub mod geometry;
 mod matcher;
 pub mod order_map;
 pub mod render;
+pub mod report;
 pub mod series;
 pub mod stress;
 

@@ -83,12 +83,6 @@ impl StressOpticLaw {
         stress_difference_mpa * self.thickness_mm / self.fringe_value_n_per_mm
     }
 
-    /// σ1 − σ2 in MPa of every pixel of an order array (row-major; NaN where the order is).
-    pub fn stress_map_mpa(&self, orders: &[f32]) -> Vec<f32> {
-        let per_order = (self.fringe_value_n_per_mm / self.thickness_mm) as f32;
-        orders.iter().map(|n| n * per_order).collect()
-    }
-
     /// The stress figures of a map with `statistics`.
     pub fn statistics(&self, statistics: &MapStatistics) -> StressStatistics {
         StressStatistics {
@@ -181,6 +175,311 @@ impl Coating {
     pub fn strain_difference(&self, order: f64) -> f64 {
         order * self.strain_fringe_value_um * 1e-3 / (2.0 * self.thickness_mm)
     }
+}
+
+/// Elastic constants of the part under a coating: σ1 − σ2 = E/(1 + ν) · (ε1 − ε2) in plane
+/// stress on its surface.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PartElasticity {
+    /// Young's modulus E of the part, MPa.
+    pub youngs_modulus_mpa: f64,
+    /// Poisson's ratio ν of the part (0 ≤ ν < 0.5).
+    pub poisson_ratio: f64,
+}
+
+impl PartElasticity {
+    /// Elastic constants from E (MPa, positive) and ν (0 ≤ ν < 0.5); errors name the field.
+    pub fn new(youngs_modulus_mpa: f64, poisson_ratio: f64) -> CoreResult<Self> {
+        if !(poisson_ratio.is_finite() && (0.0..0.5).contains(&poisson_ratio)) {
+            return Err(CoreError::invalid(
+                "poisson_ratio",
+                format!("must be at least 0 and below 0.5, got {poisson_ratio}"),
+            ));
+        }
+        Ok(PartElasticity {
+            youngs_modulus_mpa: positive("youngs_modulus_mpa", youngs_modulus_mpa)?,
+            poisson_ratio,
+        })
+    }
+
+    /// σ1 − σ2 in MPa of a principal strain difference ε1 − ε2 (m/m) on a free surface.
+    pub fn stress_difference_mpa(&self, strain_difference: f64) -> f64 {
+        self.youngs_modulus_mpa / (1.0 + self.poisson_ratio) * strain_difference
+    }
+}
+
+/// A coating and the part it is bonded to.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct CoatedPart {
+    /// The coating (strain fringe value, thickness).
+    pub coating: Coating,
+    /// The part's elastic constants.
+    pub part: PartElasticity,
+}
+
+/// What the photo shows, and so how a fringe order N becomes σ1 − σ2. Every kind is linear in
+/// N, so each amounts to one [`StressOpticLaw`] ([`Specimen::law`]) that the stress map, its
+/// files, the boundary stress and the report all go through.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Specimen {
+    /// A transmission model: σ1 − σ2 = N·f_σ/h.
+    Transmission(StressOpticLaw),
+    /// A frozen-stress slice, read like a thin transmission model: f_σ is the material's
+    /// fringe value at its critical (stress-freezing) temperature and h the slice's
+    /// thickness, so σ1 − σ2 = N·f_σ/h is the model's stress at that temperature.
+    Slice(StressOpticLaw),
+    /// A birefringent coating seen in reflection: ε1 − ε2 = N·f_ε/(2 t_c) and the part's
+    /// σ1 − σ2 = E/(1 + ν)·(ε1 − ε2).
+    Coating(CoatedPart),
+}
+
+/// The kinds of [`Specimen`], as requests and command lines name them.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SpecimenKind {
+    /// A transmission model (the default).
+    #[default]
+    Transmission,
+    /// A birefringent coating in reflection.
+    Coating,
+    /// A frozen-stress slice.
+    Slice,
+}
+
+impl SpecimenKind {
+    /// The kind's name: `transmission`, `coating` or `slice`.
+    pub fn name(self) -> &'static str {
+        match self {
+            SpecimenKind::Transmission => "transmission",
+            SpecimenKind::Coating => "coating",
+            SpecimenKind::Slice => "slice",
+        }
+    }
+
+    /// Parses a kind's name; an unknown one is refused naming `specimen`.
+    pub fn from_name(name: &str) -> CoreResult<Self> {
+        [
+            SpecimenKind::Transmission,
+            SpecimenKind::Coating,
+            SpecimenKind::Slice,
+        ]
+        .into_iter()
+        .find(|k| k.name() == name)
+        .ok_or_else(|| {
+            let shown: String = name.chars().take(40).collect();
+            CoreError::invalid(
+                "specimen",
+                format!("{shown:?} is not one of transmission, coating, slice"),
+            )
+        })
+    }
+}
+
+/// A specimen's inputs as requests and command lines give them, each optional; see
+/// [`SpecimenFields::specimen`].
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct SpecimenFields {
+    /// The kind (default transmission).
+    pub specimen: Option<SpecimenKind>,
+    /// Material fringe value f_σ, N/mm per fringe (of a slice: at the critical temperature).
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Model thickness h along the light path, mm (of a slice: the slice's thickness).
+    pub thickness_mm: Option<f64>,
+    /// Strain fringe value of a coating f_ε, µm per fringe.
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating thickness t_c, mm.
+    pub coating_thickness_mm: Option<f64>,
+    /// Young's modulus of the coated part E, MPa.
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Poisson's ratio of the coated part ν.
+    pub poisson_ratio: Option<f64>,
+}
+
+impl SpecimenFields {
+    /// The specimen these fields describe: `None` when no field is given; a transmission model
+    /// or slice from `fringe_value_n_per_mm` and `thickness_mm` (both or neither); a coating
+    /// from all four coating fields. A missing field, a field of another kind or a value out
+    /// of range is refused naming the field.
+    pub fn specimen(&self) -> CoreResult<Option<Specimen>> {
+        let coating_fields = [
+            ("strain_fringe_value_um", self.strain_fringe_value_um),
+            ("coating_thickness_mm", self.coating_thickness_mm),
+            ("youngs_modulus_mpa", self.youngs_modulus_mpa),
+            ("poisson_ratio", self.poisson_ratio),
+        ];
+        let law_fields = [
+            ("fringe_value_n_per_mm", self.fringe_value_n_per_mm),
+            ("thickness_mm", self.thickness_mm),
+        ];
+        let kind = self.specimen.unwrap_or_else(|| {
+            if coating_fields.iter().any(|(_, v)| v.is_some()) {
+                SpecimenKind::Coating
+            } else {
+                SpecimenKind::Transmission
+            }
+        });
+        let refuse_others = |others: &[(&'static str, Option<f64>)]| -> CoreResult<()> {
+            match others.iter().find(|(_, v)| v.is_some()) {
+                Some((field, _)) => Err(CoreError::invalid(
+                    field,
+                    format!("does not apply to a {} specimen", kind.name()),
+                )),
+                None => Ok(()),
+            }
+        };
+        match kind {
+            SpecimenKind::Transmission | SpecimenKind::Slice => {
+                refuse_others(&coating_fields)?;
+                let law =
+                    StressOpticLaw::from_fields(self.fringe_value_n_per_mm, self.thickness_mm)?;
+                match (law, kind) {
+                    (None, SpecimenKind::Slice) => Err(CoreError::invalid(
+                        "fringe_value_n_per_mm",
+                        "is required (at the critical temperature, with thickness_mm) for a slice",
+                    )),
+                    (law, SpecimenKind::Slice) => Ok(law.map(Specimen::Slice)),
+                    (law, _) => Ok(law.map(Specimen::Transmission)),
+                }
+            }
+            SpecimenKind::Coating => {
+                refuse_others(&law_fields)?;
+                let need = |(field, value): (&'static str, Option<f64>)| {
+                    value.ok_or_else(|| CoreError::invalid(field, "is required for a coating"))
+                };
+                let [f, t, e, nu] = coating_fields;
+                Ok(Some(Specimen::Coating(CoatedPart {
+                    coating: Coating::new(need(f)?, need(t)?)
+                        .map_err(|e| rename_field(e, "thickness_mm", "coating_thickness_mm"))?,
+                    part: PartElasticity::new(need(e)?, need(nu)?)?,
+                })))
+            }
+        }
+    }
+}
+
+/// `error` with its field `from` named `to` instead (other errors unchanged).
+fn rename_field(error: CoreError, from: &str, to: &'static str) -> CoreError {
+    match error {
+        CoreError::Invalid { field, message } if field == from => {
+            CoreError::Invalid { field: to, message }
+        }
+        other => other,
+    }
+}
+
+impl Specimen {
+    /// The specimen's kind.
+    pub fn kind(&self) -> SpecimenKind {
+        match self {
+            Specimen::Transmission(_) => SpecimenKind::Transmission,
+            Specimen::Slice(_) => SpecimenKind::Slice,
+            Specimen::Coating(_) => SpecimenKind::Coating,
+        }
+    }
+
+    /// The stress-optic law this specimen amounts to: σ1 − σ2 = N·f/h. For a coating,
+    /// f = E·f_ε/(2(1 + ν)) (f_ε in mm) and h = t_c, so that N·f/h = E/(1 + ν)·N·f_ε/(2 t_c).
+    pub fn law(&self) -> StressOpticLaw {
+        match *self {
+            Specimen::Transmission(law) | Specimen::Slice(law) => law,
+            Specimen::Coating(CoatedPart { coating, part }) => StressOpticLaw {
+                fringe_value_n_per_mm: part
+                    .stress_difference_mpa(coating.strain_fringe_value_um * 1e-3 / 2.0),
+                thickness_mm: coating.thickness_mm,
+            },
+        }
+    }
+
+    /// Principal strain difference ε1 − ε2 per fringe, µε, of a coating; `None` otherwise.
+    pub fn microstrain_per_fringe(&self) -> Option<f64> {
+        match self {
+            Specimen::Coating(c) => Some(c.coating.strain_difference(1.0) * 1e6),
+            _ => None,
+        }
+    }
+
+    /// The stress (and, for a coating, strain) figures of a map with `statistics`.
+    pub fn statistics(&self, statistics: &MapStatistics) -> SpecimenStatistics {
+        let strain = self.microstrain_per_fringe().map(|k| StrainStatistics {
+            min_strain_microstrain: statistics.min_order * k,
+            mean_strain_microstrain: statistics.mean_order * k,
+            max_strain_microstrain: statistics.max_order * k,
+            max_is_lower_bound: statistics.max_is_lower_bound(),
+        });
+        let law = self.law();
+        SpecimenStatistics {
+            specimen: *self,
+            stress_per_fringe_mpa: law.stress_difference_mpa(1.0),
+            stress: law.statistics(statistics),
+            strain,
+        }
+    }
+
+    /// The inputs in words, one line each with units (as the CLI and the report print them).
+    pub fn input_lines(&self) -> Vec<String> {
+        match self {
+            Specimen::Transmission(law) => vec![
+                "specimen: transmission model, sigma1 - sigma2 = N f_sigma / h".into(),
+                format!(
+                    "material fringe value f_sigma: {} N/mm per fringe",
+                    law.fringe_value_n_per_mm
+                ),
+                format!("model thickness h: {} mm", law.thickness_mm),
+            ],
+            Specimen::Slice(law) => vec![
+                "specimen: frozen-stress slice, sigma1 - sigma2 = N f_sigma / h".into(),
+                format!(
+                    "fringe value at the critical temperature f_sigma: {} N/mm per fringe",
+                    law.fringe_value_n_per_mm
+                ),
+                format!("slice thickness h: {} mm", law.thickness_mm),
+            ],
+            Specimen::Coating(c) => vec![
+                "specimen: coating in reflection, eps1 - eps2 = N f_eps / (2 t_c), \
+                 sigma1 - sigma2 = E / (1 + nu) (eps1 - eps2)"
+                    .into(),
+                format!(
+                    "strain fringe value f_eps: {} um per fringe",
+                    c.coating.strain_fringe_value_um
+                ),
+                format!("coating thickness t_c: {} mm", c.coating.thickness_mm),
+                format!(
+                    "part: E {} MPa, nu {}",
+                    c.part.youngs_modulus_mpa, c.part.poisson_ratio
+                ),
+            ],
+        }
+    }
+}
+
+/// ε1 − ε2 figures of a coating's map, µε, over its valued pixels (NaN if none).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct StrainStatistics {
+    /// Smallest ε1 − ε2, µε.
+    pub min_strain_microstrain: f64,
+    /// Mean ε1 − ε2, µε.
+    pub mean_strain_microstrain: f64,
+    /// Largest ε1 − ε2, µε; a lower bound when `max_is_lower_bound`.
+    pub max_strain_microstrain: f64,
+    /// True when beyond-range pixels may hold a higher maximum.
+    pub max_is_lower_bound: bool,
+}
+
+/// The figures of a map through a [`Specimen`].
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct SpecimenStatistics {
+    /// The specimen and its inputs (`kind` and its fields).
+    pub specimen: Specimen,
+    /// σ1 − σ2 per fringe, MPa.
+    pub stress_per_fringe_mpa: f64,
+    /// σ1 − σ2 figures, MPa (for a coating, the part's; `fringe_value_n_per_mm` and
+    /// `thickness_mm` then are the equivalent law's, see [`Specimen::law`]).
+    #[serde(flatten)]
+    pub stress: StressStatistics,
+    /// ε1 − ε2 figures of a coating, µε.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain: Option<StrainStatistics>,
 }
 
 /// Stress-concentration factor K_t = σ_max / σ_nom (dimensionless). Fails unless σ_nom is a

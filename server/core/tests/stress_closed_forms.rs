@@ -3,10 +3,12 @@
 use std::f64::consts::PI;
 
 use approx::assert_relative_eq;
+use isotint_core::order_map::MapStatistics;
 use isotint_core::stress::{
     pure_bending_edge_order, stress_concentration_factor, Coating, DiscInCompression, EdgeSign,
-    PlateWithHole, StressOpticLaw,
+    PlateWithHole, SpecimenFields, SpecimenKind, StressOpticLaw,
 };
+use isotint_core::CoreError;
 
 #[test]
 fn pure_bending_edge_order_matches_a_hand_worked_beam() {
@@ -145,5 +147,150 @@ fn kirsch_gives_three_times_the_remote_stress_beside_the_hole_and_minus_s_above_
         // Angle φ from x in the pixel frame: σ_θ = S(1 + 2 cos 2φ).
         let hoop = s * (1.0 + 2.0 * (2.0 * angle).cos());
         assert_relative_eq!(e.principal_difference(), hoop.abs(), epsilon = 1e-9);
+    }
+}
+
+#[test]
+fn a_coating_gives_the_parts_stress_through_hookes_law_for_plane_stress() {
+    // source: ε1 − ε2 = N·f_ε/(2·t_c) for a coating read in reflection (double pass; common
+    // practice, no source), σ1 − σ2 = E/(1 + ν)·(ε1 − ε2) from Hooke's law in plane stress
+    // (Timoshenko & Goodier, from memory).
+    // Hand-worked: N = 1.5, f_ε = 4 µm, t_c = 2 mm → 1500 µε; steel E = 200 000 MPa, ν = 0.3 →
+    // 200 000 / 1.3 · 1.5e-3 = 230.769 MPa.
+    let specimen = SpecimenFields {
+        strain_fringe_value_um: Some(4.0),
+        coating_thickness_mm: Some(2.0),
+        youngs_modulus_mpa: Some(200_000.0),
+        poisson_ratio: Some(0.3),
+        ..SpecimenFields::default()
+    }
+    .specimen()
+    .unwrap()
+    .unwrap();
+    assert_eq!(specimen.kind(), SpecimenKind::Coating);
+    assert_relative_eq!(
+        specimen.microstrain_per_fringe().unwrap(),
+        1000.0,
+        max_relative = 1e-12
+    );
+    let law = specimen.law();
+    assert_relative_eq!(
+        law.stress_difference_mpa(1.5),
+        230.769_230_769,
+        max_relative = 1e-9
+    );
+    let figures = specimen.statistics(&map_statistics(1.5));
+    assert_relative_eq!(
+        figures.stress.max_stress_mpa,
+        230.769_230_769,
+        max_relative = 1e-9
+    );
+    let strain = figures.strain.unwrap();
+    assert_relative_eq!(strain.max_strain_microstrain, 1500.0, max_relative = 1e-12);
+    assert!(!strain.max_is_lower_bound);
+}
+
+#[test]
+fn a_frozen_stress_slice_reads_like_a_thin_model_at_the_critical_temperature() {
+    // source: stress-optic law σ1 − σ2 = N·f_σ/h applied to a slice with the fringe value at the
+    // critical temperature (common practice, no source). Hand-worked: N = 3, f_σ = 0.35 N/mm,
+    // slice 2.5 mm → 3 · 0.35 / 2.5 = 0.42 MPa.
+    let specimen = SpecimenFields {
+        specimen: Some(SpecimenKind::Slice),
+        fringe_value_n_per_mm: Some(0.35),
+        thickness_mm: Some(2.5),
+        ..SpecimenFields::default()
+    }
+    .specimen()
+    .unwrap()
+    .unwrap();
+    assert_eq!(specimen.kind(), SpecimenKind::Slice);
+    assert_relative_eq!(
+        specimen.law().stress_difference_mpa(3.0),
+        0.42,
+        max_relative = 1e-12
+    );
+    assert_eq!(specimen.microstrain_per_fringe(), None);
+    assert_eq!(specimen.statistics(&map_statistics(3.0)).strain, None);
+}
+
+#[test]
+fn specimen_fields_that_are_missing_misplaced_or_out_of_range_are_refused_by_name() {
+    let field = |fields: SpecimenFields| match fields.specimen() {
+        Err(CoreError::Invalid { field, .. }) => field,
+        other => panic!("{other:?}"),
+    };
+    let coating = SpecimenFields {
+        strain_fringe_value_um: Some(4.0),
+        coating_thickness_mm: Some(2.0),
+        youngs_modulus_mpa: Some(200_000.0),
+        poisson_ratio: Some(0.3),
+        ..SpecimenFields::default()
+    };
+    assert_eq!(
+        field(SpecimenFields {
+            youngs_modulus_mpa: None,
+            ..coating
+        }),
+        "youngs_modulus_mpa"
+    );
+    assert_eq!(
+        field(SpecimenFields {
+            poisson_ratio: Some(0.5),
+            ..coating
+        }),
+        "poisson_ratio"
+    );
+    assert_eq!(
+        field(SpecimenFields {
+            coating_thickness_mm: Some(0.0),
+            ..coating
+        }),
+        "coating_thickness_mm"
+    );
+    assert_eq!(
+        field(SpecimenFields {
+            thickness_mm: Some(6.0),
+            ..coating
+        }),
+        "thickness_mm"
+    );
+    assert_eq!(
+        field(SpecimenFields {
+            specimen: Some(SpecimenKind::Transmission),
+            ..coating
+        }),
+        "strain_fringe_value_um"
+    );
+    assert_eq!(
+        field(SpecimenFields {
+            specimen: Some(SpecimenKind::Slice),
+            ..SpecimenFields::default()
+        }),
+        "fringe_value_n_per_mm"
+    );
+    assert_eq!(SpecimenFields::default().specimen().unwrap(), None);
+    assert!(matches!(
+        SpecimenKind::from_name("mirror"),
+        Err(CoreError::Invalid {
+            field: "specimen",
+            ..
+        })
+    ));
+}
+
+/// Map figures with orders from 0.5 to `max_order` (mean 1), all in range.
+fn map_statistics(max_order: f64) -> MapStatistics {
+    MapStatistics {
+        specimen_pixels: 100,
+        valued_pixels: 100,
+        beyond_range_share: 0.0,
+        unreliable_share: 0.0,
+        min_order: 0.5,
+        max_order,
+        mean_order: 1.0,
+        mean_residual: 1.0,
+        table_max_order: 4.4,
+        ambiguous_colour: false,
     }
 }

@@ -51,6 +51,7 @@ const POLICY: &[(Method, &str, Access)] = &[
     (Method::POST, "/api/v1/order-maps/{id}/boundary", READER),
     (Method::POST, "/api/v1/order-maps/{id}/comparison", READER),
     (Method::POST, "/api/v1/series", READER),
+    (Method::POST, "/api/v1/reports", READER),
     (Method::POST, "/api/v1/calibrations", WRITER),
     (Method::POST, "/api/v1/calibrations/import", WRITER),
     (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),
@@ -278,13 +279,18 @@ mod tests {
     #[test]
     fn engineering_results_are_documented_and_need_only_a_reader() {
         let (_, doc) = super::super::api();
-        for route in ["/api/v1/series", "/api/v1/order-maps/{id}/comparison"] {
+        for route in [
+            "/api/v1/series",
+            "/api/v1/order-maps/{id}/comparison",
+            "/api/v1/reports",
+        ] {
             assert!(doc.paths.paths.contains_key(route), "{route} undocumented");
         }
         for route in [
             "/api/v1/series",
             "/api/v1/order-maps/{id}/comparison",
             "/api/v1/order-maps/{id}/boundary",
+            "/api/v1/reports",
         ] {
             assert_eq!(access(&Method::POST, route), READER, "{route}");
         }

@@ -13,6 +13,7 @@ pub mod metrics;
 pub mod openapi;
 pub mod order_maps;
 pub mod paging;
+pub mod reports;
 pub mod series;
 pub mod session;
 pub mod web;
@@ -75,6 +76,7 @@ fn api() -> (Router<AppState>, utoipa::openapi::OpenApi) {
         .merge(calibrations::router())
         .merge(order_maps::router())
         .merge(series::router())
+        .merge(reports::router())
         .merge(audit::router())
         .merge(session::router())
         .split_for_parts();

@@ -1,7 +1,8 @@
 //! `/api/v1/order-maps`: map a specimen photo with a stored calibration; fetch stored results
-//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, and σ1 − σ2 in MPa as
-//! stress-npy, stress-preview, stress-csv) until they expire; their free-edge stress and their
-//! comparison with a finite-element prediction.
+//! as JSON or as files (npy, png16, preview, csv, uncertainty, flags, σ1 − σ2 in MPa as
+//! stress-npy, stress-preview, stress-csv, and a coating's ε1 − ε2 in µε as strain-npy,
+//! strain-preview, strain-csv) until they expire; their free-edge stress and their comparison
+//! with a finite-element prediction.
 
 use axum::body::Bytes;
 use axum::extract::multipart::MultipartRejection;
@@ -16,7 +17,9 @@ use isotint_core::compact;
 use isotint_core::comparison::{compare, Comparison, PointPair, Prediction, Registration};
 use isotint_core::export::FileKind;
 use isotint_core::exposure::ExposureCorrection;
-use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
+use isotint_core::stress::{
+    Specimen, SpecimenFields, SpecimenKind, SpecimenStatistics, StressOpticLaw, STRESS_CAUTION,
+};
 use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
 use serde::{Deserialize, Serialize};
 use time::OffsetDateTime;
@@ -89,26 +92,72 @@ pub struct ComparisonRequest {
 pub struct CreateQuery {
     /// `npy`, `png16`, `preview`, `csv`, `uncertainty` (1 σ of the order, fringes, NPY float32,
     /// NaN = no value), `flags`, or σ1 − σ2 in MPa as `stress-npy` (float32, NaN = no value),
-    /// `stress-preview` or `stress-csv` (these need `fringe_value_n_per_mm` and `thickness_mm`):
-    /// answer with that file instead of storing the map.
+    /// `stress-preview` or `stress-csv` (these need a specimen: `fringe_value_n_per_mm` and
+    /// `thickness_mm`, or a coating's fields), or a coating's ε1 − ε2 in µε as `strain-npy`,
+    /// `strain-preview` or `strain-csv`: answer with that file instead of storing the map.
     pub format: Option<String>,
 }
 
-/// The stress-optic law of a request: both or neither. With them, JSON answers carry σ1 − σ2
-/// figures and the stress formats can be asked for.
+/// The specimen of a request: a transmission model (default) or frozen-stress slice from
+/// `fringe_value_n_per_mm` and `thickness_mm` (both or neither), or a coating from its four
+/// fields. With it, JSON answers carry σ1 − σ2 figures (and a coating's ε1 − ε2) and the
+/// stress formats can be asked for.
 #[derive(Debug, Deserialize, IntoParams)]
 #[into_params(parameter_in = Query)]
 pub struct StressQuery {
-    /// Material fringe value f_σ, N/mm per fringe (positive).
+    /// `transmission` (default), `slice` or `coating`.
+    pub specimen: Option<String>,
+    /// Material fringe value f_σ, N/mm per fringe (positive; of a slice: at the critical
+    /// temperature).
     pub fringe_value_n_per_mm: Option<f64>,
-    /// Model thickness h along the light path, mm (positive).
+    /// Model thickness h along the light path, mm (positive; of a slice: the slice's).
     pub thickness_mm: Option<f64>,
+    /// Coating: strain fringe value f_ε, µm per fringe (positive).
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating: thickness t_c, mm (positive).
+    pub coating_thickness_mm: Option<f64>,
+    /// Coating: the part's Young's modulus E, MPa (positive).
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Coating: the part's Poisson's ratio ν (0 ≤ ν < 0.5).
+    pub poisson_ratio: Option<f64>,
 }
 
 impl StressQuery {
-    /// The law these fields give; 422 naming the missing or non-positive field.
-    fn law(&self) -> CoreResult<Option<StressOpticLaw>> {
-        StressOpticLaw::from_fields(self.fringe_value_n_per_mm, self.thickness_mm)
+    /// The specimen these fields give; 422 naming the missing, misplaced or out-of-range field.
+    fn specimen(&self) -> CoreResult<Option<Specimen>> {
+        SpecimenFields {
+            specimen: self
+                .specimen
+                .as_deref()
+                .map(SpecimenKind::from_name)
+                .transpose()?,
+            fringe_value_n_per_mm: self.fringe_value_n_per_mm,
+            thickness_mm: self.thickness_mm,
+            strain_fringe_value_um: self.strain_fringe_value_um,
+            coating_thickness_mm: self.coating_thickness_mm,
+            youngs_modulus_mpa: self.youngs_modulus_mpa,
+            poisson_ratio: self.poisson_ratio,
+        }
+        .specimen()
+    }
+}
+
+/// The query that describes `specimen` again (for links).
+fn specimen_query(specimen: &Specimen) -> String {
+    let kind = specimen.kind().name();
+    match specimen {
+        Specimen::Transmission(law) | Specimen::Slice(law) => format!(
+            "specimen={kind}&fringe_value_n_per_mm={}&thickness_mm={}",
+            law.fringe_value_n_per_mm, law.thickness_mm
+        ),
+        Specimen::Coating(c) => format!(
+            "specimen={kind}&strain_fringe_value_um={}&coating_thickness_mm={}&\
+             youngs_modulus_mpa={}&poisson_ratio={}",
+            c.coating.strain_fringe_value_um,
+            c.coating.thickness_mm,
+            c.part.youngs_modulus_mpa,
+            c.part.poisson_ratio
+        ),
     }
 }
 
@@ -151,7 +200,8 @@ pub struct OrderMapLinks {
     pub flags: String,
 }
 
-/// Where to fetch a stored map's σ1 − σ2 files (the law's fields in the query).
+/// Where to fetch a stored map's σ1 − σ2 files (the specimen's fields in the query), and a
+/// coating's ε1 − ε2 files.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct StressLinks {
     /// σ1 − σ2, MPa, NPY float32 (height, width), NaN = no value.
@@ -160,16 +210,26 @@ pub struct StressLinks {
     pub preview: String,
     /// CSV `x,y,stress_mpa,flags`.
     pub csv: String,
+    /// A coating's ε1 − ε2, µε: NPY float32 (`strain-npy`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain_npy: Option<String>,
+    /// A coating's ε1 − ε2 preview PNG with a numbered µε colour bar (`strain-preview`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain_preview: Option<String>,
+    /// A coating's ε1 − ε2 as CSV `x,y,strain_microstrain,flags` (`strain-csv`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub strain_csv: Option<String>,
 }
 
-/// σ1 − σ2 figures of a map through the request's stress-optic law.
+/// σ1 − σ2 figures of a map through the request's specimen.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct StressResource {
-    /// Law and figures, MPa: `min_stress_mpa`, `mean_stress_mpa`, `max_stress_mpa` and
-    /// `max_is_lower_bound` (true when beyond-range pixels may hold a higher maximum).
+    /// `specimen` (its `kind` and inputs), `stress_per_fringe_mpa`, the law and figures, MPa:
+    /// `min_stress_mpa`, `mean_stress_mpa`, `max_stress_mpa` and `max_is_lower_bound` (true
+    /// when beyond-range pixels may hold a higher maximum); for a coating `strain`, µε.
     #[serde(flatten)]
     #[schema(value_type = Object)]
-    pub statistics: StressStatistics,
+    pub statistics: SpecimenStatistics,
     /// Results support, and do not replace, engineering judgement.
     pub caution: String,
     /// The map's stress files.
@@ -177,19 +237,20 @@ pub struct StressResource {
 }
 
 impl StressResource {
-    fn new(statistics: &serde_json::Value, law: StressOpticLaw, id: OrderMapId) -> Self {
-        let query = format!(
-            "fringe_value_n_per_mm={}&thickness_mm={}",
-            law.fringe_value_n_per_mm, law.thickness_mm
-        );
+    fn new(statistics: &serde_json::Value, specimen: Specimen, id: OrderMapId) -> Self {
+        let query = specimen_query(&specimen);
         let link = |kind: &str| format!("/api/v1/order-maps/{id}/{kind}?{query}");
+        let coating = specimen.kind() == SpecimenKind::Coating;
         StressResource {
-            statistics: law.statistics(&statistics_from_json(statistics)),
+            statistics: specimen.statistics(&statistics_from_json(statistics)),
             caution: STRESS_CAUTION.to_string(),
             links: StressLinks {
                 npy: link("stress-npy"),
                 preview: link("stress-preview"),
                 csv: link("stress-csv"),
+                strain_npy: coating.then(|| link("strain-npy")),
+                strain_preview: coating.then(|| link("strain-preview")),
+                strain_csv: coating.then(|| link("strain-csv")),
             },
         }
     }
@@ -217,7 +278,8 @@ pub struct OrderMapResource {
     /// A caution, when part of the specimen lies past the calibration's range or its orders
     /// come within a fringe of the calibration's last order (possible aliases of higher orders).
     pub caution: Option<String>,
-    /// σ1 − σ2 figures, when the request gave `fringe_value_n_per_mm` and `thickness_mm`.
+    /// σ1 − σ2 figures, when the request described a specimen (`fringe_value_n_per_mm` and
+    /// `thickness_mm`, or a coating's fields).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub stress: Option<StressResource>,
     /// Exposure correction applied.
@@ -232,8 +294,8 @@ pub struct OrderMapResource {
 }
 
 impl OrderMapResource {
-    /// The description of stored map `r`, with σ1 − σ2 figures through `law` if given.
-    fn new(r: OrderMapRow, law: Option<StressOpticLaw>) -> Self {
+    /// The description of stored map `r`, with σ1 − σ2 figures through `specimen` if given.
+    fn new(r: OrderMapRow, specimen: Option<Specimen>) -> Self {
         let statistics = statistics_from_json(&r.statistics);
         let base = format!("/api/v1/order-maps/{}", r.id);
         let link = |kind: &str| format!("{base}/{kind}");
@@ -253,7 +315,7 @@ impl OrderMapResource {
             calibration_id: r.calibration_id,
             max_is_lower_bound: statistics.max_is_lower_bound(),
             caution: statistics.caution(),
-            stress: law.map(|law| StressResource::new(&r.statistics, law, r.id)),
+            stress: specimen.map(|s| StressResource::new(&r.statistics, s, r.id)),
             statistics: r.statistics,
             exposure: r.exposure,
             created_at: rfc3339(r.created_at),
@@ -294,11 +356,11 @@ async fn create_order_map(
     multipart: Result<Multipart, MultipartRejection>,
 ) -> Result<Response, ApiError> {
     let Query(query) = query?;
-    let law = stress?.0.law()?;
+    let specimen = stress?.0.specimen()?;
     let format = query
         .format
         .as_deref()
-        .map(|name| FileKind::from_name(name, law))
+        .map(|name| FileKind::from_name(name, specimen))
         .transpose()?;
     // A file answer streams like a download: its place is taken before the upload is read.
     let download = format.map(|_| state.downloads.start()).transpose()?;
@@ -342,7 +404,7 @@ async fn create_order_map(
     Ok((
         StatusCode::CREATED,
         [(header::LOCATION, location)],
-        Json(OrderMapResource::new(row, law)),
+        Json(OrderMapResource::new(row, specimen)),
     )
         .into_response())
 }
@@ -358,20 +420,20 @@ async fn get_order_map(
     Path(id): Path<String>,
     stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Json<OrderMapResource>, ApiError> {
-    let law = stress?.0.law()?;
+    let specimen = stress?.0.specimen()?;
     let row = store::get(&state.storage, path_id(&id)?).await?;
     refuse_expired(&row)?;
-    Ok(Json(OrderMapResource::new(row, law)))
+    Ok(Json(OrderMapResource::new(row, specimen)))
 }
 
 /// A stored order map as a file: `npy`, `png16`, `preview`, `csv`, `uncertainty` (NPY float32
 /// of the order's standard uncertainty, 1 σ in fringes, NaN = no value), `flags` (NPY uint8 of
 /// the flag bits: 1 outside mask, 2 beyond range, 4 unreliable), or σ1 − σ2 in MPa as
-/// `stress-npy`, `stress-preview`, `stress-csv` (with `fringe_value_n_per_mm` and
-/// `thickness_mm`).
+/// `stress-npy`, `stress-preview`, `stress-csv` (with a specimen's fields), or a coating's
+/// ε1 − ε2 in µε as `strain-npy`, `strain-preview`, `strain-csv`.
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id"),
-           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview or stress-csv"),
+           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview, stress-csv, strain-npy, strain-preview or strain-csv"),
            StressQuery),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
@@ -384,8 +446,8 @@ async fn get_order_map_file(
     stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
-    let law = stress?.0.law()?;
-    let kind = FileKind::from_name(&file, law).map_err(|e| match e {
+    let specimen = stress?.0.specimen()?;
+    let kind = FileKind::from_name(&file, specimen).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
         } => ApiError::NotFound(e.to_string()),
