@@ -24,6 +24,24 @@ use crate::domain::OrderMapId;
 use crate::storage::order_maps as store;
 use crate::storage::Storage;
 
+/// A file made at once (not streamed) as an NPY attachment named `filename`.
+pub(super) fn npy_attachment(bytes: Vec<u8>, filename: &str) -> Response {
+    let disposition = format!("attachment; filename=\"{filename}\"");
+    (
+        [
+            (
+                header::CONTENT_TYPE,
+                isotint_core::export::OutputFormat::Npy
+                    .content_type()
+                    .to_string(),
+            ),
+            (header::CONTENT_DISPOSITION, disposition),
+        ],
+        bytes,
+    )
+        .into_response()
+}
+
 /// Closes the connection a request came on: set per connection by `service::serve`, used
 /// to cut off a reader slower than the download time limit.
 #[derive(Debug, Clone, Default)]

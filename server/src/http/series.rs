@@ -5,10 +5,8 @@
 use axum::extract::multipart::MultipartRejection;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Multipart, Query, State};
-use axum::http::header;
 use axum::response::{IntoResponse, Response};
 use axum::Json;
-use isotint_core::export::OutputFormat;
 use isotint_core::series::{LoadSeries, SeriesSpec};
 use isotint_core::{CoreError, CoreResult};
 use serde::Deserialize;
@@ -16,6 +14,7 @@ use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
+use super::download::npy_attachment;
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, Form};
 use super::jobs::JobSize;
@@ -136,17 +135,7 @@ async fn create_series(
         })
         .await??;
     if let Some(bytes) = file {
-        return Ok((
-            [
-                (header::CONTENT_TYPE, OutputFormat::Npy.content_type()),
-                (
-                    header::CONTENT_DISPOSITION,
-                    "attachment; filename=\"series-slope.npy\"",
-                ),
-            ],
-            bytes,
-        )
-            .into_response());
+        return Ok(npy_attachment(bytes, "series-slope.npy"));
     }
     Ok(Json(series).into_response())
 }
