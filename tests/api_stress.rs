@@ -179,15 +179,20 @@ async fn post_json(svc: &TestService, uri: &str, body: serde_json::Value) -> Rep
     .await
 }
 
-#[tokio::test]
-async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_bad_input_naming_the_field(
-) {
-    let svc = service().await;
+/// Maps the rendered disc (stored) and answers its boundary's URI.
+async fn boundary_of_stored_disc(svc: &TestService) -> String {
     let id = import_id(&svc.app, &table("Rendered strip")).await;
     let reply = disc_form(&id).post(&svc.app, "/api/v1/order-maps").await;
     answered(&reply, StatusCode::CREATED);
     let map = reply.json()["id"].as_str().unwrap().to_string();
-    let uri = format!("/api/v1/order-maps/{map}/boundary");
+    format!("/api/v1/order-maps/{map}/boundary")
+}
+
+#[tokio::test]
+async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_bad_input_naming_the_field(
+) {
+    let svc = service().await;
+    let uri = boundary_of_stored_disc(&svc).await;
     let reply = post_json(
         &svc,
         &uri,
@@ -259,11 +264,7 @@ async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_b
 #[tokio::test]
 async fn the_boundary_with_a_scale_and_its_edge_answers_millimetres_and_every_point_in_order() {
     let svc = service().await;
-    let id = import_id(&svc.app, &table("Rendered strip")).await;
-    let reply = disc_form(&id).post(&svc.app, "/api/v1/order-maps").await;
-    answered(&reply, StatusCode::CREATED);
-    let map = reply.json()["id"].as_str().unwrap().to_string();
-    let uri = format!("/api/v1/order-maps/{map}/boundary");
+    let uri = boundary_of_stored_disc(&svc).await;
     let reply = post_json(
         &svc,
         &uri,

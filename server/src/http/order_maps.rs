@@ -24,12 +24,12 @@ use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
-use super::download::{npy_attachment, Bands, ConnectionCut, MapShape};
+use super::download::{asks_for_file, npy_attachment, Bands, ConnectionCut, MapShape};
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
 use super::jobs::{Admission, JobSize};
 use super::AppState;
-use crate::domain::{rfc3339, shorten, CalibrationId, OrderMapId};
+use crate::domain::{rfc3339, CalibrationId, OrderMapId};
 use crate::pipeline;
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
@@ -516,17 +516,7 @@ async fn comparison(
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
     let Query(query) = query?;
-    let difference_file = match query.format.as_deref() {
-        None => false,
-        Some("npy") => true,
-        Some(other) => {
-            return Err(CoreError::invalid(
-                "format",
-                format!("{:?} is not npy", shorten(other, 40)),
-            )
-            .into())
-        }
-    };
+    let difference_file = asks_for_file(query.format.as_deref(), "npy")?;
     let request: ComparisonRequest = parse_json("comparison", &body?)?;
     let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
     let registration = Registration::fit(&request.pairs)?;
