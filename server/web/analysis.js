@@ -850,13 +850,15 @@ export class AnalysisPage {
       distance: s.along_px,
       value: s.stress_mpa ?? NaN,
       gap: i > 0 && b.edge[i - 1].contour !== s.contour,
+      shade: s.beyond_range,
     }));
     figure.hidden = false;
     const contours = new Set(b.edge.map((s) => s.contour)).size;
     const total = b.edge.length ? b.edge[b.edge.length - 1].along_px : 0;
     $('an-edge-caption').textContent =
       `|σ_t| along the edge, ${fmt(total, 0)} px${inMm(total, mm)} in ${contours} stretch${contours === 1 ? '' : 'es'}; ` +
-      `largest ${maximum(b.max_stress_mpa, 2, 'MPa', lower)}, ringed.`;
+      `largest ${maximum(b.max_stress_mpa, 2, 'MPa', lower)}, ringed` +
+      (lower ? '; shaded where beyond-range pixels touch the edge.' : '.');
     const canvas = $('an-edge-profile');
     canvas.setAttribute('aria-label', $('an-edge-caption').textContent);
     drawProfile(canvas, samples, {

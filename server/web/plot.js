@@ -222,8 +222,9 @@ export function drawColourBar(canvas, top, { bottom = 0, colourOf = cividis, wha
   canvas.setAttribute('aria-label', `Colour scale of ${what} from ${end(bottom)} to ${end(top)}, numbered ${labels.join(', ')}.`);
 }
 
-// A profile along a path: `samples` = [{distance (px), value, gap}] (value NaN = no value; gap:
-// the curve breaks before this sample). Options: `yLabel`; `secondary` {perUnit, label} adds a
+// A profile along a path: `samples` = [{distance (px), value, gap, shade}] (value NaN = no
+// value; gap: the curve breaks before this sample; shade: a band marks it, e.g. beyond-range
+// pixels next to an edge). Options: `yLabel`; `secondary` {perUnit, label} adds a
 // right-hand axis (e.g. σ1 − σ2 in MPa per fringe); `xLabel`; `mmPerPx` numbers the distance
 // in mm under the pixels; `mark` {distance, value} rings one point (a maximum).
 export function drawProfile(canvas, samples, { yLabel = 'Fringe order', secondary = null, xLabel = 'Distance along the line', mmPerPx = null, mark = null } = {}) {
@@ -274,6 +275,10 @@ export function drawProfile(canvas, samples, { yLabel = 'Fringe order', secondar
   text(ctx, yLabel, 0, 0, 'center', MUTED);
   ctx.restore();
 
+  ctx.fillStyle = 'rgba(194, 65, 12, 0.18)';
+  for (const s of samples) {
+    if (s.shade) ctx.fillRect(xOf(s.distance) - 1, pad.top, 2, h - pad.top - pad.bottom);
+  }
   ctx.strokeStyle = INK;
   ctx.strokeRect(pad.left + 0.5, pad.top + 0.5, w - pad.left - pad.right, h - pad.top - pad.bottom);
   // The curve, broken where there is no value and at gaps.
