@@ -580,7 +580,7 @@ export class AnalysisPage {
       `Fringe order along the line from (${fmt(a.x, 0)}, ${fmt(a.y, 0)}) to (${fmt(b.x, 0)}, ${fmt(b.y, 0)}), ${fmt(length, 0)} px${inMm(length, mm)}: ` +
       (valued.length
         ? `from ${fmt(Math.min(...valued))} to ${lowerBound ? 'at least ' : ''}${fmt(Math.max(...valued))}` +
-          (k !== null ? ` (largest σ1 − σ2 on the line ${lowerBound ? 'at least ' : ''}${fmt(peak.order * k, 1)}${plusMinus(peak.sigma * k, 1)} MPa)` : '') +
+          (k !== null ? ` (largest σ1 − σ2 on the line ${lowerBound ? 'at least ' : ''}${fmt(peak.order * k, 2)}${plusMinus(peak.sigma * k, 2)} MPa)` : '') +
           (lowerBound ? `. ${LOWER_BOUND_NOTE}` : '')
         : 'no values on this line');
     const canvas = $('an-profile');

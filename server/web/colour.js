@@ -72,9 +72,10 @@ export function diverging(t) {
   return mid.map((m, i) => Math.round(m + a * (end[i] - m)));
 }
 
-// A "nice" upper end for a scale holding `value`: 1, 2, 2.5 or 5 × 10^k at or above it.
+// A round upper end for a scale holding `value`: the first of 1, 1.2, 1.5, 2, 2.5, 3, 4, 5, 6,
+// 8 or 10 × 10^k at or above it (so the scale's colours spread over most of it).
 export function niceTop(value) {
   if (!(Number.isFinite(value) && value > 0)) return 1;
   const power = 10 ** Math.floor(Math.log10(value));
-  return [1, 2, 2.5, 5, 10].map((m) => m * power).find((v) => v >= value * (1 - 1e-9));
+  return [1, 1.2, 1.5, 2, 2.5, 3, 4, 5, 6, 8, 10].map((m) => m * power).find((v) => v >= value * (1 - 1e-9));
 }
