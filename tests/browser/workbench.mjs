@@ -457,7 +457,6 @@ async function main(browser) {
     const select = se.getByLabel('Calibration', { exact: true });
     await select.locator('option', { hasText: calibrationName }).first().waitFor({ state: 'attached' });
     await select.selectOption(await select.locator('option', { hasText: calibrationName }).first().getAttribute('value'));
-    await se.getByLabel(/^Mask/).setInputFiles(path.join(demoDir, disc.mask));
     const load = disc.field.disc.load_n;
     for (const i of [1, 2]) {
       await se.getByLabel(`Photo ${i}`, { exact: true }).setInputFiles(discFile);
@@ -465,6 +464,15 @@ async function main(browser) {
     }
     await se.getByLabel('Disc diameter (mm)').fill(String(diameterMm));
     await se.getByLabel('Disc thickness (mm)').fill(String(scenario.thickness_mm));
+    // First the beam's mask, of another size than the photos: the service's refusal is shown.
+    await se.getByLabel(/^Mask/).setInputFiles(path.join(demoDir, beam.mask));
+    refusalsProvoked += 1;
+    await se.getByRole('button', { name: 'Fit the series' }).click();
+    const refusal = page.locator('#se-error');
+    await refusal.waitFor({ state: 'visible' });
+    const refused = await refusal.textContent();
+    check(/mask/.test(refused), `a mask of another size: ${refused}`);
+    await se.getByLabel(/^Mask/).setInputFiles(path.join(demoDir, disc.mask));
     await se.getByRole('button', { name: 'Fit the series' }).click();
     await shownOrFail(page, '#se-result', '#se-error', 'the load series');
     const f = Number(/[\d.]+/.exec(await described(page, '#se-values', 'Material fringe value f_σ'))[0]);
