@@ -96,7 +96,7 @@ export class AnalysisPage {
     this.line = null; // {a, b}
     this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id, lowerBound}
     this.stressLayer = null; // {canvas, top, perOrder}
-    this.difference = null; // {values, canvas, top}
+    this.difference = null; // {values, canvas, top, fringe_value_n_per_mm, thickness_mm}
     this.scaleLine = null; // {a, b}
     this.pairs = []; // [{x_px, y_px, x_mm, y_mm}]
     this.boundary = null; // the boundary answer, with its edge points
@@ -357,12 +357,34 @@ export class AnalysisPage {
   lawChanged() {
     this.drawProfile();
     const k = this.stressPerOrder();
+    this.forgetStressResults(k);
     const radio = document.querySelector('input[name="an-layer"][value="stress"]');
     radio.disabled = !this.result || k === null;
     if (radio.disabled && radio.checked) this.setLayer('map');
     else if (radio.checked) this.showLayer();
     clearTimeout(this.lawTimer);
     this.lawTimer = setTimeout(() => this.updateStress(), 250);
+  }
+
+  // Forgets the edge stress and the comparison when they were made through another law than
+  // `perOrder` (MPa per fringe), so that no figure on the page belongs to old inputs.
+  forgetStressResults(perOrder) {
+    const madeWith = (r) => r.fringe_value_n_per_mm / r.thickness_mm;
+    if (this.boundary && madeWith(this.boundary) !== perOrder) {
+      this.boundary = null;
+      fillDl($('an-boundary-stats'), []);
+      lowerBoundNote($('an-boundary-bound'), false);
+      this.renderBoundary();
+      this.view.draw();
+    }
+    if (this.difference && madeWith(this.difference) !== perOrder) {
+      this.difference = null;
+      fillDl($('an-compare-stats'), []);
+      lowerBoundNote($('an-compare-bound'), false);
+      const radio = document.querySelector('input[name="an-layer"][value="difference"]');
+      radio.disabled = true;
+      if (radio.checked) this.setLayer('map');
+    }
   }
 
   // Asks the service for the map's σ1 − σ2 figures and files through the current law.
@@ -948,7 +970,7 @@ export class AnalysisPage {
       const r = this.result;
       // Flagged pixels keep their flag's colour; valued pixels outside the model show grey.
       const canvas = paintLayer(r.width, r.height, values, r.flags, (d) => diverging(0.5 + d / (2 * top)), NOT_COMPARED);
-      this.difference = { values, canvas, top };
+      this.difference = { values, canvas, top, fringe_value_n_per_mm: c.fringe_value_n_per_mm, thickness_mm: c.thickness_mm };
       document.querySelector('input[name="an-layer"][value="difference"]').disabled = false;
       this.setLayer('difference');
     } catch (e) {
