@@ -302,10 +302,22 @@ impl Grid<'_> {
         let mut state = vec![0u8; (w * h) as usize];
         let mut edge = Vec::new();
         let mut contour = 0;
-        for open_only in [true, false] {
-            for (y0, x0, d0) in
-                (0..h).flat_map(|y| (0..w).flat_map(move |x| (0..4).map(move |d| (y, x, d))))
-            {
+        // First the open stretches, which start at the photo's border (only the pixels of its
+        // outer rows and columns have cracks starting there), then every closed one.
+        let border_pixels: Vec<(i64, i64)> = (0..h)
+            .flat_map(|y| {
+                let xs: Vec<i64> = if y == 0 || y == h - 1 {
+                    (0..w).collect()
+                } else {
+                    vec![0, w - 1]
+                };
+                xs.into_iter().map(move |x| (x, y))
+            })
+            .collect();
+        let every_pixel = (0..h).flat_map(|y| (0..w).map(move |x| (x, y)));
+        let open_starts = border_pixels.into_iter().map(|p| (p, true));
+        for ((x0, y0), open_only) in open_starts.chain(every_pixel.map(|p| (p, false))) {
+            for d0 in 0..4 {
                 let walked = state[(y0 * w + x0) as usize] & (1 << d0) != 0;
                 if walked || !crack(x0, y0, d0) || (open_only && !from_border(x0, y0, d0)) {
                     continue;

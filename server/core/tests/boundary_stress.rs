@@ -266,3 +266,35 @@ fn a_rendered_beam_in_pure_bending_gives_the_edge_stress_of_beam_theory() {
         "{outline:?}"
     );
 }
+
+#[test]
+fn a_specimen_cut_by_the_photo_border_is_one_open_stretch_walked_from_the_border() {
+    let mut map = rectangle_map();
+    // Extend the rectangle to the photo's left border: [0, 35) × [5, 25).
+    for y in 5..25 {
+        for x in 0..5 {
+            let i = (y * 40 + x) as usize;
+            map.order[i] = 0.1 * (y as f32 + 0.5 - 5.0);
+            map.flags[i] = PixelFlags(0);
+        }
+    }
+    let result = boundary_stress(&map, &law(), None, &EdgePath::Outline).unwrap();
+    let s = &result.samples;
+    assert!(s.iter().all(|p| p.contour == 0), "one stretch");
+    for pair in s.windows(2) {
+        let step = (pair[1].x - pair[0].x).hypot(pair[1].y - pair[0].y);
+        assert!(
+            step <= 1.5,
+            "a jump of {step} px from {:?} to {:?}",
+            pair[0],
+            pair[1]
+        );
+    }
+    // No edge where the specimen meets the border; the walk starts and ends there: along the top
+    // from x = 0, round the right end, back along the bottom to x = 0. Hand-worked: 35 + 18 + 35
+    // edge pixels.
+    assert_eq!(result.edge_points, 88);
+    assert!(s[0].x < 1.0 && (s[0].y - 5.0).abs() < 1e-9, "{:?}", s[0]);
+    let last = s[s.len() - 1];
+    assert!(last.x < 1.0 && (last.y - 25.0).abs() < 1e-9, "{last:?}");
+}
