@@ -179,15 +179,20 @@ async fn post_json(svc: &TestService, uri: &str, body: serde_json::Value) -> Rep
     .await
 }
 
-#[tokio::test]
-async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_bad_input_naming_the_field(
-) {
-    let svc = service().await;
+/// Maps the rendered disc (stored) and answers its boundary's URI.
+async fn boundary_of_stored_disc(svc: &TestService) -> String {
     let id = import_id(&svc.app, &table("Rendered strip")).await;
     let reply = disc_form(&id).post(&svc.app, "/api/v1/order-maps").await;
     answered(&reply, StatusCode::CREATED);
     let map = reply.json()["id"].as_str().unwrap().to_string();
-    let uri = format!("/api/v1/order-maps/{map}/boundary");
+    format!("/api/v1/order-maps/{map}/boundary")
+}
+
+#[tokio::test]
+async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_bad_input_naming_the_field(
+) {
+    let svc = service().await;
+    let uri = boundary_of_stored_disc(&svc).await;
     let reply = post_json(
         &svc,
         &uri,
@@ -254,6 +259,76 @@ async fn the_boundary_of_a_stored_map_answers_its_peak_edge_stress_and_refuses_b
     assert_eq!(stored_maps(&svc).await, 1, "the boundary stores nothing");
     let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
     assert!(doc["paths"]["/api/v1/order-maps/{id}/boundary"]["post"].is_object());
+}
+
+#[tokio::test]
+async fn the_boundary_with_a_scale_and_its_edge_answers_millimetres_and_every_point_in_order() {
+    let svc = service().await;
+    let uri = boundary_of_stored_disc(&svc).await;
+    let reply = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value": 10.5, "thickness": 6, "mm_per_px": 0.125, "include_edge": true}),
+    )
+    .await;
+    answered(&reply, StatusCode::OK);
+    let v = reply.json();
+    let (x, y) = (v["x"].as_f64().unwrap(), v["y"].as_f64().unwrap());
+    assert_eq!(v["mm_per_px"].as_f64(), Some(0.125));
+    assert!(
+        (v["x_mm"].as_f64().unwrap() - 0.125 * x).abs() < 1e-9,
+        "{v}"
+    );
+    assert!(
+        (v["y_mm"].as_f64().unwrap() - 0.125 * y).abs() < 1e-9,
+        "{v}"
+    );
+    let edge = v["edge"].as_array().expect("edge points");
+    assert_eq!(edge.len() as u64, v["edge_points"].as_u64().unwrap());
+    // The disc's rim is one closed outline of radius 160 px (2π · 160 ≈ 1005 px round), walked
+    // in order: consecutive points are neighbours.
+    let point = |p: &serde_json::Value| (p["x"].as_f64().unwrap(), p["y"].as_f64().unwrap());
+    for pair in edge.windows(2) {
+        let ((x0, y0), (x1, y1)) = (point(&pair[0]), point(&pair[1]));
+        assert!(
+            (x1 - x0).hypot(y1 - y0) <= 1.5,
+            "{} then {}",
+            pair[0],
+            pair[1]
+        );
+        assert_eq!(pair[0]["contour"], 0);
+    }
+    let round = edge.last().unwrap()["along_px"].as_f64().unwrap();
+    // source: circumference 2πr (hand-worked, r = 160 px); the walk round the pixel staircase
+    // is a little longer than the circle it follows.
+    assert!((1000.0..1100.0).contains(&round), "{round}");
+    let peak = edge
+        .iter()
+        .find(|p| point(p) == (x, y))
+        .expect("the maximum is an edge point");
+    assert_eq!(peak["stress_mpa"], v["max_stress_mpa"]);
+
+    let without = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value": 10.5, "thickness": 6}),
+    )
+    .await
+    .json();
+    assert!(
+        without.get("edge").is_none() && without.get("x_mm").is_none(),
+        "{without}"
+    );
+    for bad in [serde_json::json!(0), serde_json::json!(-0.1)] {
+        let reply = post_json(
+            &svc,
+            &uri,
+            serde_json::json!({"fringe_value": 10.5, "thickness": 6, "mm_per_px": bad}),
+        )
+        .await;
+        refused_naming(&reply, "mm_per_px");
+    }
+    assert_eq!(stored_maps(&svc).await, 1, "the boundary stores nothing");
 }
 
 /// The multipart form of a load series of the test disc photographed at `loads` (N) and
@@ -384,6 +459,40 @@ async fn a_stored_map_compared_with_the_closed_form_differs_little_and_much_more
     answered(&reply, StatusCode::OK);
     let good = reply.json();
     common::assert_numbers(&good, &common::COMPARISON_FIELDS);
+    // The same comparison as a difference map: NaN where not compared, and as many compared
+    // pixels as the figures count; their mean |difference| is the figures' too.
+    let reply = post_json(
+        &svc,
+        &format!("{uri}?format=npy"),
+        request(&prediction, pairs(0.0)),
+    )
+    .await;
+    answered(&reply, StatusCode::OK);
+    let (rows, cols, difference) = read_npy_f32(&reply.body).unwrap();
+    assert_eq!((rows, cols), (360, 360));
+    let compared: Vec<f64> = difference
+        .iter()
+        .filter(|d| d.is_finite())
+        .map(|d| f64::from(d.abs()))
+        .collect();
+    assert_eq!(
+        compared.len() as u64,
+        good["compared_pixels"].as_u64().unwrap()
+    );
+    let mean = compared.iter().sum::<f64>() / compared.len() as f64;
+    assert!(
+        (mean - good["mean_abs_difference_mpa"].as_f64().unwrap()).abs() < 1e-4,
+        "{mean} / {good}"
+    );
+    refused_naming(
+        &post_json(
+            &svc,
+            &format!("{uri}?format=png"),
+            request(&prediction, pairs(0.0)),
+        )
+        .await,
+        "format",
+    );
     let reply = post_json(&svc, &uri, request(&prediction, pairs(4.0))).await;
     answered(&reply, StatusCode::OK);
     let shifted = reply.json();

@@ -4,7 +4,10 @@
 //!
 //! - `workbench.mjs` (open mode, on photos written by `isotint demo`): calibrate from the beam
 //!   photo, estimate its edge order from the colours and see a refused estimate explained,
-//!   analyse the disc photo, hover, profile, download the NPY map.
+//!   analyse the disc photo, hover, profile, download the NPY map; then the σ1 − σ2 layer
+//!   (MPa bar, lower bound, caution, download), the scale from two clicked points, the
+//!   free-edge stress with K_t, the comparison with the disc's predicted field, the demo
+//!   beam's edge stress against 6M/(t·d²), and the load-series page.
 //! - `token_mode.mjs` (token mode): sign in with a token, see the name and role, the actions
 //!   hidden from a writer, 401 and 403 explained, the audit rows an admin sees, a download
 //!   that carries the token.

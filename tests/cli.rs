@@ -981,11 +981,65 @@ fn boundary_prints_one_json_object_with_the_peak_edge_stress_and_kt_of_the_demo_
     );
     assert_eq!(v["max_is_lower_bound"], v["beyond_range"]);
     let csv = std::fs::read_to_string(&edge_file).unwrap();
-    assert!(csv.starts_with("x,y,normal_x,normal_y,order,stress_mpa,beyond_range\n"));
+    assert!(
+        csv.starts_with("x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px\n")
+    );
     assert_eq!(
         csv.lines().count() as u64,
         v["edge_points"].as_u64().unwrap() + 1
     );
+    assert!(v.get("x_mm").is_none(), "no mm without a scale: {v}");
+}
+
+#[test]
+fn boundary_with_a_scale_gives_the_peak_and_every_edge_point_in_millimetres_too() {
+    let s = scenario();
+    // The demo plate is drawn at 0.1 mm per pixel (its hole: 7 mm over 70 px).
+    let mm_per_px = 0.1;
+    let edge_file = path("plate-edge-mm.csv");
+    let printed = ok(boundary_of_plate(&[
+        "--fringe-value-n-per-mm",
+        "10.5",
+        "--thickness-mm",
+        "6",
+        "--mm-per-px",
+        &mm_per_px.to_string(),
+        "--out",
+        &edge_file,
+        "--json",
+    ]));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    let (x, y) = (v["x"].as_f64().unwrap(), v["y"].as_f64().unwrap());
+    assert_eq!(v["mm_per_px"].as_f64(), Some(mm_per_px));
+    assert!(
+        (v["x_mm"].as_f64().unwrap() - x * mm_per_px).abs() < 1e-9,
+        "{v}"
+    );
+    assert!(
+        (v["y_mm"].as_f64().unwrap() - y * mm_per_px).abs() < 1e-9,
+        "{v}"
+    );
+    // The peak lies on the hole's rim: 7 mm from its centre (the scenario's hole radius).
+    let centre = &s["plate"]["field"]["centre"];
+    let (cx, cy) = (centre["x"].as_f64().unwrap(), centre["y"].as_f64().unwrap());
+    let from_centre_mm = (v["x_mm"].as_f64().unwrap() - cx * mm_per_px)
+        .hypot(v["y_mm"].as_f64().unwrap() - cy * mm_per_px);
+    assert!(
+        (from_centre_mm - 7.0).abs() < 0.2,
+        "{from_centre_mm} mm: {v}"
+    );
+    let csv = std::fs::read_to_string(&edge_file).unwrap();
+    let mut lines = csv.lines();
+    assert_eq!(
+        lines.next(),
+        Some("x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px,x_mm,y_mm,along_mm")
+    );
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        let number = |i: usize| cells[i].parse::<f64>().unwrap();
+        assert!((number(9) - number(0) * mm_per_px).abs() < 2e-3, "{line}");
+        assert!((number(11) - number(8) * mm_per_px).abs() < 2e-3, "{line}");
+    }
 }
 
 #[test]
@@ -1012,6 +1066,28 @@ fn boundary_refuses_bad_numbers_naming_the_flag_and_writes_nothing() {
             "invalid --nominal-stress-mpa",
         ),
         (&["--thickness-mm", "6"][..], "--fringe-value-n-per-mm"),
+        (
+            &[
+                "--fringe-value-n-per-mm",
+                "10.5",
+                "--thickness-mm",
+                "6",
+                "--mm-per-px",
+                "0",
+            ][..],
+            "invalid --mm-per-px",
+        ),
+        (
+            &[
+                "--fringe-value-n-per-mm",
+                "10.5",
+                "--thickness-mm",
+                "6",
+                "--mm-per-px",
+                "-0.1",
+            ][..],
+            "invalid --mm-per-px",
+        ),
     ] {
         let mut args = extra.to_vec();
         args.extend(["--out", &edge_file, "--json"]);

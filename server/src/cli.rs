@@ -12,7 +12,7 @@ use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
 use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
 use isotint_core::comparison::{compare, difference_csv, PointPair, Prediction, Registration};
 use isotint_core::export::{self, FileKind, OutputFormat};
-use isotint_core::geometry::PixelPoint;
+use isotint_core::geometry::{PixelPoint, Scale};
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
 use isotint_core::report::{ReportInputs, ReportOptions};
@@ -562,8 +562,13 @@ pub struct BoundaryArgs {
     /// pixel-edge coordinates (at least two points, inside the photo, the specimen on one side).
     #[arg(long, value_parser = parse_polyline, allow_hyphen_values = true)]
     pub polyline: Option<Polyline>,
-    /// Also write every edge point to this CSV file
-    /// (x,y,normal_x,normal_y,order,stress_mpa,beyond_range).
+    /// The photo's scale, mm per pixel: positions are also given in mm (x_mm, y_mm; the CSV's
+    /// x_mm, y_mm, along_mm).
+    #[arg(long)]
+    pub mm_per_px: Option<f64>,
+    /// Also write every edge point, in order along the edge, to this CSV file
+    /// (x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px and, with
+    /// --mm-per-px, x_mm,y_mm,along_mm).
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// Print one JSON object (max_stress_mpa, x, y, order, kt, beyond_range, …) instead of text.
@@ -1172,6 +1177,7 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         refuse_overwriting(&inputs, "--out", out)?;
     }
     let law = args.material.law()?;
+    let scale = args.mm_per_px.map(Scale::new).transpose().in_flags()?;
     let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
     let mask = read(&args.mask, "mask")?;
@@ -1189,6 +1195,10 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         .clone()
         .map_or(EdgePath::Outline, |p| EdgePath::Polyline(p.0));
     let result = boundary_stress(&map, &law, args.nominal_stress_mpa, &path).in_flags()?;
+    let result = match scale {
+        Some(scale) => result.with_scale(scale),
+        None => result,
+    };
     if let Some(out) = &args.out {
         write(out, &edge_csv(&result))?;
     }
@@ -1196,8 +1206,12 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         println!("{}", serde_json::to_string(&result)?);
         return Ok(());
     }
+    let in_mm = match (result.x_mm, result.y_mm) {
+        (Some(x), Some(y)) => format!(" px = ({x:.2}, {y:.2}) mm"),
+        _ => String::new(),
+    };
     println!(
-        "  max |σ_t|           {} at ({:.1}, {:.1}), order {:.3}",
+        "  max |σ_t|           {} at ({:.1}, {:.1}){in_mm}, order {:.3}",
         maximum_text(result.max_stress_mpa, "MPa", result.max_is_lower_bound),
         result.x,
         result.y,

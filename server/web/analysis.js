@@ -1,23 +1,73 @@
 // The "Analyse a photo" page: photo, calibration, optional outline or mask, optional points of
 // known order; the fringe-order map in false colour with hover values, flags, a profile along a
-// line and the downloads.
+// line and the downloads. With a material fringe value and thickness: the σ1 − σ2 layer, its
+// figures and files, the free-edge stress along the outline (K_t with a nominal stress) and a
+// comparison with a finite-element prediction. With a scale (mm per pixel), lengths and
+// positions are given in mm beside pixels.
 
 import { api, getBytes } from './api.js';
-import { $, showError, fillDl, requiredNumber, progress } from './dom.js';
+import { $, showError, fillDl, numberIn, requiredNumber, progress } from './dom.js';
 import { ImageView, TwoPointGesture, decodeImage, tracePath, strokeBoth, marker } from './view.js';
 import { drawColourBar, drawProfile, fmt } from './plot.js';
-import { cividis, flagOf, scaleTop, FLAGS } from './colour.js';
-
-const UNRELIABLE = FLAGS.find((f) => f.bit === 4);
+import { cividis, diverging, flagOf, niceTop, scaleTop, FLAGS } from './colour.js';
 import { parseNpy } from './npy.js';
 import { CHANGED } from './calibrations.js';
+
+const UNRELIABLE = FLAGS.find((f) => f.bit === 4);
+// Colour of specimen pixels the prediction does not cover, on the difference layer.
+const NOT_COMPARED = [150, 150, 150];
 
 const TOOL_HELP = {
   inspect: 'Point at the picture, or focus it and use the arrow keys, to read the fringe order.',
   outline: 'Click (or press Enter) at each corner of the specimen outline; click the first corner again or press “Close outline” to finish. Backspace removes the last corner.',
   hint: 'Click (or press Enter) where the fringe order is known, then type the order and press “Add point”.',
   line: 'Drag a line, or click (Enter) at its two ends, to plot the fringe order along it.',
+  scale: 'Drag a line, or click (Enter) at its two ends, between two points a known distance apart; then type the distance under “Scale” and set it.',
+  pair: 'Click (or press Enter) on a point whose model coordinates you know; then type them under “Comparison” and add the pair.',
 };
+
+// The note beside every maximum that may be exceeded in beyond-range pixels.
+const LOWER_BOUND_NOTE =
+  "Part of the specimen lies beyond the calibration's range, where no value can be read: the true maximum may lie there, so this maximum is only a lower bound.";
+
+// A maximum as text: the value, or "at least" the value when it is only a lower bound.
+function maximum(value, digits, unit, lowerBound) {
+  const text = `${fmt(value, digits)}${unit ? ` ${unit}` : ''}`;
+  return lowerBound ? `at least ${text} (a lower bound)` : text;
+}
+
+// Shows or hides the lower-bound note `el`.
+function lowerBoundNote(el, lowerBound) {
+  el.hidden = !lowerBound;
+  el.textContent = lowerBound ? LOWER_BOUND_NOTE : '';
+}
+
+// "(12.3 mm)" for `px` pixels at `mmPerPx`, or nothing without a scale.
+function inMm(px, mmPerPx, digits = 1) {
+  return mmPerPx ? ` (${fmt(px * mmPerPx, digits)} mm)` : '';
+}
+
+// Paints one value per pixel into a canvas: flagged pixels wear their flag's colour, values
+// that are not numbers `missing` (by default the unreliable flag's), others `colourOf(value)`.
+function paintLayer(width, height, values, flags, colourOf, missing = UNRELIABLE.rgb) {
+  const canvas = document.createElement('canvas');
+  canvas.width = width;
+  canvas.height = height;
+  const ctx = canvas.getContext('2d');
+  const image = ctx.createImageData(width, height);
+  const px = image.data;
+  for (let i = 0; i < width * height; i += 1) {
+    const flag = flagOf(flags[i]);
+    const rgb = flag ? flag.rgb : Number.isFinite(values[i]) ? colourOf(values[i]) : missing;
+    const o = i * 4;
+    px[o] = rgb[0];
+    px[o + 1] = rgb[1];
+    px[o + 2] = rgb[2];
+    px[o + 3] = 255;
+  }
+  ctx.putImageData(image, 0, 0);
+  return canvas;
+}
 
 // Width (CSS pixels) of the colour bar and flag key beside the map, with its gap.
 const LEGEND_WIDTH = 180;
@@ -44,11 +94,19 @@ export class AnalysisPage {
     this.outline = { points: [], closed: false };
     this.hints = [];
     this.line = null; // {a, b}
-    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id}
+    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id, lowerBound}
+    this.stressLayer = null; // {canvas, top, perOrder}
+    this.difference = null; // {values, canvas, top, fringe_value_n_per_mm, thickness_mm}
+    this.scaleLine = null; // {a, b}
+    this.pairs = []; // [{x_px, y_px, x_mm, y_mm}]
+    this.boundary = null; // the boundary answer, with its edge points
+    this.pairPixel = null; // the pixel the point-pair tool picked
     this.wantedCalibration = '';
+    this.lawTimer = null;
 
     this.view.overlay = (ctx, toScreen) => this.paintOverlay(ctx, toScreen);
     const lineGesture = new TwoPointGesture((a, b, done) => this.setLine(a, b, done));
+    const scaleGesture = new TwoPointGesture((a, b) => this.setScaleLine(a, b));
     this.tools = {
       inspect: { hover: (p) => this.inspect(p) },
       outline: {
@@ -65,18 +123,16 @@ export class AnalysisPage {
         },
         release: () => $('an-hint-order').focus(),
       },
-      line: {
-        hover: (p) => {
-          lineGesture.hover(p);
-          this.inspect(p);
+      line: this.twoPointTool(lineGesture),
+      scale: this.twoPointTool(scaleGesture),
+      pair: {
+        hover: (p) => this.inspect(p),
+        press: (p) => {
+          $('an-pair-xpx').value = p.x.toFixed(1);
+          $('an-pair-ypx').value = p.y.toFixed(1);
+          this.pairPixel = { x: p.x, y: p.y };
         },
-        press: (p) => lineGesture.press(p),
-        drag: (p) => {
-          lineGesture.drag(p);
-          this.inspect(p);
-        },
-        release: (p) => lineGesture.release(p),
-        cancel: () => lineGesture.cancel(),
+        release: () => $('an-pair-xmm').focus(),
       },
     };
 
@@ -101,14 +157,46 @@ export class AnalysisPage {
       if (e.key === 'Enter') this.addHint();
     });
     for (const id of ['an-fringe-value', 'an-thickness']) {
-      $(id).addEventListener('input', () => this.drawProfile());
+      $(id).addEventListener('input', () => {
+        if (id === 'an-thickness') $('an-material-source').textContent = '';
+        this.lawChanged();
+      });
     }
+    $('an-calibration').addEventListener('change', () => this.prefillMaterial());
+    $('an-mm-per-px').addEventListener('input', () => this.scaleChanged());
+    $('an-scale-set').addEventListener('click', () => this.applyScale());
+    $('an-scale-distance').addEventListener('keydown', (e) => {
+      if (e.key === 'Enter') this.applyScale();
+    });
+    $('an-boundary-run').addEventListener('click', () => this.runBoundary());
+    $('an-pair-add').addEventListener('click', () => this.addPair());
+    $('an-pair-ymm').addEventListener('keydown', (e) => {
+      if (e.key === 'Enter') this.addPair();
+    });
+    $('an-compare-run').addEventListener('click', () => this.runComparison());
     $('an-run').addEventListener('click', () => this.run());
     $('an-report').addEventListener('click', () => this.report());
     document.addEventListener(CHANGED, () => this.loadCalibrations());
     new ResizeObserver(() => this.drawLegend()).observe($('an-view'));
     this.toolChanged();
     this.maskModeChanged();
+  }
+
+  // A tool that places two points with `gesture`, reading the map under the pointer meanwhile.
+  twoPointTool(gesture) {
+    return {
+      hover: (p) => {
+        gesture.hover(p);
+        this.inspect(p);
+      },
+      press: (p) => gesture.press(p),
+      drag: (p) => {
+        gesture.drag(p);
+        this.inspect(p);
+      },
+      release: (p) => gesture.release(p),
+      cancel: () => gesture.cancel(),
+    };
   }
 
   show(params) {
@@ -118,6 +206,7 @@ export class AnalysisPage {
       this.loadCalibrations();
     } else if (this.wantedCalibration) {
       $('an-calibration').value = this.wantedCalibration;
+      this.prefillMaterial();
     }
     this.view.fit();
   }
@@ -133,10 +222,64 @@ export class AnalysisPage {
         ...calibrations.map((c) => new Option(`${c.name}${c.material ? ` (${c.material})` : ''}, to N = ${fmt(c.max_order, 1)}`, c.id)),
       );
       select.value = calibrations.some((c) => c.id === keep) ? keep : '';
+      this.calibrations = calibrations;
+      this.prefillMaterial();
     } catch (e) {
       select.replaceChildren(new Option('Calibrations could not be loaded', ''));
       showError($('an-error'), e);
     }
+  }
+
+  // Fills in the thickness stored with the chosen calibration, unless one was typed. (A
+  // calibration stores no fringe value: that comes from a load series or a known load.)
+  prefillMaterial() {
+    const chosen = (this.calibrations || []).find((c) => c.id === $('an-calibration').value);
+    const thickness = $('an-thickness');
+    const source = $('an-material-source');
+    const typed = thickness.value !== '' && !source.textContent;
+    if (!chosen || typed) return;
+    if (chosen.thickness_mm > 0) {
+      thickness.value = String(chosen.thickness_mm);
+      source.textContent = `Thickness ${fmt(chosen.thickness_mm, 2)} mm from the calibration “${chosen.name}”. The fringe value is not stored with a calibration: type it (a load series gives it).`;
+    } else {
+      if (source.textContent) thickness.value = '';
+      source.textContent = '';
+    }
+    this.lawChanged();
+  }
+
+  // The scale typed or set, mm per pixel, or null.
+  mmPerPx() {
+    const v = $('an-mm-per-px').valueAsNumber;
+    return v > 0 ? v : null;
+  }
+
+  setScaleLine(a, b) {
+    this.scaleLine = { a, b };
+    const length = Math.hypot(b.x - a.x, b.y - a.y);
+    $('an-scale-status').textContent = `Line of ${fmt(length, 1)} px between (${fmt(a.x, 1)}, ${fmt(a.y, 1)}) and (${fmt(b.x, 1)}, ${fmt(b.y, 1)}).`;
+  }
+
+  // Sets mm per pixel from the scale line and the known distance.
+  applyScale() {
+    const status = $('an-scale-status');
+    try {
+      if (!this.scaleLine) throw new Error('Draw the scale line first: pick the “Scale” tool and click two points a known distance apart.');
+      const { a, b } = this.scaleLine;
+      const length = Math.hypot(b.x - a.x, b.y - a.y);
+      if (length < 1) throw new Error('The two points of the scale line coincide: pick points far apart.');
+      const distance = requiredNumber($('an-scale-distance'), { positive: true, label: 'Known distance (mm)' });
+      $('an-mm-per-px').value = String(Number((distance / length).toPrecision(6)));
+      status.textContent = `${fmt(distance, 2)} mm over ${fmt(length, 1)} px: ${fmt(distance / length, 5)} mm per pixel.`;
+      this.scaleChanged();
+    } catch (e) {
+      status.textContent = e.message;
+    }
+  }
+
+  scaleChanged() {
+    this.drawProfile();
+    this.renderBoundary();
   }
 
   async loadPhoto() {
@@ -146,6 +289,10 @@ export class AnalysisPage {
     this.clearOutline();
     this.hints = [];
     this.renderHints();
+    this.pairs = [];
+    this.pairPixel = null;
+    this.renderPairs();
+    this.scaleLine = null;
     this.photo = null;
     this.view.setSource(null);
     if (!file) {
@@ -170,14 +317,114 @@ export class AnalysisPage {
     this.showLayer();
   }
 
+  layer() {
+    return document.querySelector('input[name="an-layer"]:checked').value;
+  }
+
+  // The picture of a layer of the result: {canvas, top} with the top of its colour bar.
+  layerPicture(layer) {
+    if (!this.result) return null;
+    if (layer === 'map') return this.result;
+    if (layer === 'stress') return this.stressPicture();
+    if (layer === 'difference') return this.difference;
+    return null;
+  }
+
   showLayer() {
-    const layer = document.querySelector('input[name="an-layer"]:checked').value;
-    if (layer === 'map' && this.result) {
-      this.view.setSource(this.result.canvas, this.result.width, this.result.height);
+    const picture = this.layerPicture(this.layer());
+    if (picture) {
+      this.view.setSource(picture.canvas, this.result.width, this.result.height);
     } else if (this.photo?.bitmap) {
       this.view.setSource(this.photo.bitmap, this.photo.width, this.photo.height);
     }
     this.drawLegend();
+  }
+
+  // The σ1 − σ2 layer through the current fringe value and thickness (made again when they
+  // change), or null without them.
+  stressPicture() {
+    const k = this.stressPerOrder();
+    if (k === null || !this.result) return null;
+    if (this.stressLayer?.perOrder !== k) {
+      const r = this.result;
+      const top = niceTop(r.maxOrder * k);
+      const stress = (n) => cividis((n * k) / top);
+      this.stressLayer = { canvas: paintLayer(r.width, r.height, r.order, r.flags, stress), top, perOrder: k };
+    }
+    return this.stressLayer;
+  }
+
+  // The fringe value or thickness changed: the stress layer, readouts, figures and links follow.
+  lawChanged() {
+    this.drawProfile();
+    const k = this.stressPerOrder();
+    this.forgetStressResults(k);
+    const radio = document.querySelector('input[name="an-layer"][value="stress"]');
+    radio.disabled = !this.result || k === null;
+    if (radio.disabled && radio.checked) this.setLayer('map');
+    else if (radio.checked) this.showLayer();
+    clearTimeout(this.lawTimer);
+    this.lawTimer = setTimeout(() => this.updateStress(), 250);
+  }
+
+  // Forgets the edge stress and the comparison when they were made through another law than
+  // `perOrder` (MPa per fringe), so that no figure on the page belongs to old inputs.
+  forgetStressResults(perOrder) {
+    const madeWith = (r) => r.fringe_value_n_per_mm / r.thickness_mm;
+    if (this.boundary && madeWith(this.boundary) !== perOrder) {
+      this.boundary = null;
+      fillDl($('an-boundary-stats'), []);
+      lowerBoundNote($('an-boundary-bound'), false);
+      this.renderBoundary();
+      this.view.draw();
+    }
+    if (this.difference && madeWith(this.difference) !== perOrder) {
+      this.difference = null;
+      fillDl($('an-compare-stats'), []);
+      lowerBoundNote($('an-compare-bound'), false);
+      const radio = document.querySelector('input[name="an-layer"][value="difference"]');
+      radio.disabled = true;
+      if (radio.checked) this.setLayer('map');
+    }
+  }
+
+  // Asks the service for the map's σ1 − σ2 figures and files through the current law.
+  async updateStress() {
+    const error = $('an-stress-error');
+    showError(error, null);
+    const k = this.stressPerOrder();
+    const have = Boolean(this.result) && k !== null;
+    $('an-stress-needs').hidden = have;
+    $('an-stress-downloads').hidden = !have;
+    $('an-stress-caution').hidden = !have;
+    if (!have) {
+      fillDl($('an-stress-stats'), []);
+      lowerBoundNote($('an-stress-bound'), false);
+      return;
+    }
+    const [f, h] = ['an-fringe-value', 'an-thickness'].map((id) => $(id).valueAsNumber);
+    const id = this.result.id;
+    try {
+      const answer = await api.stressOf(id, f, h);
+      if (this.result?.id !== id || this.stressPerOrder() !== k) return; // changed meanwhile
+      const st = answer.stress;
+      $('an-stress-caution').textContent = `Caution: ${st.caution}.`;
+      fillDl($('an-stress-stats'), [
+        ['Law', `${fmt(f, 3)} N/mm ÷ ${fmt(h, 3)} mm = ${fmt(f / h, 4)} MPa per fringe`],
+        ['Smallest σ1 − σ2', `${fmt(st.min_stress_mpa, 2)} MPa`],
+        ['Mean σ1 − σ2', `${fmt(st.mean_stress_mpa, 2)} MPa`],
+        ['Largest σ1 − σ2', maximum(st.max_stress_mpa, 2, 'MPa', st.max_is_lower_bound)],
+      ]);
+      lowerBoundNote($('an-stress-bound'), st.max_is_lower_bound);
+      const base = `stress-${id}`;
+      for (const [key, suffix] of [['npy', '.npy'], ['preview', '-preview.png'], ['csv', '.csv']]) {
+        const link = $(`an-dl-stress-${key}`);
+        link.href = st.links[key];
+        link.download = base + suffix;
+      }
+    } catch (e) {
+      showError(error, e);
+    }
   }
 
   toolChanged() {
@@ -307,8 +554,11 @@ export class AnalysisPage {
   inspect(p) {
     if (!p) return;
     const s = this.sample(p);
-    let text = `Pixel (${s.x}, ${s.y})`;
+    const mm = this.mmPerPx();
+    let text = `Pixel (${s.x}, ${s.y})${mm ? ` at (${fmt((s.x + 0.5) * mm, 2)}, ${fmt((s.y + 0.5) * mm, 2)}) mm` : ''}`;
+    const d = this.difference && this.layer() === 'difference' ? this.difference.values[s.y * this.result.width + s.x] : NaN;
     if (this.result) {
+      if (Number.isFinite(d)) text += `: measured − predicted ${fmt(d, 2)} MPa;`;
       if (Number.isFinite(s.order)) {
         text += `: fringe order ${fmt(s.order, 3)}${plusMinus(s.sigma, 3)}`;
         const k = this.stressPerOrder();
@@ -339,7 +589,7 @@ export class AnalysisPage {
     for (let i = 0; i < n; i += 1) {
       const t = i / (n - 1);
       const s = this.sample({ x: a.x + t * (b.x - a.x), y: a.y + t * (b.y - a.y) });
-      samples.push({ distance: t * length, order: s.order, sigma: s.sigma });
+      samples.push({ distance: t * length, order: s.order, value: s.order, sigma: s.sigma });
     }
     figure.hidden = false;
     const valuedSamples = samples.filter((s) => Number.isFinite(s.order));
@@ -347,15 +597,18 @@ export class AnalysisPage {
     const k = this.stressPerOrder();
     // The highest sample, whose σ1 − σ2 the caption quotes with its uncertainty.
     const peak = valuedSamples.reduce((best, s) => (s.order > best.order ? s : best), valuedSamples[0]);
+    const mm = this.mmPerPx();
+    const lowerBound = this.result.lowerBound;
     $('an-profile-caption').textContent =
-      `Fringe order along the line from (${fmt(a.x, 0)}, ${fmt(a.y, 0)}) to (${fmt(b.x, 0)}, ${fmt(b.y, 0)}), ${fmt(length, 0)} px: ` +
+      `Fringe order along the line from (${fmt(a.x, 0)}, ${fmt(a.y, 0)}) to (${fmt(b.x, 0)}, ${fmt(b.y, 0)}), ${fmt(length, 0)} px${inMm(length, mm)}: ` +
       (valued.length
-        ? `from ${fmt(Math.min(...valued))} to ${fmt(Math.max(...valued))}` +
-          (k !== null ? ` (σ1 − σ2 up to ${fmt(peak.order * k, 1)}${plusMinus(peak.sigma * k, 1)} MPa)` : '')
+        ? `from ${fmt(Math.min(...valued))} to ${lowerBound ? 'at least ' : ''}${fmt(Math.max(...valued))}` +
+          (k !== null ? ` (largest σ1 − σ2 on the line ${lowerBound ? 'at least ' : ''}${fmt(peak.order * k, 2)}${plusMinus(peak.sigma * k, 2)} MPa)` : '') +
+          (lowerBound ? `. ${LOWER_BOUND_NOTE}` : '')
         : 'no values on this line');
     const canvas = $('an-profile');
     canvas.setAttribute('aria-label', $('an-profile-caption').textContent);
-    drawProfile(canvas, samples, k);
+    drawProfile(canvas, samples, { secondary: k !== null ? { perUnit: k, label: 'σ1 − σ2 (MPa)' } : null, mmPerPx: mm });
   }
 
   paintOverlay(ctx, toScreen) {
@@ -380,25 +633,66 @@ export class AnalysisPage {
       strokeBoth(ctx, 2, '#ff8a3d');
       marker(ctx, toScreen, this.line.a, 3, '#ff8a3d');
     }
+    if (this.scaleLine) {
+      tracePath(ctx, toScreen, [this.scaleLine.a, this.scaleLine.b], false);
+      strokeBoth(ctx, 2, '#7ee0ff');
+      for (const p of [this.scaleLine.a, this.scaleLine.b]) marker(ctx, toScreen, p, 3, '#7ee0ff');
+    }
+    const label = (p, words, colour) => {
+      const s = toScreen(p);
+      ctx.font = 'bold 13px system-ui, sans-serif';
+      ctx.lineWidth = 3;
+      ctx.strokeStyle = '#000';
+      ctx.strokeText(words, s.x + 10, s.y - 8);
+      ctx.fillStyle = colour;
+      ctx.fillText(words, s.x + 10, s.y - 8);
+    };
+    this.pairs.forEach((pair, i) => {
+      const p = { x: pair.x_px, y: pair.y_px };
+      marker(ctx, toScreen, p, 5, '#b6f36b');
+      label(p, `P${i + 1}`, '#b6f36b');
+    });
+    if (this.pairPixel) marker(ctx, toScreen, this.pairPixel, 4, '#b6f36b');
+    if (this.boundary) {
+      const b = this.boundary;
+      const p = { x: b.x, y: b.y };
+      marker(ctx, toScreen, p, 9, '#ff5a36');
+      label(p, `max ${maximum(b.max_stress_mpa, 2, 'MPa', b.max_is_lower_bound).replace(' (a lower bound)', '')}`, '#ffd0c4');
+    }
   }
 
   drawLegend() {
     const legend = $('an-legend');
-    const showing = this.result && document.querySelector('input[name="an-layer"]:checked').value === 'map';
-    legend.hidden = !showing;
-    if (!showing) return;
+    const layer = this.layer();
+    const picture = this.layerPicture(layer);
+    legend.hidden = !picture;
+    if (!picture) return;
     const bar = $('an-colourbar');
     bar.style.height = `${Math.max(200, $('an-view').clientHeight - 110)}px`;
-    drawColourBar(bar, this.result.top);
+    const legends = {
+      map: ['Fringe order', { what: 'fringe order' }],
+      stress: ['σ1 − σ2 (MPa)', { what: 'σ1 − σ2 in MPa' }],
+      difference: ['Measured − predicted (MPa)', { what: 'measured minus predicted σ1 − σ2 in MPa', bottom: -picture.top, colourOf: diverging }],
+    };
+    const [caption, options] = legends[layer];
+    $('an-legend-caption').textContent = caption;
+    drawColourBar(bar, picture.top, options);
   }
 
   clearResult() {
     this.result = null;
     this.line = null;
+    this.stressLayer = null;
+    this.difference = null;
+    this.boundary = null;
     $('an-results').hidden = true;
     $('an-profile-figure').hidden = true;
-    const mapRadio = document.querySelector('input[name="an-layer"][value="map"]');
-    mapRadio.disabled = true;
+    for (const value of ['map', 'stress', 'difference']) {
+      document.querySelector(`input[name="an-layer"][value="${value}"]`).disabled = true;
+    }
+    for (const id of ['an-stress-stats', 'an-boundary-stats', 'an-compare-stats']) fillDl($(id), []);
+    for (const id of ['an-boundary-bound', 'an-compare-bound']) lowerBoundNote($(id), false);
+    $('an-edge-figure').hidden = true;
     this.setLayer('photo');
   }
 
@@ -521,24 +815,19 @@ export class AnalysisPage {
       throw new Error(`The map files do not match the reported size ${answer.width} × ${answer.height}.`);
     }
     const top = scaleTop(answer.statistics.max_order);
-    const canvas = document.createElement('canvas');
-    canvas.width = width;
-    canvas.height = height;
-    const ctx = canvas.getContext('2d');
-    const image = ctx.createImageData(width, height);
-    const px = image.data;
-    for (let i = 0; i < width * height; i += 1) {
-      // Flagged pixels wear their flag's colour; a missing value without a flag counts as unreliable.
-      const flag = flagOf(flags.data[i]) ?? (Number.isFinite(orders.data[i]) ? null : UNRELIABLE);
-      const rgb = flag ? flag.rgb : cividis(orders.data[i] / top);
-      const o = i * 4;
-      px[o] = rgb[0];
-      px[o + 1] = rgb[1];
-      px[o + 2] = rgb[2];
-      px[o + 3] = 255;
-    }
-    ctx.putImageData(image, 0, 0);
-    this.result = { width, height, order: orders.data, uncertainty: uncertainty.data, flags: flags.data, canvas, top, id: answer.id };
+    const canvas = paintLayer(width, height, orders.data, flags.data, (n) => cividis(n / top));
+    this.result = {
+      width,
+      height,
+      order: orders.data,
+      uncertainty: uncertainty.data,
+      flags: flags.data,
+      canvas,
+      top,
+      id: answer.id,
+      maxOrder: answer.statistics.max_order,
+      lowerBound: answer.max_is_lower_bound,
+    };
 
     const caution = $('an-caution');
     caution.textContent = answer.caution ?? '';
@@ -546,7 +835,7 @@ export class AnalysisPage {
     const st = answer.statistics;
     const share = (v) => `${fmt(v * 100, 1)} %`;
     fillDl($('an-stats'), [
-      ['Fringe order', `${fmt(st.min_order)} to ${fmt(st.max_order)} (mean ${fmt(st.mean_order)})`],
+      ['Fringe order', `${fmt(st.min_order)} to ${maximum(st.max_order, 2, '', answer.max_is_lower_bound)} (mean ${fmt(st.mean_order)})`],
       ['Pixels with a value', `${st.valued_pixels.toLocaleString()} of ${st.specimen_pixels.toLocaleString()}`],
       ['Beyond range', share(st.beyond_range_share)],
       ['Unreliable', share(st.unreliable_share)],
@@ -562,6 +851,169 @@ export class AnalysisPage {
     $('an-results').hidden = false;
     document.querySelector('input[name="an-layer"][value="map"]').disabled = false;
     this.setLayer('map');
-    this.drawProfile();
+    this.lawChanged();
+  }
+
+  // The law's fields as the API names them; throws a readable Error when either is missing.
+  lawFields() {
+    const f = requiredNumber($('an-fringe-value'), { positive: true, label: 'Material fringe value' });
+    const h = requiredNumber($('an-thickness'), { positive: true, label: 'Thickness' });
+    return { fringe_value_n_per_mm: f, thickness_mm: h };
+  }
+
+  // Samples the free-edge stress along the outline of the stored map's mask.
+  async runBoundary() {
+    const error = $('an-boundary-error');
+    showError(error, null);
+    const button = $('an-boundary-run');
+    try {
+      if (!this.result) throw new Error('Make the fringe-order map first.');
+      const body = { ...this.lawFields(), include_edge: true };
+      const nominal = numberIn($('an-nominal'), { positive: true, label: 'Nominal stress' });
+      if (nominal !== null) body.nominal_stress_mpa = nominal;
+      const mm = numberIn($('an-mm-per-px'), { positive: true, label: 'Millimetres per pixel' });
+      if (mm !== null) body.mm_per_px = mm;
+      button.disabled = true;
+      this.boundary = await api.boundary(this.result.id, body);
+      this.renderBoundary();
+      this.view.draw();
+    } catch (e) {
+      showError(error, e);
+    } finally {
+      button.disabled = false;
+    }
+  }
+
+  // The boundary's figures, its edge profile and (through the overlay) its maximum on the map.
+  renderBoundary() {
+    const b = this.boundary;
+    const figure = $('an-edge-figure');
+    if (!b) {
+      figure.hidden = true;
+      return;
+    }
+    const mm = this.mmPerPx();
+    const lower = b.max_is_lower_bound;
+    const along = (i) => b.edge[i].along_px;
+    const peak = b.edge.findIndex((s) => s.x === b.x && s.y === b.y);
+    fillDl($('an-boundary-stats'), [
+      ['Largest |σ_t| at the edge', maximum(b.max_stress_mpa, 2, 'MPa', lower)],
+      ['Where', `(${fmt(b.x, 1)}, ${fmt(b.y, 1)}) px${mm ? ` = (${fmt(b.x * mm, 2)}, ${fmt(b.y * mm, 2)}) mm` : ''}${peak >= 0 ? `, ${fmt(along(peak), 0)} px${inMm(along(peak), mm)} along the edge` : ''}`],
+      ['Fringe order there', fmt(b.order, 3)],
+      ['K_t = σ_max / σ_nom', b.kt === null || b.kt === undefined ? '' : `${maximum(b.kt, 3, '', lower)} (σ_nom ${fmt(b.nominal_stress_mpa, 2)} MPa)`],
+      ['Edge points', `${b.valued_points.toLocaleString()} with a value of ${b.edge_points.toLocaleString()} sampled (${b.sample_insets_px.join(' and ')} px inside)`],
+      ['Caution', `${b.caution}.`],
+    ]);
+    lowerBoundNote($('an-boundary-bound'), lower);
+    const samples = b.edge.map((s, i) => ({
+      distance: s.along_px,
+      value: s.stress_mpa ?? NaN,
+      gap: i > 0 && b.edge[i - 1].contour !== s.contour,
+      shade: s.beyond_range,
+    }));
+    figure.hidden = false;
+    const contours = new Set(b.edge.map((s) => s.contour)).size;
+    const total = b.edge.length ? b.edge[b.edge.length - 1].along_px : 0;
+    $('an-edge-caption').textContent =
+      `|σ_t| along the edge, ${fmt(total, 0)} px${inMm(total, mm)} in ${contours} stretch${contours === 1 ? '' : 'es'}; ` +
+      `largest ${maximum(b.max_stress_mpa, 2, 'MPa', lower)}, ringed` +
+      (lower ? '; shaded where beyond-range pixels touch the edge.' : '.');
+    const canvas = $('an-edge-profile');
+    canvas.setAttribute('aria-label', $('an-edge-caption').textContent);
+    drawProfile(canvas, samples, {
+      yLabel: '|σ_t| (MPa)',
+      xLabel: 'Distance along the edge',
+      mmPerPx: mm,
+      mark: peak >= 0 ? { distance: along(peak), value: b.max_stress_mpa } : null,
+    });
+  }
+
+  addPair() {
+    const error = $('an-compare-error');
+    showError(error, null);
+    try {
+      const [xPx, yPx, xMm, yMm] = [
+        ['an-pair-xpx', 'Pair pixel x'],
+        ['an-pair-ypx', 'Pair pixel y'],
+        ['an-pair-xmm', 'Pair model x'],
+        ['an-pair-ymm', 'Pair model y'],
+      ].map(([id, label]) => requiredNumber($(id), { label }));
+      this.pairs.push({ x_px: xPx, y_px: yPx, x_mm: xMm, y_mm: yMm });
+      for (const id of ['an-pair-xpx', 'an-pair-ypx', 'an-pair-xmm', 'an-pair-ymm']) $(id).value = '';
+      this.pairPixel = null;
+      this.renderPairs();
+      this.view.draw();
+    } catch (e) {
+      showError(error, e);
+    }
+  }
+
+  renderPairs() {
+    $('an-pairs').replaceChildren(
+      ...this.pairs.map((p, i) => {
+        const li = document.createElement('li');
+        const words = `P${i + 1}: (${fmt(p.x_px, 1)}, ${fmt(p.y_px, 1)}) px ↔ (${fmt(p.x_mm, 2)}, ${fmt(p.y_mm, 2)}) mm`;
+        li.textContent = words;
+        const remove = document.createElement('button');
+        remove.type = 'button';
+        remove.className = 'small';
+        remove.textContent = 'Remove';
+        remove.setAttribute('aria-label', `Remove pair ${words}`);
+        remove.addEventListener('click', () => {
+          this.pairs.splice(i, 1);
+          this.renderPairs();
+          this.view.draw();
+        });
+        li.append(' ', remove);
+        return li;
+      }),
+    );
+  }
+
+  // Compares the stored map with the prediction: the figures, then the difference map as a layer.
+  async runComparison() {
+    const error = $('an-compare-error');
+    showError(error, null);
+    const button = $('an-compare-run');
+    try {
+      if (!this.result) throw new Error('Make the fringe-order map first.');
+      const file = $('an-prediction').files[0];
+      if (!file) {
+        $('an-prediction').focus();
+        throw new Error('Choose the prediction: a CSV of nodes x_mm, y_mm, σ1 − σ2 (MPa).');
+      }
+      if (this.pairs.length < 2) throw new Error(`Add at least two point pairs (pixel ↔ model point); there are ${this.pairs.length}.`);
+      const body = { ...this.lawFields(), prediction: await file.text(), pairs: this.pairs };
+      button.disabled = true;
+      const id = this.result.id;
+      const [c, bytes] = await Promise.all([api.comparison(id, body), api.comparisonMap(id, body)]);
+      if (this.result?.id !== id) return;
+      const npy = parseNpy(bytes);
+      const reg = c.registration;
+      const mm = this.mmPerPx();
+      fillDl($('an-compare-stats'), [
+        ['Pixels compared', `${c.compared_pixels.toLocaleString()} (${fmt(100 * c.model_coverage, 1)} % of the specimen inside the model)`],
+        ['Mean |measured − predicted|', `${fmt(c.mean_abs_difference_mpa, 3)} MPa`],
+        ['Rms difference', `${fmt(c.rms_difference_mpa, 3)} MPa`],
+        ['Mean difference (bias)', `${fmt(c.mean_difference_mpa, 3)} MPa`],
+        ['Largest |difference|', `${maximum(c.max_abs_difference_mpa, 3, 'MPa', c.max_is_lower_bound)} at (${fmt(c.max_x, 1)}, ${fmt(c.max_y, 1)}) px${mm ? ` = (${fmt(c.max_x * mm, 2)}, ${fmt(c.max_y * mm, 2)}) mm` : ''}`],
+        ['Difference layer', 'blue: the photo reads lower than the prediction, red: higher; grey: outside the model'],
+        ['Registration', `${reg.kind} from ${reg.pairs} pairs, rms ${fmt(reg.rms_mm, 3)} mm, ${fmt(reg.mm_per_px, 5)} mm per pixel${reg.mirrored ? ', mirrored (model y up)' : ''}`],
+        ['Caution', `${c.caution}.`],
+      ]);
+      lowerBoundNote($('an-compare-bound'), c.max_is_lower_bound);
+      const top = niceTop(c.max_abs_difference_mpa);
+      const values = npy.data;
+      const r = this.result;
+      // Flagged pixels keep their flag's colour; valued pixels outside the model show grey.
+      const canvas = paintLayer(r.width, r.height, values, r.flags, (d) => diverging(0.5 + d / (2 * top)), NOT_COMPARED);
+      this.difference = { values, canvas, top, fringe_value_n_per_mm: c.fringe_value_n_per_mm, thickness_mm: c.thickness_mm };
+      document.querySelector('input[name="an-layer"][value="difference"]').disabled = false;
+      this.setLayer('difference');
+    } catch (e) {
+      showError(error, e);
+    } finally {
+      button.disabled = false;
+    }
   }
 }

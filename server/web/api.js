@@ -105,6 +105,18 @@ export async function getBytes(url) {
   return (await send(url)).arrayBuffer();
 }
 
+// POSTs `body` as JSON; resolves to the answer's JSON, or with `bytes` to its bytes.
+async function postBody(url, body, { bytes = false } = {}) {
+  const response = await send(url, {
+    method: 'POST',
+    headers: { 'Content-Type': 'application/json', Accept: bytes ? 'application/octet-stream' : 'application/json' },
+    body: JSON.stringify(body),
+  });
+  return bytes ? response.arrayBuffer() : response.json();
+}
+
+const mapUrl = (id) => `/api/v1/order-maps/${encodeURIComponent(id)}`;
+
 // POSTs multipart form data with XMLHttpRequest so that upload progress can be reported:
 // onProgress(fraction) while the body is sent, then onProgress(null) while the service works.
 export function postForm(url, form, onProgress) {
@@ -192,4 +204,11 @@ export const api = {
   createCalibration: (form, onProgress) => postForm('/api/v1/calibrations', form, onProgress),
   createOrderMap: (form, onProgress) => postForm('/api/v1/order-maps', form, onProgress),
   report: (form) => postFormForBlob('/api/v1/reports', form),
+  // A stored map's description with σ1 − σ2 figures and links through f_σ (N/mm) and h (mm).
+  stressOf: (id, fringeValue, thickness) =>
+    getJson(`${mapUrl(id)}?${new URLSearchParams({ fringe_value_n_per_mm: fringeValue, thickness_mm: thickness })}`),
+  boundary: (id, body) => postBody(`${mapUrl(id)}/boundary`, body),
+  comparison: (id, body) => postBody(`${mapUrl(id)}/comparison`, body),
+  comparisonMap: (id, body) => postBody(`${mapUrl(id)}/comparison?format=npy`, body, { bytes: true }),
+  series: (form, onProgress) => postForm('/api/v1/series', form, onProgress),
 };

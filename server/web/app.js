@@ -1,5 +1,6 @@
-// isotint workbench: routes between the Calibrations and "Analyse a photo" pages by the URL's
-// hash (#/calibrations, #/calibrations/new, #/calibrations/ID, #/analyse?calibration=ID).
+// isotint workbench: routes between the Calibrations, "Analyse a photo" and "Load series" pages
+// by the URL's hash (#/calibrations, #/calibrations/new, #/calibrations/ID,
+// #/analyse?calibration=ID, #/series).
 // In token mode it first asks for a token (when the service answers 401), shows who is signed
 // in with which role, and hides the actions that role may not take.
 
@@ -7,11 +8,15 @@ import { api, session, SIGNED_OUT, downloadWithToken } from './api.js';
 import { $, showError } from './dom.js';
 import { CalibrationsPage, CHANGED } from './calibrations.js';
 import { AnalysisPage } from './analysis.js';
+import { SeriesPage } from './series.js';
 
 const pages = {
   calibrations: { el: document.getElementById('page-calibrations'), page: new CalibrationsPage() },
   analyse: { el: document.getElementById('page-analyse'), page: new AnalysisPage() },
+  series: { el: document.getElementById('page-series'), page: new SeriesPage() },
 };
+
+const TITLES = { calibrations: 'Calibrations', analyse: 'Analyse a photo', series: 'Load series' };
 
 function route() {
   const hash = window.location.hash.replace(/^#\/?/, '');
@@ -26,7 +31,7 @@ function route() {
     if (link.dataset.page === name) link.setAttribute('aria-current', 'page');
     else link.removeAttribute('aria-current');
   }
-  document.title = `${name === 'analyse' ? 'Analyse a photo' : 'Calibrations'} · isotint`;
+  document.title = `${TITLES[name]} · isotint`;
   const { page } = pages[name];
   if (name === 'analyse') page.show(new URLSearchParams(query));
   else page.show(decodeURIComponent(rest.join('/')));

@@ -59,3 +59,23 @@ export const flagOf = (bits) => FLAGS.find((f) => bits & f.bit);
 export function scaleTop(maxOrder) {
   return Number.isFinite(maxOrder) && maxOrder > 0 ? Math.ceil(maxOrder) : 1;
 }
+
+// A diverging scale for signed differences: blue (t = 0, most negative) through near-white
+// (t = 0.5, zero) to red (t = 1, most positive); t in [0, 1].
+export function diverging(t) {
+  const s = Math.min(1, Math.max(0, t)) * 2 - 1;
+  const blue = [33, 102, 172];
+  const red = [178, 24, 43];
+  const mid = [247, 247, 247];
+  const end = s < 0 ? blue : red;
+  const a = Math.abs(s);
+  return mid.map((m, i) => Math.round(m + a * (end[i] - m)));
+}
+
+// A round upper end for a scale holding `value`: the first of 1, 1.2, 1.5, 2, 2.5, 3, 4, 5, 6,
+// 8 or 10 × 10^k at or above it (so the scale's colours spread over most of it).
+export function niceTop(value) {
+  if (!(Number.isFinite(value) && value > 0)) return 1;
+  const power = 10 ** Math.floor(Math.log10(value));
+  return [1, 1.2, 1.5, 2, 2.5, 3, 4, 5, 6, 8, 10].map((m) => m * power).find((v) => v >= value * (1 - 1e-9));
+}

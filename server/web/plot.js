@@ -1,5 +1,5 @@
-// Charts drawn on canvases: a calibration table's colour strip, the false-colour bar of an order
-// map and a profile of fringe order along a line.
+// Charts drawn on canvases: a calibration table's colour strip, the false-colour bars of the
+// map layers and profiles along a line or a specimen's edge.
 
 import { labToRgb, css, cividis } from './colour.js';
 
@@ -193,37 +193,46 @@ export class TableStrip {
   }
 }
 
-// The false-colour scale from 0 (bottom) to `top` fringes (top), with whole-order labels.
-export function drawColourBar(canvas, top) {
+// A false-colour bar from `bottom` (lower end) to `top` (upper end) in the colours of
+// `colourOf(t)`, t in [0, 1], with numbered ticks; `what` names the quantity for screen readers
+// ("fringe order", "σ1 − σ2 in MPa").
+export function drawColourBar(canvas, top, { bottom = 0, colourOf = cividis, what = 'fringe order' } = {}) {
   const { ctx, h } = prepare(canvas);
   const bar = { left: 4, width: 22, top: 8, bottom: h - 8 };
   const span = bar.bottom - bar.top;
   for (let y = 0; y < span; y += 1) {
-    ctx.fillStyle = css(cividis(1 - y / (span - 1)));
+    ctx.fillStyle = css(colourOf(1 - y / (span - 1)));
     ctx.fillRect(bar.left, bar.top + y, bar.width, 1);
   }
   ctx.strokeStyle = INK;
   ctx.lineWidth = 1;
   ctx.strokeRect(bar.left - 0.5, bar.top - 0.5, bar.width + 1, span + 1);
-  for (const v of ticks(0, top, Math.min(10, Math.max(2, Math.floor(span / 40))))) {
-    const y = Math.round(bar.bottom - (v / top) * span) + 0.5;
+  const labels = [];
+  for (const v of ticks(bottom, top, Math.min(10, Math.max(2, Math.floor(span / 40))))) {
+    const y = Math.round(bar.bottom - ((v - bottom) / (top - bottom)) * span) + 0.5;
     ctx.beginPath();
     ctx.moveTo(bar.left + bar.width, y);
     ctx.lineTo(bar.left + bar.width + 5, y);
     ctx.stroke();
-    text(ctx, fmt(v, Number.isInteger(v) ? 0 : 1), bar.left + bar.width + 8, y);
+    const label = fmt(v, Number.isInteger(v) ? 0 : 1);
+    labels.push(label);
+    text(ctx, label, bar.left + bar.width + 8, y);
   }
-  canvas.setAttribute('aria-label', `Colour scale from fringe order 0 (dark blue) to ${fmt(top, 0)} (yellow).`);
+  const end = (v) => fmt(v, Number.isInteger(v) ? 0 : 1);
+  canvas.setAttribute('aria-label', `Colour scale of ${what} from ${end(bottom)} to ${end(top)}, numbered ${labels.join(', ')}.`);
 }
 
-// A profile of fringe order along a line: `samples` = [{distance, order}] (order NaN = no
-// value). With `stressPerOrder` (MPa per fringe) a second axis gives σ1 − σ2.
-export function drawProfile(canvas, samples, stressPerOrder) {
+// A profile along a path: `samples` = [{distance (px), value, gap, shade}] (value NaN = no
+// value; gap: the curve breaks before this sample; shade: a band marks it, e.g. beyond-range
+// pixels next to an edge). Options: `yLabel`; `secondary` {perUnit, label} adds a
+// right-hand axis (e.g. σ1 − σ2 in MPa per fringe); `xLabel`; `mmPerPx` numbers the distance
+// in mm under the pixels; `mark` {distance, value} rings one point (a maximum).
+export function drawProfile(canvas, samples, { yLabel = 'Fringe order', secondary = null, xLabel = 'Distance along the line', mmPerPx = null, mark = null } = {}) {
   const { ctx, w, h } = prepare(canvas);
-  const pad = { left: 56, right: stressPerOrder ? 64 : 16, top: 12, bottom: 40 };
-  const valued = samples.filter((s) => Number.isFinite(s.order));
+  const pad = { left: 56, right: secondary ? 64 : 16, top: 12, bottom: mmPerPx ? 54 : 40 };
+  const valued = samples.filter((s) => Number.isFinite(s.value));
   const length = samples.length ? samples[samples.length - 1].distance : 1;
-  const yMax = Math.max(0.5, ...valued.map((s) => s.order)) * 1.05;
+  const yMax = Math.max(0.5, ...valued.map((s) => s.value)) * 1.05;
   const xOf = (d) => pad.left + (d / (length || 1)) * (w - pad.left - pad.right);
   const yOf = (n) => h - pad.bottom - (n / yMax) * (h - pad.top - pad.bottom);
 
@@ -237,15 +246,15 @@ export function drawProfile(canvas, samples, stressPerOrder) {
     ctx.stroke();
     text(ctx, fmt(v, 1), pad.left - 8, y, 'right');
   }
-  if (stressPerOrder) {
-    const sMax = yMax * stressPerOrder;
+  if (secondary) {
+    const sMax = yMax * secondary.perUnit;
     for (const v of ticks(0, sMax, 5)) {
-      text(ctx, fmt(v, v < 10 ? 1 : 0), w - pad.right + 8, yOf(v / stressPerOrder), 'left', MUTED);
+      text(ctx, fmt(v, v < 10 ? 1 : 0), w - pad.right + 8, yOf(v / secondary.perUnit), 'left', MUTED);
     }
     ctx.save();
     ctx.translate(w - 10, (pad.top + h - pad.bottom) / 2);
     ctx.rotate(Math.PI / 2);
-    text(ctx, 'σ1 − σ2 (MPa)', 0, 0, 'center', MUTED);
+    text(ctx, secondary.label, 0, 0, 'center', MUTED);
     ctx.restore();
   }
   for (const v of ticks(0, length, Math.max(2, Math.floor(w / 100)))) {
@@ -256,29 +265,40 @@ export function drawProfile(canvas, samples, stressPerOrder) {
     ctx.lineTo(x, h - pad.bottom);
     ctx.stroke();
     text(ctx, fmt(v, 0), x, h - pad.bottom + 12, 'center');
+    if (mmPerPx) text(ctx, fmt(v * mmPerPx, 1), x, h - pad.bottom + 26, 'center', MUTED);
   }
-  text(ctx, 'Distance along the line (pixels)', (w + pad.left - pad.right) / 2, h - 10, 'center', MUTED);
+  const units = mmPerPx ? 'pixels; mm below' : 'pixels';
+  text(ctx, `${xLabel} (${units})`, (w + pad.left - pad.right) / 2, h - 10, 'center', MUTED);
   ctx.save();
   ctx.translate(14, (pad.top + h - pad.bottom) / 2);
   ctx.rotate(-Math.PI / 2);
-  text(ctx, 'Fringe order', 0, 0, 'center', MUTED);
+  text(ctx, yLabel, 0, 0, 'center', MUTED);
   ctx.restore();
 
+  ctx.fillStyle = 'rgba(194, 65, 12, 0.18)';
+  for (const s of samples) {
+    if (s.shade) ctx.fillRect(xOf(s.distance) - 1, pad.top, 2, h - pad.top - pad.bottom);
+  }
   ctx.strokeStyle = INK;
   ctx.strokeRect(pad.left + 0.5, pad.top + 0.5, w - pad.left - pad.right, h - pad.top - pad.bottom);
-  // The curve, broken where there is no value.
+  // The curve, broken where there is no value and at gaps.
   ctx.beginPath();
   let open = false;
   for (const s of samples) {
-    if (!Number.isFinite(s.order)) {
-      open = false;
-      continue;
-    }
-    if (open) ctx.lineTo(xOf(s.distance), yOf(s.order));
-    else ctx.moveTo(xOf(s.distance), yOf(s.order));
+    if (!Number.isFinite(s.value) || s.gap) open = false;
+    if (!Number.isFinite(s.value)) continue;
+    if (open) ctx.lineTo(xOf(s.distance), yOf(s.value));
+    else ctx.moveTo(xOf(s.distance), yOf(s.value));
     open = true;
   }
   ctx.strokeStyle = '#1f4e96';
   ctx.lineWidth = 2;
   ctx.stroke();
+  if (mark) {
+    ctx.beginPath();
+    ctx.arc(xOf(mark.distance), yOf(mark.value), 5, 0, Math.PI * 2);
+    ctx.strokeStyle = '#c2410c';
+    ctx.lineWidth = 2;
+    ctx.stroke();
+  }
 }

@@ -4,7 +4,12 @@
 // 1 % of the known one, caution shown) and see a refused estimate explained, analyse the demo
 // disc photo with the saved calibration inside an outline drawn on the photo, read values by
 // hovering, draw a profile line and download the NPY map, whose shape must equal the photo's
-// (height, width).
+// (height, width). Then the engineering results: the σ1 − σ2 layer with its numbered MPa bar,
+// lower bound and caution (thickness pre-filled from the calibration), its NPY download; the
+// scale from two clicked points a known distance apart; the free-edge stress along the outline
+// with K_t; the comparison with the disc's closed-form prediction and its difference layer; the
+// demo beam's edge stress against beam theory, 6M/(t·d²); and the load-series page, whose
+// fringe value must match the disc's.
 //
 // Usage: node workbench.mjs BASE_URL DEMO_DIR
 // DEMO_DIR is what `isotint demo --out DEMO_DIR` writes; its scenario.json names the photos,
@@ -57,8 +62,10 @@ function npyShape(bytes) {
   return [rows, cols];
 }
 
-// Screen position of an image point on a view canvas (image coordinates in pixels).
+// Screen position of an image point on a view canvas (image coordinates in pixels), scrolled
+// into view first (the settings beside it are taller than the window).
 async function screenPoint(canvas, size, p) {
+  await canvas.scrollIntoViewIfNeeded();
   const box = await canvas.boundingBox();
   return { x: box.x + (p.x / size.width) * box.width, y: box.y + (p.y / size.height) * box.height };
 }
@@ -122,6 +129,7 @@ async function main(browser) {
     await cal.getByLabel('Edge fringe order').fill(String(beam.field.edge_order));
     await cal.getByLabel('Name', { exact: true }).fill(calibrationName);
     await cal.getByLabel('Material', { exact: true }).fill('demo model material');
+    await cal.getByLabel('Thickness (mm)', { exact: true }).fill(String(scenario.thickness_mm));
     check(await cal.getByRole('button', { name: 'Save calibration' }).isDisabled(), 'saving is possible before the fit was checked');
     await cal.getByRole('button', { name: /Check the fit/ }).click();
     await shownOrFail(page, '#cf-report', '#cf-error', 'the dry run');
@@ -198,8 +206,11 @@ async function main(browser) {
     await select.locator('option', { hasText: calibrationName }).waitFor({ state: 'attached' });
     const value = await select.locator('option', { hasText: calibrationName }).getAttribute('value');
     await select.selectOption(value);
+    // The thickness stored with the calibration is filled in; the fringe value is typed.
+    const thickness = await an.getByLabel('Thickness (mm)', { exact: true }).inputValue();
+    check(Number(thickness) === scenario.thickness_mm, `thickness pre-filled as ${thickness}, the calibration has ${scenario.thickness_mm}`);
+    check(/from the calibration/.test(await page.locator('#an-material-source').textContent()), 'the pre-filled thickness does not say where it came from');
     await an.getByLabel('Material fringe value (N/mm per fringe)').fill(String(scenario.fringe_value_n_per_mm));
-    await an.getByLabel('Thickness (mm)', { exact: true }).fill(String(scenario.thickness_mm));
     // Outline: a 16-sided polygon just inside the disc's rim, closed on its first corner.
     await an.getByLabel('Draw an outline on the photo').check();
     const view = page.locator('#an-view');
@@ -271,6 +282,223 @@ async function main(browser) {
     const head = fs.readFileSync(file).subarray(0, 5).toString('latin1');
     check(head === '%PDF-', `the report download starts ${JSON.stringify(head)}`);
     check(/^stress-report-.*\.pdf$/.test(download.suggestedFilename()), `report file ${download.suggestedFilename()}`);
+  });
+
+  const perFringe = scenario.fringe_value_n_per_mm / scenario.thickness_mm;
+  let discStressMax;
+  await step('the stress layer shows σ1 − σ2 in MPa with its own numbered bar, a lower bound and the caution', async () => {
+    await an.locator('input[name="an-layer"][value="stress"]').check();
+    await page.locator('#an-legend-caption', { hasText: 'σ1 − σ2 (MPa)' }).waitFor();
+    const bar = await page.locator('#an-colourbar').getAttribute('aria-label');
+    check(/σ1 − σ2 in MPa from 0 to [\d.]+, numbered 0, /.test(bar), `colour bar: ${bar}`);
+    await page.locator('#an-stress-stats dt', { hasText: 'Largest σ1 − σ2' }).waitFor();
+    const largest = await described(page, '#an-stress-stats', 'Largest σ1 − σ2');
+    // The demo disc is loaded past the calibration: the maximum is only a lower bound.
+    check(/^at least [\d.]+ MPa \(a lower bound\)$/.test(largest), `largest σ1 − σ2: ${largest}`);
+    discStressMax = Number(/[\d.]+/.exec(largest)[0]);
+    check(/lower bound/.test(await page.locator('#an-stress-bound').textContent()), 'no lower-bound note beside the stresses');
+    const caution = await page.locator('#an-stress-caution').textContent();
+    check(/do not replace/.test(caution) && /licensed engineering practice/.test(caution), `stress caution: ${caution}`);
+    const law = await described(page, '#an-stress-stats', 'Law');
+    check(law.includes(`${perFringe.toFixed(4)} MPa per fringe`), `law: ${law}`);
+    await shot(page, '5-stress-layer');
+  });
+
+  // Reads a float32 NPY file: {rows, cols, values}.
+  function npyFloats(bytes) {
+    const [rows, cols] = npyShape(bytes);
+    const headerLength = bytes.readUInt16LE(8);
+    const data = bytes.subarray(10 + headerLength);
+    const values = new Float32Array(data.buffer.slice(data.byteOffset, data.byteOffset + data.length));
+    return { rows, cols, values };
+  }
+
+  await step('the stress map downloads as NPY in MPa: its largest value is the one shown', async () => {
+    const [download] = await Promise.all([page.waitForEvent('download'), page.getByRole('link', { name: 'σ1 − σ2 (NPY, MPa)' }).click()]);
+    const file = path.join(fs.mkdtempSync(path.join(os.tmpdir(), 'isotint-stress-')), download.suggestedFilename());
+    await download.saveAs(file);
+    const { rows, cols, values } = npyFloats(fs.readFileSync(file));
+    check(rows === discSize.height && cols === discSize.width, `stress NPY shape (${rows}, ${cols})`);
+    const max = values.reduce((m, v) => (Number.isFinite(v) && v > m ? v : m), 0);
+    check(Math.abs(max - discStressMax) <= 0.006, `largest value ${max} MPa in the file, ${discStressMax} shown`);
+  });
+
+  const { centre, radius_px: radius } = disc.field;
+  const diameterMm = disc.field.disc.diameter_mm;
+  await step('the scale tool sets millimetres per pixel from two points a known distance apart', async () => {
+    await an.getByLabel('Scale', { exact: true }).check();
+    const view = page.locator('#an-view');
+    const a = await screenPoint(view, discSize, { x: centre.x - radius, y: centre.y });
+    const b = await screenPoint(view, discSize, { x: centre.x + radius, y: centre.y });
+    await page.mouse.move(a.x, a.y);
+    await page.mouse.down();
+    await page.mouse.move(b.x, b.y, { steps: 6 });
+    await page.mouse.up();
+    await an.getByLabel('Known distance (mm)').fill(String(diameterMm));
+    await an.getByRole('button', { name: 'Set the scale from the two points' }).click();
+    const mmPerPx = Number(await an.getByLabel('Millimetres per pixel').inputValue());
+    // source: the scenario draws the disc's diameter (mm) across 2 × its radius (px); the clicks
+    // land within a screen pixel, about one image pixel here, of 520 px: 0.5 %.
+    const expected = diameterMm / (2 * radius);
+    check(Math.abs(mmPerPx - expected) <= 0.005 * expected, `${mmPerPx} mm per pixel, the scenario draws ${expected}`);
+    console.log(`# scale ${mmPerPx} mm/px (drawn ${expected})`);
+    const caption = await page.locator('#an-profile-caption').textContent();
+    check(/px \([\d.]+ mm\)/.test(caption), `the profile gives no mm: ${caption}`);
+    const p = await screenPoint(view, discSize, { x: centre.x, y: centre.y });
+    await page.mouse.move(p.x, p.y);
+    const readout = await page.locator('#an-readout').textContent();
+    check(/\) mm/.test(readout), `the readout gives no mm: ${readout}`);
+  });
+
+  await step('the free-edge stress along the outline is plotted with its maximum marked and K_t', async () => {
+    // Nominal stress: the disc's centre σ1 − σ2 = 8P/(πDh) (Timoshenko & Goodier §41).
+    const nominal = (8 * disc.field.disc.load_n) / (Math.PI * diameterMm * scenario.thickness_mm);
+    await an.getByLabel(/^Nominal stress/).fill(nominal.toFixed(4));
+    await an.getByRole('button', { name: 'Sample the edge' }).click();
+    await shownOrFail(page, '#an-edge-figure', '#an-boundary-error', 'the edge stress');
+    const largest = await described(page, '#an-boundary-stats', 'Largest |σ_t| at the edge');
+    const kt = await described(page, '#an-boundary-stats', 'K_t = σ_max / σ_nom');
+    const where = await described(page, '#an-boundary-stats', 'Where');
+    console.log(`# edge: ${largest}; K_t ${kt}; at ${where}`);
+    const value = Number(/[\d.]+/.exec(largest)[0]);
+    const ktValue = Number(/[\d.]+/.exec(kt)[0]);
+    check(Math.abs(ktValue - value / nominal) <= 0.002 * ktValue + 0.001, `K_t ${ktValue} but ${value} / ${nominal}`);
+    check(/px = \([\d.]+, [\d.]+\) mm/.test(where) && /along the edge/.test(where), `position: ${where}`);
+    if (/at least/.test(largest)) check(await page.locator('#an-boundary-bound').isVisible(), 'a lower bound without its note');
+    const caption = await page.locator('#an-edge-caption').textContent();
+    check(/along the edge, \d+ px \([\d.]+ mm\) in 1 stretch/.test(caption), `edge caption: ${caption}`);
+    await shot(page, '6-edge-stress');
+  });
+
+  await step('the comparison with the disc’s predicted field shows its figures and the difference layer', async () => {
+    await an.getByLabel(/^Prediction \(CSV/).setInputFiles(path.join(demoDir, disc.prediction));
+    await an.getByLabel('Point pair', { exact: true }).check();
+    const view = page.locator('#an-view');
+    const scale = discSize.width / (await view.boundingBox()).width;
+    for (const [i, pair] of disc.prediction_pairs.entries()) {
+      // The first pair's pixel is picked on the photo, the others typed.
+      if (i === 0) {
+        const p = await screenPoint(view, discSize, { x: pair.x_px, y: pair.y_px });
+        await page.mouse.click(p.x, p.y);
+        const picked = Number(await page.locator('#an-pair-xpx').inputValue());
+        check(Math.abs(picked - pair.x_px) <= scale + 0.1, `picked x ${picked}, aimed at ${pair.x_px}`);
+      }
+      await page.locator('#an-pair-xpx').fill(String(pair.x_px));
+      await page.locator('#an-pair-ypx').fill(String(pair.y_px));
+      await page.locator('#an-pair-xmm').fill(String(pair.x_mm));
+      await page.locator('#an-pair-ymm').fill(String(pair.y_mm));
+      await an.getByRole('button', { name: 'Add pair' }).click();
+    }
+    check((await page.locator('#an-pairs li').count()) === disc.prediction_pairs.length, 'pairs not listed');
+    await an.getByRole('button', { name: 'Compare' }).click();
+    await shownOrFail(page, '#an-compare-stats dt:first-child', '#an-compare-error', 'the comparison');
+    const meanAbs = Number(/[\d.]+/.exec(await described(page, '#an-compare-stats', 'Mean |measured − predicted|'))[0]);
+    const registration = await described(page, '#an-compare-stats', 'Registration');
+    console.log(`# comparison: mean |Δ| ${meanAbs} MPa; ${registration}`);
+    // source: the prediction is the disc's closed form (Timoshenko & Goodier §41), whose centre
+    // σ1 − σ2 is 8P/(πDh); the map should agree with it within 2 % of that on average.
+    const centreStress = (8 * disc.field.disc.load_n) / (Math.PI * diameterMm * scenario.thickness_mm);
+    check(meanAbs < 0.02 * centreStress, `mean |Δ| ${meanAbs} MPa against a centre stress of ${centreStress}`);
+    check(/^affine from 3 pairs/.test(registration) && /mirrored/.test(registration), `registration: ${registration}`);
+    await page.locator('#an-legend-caption', { hasText: 'Measured − predicted (MPa)' }).waitFor();
+    check(await an.locator('input[name="an-layer"][value="difference"]').isChecked(), 'the difference layer is not shown');
+    await shot(page, '7-comparison');
+  });
+
+  await step('on the demo beam the edge stress matches beam theory, 6M/(t·d²), with positions in mm', async () => {
+    await an.getByLabel('1. Photo of the specimen').setInputFiles(beamFile);
+    await page.locator('#an-readout', { hasText: `Photo ${beam.width} × ${beam.height} px.` }).waitFor();
+    await an.getByLabel('Mask file (PNG, non-zero = specimen)').check();
+    await page.locator('#an-mask-file').setInputFiles(path.join(demoDir, beam.mask));
+    await an.getByLabel('Millimetres per pixel').fill(String(beam.mm_per_px));
+    await an.getByRole('button', { name: 'Make the fringe-order map' }).click();
+    await page.getByText(/^Map ready: 1000 × 400/).waitFor();
+    await an.locator('input[name="an-layer"][value="stress"]').check();
+    await page.locator('#an-stress-stats dt', { hasText: 'Largest σ1 − σ2' }).waitFor();
+    await an.getByLabel(/^Nominal stress/).fill('');
+    await an.getByRole('button', { name: 'Sample the edge' }).click();
+    await shownOrFail(page, '#an-edge-figure', '#an-boundary-error', 'the beam edge stress');
+    const largest = await described(page, '#an-boundary-stats', 'Largest |σ_t| at the edge');
+    const where = await described(page, '#an-boundary-stats', 'Where');
+    const value = Number(/[\d.]+/.exec(largest)[0]);
+    // source: beam theory, σ = 6M/(t·d²) at the edges of the constant-moment zone, falling
+    // linearly to 0 at the neutral axis.
+    const expected = (6 * beam.moment_n_mm) / (scenario.thickness_mm * beam.depth_mm ** 2);
+    console.log(`# beam edge: ${largest} at ${where}; beam theory ${expected.toFixed(3)} MPa`);
+    // The beam's edge order equals the calibration's last order, so pixels at its edges lie
+    // beyond the table: the workbench must then call the edge maximum a lower bound, and it
+    // may not read above beam theory (3 %) nor far below it (7 %).
+    if (/at least/.test(largest)) {
+      check(await page.locator('#an-boundary-bound').isVisible(), 'a lower bound without its note');
+      check(value <= 1.03 * expected && value >= 0.93 * expected, `edge stress at least ${value} MPa, beam theory ${expected}`);
+    } else {
+      check(Math.abs(value - expected) <= 0.03 * expected, `edge stress ${value} MPa, beam theory ${expected}`);
+    }
+    // The stress layer itself, read in the middle of the constant-moment zone 10, 20 and 40 px
+    // inside the bottom edge, follows the linear profile within 3 %.
+    const view = page.locator('#an-view');
+    const { left, right } = beam.constant_moment_zone;
+    const mid = (beam.field.beam.top + beam.field.beam.bottom) / 2;
+    const half = (beam.field.beam.bottom - beam.field.beam.top) / 2;
+    for (const inset of [10, 20, 40]) {
+      const y = Math.floor(beam.field.beam.bottom - inset) + 0.5;
+      const x = Math.floor((left + right) / 2) + 0.5;
+      const p = await screenPoint(view, beam, { x, y });
+      await page.mouse.move(p.x, p.y);
+      const readout = await page.locator('#an-readout').textContent();
+      const read = /σ1 − σ2 = ([\d.]+)/.exec(readout);
+      check(read, `no stress at (${x}, ${y}): ${readout}`);
+      const theory = (expected * Math.abs(y - mid)) / half;
+      console.log(`# beam stress layer ${inset} px inside: ${read[1]} MPa, beam theory ${theory.toFixed(3)}`);
+      check(Math.abs(Number(read[1]) - theory) <= 0.03 * theory, `${readout}; beam theory ${theory}`);
+    }
+    const [, yMm] = /= \([\d.]+, ([\d.]+)\) mm/.exec(where);
+    const edges = [beam.field.beam.top, beam.field.beam.bottom].map((y) => y * beam.mm_per_px);
+    check(edges.some((e) => Math.abs(Number(yMm) - e) <= 0.15), `the maximum lies at y = ${yMm} mm, not on an edge (${edges} mm)`);
+    const stressMax = await described(page, '#an-stress-stats', 'Largest σ1 − σ2');
+    console.log(`# beam stress layer: largest ${stressMax}`);
+    await shot(page, '8-beam-edge-stress');
+  });
+
+  await step('the load-series page fits two photos of the disc and gives its fringe value', async () => {
+    await page.getByRole('navigation').getByRole('link', { name: 'Load series' }).click();
+    const se = page.locator('#page-series');
+    const select = se.getByLabel('Calibration', { exact: true });
+    await select.locator('option', { hasText: calibrationName }).first().waitFor({ state: 'attached' });
+    await select.selectOption(await select.locator('option', { hasText: calibrationName }).first().getAttribute('value'));
+    const load = disc.field.disc.load_n;
+    for (const i of [1, 2]) {
+      await se.getByLabel(`Photo ${i}`, { exact: true }).setInputFiles(discFile);
+      await se.getByLabel(`Load ${i} (N)`).fill(String(load));
+    }
+    await se.getByLabel('Disc diameter (mm)').fill(String(diameterMm));
+    await se.getByLabel('Disc thickness (mm)').fill(String(scenario.thickness_mm));
+    // First the beam's mask, of another size than the photos: the service's refusal is shown.
+    await se.getByLabel(/^Mask/).setInputFiles(path.join(demoDir, beam.mask));
+    refusalsProvoked += 1;
+    await se.getByRole('button', { name: 'Fit the series' }).click();
+    const refusal = page.locator('#se-error');
+    await refusal.waitFor({ state: 'visible' });
+    const refused = await refusal.textContent();
+    check(/mask/.test(refused), `a mask of another size: ${refused}`);
+    await se.getByLabel(/^Mask/).setInputFiles(path.join(demoDir, disc.mask));
+    await se.getByRole('button', { name: 'Fit the series' }).click();
+    await shownOrFail(page, '#se-result', '#se-error', 'the load series');
+    const f = Number(/[\d.]+/.exec(await described(page, '#se-values', 'Material fringe value f_σ'))[0]);
+    const linearity = await described(page, '#se-values', 'Linearity (rms of N − s·P)');
+    const nonScaling = await described(page, '#se-values', 'Pixels that do not scale');
+    console.log(`# series: f_σ ${f}; linearity ${linearity}; not scaling ${nonScaling}`);
+    // source: Timoshenko & Goodier §41, σ1 − σ2 = 8P/(πDh) at the centre; the demo disc is drawn
+    // with the scenario's fringe value; 2 %.
+    check(Math.abs(f - scenario.fringe_value_n_per_mm) <= 0.02 * scenario.fringe_value_n_per_mm, `f_σ ${f}, drawn with ${scenario.fringe_value_n_per_mm}`);
+    // The same photo twice at one load scales exactly.
+    check(/^0\.0000 fringes$/.test(linearity) && /^0\.0 %/.test(nonScaling), `${linearity}; ${nonScaling}`);
+    check(/do not replace/.test(await page.locator('#se-caution').textContent()), 'no caution beside the series');
+    await se.getByRole('button', { name: 'Remove photo 2' }).click();
+    await se.getByRole('button', { name: 'Fit the series' }).click();
+    const error = await page.locator('#se-error').textContent();
+    check(/at least two photos/.test(error), `one photo: ${error}`);
+    await shot(page, '9-load-series');
   });
 
   await step('the page logged no errors and loaded nothing from elsewhere', async () => {

@@ -19,7 +19,7 @@ use std::io::Write;
 use serde::Serialize;
 
 use crate::error::{CoreError, CoreResult};
-use crate::geometry::PixelPoint;
+use crate::geometry::{PixelPoint, Scale};
 use crate::order_map::{OrderMap, PixelFlags};
 use crate::stress::{positive, stress_concentration_factor, StressOpticLaw, STRESS_CAUTION};
 
@@ -74,6 +74,12 @@ pub struct EdgeSample {
     pub stress_mpa: Option<f64>,
     /// Whether a beyond-range pixel lies between the edge and the second sample.
     pub beyond_range: bool,
+    /// Which stretch of edge the point lies on: each closed outline (or open one, where the
+    /// mask meets the photo's border) in the order walked; 0 along a polyline.
+    pub contour: usize,
+    /// Distance along the edge from its first point, px: summed between neighbouring points
+    /// of one contour, each contour going on where the one before ended.
+    pub along_px: f64,
 }
 
 /// The free-edge stress of a map along an edge.
@@ -107,9 +113,31 @@ pub struct BoundaryStress {
     pub sample_insets_px: [f64; 2],
     /// Results support, and do not replace, engineering judgement.
     pub caution: String,
-    /// Every edge point, in raster order of the outline's pixels or along the polyline.
+    /// The photo's scale, mm per pixel, when one was given ([`BoundaryStress::with_scale`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mm_per_px: Option<f64>,
+    /// `x` in mm from the photo's left edge, with a scale.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub x_mm: Option<f64>,
+    /// `y` in mm from the photo's top edge, with a scale.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub y_mm: Option<f64>,
+    /// Every edge point, in order along each contour of the outline or along the polyline.
     #[serde(skip)]
     pub samples: Vec<EdgeSample>,
+}
+
+impl BoundaryStress {
+    /// The same result with positions also in millimetres (`mm_per_px`, `x_mm`, `y_mm`; the
+    /// edge CSV gains `x_mm,y_mm,along_mm`).
+    pub fn with_scale(self, scale: Scale) -> BoundaryStress {
+        BoundaryStress {
+            mm_per_px: Some(scale.mm_per_px()),
+            x_mm: Some(scale.mm(self.x)),
+            y_mm: Some(scale.mm(self.y)),
+            ..self
+        }
+    }
 }
 
 /// Samples the free-edge stress of `map` along `path` through `law`; with a nominal stress
@@ -130,10 +158,19 @@ pub fn boundary_stress(
         EdgePath::Outline => grid.outline(),
         EdgePath::Polyline(points) => grid.polyline(points)?,
     };
-    let samples: Vec<EdgeSample> = edge
+    let mut samples: Vec<EdgeSample> = edge
         .into_iter()
-        .map(|(at, normal)| grid.sample(at, normal, law))
+        .map(|(at, normal, contour)| grid.sample(at, normal, contour, law))
         .collect();
+    for i in 1..samples.len() {
+        let (before, this) = (samples[i - 1], samples[i]);
+        let step = if before.contour == this.contour {
+            (this.x - before.x).hypot(this.y - before.y)
+        } else {
+            0.0
+        };
+        samples[i].along_px = before.along_px + step;
+    }
     let peak = samples
         .iter()
         .filter_map(|s| Some((s, s.stress_mpa?)))
@@ -172,28 +209,48 @@ pub fn boundary_stress(
         thickness_mm: law.thickness_mm,
         sample_insets_px: [SAMPLE_INSET_PX, SECOND_INSET_PX],
         caution: STRESS_CAUTION.to_string(),
+        mm_per_px: None,
+        x_mm: None,
+        y_mm: None,
         samples,
     })
 }
 
-/// The edge as CSV: header `x,y,normal_x,normal_y,order,stress_mpa,beyond_range`, one line per
-/// edge point (empty order and stress where it has no value; beyond_range 0 or 1).
+/// The edge as CSV: header `x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px`
+/// and, with a scale, `x_mm,y_mm,along_mm`; one line per edge point in order along the edge
+/// (empty order and stress where it has no value; beyond_range 0 or 1).
 pub fn edge_csv(result: &BoundaryStress) -> Vec<u8> {
-    let mut out = Vec::with_capacity(48 * (result.samples.len() + 1));
-    out.extend_from_slice(b"x,y,normal_x,normal_y,order,stress_mpa,beyond_range\n");
+    let mut out = Vec::with_capacity(64 * (result.samples.len() + 1));
+    out.extend_from_slice(b"x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px");
+    if result.mm_per_px.is_some() {
+        out.extend_from_slice(b",x_mm,y_mm,along_mm");
+    }
+    out.push(b'\n');
     for s in &result.samples {
         let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
-        let _ = writeln!(
+        let _ = write!(
             out,
-            "{:.2},{:.2},{:.4},{:.4},{},{},{}",
+            "{:.2},{:.2},{:.4},{:.4},{},{},{},{},{:.2}",
             s.x,
             s.y,
             s.normal_x,
             s.normal_y,
             number(s.order),
             number(s.stress_mpa),
-            u8::from(s.beyond_range)
+            u8::from(s.beyond_range),
+            s.contour,
+            s.along_px
         );
+        if let Some(mm) = result.mm_per_px {
+            let _ = write!(
+                out,
+                ",{:.4},{:.4},{:.4}",
+                s.x * mm,
+                s.y * mm,
+                s.along_px * mm
+            );
+        }
+        out.push(b'\n');
     }
     out
 }
@@ -214,24 +271,94 @@ impl Grid<'_> {
         self.flags(x, y).map(|f| !f.has(PixelFlags::OUTSIDE_MASK))
     }
 
-    /// Points on the mask's edges with their inward normals: every specimen pixel with a
-    /// non-specimen 4-neighbour on the photo, moved half a pixel outwards from its centre.
-    fn outline(&self) -> Vec<(PixelPoint, [f64; 2])> {
+    /// Points on the mask's edges with their inward normals and contour numbers, in order
+    /// along each edge: every specimen pixel with a non-specimen 4-neighbour on the photo,
+    /// moved half a pixel outwards from its centre. The edges are walked along the cracks
+    /// between specimen and other pixels, the specimen on the right (outer edges run clockwise
+    /// on screen, holes the other way; where two specimen pixels touch only at a corner the
+    /// walk turns right, keeping to one of them). Open stretches, which end where the mask meets
+    /// the photo's border, are walked first, from the border. A pixel is taken where the walk
+    /// first meets it. Memory: one byte a pixel besides the points.
+    fn outline(&self) -> Vec<(PixelPoint, [f64; 2], usize)> {
+        /// Unit steps of the four directions a crack runs in: east, south, west, north (y down).
+        const FORWARD: [(i64, i64); 4] = [(1, 0), (0, 1), (-1, 0), (0, -1)];
+        /// Where a crack of each direction starts, from its pixel's top-left corner.
+        const START: [(i64, i64); 4] = [(0, 0), (1, 0), (1, 1), (0, 1)];
+        /// The bit of `state` that marks a pixel taken.
+        const TAKEN: u8 = 1 << 4;
         let (w, h) = (i64::from(self.map.width), i64::from(self.map.height));
+        let is = |x: i64, y: i64, specimen: bool| self.specimen(x, y) == Some(specimen);
+        // Crack (x, y, d): pixel (x, y) is specimen and its neighbour on the crack's left (the
+        // side away from the specimen) is a non-specimen pixel on the photo.
+        let crack = |x: i64, y: i64, d: usize| {
+            let (rx, ry) = FORWARD[(d + 1) % 4];
+            is(x, y, true) && is(x - rx, y - ry, false)
+        };
+        let from_border = |x: i64, y: i64, d: usize| {
+            let (sx, sy) = (x + START[d].0, y + START[d].1);
+            sx == 0 || sy == 0 || sx == w || sy == h
+        };
+        // Per pixel: bits 0–3, its crack of that direction walked; TAKEN.
+        let mut state = vec![0u8; (w * h) as usize];
         let mut edge = Vec::new();
-        for y in 0..h {
-            for x in 0..w {
-                let on_edge = self.specimen(x, y) == Some(true)
-                    && [(-1, 0), (1, 0), (0, -1), (0, 1)]
-                        .iter()
-                        .any(|(dx, dy)| self.specimen(x + dx, y + dy) == Some(false));
-                if let (true, Some(n)) = (on_edge, self.inward_normal(x, y)) {
-                    let centre = (x as f64 + 0.5, y as f64 + 0.5);
-                    let at = PixelPoint {
-                        x: centre.0 - 0.5 * n[0],
-                        y: centre.1 - 0.5 * n[1],
+        let mut contour = 0;
+        // First the open stretches, which start at the photo's border (only the pixels of its
+        // outer rows and columns have cracks starting there), then every closed one.
+        let border_pixels: Vec<(i64, i64)> = (0..h)
+            .flat_map(|y| {
+                let xs: Vec<i64> = if y == 0 || y == h - 1 {
+                    (0..w).collect()
+                } else {
+                    vec![0, w - 1]
+                };
+                xs.into_iter().map(move |x| (x, y))
+            })
+            .collect();
+        let every_pixel = (0..h).flat_map(|y| (0..w).map(move |x| (x, y)));
+        let open_starts = border_pixels.into_iter().map(|p| (p, true));
+        for ((x0, y0), open_only) in open_starts.chain(every_pixel.map(|p| (p, false))) {
+            for d0 in 0..4 {
+                let walked = state[(y0 * w + x0) as usize] & (1 << d0) != 0;
+                if walked || !crack(x0, y0, d0) || (open_only && !from_border(x0, y0, d0)) {
+                    continue;
+                }
+                let before = edge.len();
+                let (mut x, mut y, mut d) = (x0, y0, d0);
+                loop {
+                    let i = (y * w + x) as usize;
+                    state[i] |= 1 << d;
+                    if state[i] & TAKEN == 0 {
+                        state[i] |= TAKEN;
+                        if let Some(n) = self.inward_normal(x, y) {
+                            let point = PixelPoint {
+                                x: x as f64 + 0.5 - 0.5 * n[0],
+                                y: y as f64 + 0.5 - 0.5 * n[1],
+                            };
+                            edge.push((point, n, contour));
+                        }
+                    }
+                    // The pixels ahead of the crack's end: on the specimen's side, and beyond
+                    // it on the other. Right turn first, then straight on, then left.
+                    let (fx, fy) = FORWARD[d];
+                    let (rx, ry) = FORWARD[(d + 1) % 4];
+                    let ahead = (x + fx, y + fy);
+                    let across = (ahead.0 - rx, ahead.1 - ry);
+                    let next = if is(ahead.0, ahead.1, false) {
+                        (x, y, (d + 1) % 4)
+                    } else if is(ahead.0, ahead.1, true) && is(across.0, across.1, false) {
+                        (ahead.0, ahead.1, d)
+                    } else if is(across.0, across.1, true) {
+                        (across.0, across.1, (d + 3) % 4)
+                    } else {
+                        break; // the photo's border
                     };
-                    edge.push((at, n));
+                    if state[(next.1 * w + next.0) as usize] & (1 << next.2) != 0 {
+                        break; // round
+                    }
+                    (x, y, d) = next;
+                }
+                if edge.len() > before {
+                    contour += 1;
                 }
             }
         }
@@ -262,7 +389,7 @@ impl Grid<'_> {
 
     /// Points every [`POLYLINE_STEP_PX`] along `points`, with the normal of their segment
     /// turned to the side the specimen lies on.
-    fn polyline(&self, points: &[PixelPoint]) -> CoreResult<Vec<(PixelPoint, [f64; 2])>> {
+    fn polyline(&self, points: &[PixelPoint]) -> CoreResult<Vec<(PixelPoint, [f64; 2], usize)>> {
         let (w, h) = (f64::from(self.map.width), f64::from(self.map.height));
         if points.len() < 2 {
             return Err(CoreError::invalid(
@@ -328,7 +455,7 @@ impl Grid<'_> {
         let side = if left > right { 1.0 } else { -1.0 };
         Ok(edge
             .into_iter()
-            .map(|(at, n)| (at, [side * n[0], side * n[1]]))
+            .map(|(at, n)| (at, [side * n[0], side * n[1]], 0))
             .collect())
     }
 
@@ -356,8 +483,15 @@ impl Grid<'_> {
         Some(sum)
     }
 
-    /// Reads the edge point `at` with inward normal `n`.
-    fn sample(&self, at: PixelPoint, n: [f64; 2], law: &StressOpticLaw) -> EdgeSample {
+    /// Reads the edge point `at` with inward normal `n` on contour `contour` (`along_px` is
+    /// left 0 for the caller).
+    fn sample(
+        &self,
+        at: PixelPoint,
+        n: [f64; 2],
+        contour: usize,
+        law: &StressOpticLaw,
+    ) -> EdgeSample {
         let along = |d: f64| [at.x + d * n[0], at.y + d * n[1]];
         let beyond_range = (0..=(2.0 * SECOND_INSET_PX) as usize).any(|k| {
             let p = along(0.5 * k as f64);
@@ -379,6 +513,8 @@ impl Grid<'_> {
             order,
             stress_mpa: order.map(|n| law.stress_difference_mpa(n)),
             beyond_range,
+            contour,
+            along_px: 0.0,
         }
     }
 }

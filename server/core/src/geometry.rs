@@ -117,6 +117,38 @@ fn centre_range(lo: f64, hi: f64) -> std::ops::Range<u32> {
     first..end.max(first)
 }
 
+/// The physical scale of a photo: millimetres per pixel, the same along x and y (square
+/// pixels, a view square to the specimen). Set from two points a known distance apart or typed.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Scale {
+    mm_per_px: f64,
+}
+
+impl Scale {
+    /// A scale of `mm_per_px` millimetres per pixel; refused naming `mm_per_px` unless it is a
+    /// positive finite number.
+    pub fn new(mm_per_px: f64) -> CoreResult<Scale> {
+        if mm_per_px.is_finite() && mm_per_px > 0.0 {
+            Ok(Scale { mm_per_px })
+        } else {
+            Err(CoreError::invalid(
+                "mm_per_px",
+                format!("must be a positive number of millimetres per pixel, got {mm_per_px}"),
+            ))
+        }
+    }
+
+    /// Millimetres per pixel.
+    pub fn mm_per_px(&self) -> f64 {
+        self.mm_per_px
+    }
+
+    /// A length or position of `px` pixels in millimetres.
+    pub fn mm(&self, px: f64) -> f64 {
+        px * self.mm_per_px
+    }
+}
+
 /// A point in pixel-edge coordinates (pixels; x right, y down).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct PixelPoint {

@@ -23,5 +23,5 @@ pub mod stress;
 pub use calibration::{CalibrationMetadata, CalibrationTable, TableEntry, TableSource};
 pub use colour::{DecodeLimits, Lab, Photo};
 pub use error::{CoreError, CoreResult};
-pub use geometry::{Mask, PixelPoint, PixelRect};
+pub use geometry::{Mask, PixelPoint, PixelRect, Scale};
 pub use order_map::{map_orders, MapOptions, OrderHint, OrderMap, PixelFlags};

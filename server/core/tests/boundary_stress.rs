@@ -70,7 +70,74 @@ fn the_outline_of_a_hand_built_map_carries_a_linear_order_exactly_to_the_edge() 
     assert_eq!(result.edge_points, 96);
     let csv = String::from_utf8(edge_csv(&result)).unwrap();
     assert_eq!(csv.lines().count(), 97);
-    assert!(csv.starts_with("x,y,normal_x,normal_y,order,stress_mpa,beyond_range\n"));
+    assert!(
+        csv.starts_with("x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px\n")
+    );
+}
+
+#[test]
+fn the_outline_is_walked_in_order_so_its_points_follow_one_another_around_the_edge() {
+    let map = rectangle_map();
+    let result = boundary_stress(&map, &law(), None, &EdgePath::Outline).unwrap();
+    let s = &result.samples;
+    // One closed outline: every step to the next point is short (a pixel along a side, a
+    // corner's diagonal) and the walk ends next to where it began.
+    assert!(s.iter().all(|p| p.contour == 0));
+    for pair in s.windows(2) {
+        let step = (pair[1].x - pair[0].x).hypot(pair[1].y - pair[0].y);
+        assert!(
+            step <= 1.5,
+            "a jump of {step} px from {:?} to {:?}",
+            pair[0],
+            pair[1]
+        );
+    }
+    let (first, last) = (s[0], s[s.len() - 1]);
+    assert!((last.x - first.x).hypot(last.y - first.y) <= 1.5);
+    assert_eq!(s[0].along_px, 0.0);
+    assert!(s.windows(2).all(|p| p[1].along_px > p[0].along_px));
+    // The points lie half a pixel outside the outline pixels' centres: along a side they are
+    // a pixel apart, at a corner pixel the normal is diagonal. Hand-worked: the 30 × 20
+    // rectangle's 96 edge pixels, walked round, give about its perimeter 2 · (29 + 19) = 96 px.
+    let total = last.along_px;
+    assert!((90.0..100.0).contains(&total), "{total}");
+}
+
+#[test]
+fn a_hole_is_a_second_contour_and_a_scale_gives_positions_in_millimetres() {
+    let mut map = rectangle_map();
+    // A 4 × 4 hole in the middle of the rectangle.
+    for y in 13..17 {
+        for x in 18..22 {
+            let i = (y * 40 + x) as usize;
+            map.order[i] = f32::NAN;
+            map.flags[i] = PixelFlags(PixelFlags::OUTSIDE_MASK);
+        }
+    }
+    let result = boundary_stress(&map, &law(), None, &EdgePath::Outline).unwrap();
+    let contours: std::collections::BTreeSet<usize> =
+        result.samples.iter().map(|s| s.contour).collect();
+    assert_eq!(contours.into_iter().collect::<Vec<_>>(), vec![0, 1]);
+    // Within a contour the distance along grows; the second goes on where the first ended.
+    for pair in result.samples.windows(2) {
+        assert!(pair[1].along_px >= pair[0].along_px);
+    }
+    let scaled = result
+        .clone()
+        .with_scale(isotint_core::Scale::new(0.25).unwrap());
+    assert_eq!(scaled.mm_per_px, Some(0.25));
+    assert_eq!(scaled.x_mm, Some(result.x * 0.25));
+    assert_eq!(scaled.y_mm, Some(result.y * 0.25));
+    let csv = String::from_utf8(edge_csv(&scaled)).unwrap();
+    assert!(csv.starts_with(
+        "x,y,normal_x,normal_y,order,stress_mpa,beyond_range,contour,along_px,x_mm,y_mm,along_mm\n"
+    ));
+    for bad in [0.0, -1.0, f64::NAN, f64::INFINITY] {
+        match isotint_core::Scale::new(bad) {
+            Err(CoreError::Invalid { field, .. }) => assert_eq!(field, "mm_per_px"),
+            other => panic!("{bad}: {other:?}"),
+        }
+    }
 }
 
 #[test]
@@ -199,4 +266,36 @@ fn a_rendered_beam_in_pure_bending_gives_the_edge_stress_of_beam_theory() {
         (outline.max_stress_mpa - expected).abs() <= 0.03 * expected,
         "{outline:?}"
     );
+}
+
+#[test]
+fn a_specimen_cut_by_the_photo_border_is_one_open_stretch_walked_from_the_border() {
+    let mut map = rectangle_map();
+    // Extend the rectangle to the photo's left border: [0, 35) × [5, 25).
+    for y in 5..25 {
+        for x in 0..5 {
+            let i = (y * 40 + x) as usize;
+            map.order[i] = 0.1 * (y as f32 + 0.5 - 5.0);
+            map.flags[i] = PixelFlags(0);
+        }
+    }
+    let result = boundary_stress(&map, &law(), None, &EdgePath::Outline).unwrap();
+    let s = &result.samples;
+    assert!(s.iter().all(|p| p.contour == 0), "one stretch");
+    for pair in s.windows(2) {
+        let step = (pair[1].x - pair[0].x).hypot(pair[1].y - pair[0].y);
+        assert!(
+            step <= 1.5,
+            "a jump of {step} px from {:?} to {:?}",
+            pair[0],
+            pair[1]
+        );
+    }
+    // No edge where the specimen meets the border; the walk starts and ends there: along the top
+    // from x = 0, round the right end, back along the bottom to x = 0. Hand-worked: 35 + 18 + 35
+    // edge pixels.
+    assert_eq!(result.edge_points, 88);
+    assert!(s[0].x < 1.0 && (s[0].y - 5.0).abs() < 1e-9, "{:?}", s[0]);
+    let last = s[s.len() - 1];
+    assert!(last.x < 1.0 && (last.y - 25.0).abs() < 1e-9, "{last:?}");
 }

@@ -13,16 +13,46 @@ use axum::body::{Body, Bytes};
 use axum::http::header;
 use axum::response::{IntoResponse, Response};
 use isotint_core::compact;
-use isotint_core::export::{FileKind, FileWriter};
+use isotint_core::export::{FileKind, FileWriter, OutputFormat};
 use isotint_core::order_map::MapStatistics;
+use isotint_core::{CoreError, CoreResult};
 use tokio::sync::{mpsc, Notify, OwnedSemaphorePermit, Semaphore};
 
 use super::error::ApiError;
 use super::jobs::RETRY_AFTER_S;
 use super::metrics::Metrics;
-use crate::domain::OrderMapId;
+use crate::domain::{shorten, OrderMapId};
 use crate::storage::order_maps as store;
 use crate::storage::Storage;
+
+/// Whether a request's `format` asks for its one file format `only` (`None`: the JSON answer);
+/// any other name is refused naming `format`.
+pub(super) fn asks_for_file(format: Option<&str>, only: &str) -> CoreResult<bool> {
+    match format {
+        None => Ok(false),
+        Some(name) if name == only => Ok(true),
+        Some(other) => Err(CoreError::invalid(
+            "format",
+            format!("{:?} is not {only}", shorten(other, 40)),
+        )),
+    }
+}
+
+/// A file made at once (not streamed) as an NPY attachment named `filename`.
+pub(super) fn npy_attachment(bytes: Vec<u8>, filename: &str) -> Response {
+    let disposition = format!("attachment; filename=\"{filename}\"");
+    (
+        [
+            (
+                header::CONTENT_TYPE,
+                OutputFormat::Npy.content_type().to_string(),
+            ),
+            (header::CONTENT_DISPOSITION, disposition),
+        ],
+        bytes,
+    )
+        .into_response()
+}
 
 /// Closes the connection a request came on: set per connection by `service::serve`, used
 /// to cut off a reader slower than the download time limit.

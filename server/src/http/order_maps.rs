@@ -12,22 +12,22 @@ use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Extension;
 use axum::Json;
-use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath};
+use isotint_core::boundary::{boundary_stress, BoundaryStress, EdgePath, EdgeSample};
 use isotint_core::compact;
-use isotint_core::comparison::{compare, Comparison, PointPair, Prediction, Registration};
-use isotint_core::export::FileKind;
+use isotint_core::comparison::{compare, PointPair, Prediction, Registration};
+use isotint_core::export::{self, FileKind};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::stress::{
     Specimen, SpecimenFields, SpecimenKind, SpecimenStatistics, StressOpticLaw, STRESS_CAUTION,
 };
-use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
+use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint, Scale};
 use serde::{Deserialize, Serialize};
 use time::OffsetDateTime;
 use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
-use super::download::{Bands, ConnectionCut, MapShape};
+use super::download::{asks_for_file, npy_attachment, Bands, ConnectionCut, MapShape};
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
 use super::jobs::{Admission, JobSize};
@@ -64,6 +64,24 @@ pub struct BoundaryRequest {
     /// specimen on one side; without it, the whole outline of the map's mask.
     #[schema(value_type = Option<Vec<Object>>)]
     pub polyline: Option<Vec<PixelPoint>>,
+    /// The photo's scale, mm per pixel (positive): adds `mm_per_px`, `x_mm`, `y_mm`.
+    pub mm_per_px: Option<f64>,
+    /// Also answer every edge point, in order along the edge, as `edge`: [{x, y, normal_x,
+    /// normal_y, order, stress_mpa, beyond_range, contour, along_px}] (order and stress null
+    /// where there is no value).
+    #[serde(default)]
+    pub include_edge: bool,
+}
+
+/// The answer of `POST /api/v1/order-maps/{id}/boundary`.
+#[derive(Debug, Serialize)]
+pub struct BoundaryAnswer {
+    /// The figures (see `BoundaryStress`).
+    #[serde(flatten)]
+    pub result: BoundaryStress,
+    /// Every edge point, when the request set `include_edge`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub edge: Option<Vec<EdgeSample>>,
 }
 
 /// JSON body of `POST /api/v1/order-maps/{id}/comparison`.
@@ -84,6 +102,15 @@ pub struct ComparisonRequest {
     /// affine map (needed when the model's y axis points up).
     #[schema(value_type = Vec<Object>)]
     pub pairs: Vec<PointPair>,
+}
+
+/// Query of `POST /api/v1/order-maps/{id}/comparison`.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct ComparisonQuery {
+    /// `npy`: answer with measured − predicted of every pixel, MPa, as NPY float32 (height,
+    /// width; NaN = not compared) instead of the JSON figures.
+    pub format: Option<String>,
 }
 
 /// Query of `POST /api/v1/order-maps`.
@@ -469,10 +496,11 @@ async fn get_order_map_file(
 }
 
 /// The free-edge stress |σ_t| = N·f_σ/h of a stored map along its mask's outline (or a
-/// polyline): the maximum (MPa), where it is (pixel-edge coordinates), its order, K_t with a
-/// nominal stress, and `beyond_range` / `max_is_lower_bound` when beyond-range pixels touch
-/// the edge (the maximum may be higher there). Orders are sampled 4 and 7 px inside the edge and
-/// carried to it along the line through both. Nothing is stored.
+/// polyline): the maximum (MPa), where it is (pixel-edge coordinates; also in mm with
+/// `mm_per_px`), its order, K_t with a nominal stress, and `beyond_range` /
+/// `max_is_lower_bound` when beyond-range pixels touch the edge (the maximum may be higher
+/// there); with `include_edge`, every edge point in order along the edge. Orders are sampled 4
+/// and 7 px inside the edge and carried to it along the line through both. Nothing is stored.
 #[utoipa::path(post, path = "/api/v1/order-maps/{id}/boundary", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id")),
     request_body(content = BoundaryRequest, content_type = "application/json"),
@@ -484,11 +512,12 @@ async fn boundary(
     State(state): State<AppState>,
     Path(id): Path<String>,
     body: Result<Bytes, BytesRejection>,
-) -> Result<Json<BoundaryStress>, ApiError> {
+) -> Result<Json<BoundaryAnswer>, ApiError> {
     let id: OrderMapId = path_id(&id)?;
     let body = body?;
     let request: BoundaryRequest = parse_json("boundary", &body)?;
     let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
+    let scale = request.mm_per_px.map(Scale::new).transpose()?;
     let path = request
         .polyline
         .map_or(EdgePath::Outline, EdgePath::Polyline);
@@ -496,7 +525,12 @@ async fn boundary(
     let result = admission
         .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
         .await??;
-    Ok(Json(result))
+    let result = match scale {
+        Some(scale) => result.with_scale(scale),
+        None => result,
+    };
+    let edge = request.include_edge.then(|| result.samples.clone());
+    Ok(Json(BoundaryAnswer { result, edge }))
 }
 
 /// Admits a job on the stored map `id` (refused when it has expired) and loads the map: the
@@ -527,20 +561,24 @@ async fn admit_stored_map(
 /// every specimen pixel with a value inside the model is compared (measured − predicted).
 /// Answers `mean_abs_difference_mpa`, `rms_difference_mpa`, `max_abs_difference_mpa` (with
 /// where), `compared_pixels`, the registration used and how much of the specimen the model
-/// covers. Nothing is stored.
+/// covers; with `format=npy` the difference map instead. Nothing is stored.
 #[utoipa::path(post, path = "/api/v1/order-maps/{id}/comparison", tag = "order-maps",
-    params(("id" = String, Path, description = "Order-map id")),
+    params(("id" = String, Path, description = "Order-map id"), ComparisonQuery),
     request_body(content = ComparisonRequest, content_type = "application/json"),
-    responses((status = 200, description = "Difference statistics", body = Object),
+    responses((status = 200, description = "Difference statistics; with format=npy the difference map instead, as NPY \
+                (application/octet-stream)", body = Object),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
               (status = 410, body = ErrorBody), (status = 413, body = ErrorBody),
               (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn comparison(
     State(state): State<AppState>,
     Path(id): Path<String>,
+    query: Result<Query<ComparisonQuery>, QueryRejection>,
     body: Result<Bytes, BytesRejection>,
-) -> Result<Json<Comparison>, ApiError> {
+) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
+    let Query(query) = query?;
+    let difference_file = asks_for_file(query.format.as_deref(), "npy")?;
     let request: ComparisonRequest = parse_json("comparison", &body?)?;
     let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
     let registration = Registration::fit(&request.pairs)?;
@@ -555,5 +593,10 @@ async fn comparison(
             compare(&map, &law, &prediction, &registration)
         })
         .await??;
-    Ok(Json(result))
+    if difference_file {
+        let (rows, cols) = (result.height as usize, result.width as usize);
+        let bytes = export::npy_f32(&result.difference, rows, cols);
+        return Ok(npy_attachment(bytes, &format!("comparison-{id}.npy")));
+    }
+    Ok(Json(result).into_response())
 }

@@ -5,22 +5,21 @@
 use axum::extract::multipart::MultipartRejection;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Multipart, Query, State};
-use axum::http::header;
 use axum::response::{IntoResponse, Response};
 use axum::Json;
-use isotint_core::export::OutputFormat;
 use isotint_core::series::{LoadSeries, SeriesSpec};
-use isotint_core::{CoreError, CoreResult};
+use isotint_core::CoreResult;
 use serde::Deserialize;
 use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
+use super::download::{asks_for_file, npy_attachment};
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, Form};
 use super::jobs::JobSize;
 use super::AppState;
-use crate::domain::{shorten, CalibrationId};
+use crate::domain::CalibrationId;
 use crate::pipeline;
 
 /// Routes of this module.
@@ -90,17 +89,7 @@ async fn create_series(
     multipart: Result<Multipart, MultipartRejection>,
 ) -> Result<Response, ApiError> {
     let Query(query) = query?;
-    let slope_file = match query.format.as_deref() {
-        None => false,
-        Some("slope") => true,
-        Some(other) => {
-            return Err(CoreError::invalid(
-                "format",
-                format!("{:?} is not slope", shorten(other, 40)),
-            )
-            .into())
-        }
-    };
+    let slope_file = asks_for_file(query.format.as_deref(), "slope")?;
     let mut form = Form::read_repeating(
         multipart,
         &["calibration", "mask", "photo", "series"],
@@ -136,17 +125,7 @@ async fn create_series(
         })
         .await??;
     if let Some(bytes) = file {
-        return Ok((
-            [
-                (header::CONTENT_TYPE, OutputFormat::Npy.content_type()),
-                (
-                    header::CONTENT_DISPOSITION,
-                    "attachment; filename=\"series-slope.npy\"",
-                ),
-            ],
-            bytes,
-        )
-            .into_response());
+        return Ok(npy_attachment(bytes, "series-slope.npy"));
     }
     Ok(Json(series).into_response())
 }

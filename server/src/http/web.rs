@@ -48,6 +48,7 @@ const ASSETS: &[Asset] = &[
     asset!("plot.js", JS),
     asset!("calibrations.js", JS),
     asset!("analysis.js", JS),
+    asset!("series.js", JS),
 ];
 
 /// Only this origin's scripts, styles and API; pictures also from `blob:` (downloads, masks)
