@@ -158,6 +158,19 @@ pub enum FileKind {
 }
 
 impl FileKind {
+    /// Every name [`FileKind::from_name`] reads; the `stress-` ones need a law.
+    pub const NAMES: [&'static str; 9] = [
+        "npy",
+        "png16",
+        "preview",
+        "csv",
+        "uncertainty",
+        "flags",
+        "stress-npy",
+        "stress-preview",
+        "stress-csv",
+    ];
+
     /// Parses the API's `format` names: one of the orders' formats, `uncertainty`, `flags`, or
     /// `stress-` and `npy`, `preview` or `csv`, which need `law`. An unknown name is refused
     /// naming `format`, a stress format without a law naming `fringe_value_n_per_mm`.
