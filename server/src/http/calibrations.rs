@@ -302,15 +302,14 @@ fn list_scope(text: Option<&str>, include_archived: bool) -> String {
 /// only on request. `total` counts every match.
 #[utoipa::path(get, path = "/api/v1/calibrations", tag = "calibrations", params(ListQuery),
     responses((status = 200, body = CalibrationList), (status = 400, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn list_calibrations(
     State(state): State<AppState>,
     query: Result<Query<ListQuery>, QueryRejection>,
 ) -> Result<Json<CalibrationList>, ApiError> {
     let Query(query) = query?;
     if let Some(q) = &query.q {
-        check_text("q", q, 200, false)
-            .map_err(|e| ApiError::bad_request("invalid_query", e.to_string()))?;
+        check_text("q", q, 200, false)?;
     }
     let text = query
         .q
