@@ -215,6 +215,9 @@ async fn hostile_text_is_stored_verbatim_or_refused_and_never_executed() {
     .await;
     assert_eq!(query.status, StatusCode::UNPROCESSABLE_ENTITY);
     assert!(query.error_message().contains('q'));
+    let control = get(&svc.app, "/api/v1/calibrations?q=bay%01").await;
+    assert_eq!(control.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(control.error_message().contains("control character"));
     let listed = get(&svc.app, "/api/v1/calibrations").await.json();
     assert_eq!(
         listed["calibrations"].as_array().unwrap().len(),

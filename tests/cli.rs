@@ -566,7 +566,11 @@ fn old_flag_spellings_still_parse_as_the_unit_suffixed_flags() {
         ];
         args.extend(load);
         match Cli::try_parse_from(args).unwrap().command {
-            cli::Command::Calibrate(a) => (a.moment_n_mm, a.depth_mm, a.fringe_value_n_per_mm),
+            cli::Command::Calibrate(a) => (
+                a.beam.moment_n_mm,
+                a.beam.depth_mm,
+                a.beam.fringe_value_n_per_mm,
+            ),
             other => panic!("{other:?}"),
         }
     };

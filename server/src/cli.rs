@@ -8,7 +8,7 @@ use std::time::Duration;
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use isotint_core::beam::estimate::ESTIMATE_CAUTION;
-use isotint_core::beam::{BeamReport, EdgeLoad, EdgeLoadFields};
+use isotint_core::beam::{BeamReport, BeamSpec, EdgeLoad, EdgeLoadFields};
 use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
 use isotint_core::comparison::{compare, difference_csv, PointPair, Prediction, Registration};
 use isotint_core::export::{self, FileKind, OutputFormat};
@@ -28,7 +28,7 @@ use time::OffsetDateTime;
 
 use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::backup::Restored;
-use crate::client::{ClientFormat, SomeFailed, EXIT_SOME_FAILED};
+use crate::client::{ClientFormat, NotDone, EXIT_NOT_DONE};
 use crate::config::{machine_memory_budget, ServiceConfig};
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline;
@@ -105,23 +105,45 @@ pub enum Command {
     Client(ClientCommand),
 }
 
-/// `isotint client` commands.
+/// `isotint client` commands. Exit code 0 when everything was done, 3 when requests were sent
+/// but not everything was done (the service refused some, or stayed busy), 1 when nothing was
+/// sent (a flag or an input file at fault).
 #[derive(Debug, Subcommand)]
 pub enum ClientCommand {
     /// Map photos on a running service, writing OUT_DIR/<photo stem>.<format> for each. Exit
     /// code 0 when every photo was mapped, 3 when some were not, 1 when none was sent.
     Map(ClientMapArgs),
+    /// Measure a calibration from a beam photo on a running service and store it there;
+    /// prints its id on the last line. Exit code 0 when stored, 3 when the service did not
+    /// store it, 1 when nothing was sent.
+    Calibrate(ClientCalibrateArgs),
+    /// Fit a load series on a running service; prints its JSON answer (or writes it to
+    /// --out). Exit code 0 when fitted, 3 when the service did not fit it, 1 when nothing was
+    /// sent.
+    Series(ClientSeriesArgs),
 }
 
-/// Options of `isotint client map`.
+/// How the client commands reach the service.
 #[derive(Debug, Clone, Args)]
-pub struct ClientMapArgs {
-    /// The service's base URL (http://HOST:PORT).
+pub struct ServiceArgs {
+    /// The service's base URL (http://HOST:PORT or https://HOST).
     #[arg(long, env = "ISOTINT_SERVER")]
     pub server: String,
     /// API token, for a service that asks for one.
     #[arg(long, env = "ISOTINT_TOKEN", hide_env_values = true)]
     pub token: Option<String>,
+    /// How often a request is sent again after the service answers 503 (busy), each time
+    /// after the Retry-After it asks for.
+    #[arg(long, default_value_t = 10)]
+    pub retries: u32,
+}
+
+/// Options of `isotint client map`.
+#[derive(Debug, Clone, Args)]
+pub struct ClientMapArgs {
+    /// The service.
+    #[command(flatten)]
+    pub service: ServiceArgs,
     /// Id of the calibration to map with.
     #[arg(long)]
     pub calibration: String,
@@ -134,15 +156,45 @@ pub struct ClientMapArgs {
     /// Photos sent at once.
     #[arg(long, default_value_t = 2, value_parser = clap::value_parser!(u16).range(1..=64))]
     pub jobs: u16,
-    /// How often one photo is sent again after the service answers 503 (busy).
-    #[arg(long, default_value_t = 10)]
-    pub retries: u32,
     /// Directory the maps are written into (made if missing).
     #[arg(long)]
     pub out_dir: PathBuf,
     /// The photos (PNG, TIFF or JPEG).
     #[arg(required = true, value_name = "PHOTO")]
     pub photos: Vec<PathBuf>,
+}
+
+/// Options of `isotint client calibrate`.
+#[derive(Debug, Clone, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct ClientCalibrateArgs {
+    /// The service.
+    #[command(flatten)]
+    pub service: ServiceArgs,
+    /// The beam photo and what is known about it.
+    #[command(flatten)]
+    pub beam: BeamArgs,
+    /// Id of the calibration this one corrects.
+    #[arg(long)]
+    pub supersedes: Option<String>,
+}
+
+/// Options of `isotint client series`.
+#[derive(Debug, Clone, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct ClientSeriesArgs {
+    /// The service.
+    #[command(flatten)]
+    pub service: ServiceArgs,
+    /// Id of the calibration to map the photos with.
+    #[arg(long)]
+    pub calibration: String,
+    /// The photos, their loads and the specimen.
+    #[command(flatten)]
+    pub series: SeriesPhotos,
+    /// Write the JSON answer to this file instead of printing it.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
 }
 
 /// Options of `isotint backup`.
@@ -370,6 +422,18 @@ impl ServeArgs {
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
 pub struct CalibrateArgs {
+    /// The beam photo and what is known about it.
+    #[command(flatten)]
+    pub beam: BeamArgs,
+    /// Where to write the calibration file (JSON).
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
+/// A beam photo and what is known about it: the flags `isotint calibrate` and
+/// `isotint client calibrate` share.
+#[derive(Debug, Clone, Args)]
+pub struct BeamArgs {
     /// Photo of the beam in four-point bending (PNG, JPEG or TIFF).
     #[arg(long)]
     pub photo: PathBuf,
@@ -419,9 +483,46 @@ pub struct CalibrateArgs {
     /// Free text.
     #[arg(long)]
     pub notes: Option<String>,
-    /// Where to write the calibration file (JSON).
-    #[arg(long)]
-    pub out: PathBuf,
+}
+
+impl BeamArgs {
+    /// The load fields as given, unchecked.
+    pub fn load_fields(&self) -> EdgeLoadFields {
+        EdgeLoadFields {
+            edge_order: self.edge_order,
+            moment_n_mm: self.moment_n_mm,
+            depth_mm: self.depth_mm,
+            fringe_value_n_per_mm: self.fringe_value_n_per_mm,
+            estimate_edge_order: self.estimate_edge_order,
+        }
+    }
+
+    /// The checked beam specification these flags give; errors name the flag at fault.
+    pub fn spec(&self) -> anyhow::Result<BeamSpec> {
+        let load = EdgeLoad::from_fields(self.load_fields()).in_flags()?;
+        let name = self.name.clone().unwrap_or_else(|| {
+            self.photo
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_else(|| "beam".into())
+        });
+        let metadata = CalibrationMetadata {
+            name,
+            material: self.material.clone().unwrap_or_default(),
+            thickness_mm: self.thickness_mm,
+            light_source: self.light_source.clone().unwrap_or_default(),
+            camera: self.camera.clone().unwrap_or_default(),
+            notes: self.notes.clone().unwrap_or_default(),
+        };
+        beam_spec(
+            self.region,
+            load,
+            self.refine_edges,
+            Some(self.order_step),
+            metadata,
+        )
+        .in_flags()
+    }
 }
 
 /// Options of `isotint map`.
@@ -583,6 +684,23 @@ pub struct SeriesArgs {
     /// Calibration file (JSON, as written by `isotint calibrate`).
     #[arg(long)]
     pub calibration: PathBuf,
+    /// The photos, their loads and the specimen.
+    #[command(flatten)]
+    pub series: SeriesPhotos,
+    /// Also write the slope of every pixel, fringes per N, to this .npy file (float32, NaN =
+    /// not fitted).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Print one JSON object (fringe_value, slope_fringes_per_n, linearity_rms,
+    /// nonlinear_share, …) instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// The photos of a load series and what is known about them: the flags `isotint series` and
+/// `isotint client series` share.
+#[derive(Debug, Clone, Args)]
+pub struct SeriesPhotos {
     /// Mask image of the photos' size; non-zero = specimen (for a disc: the disc alone).
     #[arg(long)]
     pub mask: PathBuf,
@@ -599,14 +717,26 @@ pub struct SeriesArgs {
     /// The disc's thickness, mm (with --disc-diameter-mm): adds its stress per fringe f_σ/h.
     #[arg(long, alias = "thickness")]
     pub thickness_mm: Option<f64>,
-    /// Also write the slope of every pixel, fringes per N, to this .npy file (float32, NaN =
-    /// not fitted).
-    #[arg(long)]
-    pub out: Option<PathBuf>,
-    /// Print one JSON object (fringe_value, slope_fringes_per_n, linearity_rms,
-    /// nonlinear_share, …) instead of text.
-    #[arg(long)]
-    pub json: bool,
+}
+
+impl SeriesPhotos {
+    /// The checked series these flags describe; errors name the flag at fault.
+    pub fn spec(&self) -> anyhow::Result<SeriesSpec> {
+        SeriesSpec::new(
+            self.photos.len(),
+            self.loads_n.clone(),
+            self.disc_diameter_mm,
+            self.thickness_mm,
+        )
+        .in_flags()
+    }
+
+    /// The input files, each with its flag.
+    fn inputs(&self) -> Vec<(&'static str, Option<&PathBuf>)> {
+        let mut inputs = vec![("--mask", Some(&self.mask))];
+        inputs.extend(self.photos.iter().map(|p| ("--photo", Some(p))));
+        inputs
+    }
 }
 
 /// Options of `isotint compare`.
@@ -804,6 +934,7 @@ const FIELD_FLAGS: &[(&str, &str)] = &[
     ("load_n", "--load-n"),
     ("mm_per_px", "--mm-per-px"),
     ("title", "--title"),
+    ("supersedes", "--supersedes"),
 ];
 
 /// The flag that carries an API field (the field itself if no flag does).
@@ -816,7 +947,7 @@ fn flag_of(field: &str) -> &str {
 
 /// `text` with every API field name written in `snake_case` replaced by its flag (plain words
 /// such as "photo" stay words).
-fn with_flags(text: &str) -> String {
+pub(crate) fn with_flags(text: &str) -> String {
     fn push_word(word: &mut String, out: &mut String) {
         out.push_str(if word.contains('_') {
             flag_of(word)
@@ -881,9 +1012,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Token(command) => runtime()?.block_on(token(command)),
         Command::Backup(args) => runtime()?.block_on(backup(&args)),
         Command::Restore(args) => runtime()?.block_on(restore(&args)),
-        Command::Client(ClientCommand::Map(args)) => {
-            runtime()?.block_on(crate::client::map_photos(args))
-        }
+        Command::Client(command) => runtime()?.block_on(crate::client::run(command)),
     }
 }
 
@@ -980,11 +1109,11 @@ fn sqlite_file(url: &str) -> Option<PathBuf> {
     (!file.is_empty() && file != ":memory:").then(|| PathBuf::from(file))
 }
 
-/// The process's exit code after `error`: [`EXIT_SOME_FAILED`] when a client run mapped only
-/// some of its photos, 1 otherwise.
+/// The process's exit code after `error`: [`EXIT_NOT_DONE`] when a client run sent its
+/// requests but not everything was done, 1 otherwise.
 pub fn exit_code(error: &anyhow::Error) -> u8 {
-    if error.downcast_ref::<SomeFailed>().is_some() {
-        EXIT_SOME_FAILED
+    if error.downcast_ref::<NotDone>().is_some() {
+        EXIT_NOT_DONE
     } else {
         1
     }
@@ -1036,38 +1165,10 @@ fn write(path: &Path, bytes: &[u8]) -> anyhow::Result<()> {
 }
 
 fn calibrate(args: &CalibrateArgs) -> anyhow::Result<()> {
-    refuse_overwriting(&[("--photo", Some(&args.photo))], "--out", &args.out)?;
-    let load = EdgeLoad::from_fields(EdgeLoadFields {
-        edge_order: args.edge_order,
-        moment_n_mm: args.moment_n_mm,
-        depth_mm: args.depth_mm,
-        fringe_value_n_per_mm: args.fringe_value_n_per_mm,
-        estimate_edge_order: args.estimate_edge_order,
-    })
-    .in_flags()?;
-    let name = args.name.clone().unwrap_or_else(|| {
-        args.photo
-            .file_stem()
-            .map(|s| s.to_string_lossy().into_owned())
-            .unwrap_or_else(|| "beam".into())
-    });
-    let metadata = CalibrationMetadata {
-        name,
-        material: args.material.clone().unwrap_or_default(),
-        thickness_mm: args.thickness_mm,
-        light_source: args.light_source.clone().unwrap_or_default(),
-        camera: args.camera.clone().unwrap_or_default(),
-        notes: args.notes.clone().unwrap_or_default(),
-    };
-    let spec = beam_spec(
-        args.region,
-        load,
-        args.refine_edges,
-        Some(args.order_step),
-        metadata,
-    )
-    .in_flags()?;
-    let photo = read(&args.photo, "photo")?;
+    let beam = &args.beam;
+    refuse_overwriting(&[("--photo", Some(&beam.photo))], "--out", &args.out)?;
+    let spec = beam.spec()?;
+    let photo = read(&beam.photo, "photo")?;
     let calibration = pipeline::calibrate(&photo, &spec, &DecodeLimits::default()).in_flags()?;
     write(&args.out, calibration.table.to_json().as_bytes())?;
     println!(
@@ -1231,12 +1332,10 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
 }
 
 fn series(args: &SeriesArgs) -> anyhow::Result<()> {
+    let photos = &args.series;
     if let Some(out) = &args.out {
-        let mut inputs = vec![
-            ("--mask", Some(&args.mask)),
-            ("--calibration", Some(&args.calibration)),
-        ];
-        inputs.extend(args.photos.iter().map(|p| ("--photo", Some(p))));
+        let mut inputs = photos.inputs();
+        inputs.push(("--calibration", Some(&args.calibration)));
         refuse_overwriting(&inputs, "--out", out)?;
         if !out.to_string_lossy().to_ascii_lowercase().ends_with(".npy") {
             anyhow::bail!(
@@ -1245,16 +1344,10 @@ fn series(args: &SeriesArgs) -> anyhow::Result<()> {
             );
         }
     }
-    let spec = SeriesSpec::new(
-        args.photos.len(),
-        args.loads_n.clone(),
-        args.disc_diameter_mm,
-        args.thickness_mm,
-    )
-    .in_flags()?;
+    let spec = photos.spec()?;
     let table = read_table(&args.calibration)?;
-    let mask = read(&args.mask, "mask")?;
-    let photos = args
+    let mask = read(&photos.mask, "mask")?;
+    let photos = photos
         .photos
         .iter()
         .map(|p| read(p, "photo"))

@@ -81,10 +81,14 @@ impl<K> fmt::Display for Id<K> {
 impl<K: IdKind> FromStr for Id<K> {
     type Err = CoreError;
 
+    /// Reads the hyphenated form only (`8-4-4-4-12` hex digits), the one ids are written in
+    /// and the OpenAPI description's `format: uuid`.
     fn from_str(text: &str) -> CoreResult<Self> {
-        Uuid::parse_str(text.trim())
+        Some(text)
+            .filter(|t| t.len() == 36)
+            .and_then(|t| Uuid::try_parse(t).ok())
             .map(|u| Id(u, PhantomData))
-            .map_err(|_| {
+            .ok_or_else(|| {
                 CoreError::invalid(
                     "id",
                     format!(
@@ -269,6 +273,16 @@ mod tests {
         assert_eq!(id.to_string().parse::<CalibrationId>().unwrap(), id);
         let err = "nope".parse::<OrderMapId>().unwrap_err().to_string();
         assert!(err.contains("order map id"), "{err}");
+        // The other spellings of a UUID are not ids: the description says `format: uuid`.
+        let simple = id.to_string().replace('-', "");
+        for other in [
+            simple,
+            format!("{{{id}}}"),
+            format!("urn:uuid:{id}"),
+            format!(" {id}"),
+        ] {
+            assert!(other.parse::<CalibrationId>().is_err(), "{other}");
+        }
     }
 
     #[test]

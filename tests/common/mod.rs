@@ -529,3 +529,23 @@ pub async fn start(config: ServiceConfig) -> RunningService {
         svc,
     }
 }
+
+/// The Python interpreter of the script tests (`ISOTINT_PYTHON`, which `.ci/run` points at its
+/// virtual environment, else `python3`) when it can import `module`. Locally a missing one
+/// skips the test (`None`); under `CI` it fails it.
+pub fn python_with(module: &str) -> Option<String> {
+    let python = std::env::var("ISOTINT_PYTHON").unwrap_or_else(|_| "python3".into());
+    let found = std::process::Command::new(&python)
+        .args(["-c", &format!("import {module}")])
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if found {
+        return Some(python);
+    }
+    assert!(
+        std::env::var_os("CI").is_none(),
+        "{python} cannot import {module}; .ci/run installs it"
+    );
+    eprintln!("{python} cannot import {module}: test skipped (bash .ci/run installs it)");
+    None
+}

@@ -160,6 +160,22 @@ pub enum FileKind {
 }
 
 impl FileKind {
+    /// Every name [`FileKind::from_name`] reads; the `stress-` ones need a law.
+    pub const NAMES: [&'static str; 12] = [
+        "npy",
+        "png16",
+        "preview",
+        "csv",
+        "uncertainty",
+        "flags",
+        "stress-npy",
+        "stress-preview",
+        "stress-csv",
+        "strain-npy",
+        "strain-preview",
+        "strain-csv",
+    ];
+
     /// Parses the API's `format` names: one of the orders' formats, `uncertainty`, `flags`, or
     /// `stress-` or `strain-` and `npy`, `preview` or `csv`, which need a specimen (strains a
     /// coating). An unknown name is refused naming `format`, a stress format without a specimen

@@ -248,6 +248,13 @@ pub enum SpecimenKind {
 }
 
 impl SpecimenKind {
+    /// Every kind, in the order help texts list them.
+    pub const ALL: [SpecimenKind; 3] = [
+        SpecimenKind::Transmission,
+        SpecimenKind::Coating,
+        SpecimenKind::Slice,
+    ];
+
     /// The kind's name: `transmission`, `coating` or `slice`.
     pub fn name(self) -> &'static str {
         match self {
@@ -259,13 +266,9 @@ impl SpecimenKind {
 
     /// Parses a kind's name; an unknown one is refused naming `specimen`.
     pub fn from_name(name: &str) -> CoreResult<Self> {
-        [
-            SpecimenKind::Transmission,
-            SpecimenKind::Coating,
-            SpecimenKind::Slice,
-        ]
-        .into_iter()
-        .find(|k| k.name() == name)
+        SpecimenKind::ALL
+            .into_iter()
+            .find(|k| k.name() == name)
         .ok_or_else(|| {
             let shown: String = name.chars().take(40).collect();
             CoreError::invalid(

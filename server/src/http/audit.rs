@@ -9,6 +9,7 @@ use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
+use super::openapi;
 use super::paging::{cursor_key, next_link, page_after, page_limit};
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId};
@@ -24,10 +25,13 @@ pub fn router() -> OpenApiRouter<AppState> {
 #[into_params(parameter_in = Query)]
 pub struct AuditQuery {
     /// Events per page, 1–500 (default 50).
+    #[param(minimum = 1, maximum = 500)]
     pub limit: Option<i64>,
     /// The `cursor` of the previous page's `next` link.
+    #[param(schema_with = openapi::cursor)]
     pub cursor: Option<String>,
-    /// Only the events of this calibration.
+    /// Only the events of this calibration (its id).
+    #[param(schema_with = openapi::uuid)]
     pub calibration: Option<String>,
 }
 

@@ -17,6 +17,7 @@ use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
+use super::openapi;
 use super::paging::{cursor_key, next_link, page_after, page_limit};
 use super::AppState;
 use crate::access::Origin;
@@ -148,15 +149,19 @@ pub struct DryRunCalibration {
 #[derive(Debug, Deserialize, IntoParams)]
 #[into_params(parameter_in = Query)]
 pub struct ListQuery {
-    /// Case-insensitive text matched against name, material, light source and camera.
+    /// Case-insensitive text matched against name, material, light source and camera: at most
+    /// 200 characters, no control characters.
+    #[param(schema_with = openapi::query_text)]
     pub q: Option<String>,
     /// Include archived calibrations (default false).
     #[serde(default)]
     pub include_archived: bool,
     /// Calibrations per page, 1–500 (default 50).
+    #[param(minimum = 1, maximum = 500)]
     pub limit: Option<i64>,
     /// The `cursor` of the previous page's `next` link; it belongs to that page's `q` and
     /// `include_archived`.
+    #[param(schema_with = openapi::cursor)]
     pub cursor: Option<String>,
 }
 
@@ -165,6 +170,7 @@ pub struct ListQuery {
 #[into_params(parameter_in = Query)]
 pub struct ImportQuery {
     /// Id of the calibration the imported one corrects.
+    #[param(schema_with = openapi::uuid)]
     pub supersedes: Option<String>,
 }
 
@@ -180,19 +186,24 @@ pub struct ImportQuery {
 #[derive(Debug, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BeamRequest {
-    /// Short human name, 1–200 characters.
+    /// Short human name, 1–200 characters, not all white space.
+    #[schema(schema_with = openapi::name_text)]
     pub name: String,
     /// Constant-moment zone `{left, top, right, bottom}` in pixel-edge coordinates; `top` and
-    /// `bottom` are the beam's edges.
-    #[schema(value_type = Object)]
+    /// `bottom` are the beam's edges, right > left, bottom > top, inside the photo.
+    #[schema(schema_with = openapi::region)]
     pub region: PixelRect,
-    /// Fringe order at the beam edges.
+    /// Fringe order at the beam edges (positive).
+    #[schema(schema_with = openapi::optional_positive)]
     pub edge_order: Option<f64>,
-    /// Bending moment in the constant-moment zone, N·mm.
+    /// Bending moment in the constant-moment zone, N·mm (positive).
+    #[schema(schema_with = openapi::optional_positive)]
     pub moment_n_mm: Option<f64>,
-    /// Beam depth, mm.
+    /// Beam depth, mm (positive).
+    #[schema(schema_with = openapi::optional_positive)]
     pub depth_mm: Option<f64>,
-    /// Material fringe value, N/mm per fringe.
+    /// Material fringe value, N/mm per fringe (positive).
+    #[schema(schema_with = openapi::optional_positive)]
     pub fringe_value_n_per_mm: Option<f64>,
     /// Estimate the edge order (fringes) from the beam's own colour sequence instead of giving
     /// it or the load; no edge-order or load field may come with it. An estimate: confirm it
@@ -202,37 +213,44 @@ pub struct BeamRequest {
     /// Move top and bottom to the edges found in the photo.
     #[serde(default)]
     pub refine_edges: bool,
-    /// Grid spacing of the table, fringes (default 0.01).
+    /// Grid spacing of the table, fringes, 0.001–0.1 (default 0.01).
+    #[schema(schema_with = openapi::optional_order_step)]
     pub order_step: Option<f64>,
-    /// Model or coating material.
+    /// Model or coating material (at most 200 characters on one line).
     #[serde(default)]
+    #[schema(schema_with = openapi::short_text)]
     pub material: String,
-    /// Specimen thickness, mm.
+    /// Specimen thickness, mm (positive).
+    #[schema(schema_with = openapi::optional_positive)]
     pub thickness_mm: Option<f64>,
-    /// Light source.
+    /// Light source (at most 200 characters on one line).
     #[serde(default)]
+    #[schema(schema_with = openapi::short_text)]
     pub light_source: String,
-    /// Camera and exposure settings.
+    /// Camera and exposure settings (at most 200 characters on one line).
     #[serde(default)]
+    #[schema(schema_with = openapi::short_text)]
     pub camera: String,
-    /// Free text.
+    /// Free text (at most 4000 characters).
     #[serde(default)]
+    #[schema(schema_with = openapi::notes_text)]
     pub notes: String,
     /// Id of the calibration this one corrects.
-    #[schema(value_type = Option<String>, format = Uuid)]
+    #[schema(schema_with = openapi::optional_uuid)]
     pub supersedes: Option<CalibrationId>,
     /// Measure and report, but store nothing.
     #[serde(default)]
     pub dry_run: bool,
 }
 
-/// Multipart body of `POST /api/v1/calibrations`.
+/// Multipart body of `POST /api/v1/calibrations`: these two parts, each once, and no other.
 #[derive(ToSchema)]
+#[serde(deny_unknown_fields)]
 pub struct BeamForm {
     /// Photo of the beam (PNG, JPEG or TIFF).
     #[schema(value_type = String, format = Binary)]
     pub photo: Vec<u8>,
-    /// JSON of the specification.
+    /// JSON of the specification (a part of type application/json).
     pub spec: BeamRequest,
 }
 
@@ -284,19 +302,19 @@ fn list_scope(text: Option<&str>, include_archived: bool) -> String {
 /// only on request. `total` counts every match.
 #[utoipa::path(get, path = "/api/v1/calibrations", tag = "calibrations", params(ListQuery),
     responses((status = 200, body = CalibrationList), (status = 400, body = ErrorBody),
-              (status = 503, body = ErrorBody)))]
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn list_calibrations(
     State(state): State<AppState>,
     query: Result<Query<ListQuery>, QueryRejection>,
 ) -> Result<Json<CalibrationList>, ApiError> {
     let Query(query) = query?;
+    if let Some(q) = &query.q {
+        check_text("q", q, 200, false)?;
+    }
     let text = query
         .q
         .map(|q| q.trim().to_string())
         .filter(|q| !q.is_empty());
-    if let Some(q) = &text {
-        check_text("q", q, 200, false)?;
-    }
     let limit = page_limit(query.limit)?;
     let scope = list_scope(text.as_deref(), query.include_archived);
     let after = page_after(query.cursor.as_deref(), &scope)?;
@@ -319,7 +337,7 @@ async fn list_calibrations(
 
 /// One calibration with its table.
 #[utoipa::path(get, path = "/api/v1/calibrations/{id}", tag = "calibrations",
-    params(("id" = String, Path, description = "Calibration id")),
+    params(("id" = String, Path, description = "Calibration id", format = Uuid)),
     responses((status = 200, body = CalibrationDetail), (status = 404, body = ErrorBody),
               (status = 503, body = ErrorBody)))]
 async fn get_calibration(
@@ -355,7 +373,7 @@ fn file_stem(name: &str) -> String {
 
 /// The table file exactly as in `calibration-sets/`, as a download.
 #[utoipa::path(get, path = "/api/v1/calibrations/{id}/export", tag = "calibrations",
-    params(("id" = String, Path, description = "Calibration id")),
+    params(("id" = String, Path, description = "Calibration id", format = Uuid)),
     responses((status = 200, description = "The calibration file", content_type = "application/json"),
               (status = 404, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn export_calibration(
@@ -392,7 +410,14 @@ fn optional_id(text: Option<&str>) -> Result<Option<CalibrationId>, ApiError> {
 /// table again returns the stored one with 200.
 #[utoipa::path(post, path = "/api/v1/calibrations/import", tag = "calibrations", params(ImportQuery),
     request_body(content = Object, content_type = "application/json", description = "A calibration file"),
-    responses((status = 201, body = CalibrationSummary), (status = 200, body = CalibrationSummary),
+    responses((status = 201, body = CalibrationSummary, links(
+                  ("calibration" = (operation_id = "get_calibration", parameters(("id" = "$response.body#/id")))),
+                  ("export" = (operation_id = "export_calibration", parameters(("id" = "$response.body#/id")))),
+                  ("archive" = (operation_id = "archive_calibration", parameters(("id" = "$response.body#/id")))),
+                  ("restore" = (operation_id = "restore_calibration", parameters(("id" = "$response.body#/id")))))),
+              (status = 200, body = CalibrationSummary, links(
+                  ("calibration" = (operation_id = "get_calibration", parameters(("id" = "$response.body#/id")))))),
+              (status = 400, body = ErrorBody),
               (status = 404, body = ErrorBody), (status = 408, body = ErrorBody),
               (status = 409, body = ErrorBody), (status = 413, body = ErrorBody),
               (status = 415, body = ErrorBody), (status = 422, body = ErrorBody),
@@ -434,12 +459,17 @@ async fn import_calibration(
 /// Measures a calibration table on a beam photo. With `dry_run` the report and table are
 /// returned and nothing is stored.
 #[utoipa::path(post, path = "/api/v1/calibrations", tag = "calibrations",
-    request_body(content = BeamForm, content_type = "multipart/form-data"),
-    responses((status = 201, body = CreatedCalibration), (status = 200, body = DryRunCalibration),
+    request_body(content((BeamForm = "multipart/form-data",
+        encoding(("spec" = (content_type = "application/json")))))),
+    responses((status = 201, body = CreatedCalibration, links(
+                  ("calibration" = (operation_id = "get_calibration", parameters(("id" = "$response.body#/id")))),
+                  ("export" = (operation_id = "export_calibration", parameters(("id" = "$response.body#/id")))))),
+              (status = 200, body = DryRunCalibration),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
               (status = 408, body = ErrorBody), (status = 409, body = ErrorBody),
               (status = 413, body = ErrorBody), (status = 415, body = ErrorBody),
-              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
+              (status = 422, body = ErrorBody), (status = 503, body = ErrorBody),
+              (status = 504, body = ErrorBody)))]
 async fn create_calibration(
     State(state): State<AppState>,
     origin: Origin,
@@ -479,7 +509,7 @@ async fn create_calibration(
 
 /// Hides a calibration from lists (it stays readable and usable by id).
 #[utoipa::path(post, path = "/api/v1/calibrations/{id}/archive", tag = "calibrations",
-    params(("id" = String, Path, description = "Calibration id")),
+    params(("id" = String, Path, description = "Calibration id", format = Uuid)),
     responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody),
               (status = 503, body = ErrorBody)))]
 async fn archive_calibration(
@@ -493,7 +523,7 @@ async fn archive_calibration(
 
 /// Shows an archived calibration in lists again.
 #[utoipa::path(post, path = "/api/v1/calibrations/{id}/restore", tag = "calibrations",
-    params(("id" = String, Path, description = "Calibration id")),
+    params(("id" = String, Path, description = "Calibration id", format = Uuid)),
     responses((status = 200, body = CalibrationSummary), (status = 404, body = ErrorBody),
               (status = 503, body = ErrorBody)))]
 async fn restore_calibration(

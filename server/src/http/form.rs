@@ -71,10 +71,11 @@ impl Form {
         })
     }
 
-    /// Removes and returns the part `name`, if present.
+    /// Removes and returns the part `name`, if present; the other parts keep their order (a
+    /// series' photos are matched to its loads by it).
     pub fn take(&mut self, name: &str) -> Option<Bytes> {
         let i = self.parts.iter().position(|(n, _)| n == name)?;
-        Some(self.parts.swap_remove(i).1)
+        Some(self.parts.remove(i).1)
     }
 
     /// Removes and returns every part `name`, in the order they came.

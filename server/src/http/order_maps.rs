@@ -31,6 +31,7 @@ use super::download::{asks_for_file, npy_attachment, Bands, ConnectionCut, MapSh
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, path_id, Form};
 use super::jobs::{Admission, JobSize};
+use super::openapi;
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId, OrderMapId};
 use crate::pipeline;
@@ -53,16 +54,20 @@ pub fn router() -> OpenApiRouter<AppState> {
 pub struct BoundaryRequest {
     /// Material fringe value f_σ, N/mm per fringe (positive).
     #[serde(alias = "fringe_value")]
+    #[schema(exclusive_minimum = 0)]
     pub fringe_value_n_per_mm: f64,
     /// Model thickness h, mm (positive).
     #[serde(alias = "thickness")]
+    #[schema(exclusive_minimum = 0)]
     pub thickness_mm: f64,
     /// Nominal stress σ_nom, MPa (positive): adds K_t = σ_max / σ_nom.
     #[serde(alias = "nominal_stress")]
+    #[schema(schema_with = openapi::optional_positive)]
     pub nominal_stress_mpa: Option<f64>,
-    /// A polyline [{x, y}, …] in pixel-edge coordinates along part of the specimen's edge, the
-    /// specimen on one side; without it, the whole outline of the map's mask.
-    #[schema(value_type = Option<Vec<Object>>)]
+    /// A polyline [{x, y}, …] of at least two points in pixel-edge coordinates along part of
+    /// the specimen's edge, the specimen on one side; without it, the whole outline of the
+    /// map's mask.
+    #[schema(schema_with = openapi::optional_polyline)]
     pub polyline: Option<Vec<PixelPoint>>,
     /// The photo's scale, mm per pixel (positive): adds `mm_per_px`, `x_mm`, `y_mm`.
     pub mm_per_px: Option<f64>,
@@ -90,9 +95,11 @@ pub struct BoundaryAnswer {
 pub struct ComparisonRequest {
     /// Material fringe value f_σ, N/mm per fringe (positive).
     #[serde(alias = "fringe_value")]
+    #[schema(exclusive_minimum = 0)]
     pub fringe_value_n_per_mm: f64,
     /// Model thickness h, mm (positive).
     #[serde(alias = "thickness")]
+    #[schema(exclusive_minimum = 0)]
     pub thickness_mm: f64,
     /// The predicted σ1 − σ2 as CSV text: rows x_mm,y_mm,stress_mpa (model coordinates in mm,
     /// MPa, ≥ 0), one header row allowed, at least three nodes not on one line.
@@ -100,7 +107,7 @@ pub struct ComparisonRequest {
     /// At least two point pairs [{x_px, y_px, x_mm, y_mm}]: a pixel (pixel-edge coordinates)
     /// and the model point it shows. Two give a similarity, three or more a least-squares
     /// affine map (needed when the model's y axis points up).
-    #[schema(value_type = Vec<Object>)]
+    #[schema(schema_with = openapi::point_pairs)]
     pub pairs: Vec<PointPair>,
 }
 
@@ -122,6 +129,7 @@ pub struct CreateQuery {
     /// `stress-preview` or `stress-csv` (these need a specimen: `fringe_value_n_per_mm` and
     /// `thickness_mm`, or a coating's fields), or a coating's ε1 − ε2 in µε as `strain-npy`,
     /// `strain-preview` or `strain-csv`: answer with that file instead of storing the map.
+    #[param(schema_with = openapi::map_file_kind)]
     pub format: Option<String>,
 }
 
@@ -133,11 +141,14 @@ pub struct CreateQuery {
 #[into_params(parameter_in = Query)]
 pub struct StressQuery {
     /// `transmission` (default), `slice` or `coating`.
+    #[param(schema_with = openapi::specimen_kind)]
     pub specimen: Option<String>,
     /// Material fringe value f_σ, N/mm per fringe (positive; of a slice: at the critical
     /// temperature).
+    #[param(exclusive_minimum = 0)]
     pub fringe_value_n_per_mm: Option<f64>,
     /// Model thickness h along the light path, mm (positive; of a slice: the slice's).
+    #[param(exclusive_minimum = 0)]
     pub thickness_mm: Option<f64>,
     /// Coating: strain fringe value f_ε, µm per fringe (positive).
     pub strain_fringe_value_um: Option<f64>,
@@ -188,21 +199,36 @@ fn specimen_query(specimen: &Specimen) -> String {
     }
 }
 
-/// Multipart body of `POST /api/v1/order-maps`.
+/// The path of a stored map's file.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Path)]
+pub struct FilePath {
+    /// Order-map id.
+    #[param(schema_with = openapi::uuid)]
+    pub id: String,
+    /// npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview, stress-csv,
+    /// strain-npy, strain-preview or strain-csv.
+    #[param(schema_with = openapi::map_file_kind)]
+    pub file: String,
+}
+
+/// Multipart body of `POST /api/v1/order-maps`: these parts, each at most once, and no other.
 #[derive(ToSchema)]
+#[serde(deny_unknown_fields)]
 pub struct MapForm {
     /// Specimen photo (PNG, JPEG or TIFF).
     #[schema(value_type = String, format = Binary)]
     pub photo: Vec<u8>,
     /// Calibration id.
-    #[schema(value_type = String, format = Uuid)]
+    #[schema(schema_with = openapi::uuid)]
     pub calibration: String,
     /// Optional mask PNG, same size as the photo; non-zero = specimen.
     #[schema(value_type = Option<String>, format = Binary)]
     pub mask: Option<Vec<u8>>,
-    /// Optional JSON: `hints` [{x, y, order}], `exposure_compensation`, `max_order`,
-    /// `max_gradient`.
-    #[schema(value_type = Option<Object>)]
+    /// Optional JSON (a part of type application/json): `hints` [{x, y, order}] inside the
+    /// photo and at most the calibration's last order (or `max_order`), `exposure_compensation`,
+    /// `max_order`, `max_gradient`.
+    #[schema(schema_with = openapi::map_options)]
     pub options: Option<MapOptions>,
 }
 
@@ -366,8 +392,13 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
 /// response is that file and nothing is stored; otherwise the map is stored for the retention
 /// time and described as JSON.
 #[utoipa::path(post, path = "/api/v1/order-maps", tag = "order-maps", params(CreateQuery, StressQuery),
-    request_body(content = MapForm, content_type = "multipart/form-data"),
-    responses((status = 201, body = OrderMapResource),
+    request_body(content((MapForm = "multipart/form-data",
+        encoding(("options" = (content_type = "application/json")))))),
+    responses((status = 201, body = OrderMapResource, links(
+                  ("order_map" = (operation_id = "get_order_map", parameters(("id" = "$response.body#/id")))),
+                  ("file" = (operation_id = "get_order_map_file", parameters(("id" = "$response.body#/id")))),
+                  ("boundary" = (operation_id = "boundary", parameters(("id" = "$response.body#/id")))),
+                  ("comparison" = (operation_id = "comparison", parameters(("id" = "$response.body#/id")))))),
               (status = 200, description = "The map as the requested file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
@@ -438,8 +469,9 @@ async fn create_order_map(
 
 /// A stored order map's description and links.
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}", tag = "order-maps",
-    params(("id" = String, Path, description = "Order-map id"), StressQuery),
-    responses((status = 200, body = OrderMapResource), (status = 404, body = ErrorBody),
+    params(("id" = String, Path, description = "Order-map id", format = Uuid), StressQuery),
+    responses((status = 200, body = OrderMapResource), (status = 400, body = ErrorBody),
+              (status = 404, body = ErrorBody),
               (status = 410, body = ErrorBody), (status = 422, body = ErrorBody),
               (status = 503, body = ErrorBody)))]
 async fn get_order_map(
@@ -459,17 +491,15 @@ async fn get_order_map(
 /// `stress-npy`, `stress-preview`, `stress-csv` (with a specimen's fields), or a coating's
 /// ε1 − ε2 in µε as `strain-npy`, `strain-preview`, `strain-csv`.
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
-    params(("id" = String, Path, description = "Order-map id"),
-           ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview, stress-csv, strain-npy, strain-preview or strain-csv"),
-           StressQuery),
+    params(FilePath, StressQuery),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
-              (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
+              (status = 400, body = ErrorBody), (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
               (status = 422, body = ErrorBody), (status = 503, body = ErrorBody)))]
 async fn get_order_map_file(
     State(state): State<AppState>,
     cut: Option<Extension<ConnectionCut>>,
-    Path((id, file)): Path<(String, String)>,
+    Path(FilePath { id, file }): Path<FilePath>,
     stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
@@ -502,7 +532,7 @@ async fn get_order_map_file(
 /// there); with `include_edge`, every edge point in order along the edge. Orders are sampled 4
 /// and 7 px inside the edge and carried to it along the line through both. Nothing is stored.
 #[utoipa::path(post, path = "/api/v1/order-maps/{id}/boundary", tag = "order-maps",
-    params(("id" = String, Path, description = "Order-map id")),
+    params(("id" = String, Path, description = "Order-map id", format = Uuid)),
     request_body(content = BoundaryRequest, content_type = "application/json"),
     responses((status = 200, description = "Free-edge stress and K_t", body = Object),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
@@ -563,7 +593,7 @@ async fn admit_stored_map(
 /// where), `compared_pixels`, the registration used and how much of the specimen the model
 /// covers; with `format=npy` the difference map instead. Nothing is stored.
 #[utoipa::path(post, path = "/api/v1/order-maps/{id}/comparison", tag = "order-maps",
-    params(("id" = String, Path, description = "Order-map id"), ComparisonQuery),
+    params(("id" = String, Path, description = "Order-map id", format = Uuid), ComparisonQuery),
     request_body(content = ComparisonRequest, content_type = "application/json"),
     responses((status = 200, description = "Difference statistics; with format=npy the difference map instead, as NPY \
                 (application/octet-stream)", body = Object),

@@ -18,6 +18,7 @@ use super::download::{asks_for_file, npy_attachment};
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, Form};
 use super::jobs::JobSize;
+use super::openapi;
 use super::AppState;
 use crate::domain::CalibrationId;
 use crate::pipeline;
@@ -33,30 +34,36 @@ pub fn router() -> OpenApiRouter<AppState> {
 pub struct SeriesRequest {
     /// One load per `photo` part, in the same order, N (positive).
     #[serde(alias = "loads", alias = "load_n")]
+    #[schema(schema_with = openapi::loads)]
     pub loads_n: Vec<f64>,
-    /// Diameter of a disc in diametral compression, mm: adds `fringe_value` from its centre,
-    /// where σ1 − σ2 = 8P/(πDh).
+    /// Diameter of a disc in diametral compression, mm (positive): adds `fringe_value` from its
+    /// centre, where σ1 − σ2 = 8P/(πDh).
     #[serde(default, alias = "disc_diameter")]
+    #[schema(schema_with = openapi::optional_positive)]
     pub disc_diameter_mm: Option<f64>,
-    /// The disc's thickness, mm (with `disc_diameter_mm`): adds `stress_per_fringe_mpa`.
+    /// The disc's thickness, mm (positive; only with `disc_diameter_mm`): adds
+    /// `stress_per_fringe_mpa`.
     #[serde(default, alias = "thickness")]
+    #[schema(schema_with = openapi::optional_positive)]
     pub thickness_mm: Option<f64>,
 }
 
-/// Multipart body of `POST /api/v1/series`.
+/// Multipart body of `POST /api/v1/series`: these parts, `photo` repeated, the others once,
+/// and no other.
 #[derive(ToSchema)]
+#[serde(deny_unknown_fields)]
 pub struct SeriesForm {
     /// Calibration id.
-    #[schema(value_type = String, format = Uuid)]
+    #[schema(schema_with = openapi::uuid)]
     pub calibration: String,
     /// Mask PNG of the photos' size; non-zero = specimen (for a disc, the disc alone).
     #[schema(value_type = String, format = Binary)]
     pub mask: Vec<u8>,
-    /// The photos (PNG, JPEG or TIFF), one part each, at least two, all of one size.
-    #[schema(value_type = Vec<String>, format = Binary)]
+    /// The photos (PNG, JPEG or TIFF), one part each, two to twelve, all of one size.
+    #[schema(schema_with = openapi::series_photos)]
     pub photo: Vec<Vec<u8>>,
-    /// JSON: `loads_n` (one per photo, N), `disc_diameter_mm`, `thickness_mm`.
-    #[schema(value_type = Object)]
+    /// JSON (a part of type application/json): `loads_n` (one per photo, N),
+    /// `disc_diameter_mm`, `thickness_mm`.
     pub series: SeriesRequest,
 }
 
@@ -66,6 +73,7 @@ pub struct SeriesForm {
 pub struct SeriesQuery {
     /// `slope`: answer with the slope of every pixel, fringes per N, as NPY float32 (height,
     /// width; NaN = not fitted) instead of the JSON figures.
+    #[param(schema_with = openapi::series_format)]
     pub format: Option<String>,
 }
 
@@ -76,7 +84,8 @@ pub struct SeriesQuery {
 /// `disc_diameter_mm`, `fringe_value` (N/mm per fringe) from the disc's centre. Nothing is
 /// stored.
 #[utoipa::path(post, path = "/api/v1/series", tag = "order-maps", params(SeriesQuery),
-    request_body(content = SeriesForm, content_type = "multipart/form-data"),
+    request_body(content((SeriesForm = "multipart/form-data",
+        encoding(("series" = (content_type = "application/json")))))),
     responses((status = 200, description = "The fitted series; with format=slope the slope map instead, as NPY \
                 (application/octet-stream)", body = Object),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
