@@ -16,6 +16,7 @@ use isotint_core::geometry::PixelPoint;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
 use isotint_core::series::{LoadSeries, SeriesSpec};
+use isotint_core::specimen::{MaskSource, MaskUsed};
 use isotint_core::stress::{maximum_text, StressOpticLaw, STRESS_CAUTION};
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
@@ -28,7 +29,7 @@ use crate::backup::Restored;
 use crate::client::{ClientFormat, SomeFailed, EXIT_SOME_FAILED};
 use crate::config::{machine_memory_budget, ServiceConfig};
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
-use crate::pipeline;
+use crate::pipeline::{self, MaskChoice};
 use crate::storage::tokens::{self, TokenRow};
 use crate::storage::{Storage, StorageError};
 
@@ -427,9 +428,13 @@ pub struct MapArgs {
     /// Specimen photo (PNG, JPEG or TIFF).
     #[arg(long)]
     pub photo: PathBuf,
-    /// Mask image of the photo's size; non-zero = specimen.
-    #[arg(long)]
+    /// Mask image of the photo's size; non-zero = specimen. Without it the specimen is found
+    /// from the photo (the dark, featureless background and large holes left out).
+    #[arg(long, conflicts_with = "whole_photo")]
     pub mask: Option<PathBuf>,
+    /// Map every pixel of the photo instead of the specimen found from it.
+    #[arg(long)]
+    pub whole_photo: bool,
     /// Do not fit an exposure / white-balance / vignetting correction.
     #[arg(long)]
     pub no_exposure_compensation: bool,
@@ -708,9 +713,23 @@ impl<T> InFlags<T> for CoreResult<T> {
             CoreError::Invalid { field, message } => {
                 anyhow::anyhow!("invalid {}: {}", flag_of(field), with_flags(&message))
             }
+            // The decoder names its input ("the photo is …"): lead with its flag.
+            e @ (CoreError::Decode(_) | CoreError::TooLarge(_)) => match input_flag(&e.to_string())
+            {
+                Some(flag) => anyhow::anyhow!("{flag}: {e}"),
+                None => e.into(),
+            },
             other => other.into(),
         })
     }
+}
+
+/// The flag of the first input file a decoder's message names ("the photo is …" → "--photo").
+fn input_flag(message: &str) -> Option<&'static str> {
+    const INPUTS: [(&str, &str); 2] = [("photo", "--photo"), ("mask", "--mask")];
+    message
+        .split(|c: char| !c.is_ascii_alphanumeric())
+        .find_map(|word| INPUTS.iter().find(|(w, _)| *w == word).map(|(_, f)| *f))
 }
 
 fn init_tracing(format: LogFormat) {
@@ -1030,9 +1049,9 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
     let photo = read(&args.photo, "photo")?;
     let mask = read(&args.mask, "mask")?;
     let options = MapOptions::default();
-    let map = pipeline::map(
+    let (map, _) = pipeline::map(
         &photo,
-        Some(&mask),
+        MaskChoice::Given(&mask),
         &table,
         &options,
         &DecodeLimits::default(),
@@ -1182,9 +1201,9 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
     let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
     let mask = read(&args.mask, "mask")?;
-    let map = pipeline::map(
+    let (map, _) = pipeline::map(
         &photo,
-        Some(&mask),
+        MaskChoice::Given(&mask),
         &table,
         &MapOptions::default(),
         &DecodeLimits::default(),
@@ -1320,14 +1339,13 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     options.validate(&table).in_flags()?;
     let photo = read(&args.photo, "photo")?;
     let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
-    let map = pipeline::map(
-        &photo,
-        mask.as_deref(),
-        &table,
-        &options,
-        &DecodeLimits::default(),
-    )
-    .in_flags()?;
+    let choice = match (&mask, args.whole_photo) {
+        (Some(bytes), _) => MaskChoice::Given(bytes),
+        (None, true) => MaskChoice::WholePhoto,
+        (None, false) => MaskChoice::Find,
+    };
+    let (map, mask_used) =
+        pipeline::map(&photo, choice, &table, &options, &DecodeLimits::default()).in_flags()?;
     write(
         &args.out,
         &export::encode(&map, FileKind::Orders(outputs.orders)).in_flags()?,
@@ -1362,8 +1380,21 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             path.display()
         );
     }
+    print!("{}", mask_text(&mask_used));
     print!("{}", statistics_text(&map.statistics, outputs.law.as_ref()));
     Ok(())
+}
+
+/// The line `isotint map` prints about the mask it used, with a note on how to change a
+/// found one.
+pub fn mask_text(used: &MaskUsed) -> String {
+    let mut out = format!("  mask                {}\n", used.describe());
+    if used.source == MaskSource::Found {
+        out += "  mask note           the dark background and large holes are left out, and so \
+                are zero-order zones on the specimen's edge; give --mask FILE or \
+                --whole-photo to keep them\n";
+    }
+    out
 }
 
 /// The lines `isotint map` prints about a map: its figures, the σ1 − σ2 figures when a law is
@@ -1374,7 +1405,7 @@ pub fn statistics_text(s: &MapStatistics, law: Option<&StressOpticLaw>) -> Strin
     let mut out = format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
          unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {}\n  \
-         mean residual       {:.2} ΔE*ab\n",
+         mean residual       {:.2} ΔE00 (CIEDE2000)\n",
         s.specimen_pixels,
         s.valued_pixels,
         100.0 * s.beyond_range_share,

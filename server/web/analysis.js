@@ -21,6 +21,8 @@ const TOOL_HELP = {
 
 // Width (CSS pixels) of the colour bar and flag key beside the map, with its gap.
 const LEGEND_WIDTH = 180;
+// On narrow screens (phones) the colour bar and flag key go below the map (style.css).
+const NARROW = window.matchMedia('(max-width: 560px)');
 
 // Screen distance (CSS pixels) within which a click closes the outline on its first corner.
 const CLOSE_DISTANCE = 10;
@@ -30,13 +32,63 @@ function plusMinus(sigma, digits) {
   return Number.isFinite(sigma) ? ` ± ${fmt(sigma, digits)}` : '';
 }
 
+// A photo's file name without its extension, safe as the start of a file name: downloads are
+// named after the photo ("disc-03.jpg" → "disc-03-orders.npy").
+export function photoStem(name) {
+  const stem = name.replace(/\.[^.]*$/, '').replace(/[^\w.-]+/g, '_');
+  return stem || 'photo';
+}
+
+// How the specimen of a map was chosen, in words.
+function maskText(mask) {
+  const share = `${fmt(mask.specimen_share * 100, 1)} % of the photo`;
+  const source = { given: 'your mask', found: 'found from the photo', whole_photo: 'the whole photo' }[mask.source] ?? mask.source;
+  return `${source}, ${share}`;
+}
+
+// The note under a map whose specimen was found from the photo, or none.
+function showMaskNote(mask) {
+  const found = mask?.source === 'found';
+  $('an-mask-note').hidden = !found;
+  if (!found) return;
+  $('an-mask-note-text').textContent =
+    `The specimen was found from the photo: ${fmt(mask.specimen_share * 100, 1)} % of its pixels, ` +
+    'outlined in yellow on the photo, what was left out shaded blue. Shares and figures count the specimen only. ' +
+    'Zero-order zones on the specimen’s edge (an unloaded end, a stress-free rim) look like the background and are left out too; ' +
+    'if that is wrong, draw an outline, give a mask file, or use the whole photo.';
+}
+
+// A picture of the found specimen at the photo's size: what was left out shaded blue, the
+// specimen's edge pixels yellow (from the map's flags, bit 1 = outside the mask).
+function foundMaskPicture(flags, width, height) {
+  const canvas = document.createElement('canvas');
+  canvas.width = width;
+  canvas.height = height;
+  const ctx = canvas.getContext('2d');
+  const image = ctx.createImageData(width, height);
+  const px = image.data;
+  const outside = (x, y) => x >= 0 && y >= 0 && x < width && y < height && (flags[y * width + x] & 1) !== 0;
+  for (let y = 0; y < height; y += 1) {
+    for (let x = 0; x < width; x += 1) {
+      const o = (y * width + x) * 4;
+      if (outside(x, y)) {
+        px.set([40, 110, 255, 90], o);
+      } else if (outside(x - 1, y) || outside(x + 1, y) || outside(x, y - 1) || outside(x, y + 1)) {
+        px.set([255, 214, 10, 255], o);
+      }
+    }
+  }
+  ctx.putImageData(image, 0, 0);
+  return canvas;
+}
+
 export class AnalysisPage {
   constructor() {
     // Room is kept beside the picture for the colour bar, so that both layers share one size.
     this.view = new ImageView($('an-view'), {
       maxHeight: () => Math.max(260, window.innerHeight * 0.6),
       box: $('an-map-row'),
-      reserve: LEGEND_WIDTH,
+      reserve: () => (NARROW.matches ? 0 : LEGEND_WIDTH),
     });
     this.readout = $('an-readout');
     this.progress = progress($('an-progress'), $('an-progress-text'), 'Matching colours to fringe orders…');
@@ -44,7 +96,7 @@ export class AnalysisPage {
     this.outline = { points: [], closed: false };
     this.hints = [];
     this.line = null; // {a, b}
-    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id}
+    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id, found}
     this.wantedCalibration = '';
 
     this.view.overlay = (ctx, toScreen) => this.paintOverlay(ctx, toScreen);
@@ -104,6 +156,11 @@ export class AnalysisPage {
       $(id).addEventListener('input', () => this.drawProfile());
     }
     $('an-run').addEventListener('click', () => this.run());
+    $('an-whole-photo').addEventListener('click', () => {
+      document.querySelector('input[name="an-mask"][value="none"]').checked = true;
+      this.maskModeChanged();
+      this.run();
+    });
     document.addEventListener(CHANGED, () => this.loadCalibrations());
     new ResizeObserver(() => this.drawLegend()).observe($('an-view'));
     this.toolChanged();
@@ -358,6 +415,17 @@ export class AnalysisPage {
   }
 
   paintOverlay(ctx, toScreen) {
+    // The specimen found from the photo, for confirmation: drawn over the photo only (the map
+    // shows the pixels left out in their own colour).
+    const found = this.result?.found;
+    const onPhoto = document.querySelector('input[name="an-layer"]:checked').value === 'photo';
+    if (found && onPhoto) {
+      const end = toScreen({ x: this.result.width, y: this.result.height });
+      ctx.save();
+      ctx.imageSmoothingEnabled = false;
+      ctx.drawImage(found, 0, 0, end.x, end.y);
+      ctx.restore();
+    }
     const { points, closed } = this.outline;
     if (points.length) {
       tracePath(ctx, toScreen, points, closed);
@@ -395,6 +463,7 @@ export class AnalysisPage {
     this.result = null;
     this.line = null;
     $('an-results').hidden = true;
+    $('an-mask-note').hidden = true;
     $('an-profile-figure').hidden = true;
     const mapRadio = document.querySelector('input[name="an-layer"][value="map"]');
     mapRadio.disabled = true;
@@ -411,7 +480,7 @@ export class AnalysisPage {
       }
       return file;
     }
-    if (mode !== 'polygon') return null;
+    if (mode !== 'polygon') return null; // 'find' and 'none' send no mask
     const { points, closed } = this.outline;
     if (!closed || points.length < 3) {
       $('an-view').focus();
@@ -452,11 +521,14 @@ export class AnalysisPage {
       form.append('calibration', calibration);
       const mask = await this.maskBlob();
       if (mask) form.append('mask', mask, 'mask.png');
+      const mode = document.querySelector('input[name="an-mask"]:checked').value;
+      if (mode === 'none') form.append('specimen', 'whole_photo');
       form.append(
         'options',
         JSON.stringify({ hints: this.hints, exposure_compensation: $('an-exposure').checked, max_order: null }),
       );
     } catch (e) {
+      this.clearResult();
       showError(error, e);
       return;
     }
@@ -470,6 +542,8 @@ export class AnalysisPage {
       this.showResult(answer, orders, flags, uncertainty);
       this.progress.done(`Map ready: ${answer.width} × ${answer.height} px.`);
     } catch (e) {
+      // No result of an earlier run stays beside the error: it would read as this one's.
+      this.clearResult();
       this.progress.done();
       showError(error, e);
     } finally {
@@ -501,7 +575,9 @@ export class AnalysisPage {
       px[o + 3] = 255;
     }
     ctx.putImageData(image, 0, 0);
-    this.result = { width, height, order: orders.data, uncertainty: uncertainty.data, flags: flags.data, canvas, top, id: answer.id };
+    const found = answer.mask?.source === 'found' ? foundMaskPicture(flags.data, width, height) : null;
+    this.result = { width, height, order: orders.data, uncertainty: uncertainty.data, flags: flags.data, canvas, top, id: answer.id, found };
+    showMaskNote(answer.mask);
 
     const caution = $('an-caution');
     caution.textContent = answer.caution ?? '';
@@ -513,11 +589,12 @@ export class AnalysisPage {
       ['Pixels with a value', `${st.valued_pixels.toLocaleString()} of ${st.specimen_pixels.toLocaleString()}`],
       ['Beyond range', share(st.beyond_range_share)],
       ['Unreliable', share(st.unreliable_share)],
-      ['Mean colour residual', `${fmt(st.mean_residual, 1)} ΔE*ab`],
+      ['Specimen', answer.mask ? maskText(answer.mask) : ''],
+      ['Mean colour residual', `${fmt(st.mean_residual, 1)} ΔE00 (CIEDE2000; below 2 good, above 3 poor)`],
       ['Exposure gain (R, G, B)', answer.exposure?.gain?.map((g) => fmt(g, 2)).join(', ')],
     ]);
-    const base = `order-map-${answer.id}`;
-    for (const [key, suffix] of [['npy', '.npy'], ['png16', '-16bit.png'], ['csv', '.csv'], ['preview', '-preview.png'], ['uncertainty', '-uncertainty.npy']]) {
+    const base = photoStem(this.photo.file.name);
+    for (const [key, suffix] of [['npy', '-orders.npy'], ['png16', '-orders-16bit.png'], ['csv', '-orders.csv'], ['preview', '-preview.png'], ['uncertainty', '-uncertainty.npy']]) {
       const link = $(`an-dl-${key}`);
       link.href = answer.links[key];
       link.download = base + suffix;

@@ -17,6 +17,7 @@ mod matcher;
 pub mod order_map;
 pub mod render;
 pub mod series;
+pub mod specimen;
 pub mod stress;
 
 pub use calibration::{CalibrationMetadata, CalibrationTable, TableEntry, TableSource};

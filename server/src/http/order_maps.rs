@@ -16,6 +16,7 @@ use isotint_core::compact;
 use isotint_core::comparison::{compare, Comparison, PointPair, Prediction, Registration};
 use isotint_core::export::FileKind;
 use isotint_core::exposure::ExposureCorrection;
+use isotint_core::specimen::MaskUsed;
 use isotint_core::stress::{StressOpticLaw, StressStatistics, STRESS_CAUTION};
 use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint};
 use serde::{Deserialize, Serialize};
@@ -30,7 +31,7 @@ use super::form::{parse_json, path_id, Form};
 use super::jobs::{Admission, JobSize};
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId, OrderMapId};
-use crate::pipeline;
+use crate::pipeline::{self, MaskChoice};
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
 /// Routes of this module.
@@ -124,6 +125,10 @@ pub struct MapForm {
     /// Optional mask PNG, same size as the photo; non-zero = specimen.
     #[schema(value_type = Option<String>, format = Binary)]
     pub mask: Option<Vec<u8>>,
+    /// Without a mask: `find` (the default) maps the specimen found from the photo (its dark,
+    /// featureless background and large holes left out), `whole_photo` every pixel.
+    #[schema(value_type = Option<String>)]
+    pub specimen: Option<String>,
     /// Optional JSON: `hints` [{x, y, order}], `exposure_compensation`, `max_order`,
     /// `max_gradient`.
     #[schema(value_type = Option<Object>)]
@@ -142,7 +147,7 @@ pub struct OrderMapLinks {
     pub png16: String,
     /// False-colour preview PNG.
     pub preview: String,
-    /// CSV `x,y,order,residual,flags`.
+    /// CSV `x,y,order,residual_de2000,flags` (the colour residual in CIEDE2000, ΔE00).
     pub csv: String,
     /// Standard uncertainty (1 σ) of the order, fringes, NPY float32 (height, width), NaN = no
     /// value.
@@ -208,9 +213,15 @@ pub struct OrderMapResource {
     /// Calibration used.
     #[schema(value_type = String, format = Uuid)]
     pub calibration_id: CalibrationId,
-    /// Summary figures (NaN figures are null).
+    /// Summary figures over the specimen's pixels (NaN figures are null).
     #[schema(value_type = Object)]
     pub statistics: serde_json::Value,
+    /// The mask used: `source` (`given`, `found` from the photo, or `whole_photo`) and
+    /// `specimen_share`, its share of the photo's pixels (0–1); null for maps stored before it
+    /// was recorded. A found mask is worth a look: the `flags` file marks the pixels it left
+    /// out (bit 1).
+    #[schema(value_type = Option<Object>)]
+    pub mask: Option<MaskUsed>,
     /// True when part of the specimen lies beyond the calibration's range: the true maximum may
     /// lie there, so `statistics.max_order` (and any maximum stress) is a lower bound.
     pub max_is_lower_bound: bool,
@@ -255,10 +266,42 @@ impl OrderMapResource {
             caution: statistics.range_caution(),
             stress: law.map(|law| StressResource::new(&r.statistics, law, r.id)),
             statistics: r.statistics,
+            mask: r.mask,
             exposure: r.exposure,
             created_at: rfc3339(r.created_at),
             expires_at: rfc3339(r.expires_at),
         }
+    }
+}
+
+/// The `specimen` field of a map request, used when no mask is given.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum SpecimenChoice {
+    Find,
+    WholePhoto,
+}
+
+impl SpecimenChoice {
+    /// `find` (or absent) or `whole_photo`; refused beside a mask, which already says which
+    /// pixels are the specimen.
+    fn parse(text: Option<&str>, with_mask: bool) -> Result<SpecimenChoice, ApiError> {
+        let choice = match text.map(str::trim) {
+            None | Some("find") => SpecimenChoice::Find,
+            Some("whole_photo") => SpecimenChoice::WholePhoto,
+            Some(other) => {
+                return Err(ApiError::unprocessable(
+                    "invalid_input",
+                    format!("invalid specimen: {other:?}; use \"find\" or \"whole_photo\""),
+                ))
+            }
+        };
+        if with_mask && text.is_some() {
+            return Err(ApiError::unprocessable(
+                "invalid_input",
+                "invalid specimen: give either a mask or specimen, not both",
+            ));
+        }
+        Ok(choice)
     }
 }
 
@@ -302,7 +345,11 @@ async fn create_order_map(
         .transpose()?;
     // A file answer streams like a download: its place is taken before the upload is read.
     let download = format.map(|_| state.downloads.start()).transpose()?;
-    let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
+    let mut form = Form::read(
+        multipart,
+        &["photo", "calibration", "mask", "specimen", "options"],
+    )
+    .await?;
     let calibration_id: CalibrationId = form.require_id("calibration")?;
     let options: MapOptions = match form.take("options") {
         Some(bytes) => parse_json("options", &bytes)?,
@@ -310,16 +357,22 @@ async fn create_order_map(
     };
     let photo = form.require("photo")?;
     let mask = form.take("mask");
+    let specimen = SpecimenChoice::parse(form.text("specimen")?.as_deref(), mask.is_some())?;
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     options.validate(&table)?;
     let limits = state.config.decode_limits;
     let admission = state.jobs.admit(form.job_size(&photo, &limits)?).await?;
     // The job holds its admission until its results are stored.
-    let (map, bands) = admission
-        .run(move || -> CoreResult<(OrderMap, Vec<Vec<u8>>)> {
-            let map = pipeline::map(&photo, mask.as_deref(), &table, &options, &limits)?;
+    let (map, mask_used, bands) = admission
+        .run(move || -> CoreResult<(OrderMap, MaskUsed, Vec<Vec<u8>>)> {
+            let choice = match (&mask, specimen) {
+                (Some(bytes), _) => MaskChoice::Given(bytes),
+                (None, SpecimenChoice::WholePhoto) => MaskChoice::WholePhoto,
+                (None, SpecimenChoice::Find) => MaskChoice::Find,
+            };
+            let (map, used) = pipeline::map(&photo, choice, &table, &options, &limits)?;
             let bands = compact::encode_map(&map)?;
-            Ok((map, bands))
+            Ok((map, used, bands))
         })
         .await??;
     if let (Some(kind), Some(slot)) = (format, download) {
@@ -336,7 +389,14 @@ async fn create_order_map(
             .stream(slot, kind, shape, bands, "order-map", cut.map(|c| c.0));
     }
     let retention = state.config.retention;
-    let row = store::insert(&state.storage, calibration_id, &map, &bands, retention).await?;
+    let row = store::insert(
+        &state.storage,
+        calibration_id,
+        (&map, mask_used),
+        &bands,
+        retention,
+    )
+    .await?;
     drop(admission);
     let location = format!("/api/v1/order-maps/{}", row.id);
     Ok((
