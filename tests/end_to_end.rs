@@ -471,3 +471,26 @@ async fn a_maps_residuals_are_ciede2000_in_its_figures_and_its_csv() {
     // just-noticeable differences (about 1 ΔE00 each: common practice, no source).
     assert!(mean > 0.0 && mean < 2.0, "mean residual {mean}");
 }
+
+#[tokio::test]
+async fn a_stored_maps_file_is_saved_under_the_name_asked_for_and_an_unsafe_name_is_refused() {
+    let (svc, v) = stored_disc_map().await;
+    let npy = v["links"]["npy"].as_str().unwrap();
+    let named = get(&svc.app, &format!("{npy}?name=disc-03-orders")).await;
+    assert_eq!(named.status, StatusCode::OK);
+    assert_eq!(
+        named.headers["content-disposition"].to_str().unwrap(),
+        "attachment; filename=\"disc-03-orders.npy\""
+    );
+    let uncertainty = v["links"]["uncertainty"].as_str().unwrap();
+    let named = get(&svc.app, &format!("{uncertainty}?name=disc-03-orders")).await;
+    assert_eq!(
+        named.headers["content-disposition"].to_str().unwrap(),
+        "attachment; filename=\"disc-03-orders-uncertainty.npy\""
+    );
+    for bad in ["..%2Fetc", "a%22b", "", ".hidden", &"x".repeat(101)] {
+        let refused = get(&svc.app, &format!("{npy}?name={bad}")).await;
+        assert_eq!(refused.status, StatusCode::UNPROCESSABLE_ENTITY, "{bad}");
+        assert!(refused.error_message().contains("name"), "{bad}");
+    }
+}

@@ -32,10 +32,11 @@ function plusMinus(sigma, digits) {
   return Number.isFinite(sigma) ? ` ± ${fmt(sigma, digits)}` : '';
 }
 
-// A photo's file name without its extension, safe as the start of a file name: downloads are
-// named after the photo ("disc-03.jpg" → "disc-03-orders.npy").
+// A photo's file name without its extension, as the service accepts it for a file name (at most
+// 80 letters, digits, '.', '_', '-', not starting with '.'): downloads are named after the photo
+// ("disc-03.jpg" → "disc-03-orders.npy").
 export function photoStem(name) {
-  const stem = name.replace(/\.[^.]*$/, '').replace(/[^\w.-]+/g, '_');
+  const stem = name.replace(/\.[^.]*$/, '').replace(/[^A-Za-z0-9._-]+/g, '_').replace(/^\.+/, '').slice(0, 80);
   return stem || 'photo';
 }
 
@@ -593,10 +594,12 @@ export class AnalysisPage {
       ['Mean colour residual', `${fmt(st.mean_residual, 1)} ΔE00 (CIEDE2000; below 2 good, above 3 poor)`],
       ['Exposure gain (R, G, B)', answer.exposure?.gain?.map((g) => fmt(g, 2)).join(', ')],
     ]);
-    const base = photoStem(this.photo.file.name);
-    for (const [key, suffix] of [['npy', '-orders.npy'], ['png16', '-orders-16bit.png'], ['csv', '-orders.csv'], ['preview', '-preview.png'], ['uncertainty', '-uncertainty.npy']]) {
+    // Files are saved under the photo's name (the service names them by `?name=`, so that a
+    // download fetched with a token is saved under the same name).
+    const base = `${photoStem(this.photo.file.name)}-orders`;
+    for (const [key, suffix] of [['npy', '.npy'], ['png16', '.png'], ['csv', '.csv'], ['preview', '.preview.png'], ['uncertainty', '-uncertainty.npy']]) {
       const link = $(`an-dl-${key}`);
-      link.href = answer.links[key];
+      link.href = `${answer.links[key]}?${new URLSearchParams({ name: base })}`;
       link.download = base + suffix;
     }
     $('an-results').hidden = false;

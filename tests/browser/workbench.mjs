@@ -4,7 +4,10 @@
 // 1 % of the known one, caution shown) and see a refused estimate explained, analyse the demo
 // disc photo with the saved calibration inside an outline drawn on the photo, read values by
 // hovering, draw a profile line and download the NPY map, whose shape must equal the photo's
-// (height, width).
+// (height, width) and whose name the photo's; map it again with the specimen found from the
+// photo (note, outline, share near the disc's) and then the whole photo; see a failed run clear
+// the old map; read the built-in calibration's edge order, light and camera in words; and check
+// the layout at 360 px wide (no sideways scroll) and at 1366 × 768 (every input reachable).
 //
 // Usage: node workbench.mjs BASE_URL DEMO_DIR
 // DEMO_DIR is what `isotint demo --out DEMO_DIR` writes; its scenario.json names the photos,
@@ -256,6 +259,7 @@ async function main(browser) {
   await step('the NPY download is named after the photo and has its shape (height, width)', async () => {
     const [download] = await Promise.all([page.waitForEvent('download'), page.getByRole('link', { name: 'Orders (NPY)' }).click()]);
     const stem = path.parse(disc.photo).name;
+    // The service names the file too (the same name whether or not a token fetched it).
     check(download.suggestedFilename() === `${stem}-orders.npy`, `the download is named ${download.suggestedFilename()}, not ${stem}-orders.npy`);
     const file = path.join(fs.mkdtempSync(path.join(os.tmpdir(), 'isotint-npy-')), download.suggestedFilename());
     await download.saveAs(file);
@@ -337,7 +341,7 @@ async function main(browser) {
     small.setDefaultTimeout(STEP_TIMEOUT);
     try {
       for (const hash of ['#/calibrations', '#/calibrations/new', '#/analyse']) {
-        await small.goto(`${baseUrl}/${hash}`);
+        await small.goto(`${baseUrl}${hash}`);
         await small.locator('main').waitFor();
         if (hash === '#/analyse') {
           await small.locator('#an-photo').setInputFiles(discFile);
@@ -354,15 +358,16 @@ async function main(browser) {
 
   await step('at 1366 × 768 every input of both pages can be reached and clicked', async () => {
     for (const hash of ['#/calibrations/new', '#/analyse']) {
-      await page.goto(`${baseUrl}/${hash}`);
+      await page.goto(`${baseUrl}${hash}`);
       await page.locator('main').waitFor();
       const fields = page.locator(`main .page:not([hidden]) :is(input, select, textarea, button):visible`);
       const count = await fields.count();
       check(count > 5, `only ${count} inputs found on ${hash}`);
       for (let i = 0; i < count; i += 1) {
         const field = fields.nth(i);
-        await field.scrollIntoViewIfNeeded();
+        // As keyboard focus does: scrolled into view as the page's scroll padding allows.
         const reachable = await field.evaluate((el) => {
+          el.scrollIntoView({ block: 'nearest' });
           const box = el.getBoundingClientRect();
           const x = box.left + box.width / 2;
           const y = box.top + box.height / 2;

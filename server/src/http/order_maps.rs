@@ -113,6 +113,44 @@ impl StressQuery {
     }
 }
 
+/// Query of a stored map's file: the name it is saved under.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct FileNameQuery {
+    /// Stem of the saved file's name (Content-Disposition), e.g. the photo's: `disc-03-orders`
+    /// gives `disc-03-orders.npy`; 1–100 letters, digits, `.`, `_` or `-`, not starting with
+    /// `.`. Default `order-map-ID`.
+    pub name: Option<String>,
+}
+
+/// Longest accepted file-name stem, characters.
+const MAX_NAME_CHARS: usize = 100;
+
+impl FileNameQuery {
+    /// The stem to name the file by: the given one if it is safe in a file name and a
+    /// header, 422 naming `name` otherwise; `order-map-ID` without one.
+    fn stem(&self, id: OrderMapId) -> Result<String, ApiError> {
+        let Some(name) = &self.name else {
+            return Ok(format!("order-map-{id}"));
+        };
+        let safe = |c: char| c.is_ascii_alphanumeric() || matches!(c, '.' | '_' | '-');
+        if name.is_empty()
+            || name.len() > MAX_NAME_CHARS
+            || name.starts_with('.')
+            || !name.chars().all(safe)
+        {
+            return Err(ApiError::unprocessable(
+                "invalid_input",
+                format!(
+                    "invalid name: {name:?}; use 1–{MAX_NAME_CHARS} letters, digits, '.', '_' \
+                     or '-', not starting with '.'"
+                ),
+            ));
+        }
+        Ok(name.clone())
+    }
+}
+
 /// Multipart body of `POST /api/v1/order-maps`.
 #[derive(ToSchema)]
 pub struct MapForm {
@@ -432,7 +470,7 @@ async fn get_order_map(
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
     params(("id" = String, Path, description = "Order-map id"),
            ("file" = String, Path, description = "npy, png16, preview, csv, uncertainty, flags, stress-npy, stress-preview or stress-csv"),
-           StressQuery),
+           StressQuery, FileNameQuery),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
@@ -442,9 +480,11 @@ async fn get_order_map_file(
     cut: Option<Extension<ConnectionCut>>,
     Path((id, file)): Path<(String, String)>,
     stress: Result<Query<StressQuery>, QueryRejection>,
+    name: Result<Query<FileNameQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
     let law = stress?.0.law()?;
+    let stem = name?.0.stem(id)?;
     let kind = FileKind::from_name(&file, law).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
@@ -460,7 +500,6 @@ async fn get_order_map_file(
         statistics: statistics_from_json(&row.statistics),
     };
     let bands = Bands::Stored(state.storage.clone(), id);
-    let stem = format!("order-map-{id}");
     state
         .downloads
         .stream(slot, kind, shape, bands, &stem, cut.map(|c| c.0))
