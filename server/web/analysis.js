@@ -62,23 +62,29 @@ function showMaskNote(mask) {
 // A picture of the found specimen at the photo's size: what was left out shaded blue, the
 // specimen's edge pixels yellow (from the map's flags, bit 1 = outside the mask).
 function foundMaskPicture(flags, width, height) {
+  const outside = (x, y) => x >= 0 && y >= 0 && x < width && y < height && (flags[y * width + x] & 1) !== 0;
+  return picture(width, height, (px) => {
+    for (let y = 0; y < height; y += 1) {
+      for (let x = 0; x < width; x += 1) {
+        const o = (y * width + x) * 4;
+        if (outside(x, y)) {
+          px.set([40, 110, 255, 90], o);
+        } else if (outside(x - 1, y) || outside(x + 1, y) || outside(x, y - 1) || outside(x, y + 1)) {
+          px.set([255, 214, 10, 255], o);
+        }
+      }
+    }
+  });
+}
+
+// A canvas of `width` × `height` whose RGBA bytes `paint(px)` fills (transparent to begin with).
+function picture(width, height, paint) {
   const canvas = document.createElement('canvas');
   canvas.width = width;
   canvas.height = height;
   const ctx = canvas.getContext('2d');
   const image = ctx.createImageData(width, height);
-  const px = image.data;
-  const outside = (x, y) => x >= 0 && y >= 0 && x < width && y < height && (flags[y * width + x] & 1) !== 0;
-  for (let y = 0; y < height; y += 1) {
-    for (let x = 0; x < width; x += 1) {
-      const o = (y * width + x) * 4;
-      if (outside(x, y)) {
-        px.set([40, 110, 255, 90], o);
-      } else if (outside(x - 1, y) || outside(x + 1, y) || outside(x, y - 1) || outside(x, y + 1)) {
-        px.set([255, 214, 10, 255], o);
-      }
-    }
-  }
+  paint(image.data);
   ctx.putImageData(image, 0, 0);
   return canvas;
 }
@@ -559,23 +565,18 @@ export class AnalysisPage {
       throw new Error(`The map files do not match the reported size ${answer.width} × ${answer.height}.`);
     }
     const top = scaleTop(answer.statistics.max_order);
-    const canvas = document.createElement('canvas');
-    canvas.width = width;
-    canvas.height = height;
-    const ctx = canvas.getContext('2d');
-    const image = ctx.createImageData(width, height);
-    const px = image.data;
-    for (let i = 0; i < width * height; i += 1) {
-      // Flagged pixels wear their flag's colour; a missing value without a flag counts as unreliable.
-      const flag = flagOf(flags.data[i]) ?? (Number.isFinite(orders.data[i]) ? null : UNRELIABLE);
-      const rgb = flag ? flag.rgb : cividis(orders.data[i] / top);
-      const o = i * 4;
-      px[o] = rgb[0];
-      px[o + 1] = rgb[1];
-      px[o + 2] = rgb[2];
-      px[o + 3] = 255;
-    }
-    ctx.putImageData(image, 0, 0);
+    const canvas = picture(width, height, (px) => {
+      for (let i = 0; i < width * height; i += 1) {
+        // Flagged pixels wear their flag's colour; a missing value without a flag counts as unreliable.
+        const flag = flagOf(flags.data[i]) ?? (Number.isFinite(orders.data[i]) ? null : UNRELIABLE);
+        const rgb = flag ? flag.rgb : cividis(orders.data[i] / top);
+        const o = i * 4;
+        px[o] = rgb[0];
+        px[o + 1] = rgb[1];
+        px[o + 2] = rgb[2];
+        px[o + 3] = 255;
+      }
+    });
     const found = answer.mask?.source === 'found' ? foundMaskPicture(flags.data, width, height) : null;
     this.result = { width, height, order: orders.data, uncertainty: uncertainty.data, flags: flags.data, canvas, top, id: answer.id, found };
     showMaskNote(answer.mask);

@@ -184,12 +184,12 @@ fn calm_pixels(dark: &[bool], w: usize, h: usize, r: usize) -> Vec<bool> {
             }
             next_bright[i] = upcoming;
         }
-        for i in 0..len {
+        for (i, &next) in next_bright.iter().enumerate() {
             if !get(i) {
                 last_bright = Some(i);
             }
             let near_before = last_bright.is_some_and(|b| i - b <= r);
-            let near_after = next_bright[i] != usize::MAX && next_bright[i] - i <= r;
+            let near_after = next != usize::MAX && next - i <= r;
             out(i, !(near_before || near_after));
         }
     };
