@@ -16,6 +16,7 @@ use isotint::storage::order_maps;
 use isotint_core::compact;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
+use isotint_core::specimen::{MaskSource, MaskUsed};
 use isotint_core::{OrderMap, PixelFlags};
 use tokio::io::{AsyncReadExt, AsyncWriteExt};
 use tower::ServiceExt;
@@ -108,7 +109,7 @@ async fn store_map(svc: &common::TestService, map: &OrderMap) -> String {
     let row = order_maps::insert(
         &svc.storage,
         calibration.parse().unwrap(),
-        map,
+        (map, MaskUsed::of(MaskSource::WholePhoto, None)),
         &bands,
         Duration::from_secs(3600),
     )
@@ -142,7 +143,7 @@ async fn a_stored_maps_csv_streams_band_by_band_and_reads_as_its_rows_to_a_ten_t
     let text = String::from_utf8(text).unwrap();
     let lines: Vec<&str> = text.lines().collect();
     assert_eq!(lines.len(), 1 + 500);
-    assert_eq!(lines[0], "x,y,order,residual,flags");
+    assert_eq!(lines[0], "x,y,order,residual_de2000,flags");
     // Pixel (1, 0): 0.01004 kept as 0.0100; (0, 0) is beyond range; (4, 99) is 1.03.
     assert_eq!(lines[1], "0,0,,,2");
     assert_eq!(lines[2], "1,0,0.0100,0.50,0");

@@ -4,10 +4,14 @@
 //!
 //! - `workbench.mjs` (open mode, on photos written by `isotint demo`): calibrate from the beam
 //!   photo, estimate its edge order from the colours and see a refused estimate explained,
-//!   analyse the disc photo, hover, profile, download the NPY map; then the σ1 − σ2 layer
+//!   analyse the disc photo, hover, profile, download the NPY map named after the photo; then
+//!   the σ1 − σ2 layer
 //!   (MPa bar, lower bound, caution, download), the scale from two clicked points, the
 //!   free-edge stress with K_t, the comparison with the disc's predicted field, the demo
-//!   beam's edge stress against 6M/(t·d²), and the load-series page.
+//!   beam's edge stress against 6M/(t·d²), and the load-series page; back on the disc, the
+//!   specimen found from the photo, outlined, and the whole photo instead; a failed run clears
+//!   the old map; the built-in calibration's edge order, light and camera in words; no page
+//!   wider than a 360 px screen; every input reachable at 1366 × 768.
 //! - `token_mode.mjs` (token mode): sign in with a token, see the name and role, the actions
 //!   hidden from a writer, 401 and 403 explained, the audit rows an admin sees, a download
 //!   that carries the token.
@@ -151,6 +155,8 @@ async fn workbench_works_in_a_headless_browser() {
     let scratch = tempfile::tempdir().expect("temp dir");
     let demo = demo_photos(scratch.path());
     let storage = fresh_storage(scratch.path()).await;
+    // As a service start does: the calibration page is checked on the built-in demo set.
+    import_built_in(&storage).await.expect("demo set imported");
     let args = vec![demo.display().to_string()];
     let config = ServiceConfig::default();
     run_script(&browser_dir, "workbench.mjs", storage, config, args).await;

@@ -105,7 +105,11 @@ fn the_demo_calibration_maps_the_disc_close_to_the_closed_form_orders() {
         .lines()
         .find(|l| l.contains("mean residual"))
         .unwrap();
-    assert!(residual.ends_with(" ΔE*ab"), "{residual}");
+    assert!(residual.ends_with(" ΔE00 (CIEDE2000)"), "{residual}");
+    assert!(
+        printed.contains("  mask                given, "),
+        "the mask used is not named: {printed}"
+    );
     // The demo disc's centre is loaded past the table (orders 5–7 against 4.4).
     assert!(
         printed.contains("caution") && printed.contains("beyond this calibration's last order"),
@@ -495,6 +499,170 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
         assert!(!output.status.success(), "{args:?} succeeded");
         let stderr = String::from_utf8_lossy(&output.stderr);
         assert!(stderr.contains(needle), "{args:?}: {stderr}");
+    }
+}
+
+/// The share (0–1) in the `mask` line `isotint map` prints, and that line.
+fn mask_line(printed: &str) -> (f64, &str) {
+    let line = printed
+        .lines()
+        .find(|l| l.trim_start().starts_with("mask "))
+        .unwrap_or_else(|| panic!("no mask line in {printed}"));
+    let percent: f64 = line
+        .split(", ")
+        .nth(1)
+        .and_then(|p| p.split(' ').next())
+        .and_then(|p| p.parse().ok())
+        .unwrap_or_else(|| panic!("no share in {line}"));
+    (percent / 100.0, line)
+}
+
+#[test]
+fn map_without_a_mask_finds_the_specimen_from_the_photo_and_says_which_mask_it_used() {
+    let map = |extra: &[&str]| {
+        let (calibration, photo, out) = (
+            path("calibration.json"),
+            path("plate-hole.png"),
+            path("found-plate.npy"),
+        );
+        let mut args = vec![
+            "map",
+            "--calibration",
+            &calibration,
+            "--photo",
+            &photo,
+            "--out",
+            &out,
+        ];
+        args.extend_from_slice(extra);
+        ok(isotint(&args))
+    };
+    // source: the demo's own mask of the plate (its hole left out), written by `isotint demo`.
+    let truth = Mask::decode(
+        &std::fs::read(path("plate-hole-mask.png")).unwrap(),
+        &DecodeLimits::default(),
+    )
+    .unwrap();
+    let true_share =
+        truth.as_slice().iter().filter(|v| **v).count() as f64 / truth.as_slice().len() as f64;
+    let printed = map(&[]);
+    let (share, line) = mask_line(&printed);
+    assert!(line.contains("found from the photo"), "{line}");
+    assert!(
+        (share - true_share).abs() <= 0.01,
+        "found {share}, the plate is {true_share} of the photo"
+    );
+    assert!(printed.contains("--whole-photo"), "{printed}");
+    // The hole's centre is left out of the map: no value there.
+    let (_, cols, orders) = read_npy_f32(&std::fs::read(path("found-plate.npy")).unwrap()).unwrap();
+    let hole = &scenario()["plate"]["field"]["centre"];
+    let (x, y) = (
+        hole["x"].as_f64().unwrap() as usize,
+        hole["y"].as_f64().unwrap() as usize,
+    );
+    assert!(
+        orders[y * cols + x].is_nan(),
+        "the hole's centre has a value"
+    );
+
+    let printed = map(&["--whole-photo"]);
+    let (whole, line) = mask_line(&printed);
+    assert_eq!(whole, 1.0, "{line}");
+    assert!(line.contains("whole photo"), "{line}");
+
+    let both = isotint(&[
+        "map",
+        "--calibration",
+        &path("calibration.json"),
+        "--photo",
+        &path("plate-hole.png"),
+        "--mask",
+        &path("plate-hole-mask.png"),
+        "--whole-photo",
+        "--out",
+        &path("never-both.npy"),
+    ]);
+    assert!(!both.status.success());
+    let stderr = String::from_utf8_lossy(&both.stderr);
+    assert!(
+        stderr.contains("--mask") && stderr.contains("--whole-photo"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn a_photo_that_cannot_be_decoded_is_refused_naming_the_photo_flag_in_every_command() {
+    let dir = tempfile::tempdir().unwrap();
+    // A PNG signature followed by nothing a decoder can read, and a JPEG cut after its header.
+    let broken_png = dir.path().join("broken.png");
+    let mut png = b"\x89PNG\r\n\x1a\n".to_vec();
+    png.extend_from_slice(&[7; 64]);
+    std::fs::write(&broken_png, png).unwrap();
+    let cut_jpeg = dir.path().join("cut.jpg");
+    let mut jpeg = vec![0xFF, 0xD8, 0xFF, 0xE0, 0x00, 0x10];
+    jpeg.extend_from_slice(b"JFIF\0\x01\x01\0\0\x01\0\x01\0\0");
+    std::fs::write(&cut_jpeg, jpeg).unwrap();
+    let (calibration, mask) = (path("calibration.json"), path("disc-mask.png"));
+    let out = dir.path().join("o.npy");
+    let out = out.to_str().unwrap();
+    for photo in [&broken_png, &cut_jpeg] {
+        let photo = photo.to_str().unwrap();
+        let commands: [Vec<&str>; 4] = [
+            vec![
+                "map",
+                "--calibration",
+                &calibration,
+                "--photo",
+                photo,
+                "--out",
+                out,
+            ],
+            vec![
+                "boundary",
+                "--calibration",
+                &calibration,
+                "--photo",
+                photo,
+                "--mask",
+                &mask,
+                "--fringe-value-n-per-mm",
+                "10.5",
+                "--thickness-mm",
+                "6",
+            ],
+            vec![
+                "calibrate",
+                "--photo",
+                photo,
+                "--region",
+                "0,0,9,9",
+                "--edge-order",
+                "2",
+                "--out",
+                out,
+            ],
+            vec![
+                "series",
+                "--calibration",
+                &calibration,
+                "--mask",
+                &mask,
+                "--photo",
+                photo,
+                "--load-n",
+                "100",
+                "--photo",
+                photo,
+                "--load-n",
+                "200",
+            ],
+        ];
+        for args in commands {
+            let output = isotint(&args);
+            assert!(!output.status.success(), "{args:?} succeeded");
+            let stderr = String::from_utf8_lossy(&output.stderr);
+            assert!(stderr.contains("--photo"), "{args:?}: {stderr}");
+        }
     }
 }
 

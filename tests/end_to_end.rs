@@ -375,3 +375,122 @@ async fn every_valued_pixel_of_a_stored_map_has_a_finite_uncertainty() {
         "{without} of {valued} valued pixels have no finite σ ≥ 0"
     );
 }
+
+#[tokio::test]
+async fn without_a_mask_the_service_maps_the_specimen_found_from_the_photo_and_says_so() {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let disc = disc_photo();
+    let bare = || {
+        Form::new()
+            .file("photo", "disc.png", "image/png", disc.png.clone())
+            .text("calibration", &id)
+    };
+    let found = created(&bare().post(&svc.app, "/api/v1/order-maps").await);
+    assert_eq!(found["mask"]["source"], "found", "{found}");
+    // source: the renderer's own mask of the disc (its true specimen).
+    let truth = Mask::decode(&disc.mask_png, &Default::default()).unwrap();
+    let inside = truth.as_slice().iter().filter(|v| **v).count();
+    let true_share = inside as f64 / truth.as_slice().len() as f64;
+    let share = found["mask"]["specimen_share"].as_f64().unwrap();
+    // A disc in compression is stress-free along its rim (zero order, the background's colour):
+    // the found share may fall short of the disc's by that rim, never exceed it by much.
+    assert!(
+        share <= true_share * 1.02 && share >= true_share * 0.9,
+        "found {share}, the disc covers {true_share}"
+    );
+    // The figures count the specimen only, and the flags file marks what was left out.
+    let pixels = found["statistics"]["specimen_pixels"].as_f64().unwrap();
+    let all = f64::from(disc.width * disc.height);
+    assert!((pixels / all - share).abs() < 1e-9, "{found}");
+    let flags = get(&svc.app, found["links"]["flags"].as_str().unwrap()).await;
+    assert_eq!(flags.status, StatusCode::OK);
+    let corner = flags.body[flags.body.len() - (disc.width * disc.height) as usize];
+    assert_eq!(
+        corner & 1,
+        1,
+        "the photo's corner is not flagged outside the mask"
+    );
+    let stored = get(&svc.app, found["links"]["self"].as_str().unwrap()).await;
+    assert_eq!(
+        stored.json()["mask"],
+        found["mask"],
+        "the stored map forgets its mask"
+    );
+
+    let whole = created(
+        &bare()
+            .text("mask_source", "whole_photo")
+            .post(&svc.app, "/api/v1/order-maps")
+            .await,
+    );
+    assert_eq!(
+        whole["mask"],
+        json!({"source": "whole_photo", "specimen_share": 1.0})
+    );
+    let given = created(
+        &disc_form(&id, &disc)
+            .post(&svc.app, "/api/v1/order-maps")
+            .await,
+    );
+    assert_eq!(given["mask"]["source"], "given");
+    assert!((given["mask"]["specimen_share"].as_f64().unwrap() - true_share).abs() < 1e-9);
+
+    for form in [
+        bare().text("mask_source", "everything"),
+        disc_form(&id, &disc).text("mask_source", "find"),
+    ] {
+        let refused = form.post(&svc.app, "/api/v1/order-maps").await;
+        assert_eq!(refused.status, StatusCode::UNPROCESSABLE_ENTITY);
+        assert!(
+            refused.error_message().contains("mask_source"),
+            "{}",
+            refused.error_message()
+        );
+    }
+}
+
+#[tokio::test]
+async fn a_maps_residuals_are_ciede2000_in_its_figures_and_its_csv() {
+    let (svc, v) = stored_disc_map().await;
+    let mean = v["statistics"]["mean_residual"].as_f64().unwrap();
+    let csv = get(&svc.app, v["links"]["csv"].as_str().unwrap()).await;
+    let text = String::from_utf8(csv.body.to_vec()).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(lines.next(), Some("x,y,order,residual_de2000,flags"));
+    // The CSV's residuals (two decimals) average to the figure the answer gives.
+    let residuals: Vec<f64> = lines
+        .filter_map(|l| l.split(',').nth(3).and_then(|r| r.parse().ok()))
+        .collect();
+    let csv_mean = residuals.iter().sum::<f64>() / residuals.len() as f64;
+    assert!(
+        (csv_mean - mean).abs() < 0.01,
+        "CSV mean {csv_mean}, answer {mean}"
+    );
+    // A photo rendered under the table's own light and camera matches it within a few
+    // just-noticeable differences (about 1 ΔE00 each: common practice, no source).
+    assert!(mean > 0.0 && mean < 2.0, "mean residual {mean}");
+}
+
+#[tokio::test]
+async fn a_stored_maps_file_is_saved_under_the_name_asked_for_and_an_unsafe_name_is_refused() {
+    let (svc, v) = stored_disc_map().await;
+    let npy = v["links"]["npy"].as_str().unwrap();
+    let named = get(&svc.app, &format!("{npy}?name=disc-03-orders")).await;
+    assert_eq!(named.status, StatusCode::OK);
+    assert_eq!(
+        named.headers["content-disposition"].to_str().unwrap(),
+        "attachment; filename=\"disc-03-orders.npy\""
+    );
+    let uncertainty = v["links"]["uncertainty"].as_str().unwrap();
+    let named = get(&svc.app, &format!("{uncertainty}?name=disc-03-orders")).await;
+    assert_eq!(
+        named.headers["content-disposition"].to_str().unwrap(),
+        "attachment; filename=\"disc-03-orders-uncertainty.npy\""
+    );
+    for bad in ["..%2Fetc", "a%22b", "", ".hidden", &"x".repeat(101)] {
+        let refused = get(&svc.app, &format!("{npy}?name={bad}")).await;
+        assert_eq!(refused.status, StatusCode::UNPROCESSABLE_ENTITY, "{bad}");
+        assert!(refused.error_message().contains("name"), "{bad}");
+    }
+}

@@ -16,6 +16,7 @@ use isotint_core::compact;
 use isotint_core::export::read_npy_f32;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
+use isotint_core::specimen::{MaskSource, MaskUsed};
 use isotint_core::{OrderMap, PixelFlags};
 use sqlx::Row;
 use time::OffsetDateTime;
@@ -250,6 +251,14 @@ async fn the_built_in_demo_set_is_stored_once_and_a_folder_adds_only_what_is_new
     .await;
 }
 
+/// The mask of [`small_map`]: found from the photo, 5 of its 6 pixels.
+fn found_mask() -> MaskUsed {
+    MaskUsed {
+        source: MaskSource::Found,
+        specimen_share: 5.0 / 6.0,
+    }
+}
+
 fn small_map() -> OrderMap {
     OrderMap {
         width: 3,
@@ -290,11 +299,12 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
         let map = small_map();
         let bands = compact::encode_map(&map).unwrap();
         let hour = Duration::from_secs(3600);
-        let row = order_maps::insert(&storage, cal.row.id, &map, &bands, hour)
+        let row = order_maps::insert(&storage, cal.row.id, (&map, found_mask()), &bands, hour)
             .await
             .unwrap();
         let (meta, back) = order_maps::load(&storage, row.id).await.unwrap();
         assert_eq!(meta.calibration_id, cal.row.id);
+        assert_eq!(meta.mask, Some(found_mask()), "the mask used reads back");
         assert_eq!((back.width, back.height), (3, 2));
         assert_eq!(back.order[1], 1.25);
         assert!(back.order[2].is_nan());
@@ -459,9 +469,10 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                 let map = small_map();
                 let bands = compact::encode_map(&map).unwrap();
                 let minute = Duration::from_secs(60);
-                let stored = order_maps::insert(&storage, own, &map, &bands, minute)
-                    .await
-                    .map(|_| ());
+                let stored =
+                    order_maps::insert(&storage, own, (&map, found_mask()), &bands, minute)
+                        .await
+                        .map(|_| ());
                 (imported, corrected, rival, stored)
             });
         }

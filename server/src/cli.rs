@@ -17,6 +17,7 @@ use isotint_core::order_map::MapStatistics;
 use isotint_core::render::demo::DemoScenario;
 use isotint_core::report::{ReportInputs, ReportOptions};
 use isotint_core::series::{LoadSeries, SeriesSpec};
+use isotint_core::specimen::{MaskSource, MaskUsed};
 use isotint_core::stress::{
     maximum_text, Specimen, SpecimenFields, SpecimenKind, StressOpticLaw, STRESS_CAUTION,
 };
@@ -31,7 +32,7 @@ use crate::backup::Restored;
 use crate::client::{ClientFormat, NotDone, EXIT_NOT_DONE};
 use crate::config::{machine_memory_budget, ServiceConfig};
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
-use crate::pipeline;
+use crate::pipeline::{self, MaskChoice};
 use crate::storage::tokens::{self, TokenRow};
 use crate::storage::{Storage, StorageError};
 
@@ -535,9 +536,13 @@ pub struct MapArgs {
     /// Specimen photo (PNG, JPEG or TIFF).
     #[arg(long)]
     pub photo: PathBuf,
-    /// Mask image of the photo's size; non-zero = specimen.
-    #[arg(long)]
+    /// Mask image of the photo's size; non-zero = specimen. Without it the specimen is found
+    /// from the photo (the dark, featureless background and large holes left out).
+    #[arg(long, conflicts_with = "whole_photo")]
     pub mask: Option<PathBuf>,
+    /// Map every pixel of the photo instead of the specimen found from it.
+    #[arg(long)]
+    pub whole_photo: bool,
     /// Do not fit an exposure / white-balance / vignetting correction.
     #[arg(long)]
     pub no_exposure_compensation: bool,
@@ -982,9 +987,23 @@ impl<T> InFlags<T> for CoreResult<T> {
             CoreError::Invalid { field, message } => {
                 anyhow::anyhow!("invalid {}: {}", flag_of(field), with_flags(&message))
             }
+            // The decoder names its input ("the photo is …"): lead with its flag.
+            e @ (CoreError::Decode(_) | CoreError::TooLarge(_)) => match input_flag(&e.to_string())
+            {
+                Some(flag) => anyhow::anyhow!("{flag}: {e}"),
+                None => e.into(),
+            },
             other => other.into(),
         })
     }
+}
+
+/// The flag of the first input file a decoder's message names ("the photo is …" → "--photo").
+fn input_flag(message: &str) -> Option<&'static str> {
+    const INPUTS: [(&str, &str); 2] = [("photo", "--photo"), ("mask", "--mask")];
+    message
+        .split(|c: char| !c.is_ascii_alphanumeric())
+        .find_map(|word| INPUTS.iter().find(|(w, _)| *w == word).map(|(_, f)| *f))
 }
 
 fn init_tracing(format: LogFormat) {
@@ -1283,9 +1302,9 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
     let photo = read(&args.photo, "photo")?;
     let mask = read(&args.mask, "mask")?;
     let options = MapOptions::default();
-    let map = pipeline::map(
+    let (map, _) = pipeline::map(
         &photo,
-        Some(&mask),
+        MaskChoice::Given(&mask),
         &table,
         &options,
         &DecodeLimits::default(),
@@ -1438,9 +1457,9 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
     let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
     let mask = read(&args.mask, "mask")?;
-    let map = pipeline::map(
+    let (map, _) = pipeline::map(
         &photo,
-        Some(&mask),
+        MaskChoice::Given(&mask),
         &table,
         &MapOptions::default(),
         &DecodeLimits::default(),
@@ -1649,14 +1668,13 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     options.validate(&table).in_flags()?;
     let photo = read(&args.photo, "photo")?;
     let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
-    let map = pipeline::map(
-        &photo,
-        mask.as_deref(),
-        &table,
-        &options,
-        &DecodeLimits::default(),
-    )
-    .in_flags()?;
+    let choice = match (&mask, args.whole_photo) {
+        (Some(bytes), _) => MaskChoice::Given(bytes),
+        (None, true) => MaskChoice::WholePhoto,
+        (None, false) => MaskChoice::Find,
+    };
+    let (map, mask_used) =
+        pipeline::map(&photo, choice, &table, &options, &DecodeLimits::default()).in_flags()?;
     write(
         &args.out,
         &export::encode(&map, FileKind::Orders(outputs.orders)).in_flags()?,
@@ -1690,11 +1708,24 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             path.display()
         );
     }
+    print!("{}", mask_text(&mask_used));
     print!(
         "{}",
         statistics_text(&map.statistics, outputs.specimen.as_ref())
     );
     Ok(())
+}
+
+/// The line `isotint map` prints about the mask it used, with a note on how to change a
+/// found one.
+pub fn mask_text(used: &MaskUsed) -> String {
+    let mut out = format!("  mask                {}\n", used.describe());
+    if used.source == MaskSource::Found {
+        out += "  mask note           the dark background and large holes are left out, and so \
+                are zero-order zones on the specimen's edge; give --mask FILE or \
+                --whole-photo to keep them\n";
+    }
+    out
 }
 
 /// The lines `isotint map` prints about a map: its figures, the σ1 − σ2 figures (and a
@@ -1705,7 +1736,7 @@ pub fn statistics_text(s: &MapStatistics, specimen: Option<&Specimen>) -> String
     let mut out = format!(
         "  specimen pixels     {}\n  valued pixels       {}\n  beyond range        {:.1} %\n  \
          unreliable          {:.1} %\n  orders              min {:.3}, mean {:.3}, max {}\n  \
-         mean residual       {:.2} ΔE*ab\n",
+         mean residual       {:.2} ΔE00 (CIEDE2000)\n",
         s.specimen_pixels,
         s.valued_pixels,
         100.0 * s.beyond_range_share,

@@ -6,6 +6,7 @@ use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
 use isotint_core::export;
 use isotint_core::report::{report_pdf, ReportInputs};
 use isotint_core::series::{map_series, LoadSeries, SeriesSpec};
+use isotint_core::specimen::{find_specimen, MaskSource, MaskUsed};
 use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
 
 /// Decodes a beam photo and builds a calibration table from it.
@@ -18,17 +19,38 @@ pub fn calibrate(
     calibrate_beam(&photo, spec)
 }
 
-/// Decodes a specimen photo (and mask, if any) and maps its fringe orders with `table`.
+/// Which pixels of a photo a map covers.
+#[derive(Debug, Clone, Copy)]
+pub enum MaskChoice<'a> {
+    /// A mask image (PNG or any format the photo decoder reads): non-zero = specimen.
+    Given(&'a [u8]),
+    /// The specimen found from the photo (`specimen::find_specimen`); the whole photo when
+    /// nothing is found.
+    Find,
+    /// Every pixel.
+    WholePhoto,
+}
+
+/// Decodes a specimen photo (and mask, if given), chooses its specimen and maps its fringe
+/// orders with `table`; answers the map and the mask it used.
 pub fn map(
     photo: &[u8],
-    mask: Option<&[u8]>,
+    mask: MaskChoice<'_>,
     table: &CalibrationTable,
     options: &MapOptions,
     limits: &DecodeLimits,
-) -> CoreResult<OrderMap> {
+) -> CoreResult<(OrderMap, MaskUsed)> {
     let photo = Photo::decode(photo, limits)?;
-    let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
-    isotint_core::map_orders(&photo, table, mask.as_ref(), options)
+    let (source, mask) = match mask {
+        MaskChoice::Given(bytes) => (MaskSource::Given, Some(Mask::decode(bytes, limits)?)),
+        MaskChoice::Find => match find_specimen(&photo) {
+            Some(found) => (MaskSource::Found, Some(found)),
+            None => (MaskSource::WholePhoto, None),
+        },
+        MaskChoice::WholePhoto => (MaskSource::WholePhoto, None),
+    };
+    let map = isotint_core::map_orders(&photo, table, mask.as_ref(), options)?;
+    Ok((map, MaskUsed::of(source, mask.as_ref())))
 }
 
 /// Decodes a specimen photo (and mask, if any), maps it with `table` and writes its PDF report

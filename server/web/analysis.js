@@ -71,6 +71,8 @@ function paintLayer(width, height, values, flags, colourOf, missing = UNRELIABLE
 
 // Width (CSS pixels) of the colour bar and flag key beside the map, with its gap.
 const LEGEND_WIDTH = 180;
+// On narrow screens (phones) the colour bar and flag key go below the map (style.css).
+const NARROW = window.matchMedia('(max-width: 560px)');
 
 // Screen distance (CSS pixels) within which a click closes the outline on its first corner.
 const CLOSE_DISTANCE = 10;
@@ -80,13 +82,70 @@ function plusMinus(sigma, digits) {
   return Number.isFinite(sigma) ? ` ± ${fmt(sigma, digits)}` : '';
 }
 
+// A photo's file name without its extension, as the service accepts it for a file name (at most
+// 80 letters, digits, '.', '_', '-', not starting with '.'): downloads are named after the photo
+// ("disc-03.jpg" → "disc-03-orders.npy").
+export function photoStem(name) {
+  const stem = name.replace(/\.[^.]*$/, '').replace(/[^A-Za-z0-9._-]+/g, '_').replace(/^\.+/, '').slice(0, 80);
+  return stem || 'photo';
+}
+
+// How the specimen of a map was chosen, in words.
+function maskText(mask) {
+  const share = `${fmt(mask.specimen_share * 100, 1)} % of the photo`;
+  const source = { given: 'your mask', found: 'found from the photo', whole_photo: 'the whole photo' }[mask.source] ?? mask.source;
+  return `${source}, ${share}`;
+}
+
+// The note under a map whose specimen was found from the photo, or none.
+function showMaskNote(mask) {
+  const found = mask?.source === 'found';
+  $('an-mask-note').hidden = !found;
+  if (!found) return;
+  $('an-mask-note-text').textContent =
+    `The specimen was found from the photo: ${fmt(mask.specimen_share * 100, 1)} % of its pixels, ` +
+    'outlined in yellow on the photo, what was left out shaded blue. Shares and figures count the specimen only. ' +
+    'Zero-order zones on the specimen’s edge (an unloaded end, a stress-free rim) look like the background and are left out too; ' +
+    'if that is wrong, draw an outline, give a mask file, or use the whole photo.';
+}
+
+// A picture of the found specimen at the photo's size: what was left out shaded blue, the
+// specimen's edge pixels yellow (from the map's flags, bit 1 = outside the mask).
+function foundMaskPicture(flags, width, height) {
+  const outside = (x, y) => x >= 0 && y >= 0 && x < width && y < height && (flags[y * width + x] & 1) !== 0;
+  return picture(width, height, (px) => {
+    for (let y = 0; y < height; y += 1) {
+      for (let x = 0; x < width; x += 1) {
+        const o = (y * width + x) * 4;
+        if (outside(x, y)) {
+          px.set([40, 110, 255, 90], o);
+        } else if (outside(x - 1, y) || outside(x + 1, y) || outside(x, y - 1) || outside(x, y + 1)) {
+          px.set([255, 214, 10, 255], o);
+        }
+      }
+    }
+  });
+}
+
+// A canvas of `width` × `height` whose RGBA bytes `paint(px)` fills (transparent to begin with).
+function picture(width, height, paint) {
+  const canvas = document.createElement('canvas');
+  canvas.width = width;
+  canvas.height = height;
+  const ctx = canvas.getContext('2d');
+  const image = ctx.createImageData(width, height);
+  paint(image.data);
+  ctx.putImageData(image, 0, 0);
+  return canvas;
+}
+
 export class AnalysisPage {
   constructor() {
     // Room is kept beside the picture for the colour bar, so that both layers share one size.
     this.view = new ImageView($('an-view'), {
       maxHeight: () => Math.max(260, window.innerHeight * 0.6),
       box: $('an-map-row'),
-      reserve: LEGEND_WIDTH,
+      reserve: () => (NARROW.matches ? 0 : LEGEND_WIDTH),
     });
     this.readout = $('an-readout');
     this.progress = progress($('an-progress'), $('an-progress-text'), 'Matching colours to fringe orders…');
@@ -94,7 +153,7 @@ export class AnalysisPage {
     this.outline = { points: [], closed: false };
     this.hints = [];
     this.line = null; // {a, b}
-    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id, lowerBound}
+    this.result = null; // {width, height, order, uncertainty, flags, canvas, top, id, lowerBound, found}
     this.stressLayer = null; // {canvas, top, perOrder}
     this.difference = null; // {values, canvas, top, fringe_value_n_per_mm, thickness_mm}
     this.scaleLine = null; // {a, b}
@@ -176,6 +235,11 @@ export class AnalysisPage {
     $('an-compare-run').addEventListener('click', () => this.runComparison());
     $('an-run').addEventListener('click', () => this.run());
     $('an-report').addEventListener('click', () => this.report());
+    $('an-whole-photo').addEventListener('click', () => {
+      document.querySelector('input[name="an-mask"][value="none"]').checked = true;
+      this.maskModeChanged();
+      this.run();
+    });
     document.addEventListener(CHANGED, () => this.loadCalibrations());
     new ResizeObserver(() => this.drawLegend()).observe($('an-view'));
     this.toolChanged();
@@ -612,6 +676,17 @@ export class AnalysisPage {
   }
 
   paintOverlay(ctx, toScreen) {
+    // The specimen found from the photo, for confirmation: drawn over the photo only (the map
+    // shows the pixels left out in their own colour).
+    const found = this.result?.found;
+    const onPhoto = document.querySelector('input[name="an-layer"]:checked').value === 'photo';
+    if (found && onPhoto) {
+      const end = toScreen({ x: this.result.width, y: this.result.height });
+      ctx.save();
+      ctx.imageSmoothingEnabled = false;
+      ctx.drawImage(found, 0, 0, end.x, end.y);
+      ctx.restore();
+    }
     const { points, closed } = this.outline;
     if (points.length) {
       tracePath(ctx, toScreen, points, closed);
@@ -686,6 +761,7 @@ export class AnalysisPage {
     this.difference = null;
     this.boundary = null;
     $('an-results').hidden = true;
+    $('an-mask-note').hidden = true;
     $('an-profile-figure').hidden = true;
     for (const value of ['map', 'stress', 'difference']) {
       document.querySelector(`input[name="an-layer"][value="${value}"]`).disabled = true;
@@ -706,7 +782,7 @@ export class AnalysisPage {
       }
       return file;
     }
-    if (mode !== 'polygon') return null;
+    if (mode !== 'polygon') return null; // 'find' and 'none' send no mask
     const { points, closed } = this.outline;
     if (!closed || points.length < 3) {
       $('an-view').focus();
@@ -734,6 +810,8 @@ export class AnalysisPage {
     form.append('calibration', calibration);
     const mask = await this.maskBlob();
     if (mask) form.append('mask', mask, 'mask.png');
+    const mode = document.querySelector('input[name="an-mask"]:checked').value;
+    if (!mask && mode === 'none') form.append('mask_source', 'whole_photo');
     form.append(
       'options',
       JSON.stringify({ hints: this.hints, exposure_compensation: $('an-exposure').checked, max_order: null }),
@@ -788,6 +866,7 @@ export class AnalysisPage {
       }
       form = await this.mapForm(calibration);
     } catch (e) {
+      this.clearResult();
       showError(error, e);
       return;
     }
@@ -801,6 +880,8 @@ export class AnalysisPage {
       this.showResult(answer, orders, flags, uncertainty);
       this.progress.done(`Map ready: ${answer.width} × ${answer.height} px.`);
     } catch (e) {
+      // No result of an earlier run stays beside the error: it would read as this one's.
+      this.clearResult();
       this.progress.done();
       showError(error, e);
     } finally {
@@ -816,6 +897,7 @@ export class AnalysisPage {
     }
     const top = scaleTop(answer.statistics.max_order);
     const canvas = paintLayer(width, height, orders.data, flags.data, (n) => cividis(n / top));
+    const found = answer.mask?.source === 'found' ? foundMaskPicture(flags.data, width, height) : null;
     this.result = {
       width,
       height,
@@ -827,7 +909,9 @@ export class AnalysisPage {
       id: answer.id,
       maxOrder: answer.statistics.max_order,
       lowerBound: answer.max_is_lower_bound,
+      found,
     };
+    showMaskNote(answer.mask);
 
     const caution = $('an-caution');
     caution.textContent = answer.caution ?? '';
@@ -839,13 +923,16 @@ export class AnalysisPage {
       ['Pixels with a value', `${st.valued_pixels.toLocaleString()} of ${st.specimen_pixels.toLocaleString()}`],
       ['Beyond range', share(st.beyond_range_share)],
       ['Unreliable', share(st.unreliable_share)],
-      ['Mean colour residual', `${fmt(st.mean_residual, 1)} ΔE*ab`],
+      ['Specimen', answer.mask ? maskText(answer.mask) : ''],
+      ['Mean colour residual', `${fmt(st.mean_residual, 1)} ΔE00 (CIEDE2000; below 2 good, above 3 poor)`],
       ['Exposure gain (R, G, B)', answer.exposure?.gain?.map((g) => fmt(g, 2)).join(', ')],
     ]);
-    const base = `order-map-${answer.id}`;
-    for (const [key, suffix] of [['npy', '.npy'], ['png16', '-16bit.png'], ['csv', '.csv'], ['preview', '-preview.png'], ['uncertainty', '-uncertainty.npy']]) {
+    // Files are saved under the photo's name (the service names them by `?name=`, so that a
+    // download fetched with a token is saved under the same name).
+    const base = `${photoStem(this.photo.file.name)}-orders`;
+    for (const [key, suffix] of [['npy', '.npy'], ['png16', '.png'], ['csv', '.csv'], ['preview', '.preview.png'], ['uncertainty', '-uncertainty.npy']]) {
       const link = $(`an-dl-${key}`);
-      link.href = answer.links[key];
+      link.href = `${answer.links[key]}?${new URLSearchParams({ name: base })}`;
       link.download = base + suffix;
     }
     $('an-results').hidden = false;

@@ -26,16 +26,24 @@ function calibrationLink(id) {
 }
 
 function summaryPairs(c) {
+  const source = c.table?.source ?? {};
+  const beam = source.kind === 'beam_photo';
   return [
     ['Material', c.material],
     ['Thickness', c.thickness_mm != null ? `${fmt(c.thickness_mm, 2)} mm` : ''],
+    ['Fringe order at the beam edges', beam ? fmt(source.edge_order, 3) : ''],
+    ['Material fringe value', beam
+      ? (source.fringe_value_n_per_mm != null
+        ? `${fmt(source.fringe_value_n_per_mm, 2)} N/mm per fringe (from the beam's load)`
+        : 'not recorded (the beam was calibrated from its edge order alone)')
+      : ''],
     ['Light source', c.light_source],
     ['Camera', c.camera],
     ['Made', when(c.created_at)],
     ['Source', SOURCES[c.source_kind] || c.source_kind],
     ['Calibrated up to', `fringe order ${fmt(c.max_order)}`],
     ['Order step', fmt(c.order_step, 3)],
-    ['Fit residual', c.residual_de2000 != null ? `${fmt(c.residual_de2000)} ΔE00 (mean)` : ''],
+    ['Fit residual', c.residual_de2000 != null ? `${fmt(c.residual_de2000)} ΔE00 (CIEDE2000, mean; below 1 good, above 2 poor)` : ''],
     ['Replaces', calibrationLink(c.supersedes)],
     ['Replaced by', calibrationLink(c.superseded_by)],
     ['Notes', c.notes],
@@ -274,7 +282,6 @@ function showEstimate(estimate) {
     ['Runner-up', rival
       ? `edge order ${fmt(rival.edge_order, 3)}, fits ${fmt(estimate.cost_ratio, 1)} times worse`
       : 'none found'],
-    ['Best-fitting reference', `light source ${estimate.light}, camera model ${estimate.camera} (mean ΔE*ab ${fmt(estimate.cost_de_ab)})`],
   ]);
   $('cf-estimate-statement').textContent = estimate.statement;
 }

@@ -8,7 +8,7 @@
 // every method optional, and an overlay(ctx, toScreen, scale) painter.
 //
 // The picture is fitted into `box` (default: the canvas's parent) less `reserve` CSS pixels of
-// its width, and no taller than maxHeight().
+// its width (a number, or a function read at each fit), and no taller than maxHeight().
 
 export class ImageView {
   constructor(canvas, { maxHeight, box = canvas.parentElement, reserve = 0 }) {
@@ -62,7 +62,8 @@ export class ImageView {
   }
 
   fit() {
-    const box = this.box.clientWidth - this.reserve;
+    const reserve = typeof this.reserve === 'function' ? this.reserve() : this.reserve;
+    const box = this.box.clientWidth - reserve;
     if (!this.source || box <= 0) {
       this.canvas.width = 0;
       this.canvas.height = 0;

@@ -433,6 +433,7 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
             region,
             edge_order,
             residual_de2000: 0.0,
+            fringe_value_n_per_mm: spec.load.implied_fringe_value(),
         },
         entries,
     )?;

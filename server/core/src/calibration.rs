@@ -65,6 +65,10 @@ pub enum TableSource {
         edge_order: f64,
         /// Mean CIEDE2000 between row colours and the smoothed table.
         residual_de2000: f64,
+        /// Material fringe value f_σ implied by the beam's load, N/mm per fringe, when the
+        /// edge order came with a moment and depth (absent otherwise and in older tables).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        fringe_value_n_per_mm: Option<f64>,
     },
     /// Computed by the spectral renderer for a light source and camera.
     Rendered {
@@ -274,6 +278,7 @@ impl CalibrationTable {
             edge_order,
             residual_de2000,
             region,
+            fringe_value_n_per_mm,
             ..
         } = &self.source
         {
@@ -282,6 +287,9 @@ impl CalibrationTable {
                 .map_err(|e| CoreError::Table(format!("source.{e}")))?;
             if !(edge_order.is_finite() && *edge_order > 0.0 && residual_de2000.is_finite()) {
                 return fail("source.edge_order and source.residual_de2000 must be finite, edge_order positive".into());
+            }
+            if fringe_value_n_per_mm.is_some_and(|f| !(f.is_finite() && f > 0.0)) {
+                return fail("source.fringe_value_n_per_mm must be a positive number".into());
             }
         }
         Ok(())

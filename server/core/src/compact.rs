@@ -28,7 +28,7 @@ use crate::order_map::{MapStatistics, OrderMap, PixelFlags};
 pub const BAND_ROWS: u32 = 32;
 /// Resolution of the stored orders, fringes.
 pub const ORDER_STEP: f64 = 1e-4;
-/// Resolution of the stored colour residuals, ΔE\*ab (the CSV's two decimals).
+/// Resolution of the stored colour residuals, ΔE00 (the CSV's two decimals).
 pub const RESIDUAL_STEP: f64 = 0.01;
 /// Resolution of the stored uncertainties, fringes.
 pub const UNCERTAINTY_STEP: f64 = 1e-4;
@@ -44,7 +44,7 @@ pub struct Band {
     pub width: usize,
     /// Fringe orders, NaN = no value.
     pub order: Vec<f32>,
-    /// Colour residuals, ΔE\*ab.
+    /// Colour residuals, CIEDE2000 (ΔE00).
     pub residual: Vec<f32>,
     /// Flag bits.
     pub flags: Vec<PixelFlags>,

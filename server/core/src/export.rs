@@ -25,7 +25,7 @@ pub enum OutputFormat {
     /// False-colour PNG with a colour bar numbered in fringe orders from 0 to the table's last
     /// order (for people, not for measurement).
     Preview,
-    /// CSV with header `x,y,order,residual,flags`, one line per pixel, empty order = no value.
+    /// CSV with header `x,y,order,residual_de2000,flags`, one line per pixel, empty order = no value.
     Csv,
 }
 
@@ -102,7 +102,7 @@ pub struct Rows<'a> {
     pub width: usize,
     /// Fringe orders, NaN = no value.
     pub order: &'a [f32],
-    /// Colour residuals, ΔE\*ab.
+    /// Colour residuals, CIEDE2000 (ΔE00).
     pub residual: &'a [f32],
     /// Flag bits.
     pub flags: &'a [PixelFlags],
@@ -379,7 +379,9 @@ impl FileWriter {
             | FileKind::Strain(OutputFormat::Npy, _)
             | FileKind::Uncertainty => plain(npy_header("<f4", rows, cols)),
             FileKind::Flags => plain(npy_header("|u1", rows, cols)),
-            FileKind::Orders(OutputFormat::Csv) => plain(b"x,y,order,residual,flags\n".to_vec()),
+            FileKind::Orders(OutputFormat::Csv) => {
+                plain(b"x,y,order,residual_de2000,flags\n".to_vec())
+            }
             FileKind::Stress(OutputFormat::Csv, _) => plain(b"x,y,stress_mpa,flags\n".to_vec()),
             FileKind::Strain(OutputFormat::Csv, _) => {
                 plain(b"x,y,strain_microstrain,flags\n".to_vec())
@@ -1046,7 +1048,7 @@ mod tests {
         let csv = String::from_utf8(encode(&map, FileKind::Orders(OutputFormat::Csv)).unwrap());
         assert_eq!(
             csv.unwrap(),
-            "x,y,order,residual,flags\n0,0,0.0000,0.50,0\n0,1,,,2\n0,2,4.4000,0.50,0\n"
+            "x,y,order,residual_de2000,flags\n0,0,0.0000,0.50,0\n0,1,,,2\n0,2,4.4000,0.50,0\n"
         );
         let flags = encode(&map, FileKind::Flags).unwrap();
         assert_eq!(&flags[flags.len() - 3..], &[0, 2, 0]);

@@ -18,6 +18,7 @@ pub mod order_map;
 pub mod render;
 pub mod report;
 pub mod series;
+pub mod specimen;
 pub mod stress;
 
 pub use calibration::{CalibrationMetadata, CalibrationTable, TableEntry, TableSource};

@@ -169,7 +169,8 @@ pub struct MapStatistics {
     pub max_order: f64,
     /// See `min_order`.
     pub mean_order: f64,
-    /// Mean ΔE\*ab between valued pixels and their matched table colour.
+    /// Mean CIEDE2000 (ΔE00) between valued pixels and their matched table colour (maps
+    /// stored before it was CIEDE2000 hold ΔE\*ab until they expire).
     pub mean_residual: f64,
     /// Highest order the map could read, fringes: the table's last order, or
     /// [`MapOptions::max_order`] where that is lower (NaN for results stored before it was
@@ -239,7 +240,8 @@ pub struct OrderMap {
     pub height: u32,
     /// Fringe order; NaN where there is no value (outside the mask, beyond range, unreliable).
     pub order: Vec<f32>,
-    /// ΔE\*ab between the (corrected) pixel colour and the table colour at its order.
+    /// CIEDE2000 (ΔE00) between the (corrected) pixel colour and the table colour at its order;
+    /// NaN where there is no value.
     pub residual: Vec<f32>,
     /// Ambiguity margin: how much higher the aggregated cost of the best alternative more than
     /// half a fringe away is (ΔE units per scan direction; capped at 25; NaN outside the mask).

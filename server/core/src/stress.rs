@@ -269,13 +269,13 @@ impl SpecimenKind {
         SpecimenKind::ALL
             .into_iter()
             .find(|k| k.name() == name)
-        .ok_or_else(|| {
-            let shown: String = name.chars().take(40).collect();
-            CoreError::invalid(
-                "specimen",
-                format!("{shown:?} is not one of transmission, coating, slice"),
-            )
-        })
+            .ok_or_else(|| {
+                let shown: String = name.chars().take(40).collect();
+                CoreError::invalid(
+                    "specimen",
+                    format!("{shown:?} is not one of transmission, coating, slice"),
+                )
+            })
     }
 }
 

@@ -9,6 +9,8 @@ use axum::http::{header, HeaderMap, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
 use isotint_core::beam::{BeamReport, BeamSpec, EdgeLoad, EdgeLoadFields};
+use isotint_core::render::camera::CameraModel;
+use isotint_core::render::light::LightSource;
 use isotint_core::{CalibrationMetadata, CalibrationTable, CoreError, PixelRect};
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
@@ -49,9 +51,9 @@ pub struct CalibrationSummary {
     pub material: String,
     /// Specimen thickness, mm.
     pub thickness_mm: Option<f64>,
-    /// Light source.
+    /// Light source, in words (the renderer's short names are written out).
     pub light_source: String,
-    /// Camera and exposure settings.
+    /// Camera and exposure settings, in words (the renderer's short names are written out).
     pub camera: String,
     /// Free text.
     pub notes: String,
@@ -82,8 +84,8 @@ impl From<CalibrationRow> for CalibrationSummary {
             name: r.metadata.name,
             material: r.metadata.material,
             thickness_mm: r.metadata.thickness_mm,
-            light_source: r.metadata.light_source,
-            camera: r.metadata.camera,
+            light_source: light_in_words(r.metadata.light_source),
+            camera: camera_in_words(r.metadata.camera),
             notes: r.metadata.notes,
             created_at: rfc3339(r.created_at),
             order_step: r.order_step,
@@ -95,6 +97,18 @@ impl From<CalibrationRow> for CalibrationSummary {
             archived: r.archived,
         }
     }
+}
+
+/// A stored light source as people read it: one of the renderer's own names (`halogen`, `d65`,
+/// …) becomes its description; anything else is the lab's own words, unchanged.
+fn light_in_words(text: String) -> String {
+    LightSource::from_name(&text).map_or(text, |l| l.description().to_string())
+}
+
+/// A stored camera as people read it: one of the renderer's own names (`gaussian-sensor`,
+/// `cie1931`) becomes its description; anything else is the lab's own words, unchanged.
+fn camera_in_words(text: String) -> String {
+    CameraModel::from_name(&text).map_or(text, |c| c.description().to_string())
 }
 
 /// One page of the list.

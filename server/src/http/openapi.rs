@@ -219,6 +219,11 @@ pub fn specimen_kind() -> Schema {
     schema(json!({"type": "string", "enum": names}))
 }
 
+/// Which pixels a map without a mask covers: `find` (the default) or `whole_photo`.
+pub fn mask_source() -> Schema {
+    schema(json!({"type": "string", "enum": ["find", "whole_photo"]}))
+}
+
 /// The hex text of a list's cursor, as its `next` link gives it.
 pub fn cursor() -> Schema {
     schema(json!({"type": "string", "pattern": "^([0-9a-fA-F]{2})+$"}))

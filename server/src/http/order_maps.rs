@@ -17,6 +17,7 @@ use isotint_core::compact;
 use isotint_core::comparison::{compare, PointPair, Prediction, Registration};
 use isotint_core::export::{self, FileKind};
 use isotint_core::exposure::ExposureCorrection;
+use isotint_core::specimen::MaskUsed;
 use isotint_core::stress::{
     Specimen, SpecimenFields, SpecimenKind, SpecimenStatistics, StressOpticLaw, STRESS_CAUTION,
 };
@@ -34,7 +35,7 @@ use super::jobs::{Admission, JobSize};
 use super::openapi;
 use super::AppState;
 use crate::domain::{rfc3339, CalibrationId, OrderMapId};
-use crate::pipeline;
+use crate::pipeline::{self, MaskChoice};
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
 /// Routes of this module.
@@ -212,6 +213,44 @@ pub struct FilePath {
     pub file: String,
 }
 
+/// Query of a stored map's file: the name it is saved under.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct FileNameQuery {
+    /// Stem of the saved file's name (Content-Disposition), e.g. the photo's: `disc-03-orders`
+    /// gives `disc-03-orders.npy`; 1–100 letters, digits, `.`, `_` or `-`, not starting with
+    /// `.`. Default `order-map-ID`.
+    pub name: Option<String>,
+}
+
+/// Longest accepted file-name stem, characters.
+const MAX_NAME_CHARS: usize = 100;
+
+impl FileNameQuery {
+    /// The stem to name the file by: the given one if it is safe in a file name and a
+    /// header, 422 naming `name` otherwise; `order-map-ID` without one.
+    fn stem(&self, id: OrderMapId) -> Result<String, ApiError> {
+        let Some(name) = &self.name else {
+            return Ok(format!("order-map-{id}"));
+        };
+        let safe = |c: char| c.is_ascii_alphanumeric() || matches!(c, '.' | '_' | '-');
+        if name.is_empty()
+            || name.len() > MAX_NAME_CHARS
+            || name.starts_with('.')
+            || !name.chars().all(safe)
+        {
+            return Err(ApiError::unprocessable(
+                "invalid_input",
+                format!(
+                    "invalid name: {name:?}; use 1–{MAX_NAME_CHARS} letters, digits, '.', '_' \
+                     or '-', not starting with '.'"
+                ),
+            ));
+        }
+        Ok(name.clone())
+    }
+}
+
 /// Multipart body of `POST /api/v1/order-maps`: these parts, each at most once, and no other.
 #[derive(ToSchema)]
 #[serde(deny_unknown_fields)]
@@ -225,6 +264,10 @@ pub struct MapForm {
     /// Optional mask PNG, same size as the photo; non-zero = specimen.
     #[schema(value_type = Option<String>, format = Binary)]
     pub mask: Option<Vec<u8>>,
+    /// Without a mask: `find` (the default) maps the specimen found from the photo (its dark,
+    /// featureless background and large holes left out), `whole_photo` every pixel.
+    #[schema(schema_with = openapi::mask_source)]
+    pub mask_source: Option<String>,
     /// Optional JSON (a part of type application/json): `hints` [{x, y, order}] inside the
     /// photo and at most the calibration's last order (or `max_order`), `exposure_compensation`,
     /// `max_order`, `max_gradient`.
@@ -244,7 +287,7 @@ pub struct OrderMapLinks {
     pub png16: String,
     /// False-colour preview PNG.
     pub preview: String,
-    /// CSV `x,y,order,residual,flags`.
+    /// CSV `x,y,order,residual_de2000,flags` (the colour residual in CIEDE2000, ΔE00).
     pub csv: String,
     /// Standard uncertainty (1 σ) of the order, fringes, NPY float32 (height, width), NaN = no
     /// value.
@@ -322,9 +365,15 @@ pub struct OrderMapResource {
     /// Calibration used.
     #[schema(value_type = String, format = Uuid)]
     pub calibration_id: CalibrationId,
-    /// Summary figures (NaN figures are null).
+    /// Summary figures over the specimen's pixels (NaN figures are null).
     #[schema(value_type = Object)]
     pub statistics: serde_json::Value,
+    /// The mask used: `source` (`given`, `found` from the photo, or `whole_photo`) and
+    /// `specimen_share`, its share of the photo's pixels (0–1); null for maps stored before it
+    /// was recorded. A found mask is worth a look: the `flags` file marks the pixels it left
+    /// out (bit 1).
+    #[schema(value_type = Option<Object>)]
+    pub mask: Option<MaskUsed>,
     /// True when part of the specimen lies beyond the calibration's range: the true maximum may
     /// lie there, so `statistics.max_order` (and any maximum stress) is a lower bound.
     pub max_is_lower_bound: bool,
@@ -370,10 +419,42 @@ impl OrderMapResource {
             caution: statistics.caution(),
             stress: specimen.map(|s| StressResource::new(&r.statistics, s, r.id)),
             statistics: r.statistics,
+            mask: r.mask,
             exposure: r.exposure,
             created_at: rfc3339(r.created_at),
             expires_at: rfc3339(r.expires_at),
         }
+    }
+}
+
+/// The `mask_source` field of a map request, used when no mask is given.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum MaskSourceChoice {
+    Find,
+    WholePhoto,
+}
+
+impl MaskSourceChoice {
+    /// `find` (or absent) or `whole_photo`; refused beside a mask, which already says which
+    /// pixels are the specimen.
+    fn parse(text: Option<&str>, with_mask: bool) -> Result<MaskSourceChoice, ApiError> {
+        let choice = match text.map(str::trim) {
+            None | Some("find") => MaskSourceChoice::Find,
+            Some("whole_photo") => MaskSourceChoice::WholePhoto,
+            Some(other) => {
+                return Err(ApiError::unprocessable(
+                    "invalid_input",
+                    format!("invalid mask_source: {other:?}; use \"find\" or \"whole_photo\""),
+                ))
+            }
+        };
+        if with_mask && text.is_some() {
+            return Err(ApiError::unprocessable(
+                "invalid_input",
+                "invalid mask_source: give either a mask or mask_source, not both",
+            ));
+        }
+        Ok(choice)
     }
 }
 
@@ -422,7 +503,11 @@ async fn create_order_map(
         .transpose()?;
     // A file answer streams like a download: its place is taken before the upload is read.
     let download = format.map(|_| state.downloads.start()).transpose()?;
-    let mut form = Form::read(multipart, &["photo", "calibration", "mask", "options"]).await?;
+    let mut form = Form::read(
+        multipart,
+        &["photo", "calibration", "mask", "mask_source", "options"],
+    )
+    .await?;
     let calibration_id: CalibrationId = form.require_id("calibration")?;
     let options: MapOptions = match form.take("options") {
         Some(bytes) => parse_json("options", &bytes)?,
@@ -430,16 +515,23 @@ async fn create_order_map(
     };
     let photo = form.require("photo")?;
     let mask = form.take("mask");
+    let mask_source =
+        MaskSourceChoice::parse(form.text("mask_source")?.as_deref(), mask.is_some())?;
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     options.validate(&table)?;
     let limits = state.config.decode_limits;
     let admission = state.jobs.admit(form.job_size(&photo, &limits)?).await?;
     // The job holds its admission until its results are stored.
-    let (map, bands) = admission
-        .run(move || -> CoreResult<(OrderMap, Vec<Vec<u8>>)> {
-            let map = pipeline::map(&photo, mask.as_deref(), &table, &options, &limits)?;
+    let (map, mask_used, bands) = admission
+        .run(move || -> CoreResult<(OrderMap, MaskUsed, Vec<Vec<u8>>)> {
+            let choice = match (&mask, mask_source) {
+                (Some(bytes), _) => MaskChoice::Given(bytes),
+                (None, MaskSourceChoice::WholePhoto) => MaskChoice::WholePhoto,
+                (None, MaskSourceChoice::Find) => MaskChoice::Find,
+            };
+            let (map, used) = pipeline::map(&photo, choice, &table, &options, &limits)?;
             let bands = compact::encode_map(&map)?;
-            Ok((map, bands))
+            Ok((map, used, bands))
         })
         .await??;
     if let (Some(kind), Some(slot)) = (format, download) {
@@ -456,7 +548,14 @@ async fn create_order_map(
             .stream(slot, kind, shape, bands, "order-map", cut.map(|c| c.0));
     }
     let retention = state.config.retention;
-    let row = store::insert(&state.storage, calibration_id, &map, &bands, retention).await?;
+    let row = store::insert(
+        &state.storage,
+        calibration_id,
+        (&map, mask_used),
+        &bands,
+        retention,
+    )
+    .await?;
     drop(admission);
     let location = format!("/api/v1/order-maps/{}", row.id);
     Ok((
@@ -491,7 +590,7 @@ async fn get_order_map(
 /// `stress-npy`, `stress-preview`, `stress-csv` (with a specimen's fields), or a coating's
 /// ε1 − ε2 in µε as `strain-npy`, `strain-preview`, `strain-csv`.
 #[utoipa::path(get, path = "/api/v1/order-maps/{id}/{file}", tag = "order-maps",
-    params(FilePath, StressQuery),
+    params(FilePath, StressQuery, FileNameQuery),
     responses((status = 200, description = "The file",
                content((Vec<u8> = "application/octet-stream"), (Vec<u8> = "image/png"), (String = "text/csv"))),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody), (status = 410, body = ErrorBody),
@@ -501,9 +600,11 @@ async fn get_order_map_file(
     cut: Option<Extension<ConnectionCut>>,
     Path(FilePath { id, file }): Path<FilePath>,
     stress: Result<Query<StressQuery>, QueryRejection>,
+    name: Result<Query<FileNameQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
     let specimen = stress?.0.specimen()?;
+    let stem = name?.0.stem(id)?;
     let kind = FileKind::from_name(&file, specimen).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
@@ -519,7 +620,6 @@ async fn get_order_map_file(
         statistics: statistics_from_json(&row.statistics),
     };
     let bands = Bands::Stored(state.storage.clone(), id);
-    let stem = format!("order-map-{id}");
     state
         .downloads
         .stream(slot, kind, shape, bands, &stem, cut.map(|c| c.0))

@@ -7,6 +7,7 @@
 use isotint_core::compact;
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
+use isotint_core::specimen::MaskUsed;
 use isotint_core::{OrderMap, PixelFlags};
 use sqlx::any::AnyRow;
 use sqlx::Row;
@@ -30,6 +31,8 @@ pub struct OrderMapRow {
     pub statistics: serde_json::Value,
     /// The exposure correction applied.
     pub exposure: ExposureCorrection,
+    /// The mask it used (`None` for maps stored before it was recorded).
+    pub mask: Option<MaskUsed>,
     /// When it was made.
     pub created_at: OffsetDateTime,
     /// When it stops being served.
@@ -37,7 +40,8 @@ pub struct OrderMapRow {
 }
 
 const META_COLUMNS: &str =
-    "id, calibration_id, width, height, statistics_json, exposure_json, created_at_ms, expires_at_ms";
+    "id, calibration_id, width, height, statistics_json, exposure_json, mask_json, created_at_ms, \
+     expires_at_ms";
 
 fn f32_values(column: &str, bytes: &[u8], pixels: usize) -> StorageResult<Vec<f32>> {
     if bytes.len() != pixels * 4 {
@@ -74,17 +78,22 @@ fn meta_from_row(row: &AnyRow) -> StorageResult<OrderMapRow> {
         height: dimension("height")?,
         statistics: json_column(row, "statistics_json")?,
         exposure: json_column(row, "exposure_json")?,
+        mask: row
+            .try_get::<Option<String>, _>("mask_json")?
+            .map(|text| serde_json::from_str(&text))
+            .transpose()
+            .map_err(|e| StorageError::Corrupt(format!("mask_json: {e}")))?,
         created_at: from_unix_ms(row.try_get("created_at_ms")?),
         expires_at: from_unix_ms(row.try_get("expires_at_ms")?),
     })
 }
 
-/// Stores a finished map, given in compact form as `bands` (from `compact::encode_map`), in
-/// one transaction, so never half-written; returns its row.
+/// Stores a finished map and the mask it used, the map given in compact form as `bands` (from
+/// `compact::encode_map`), in one transaction, so never half-written; returns its row.
 pub async fn insert(
     storage: &Storage,
     calibration_id: CalibrationId,
-    map: &OrderMap,
+    (map, mask): (&OrderMap, MaskUsed),
     bands: &[Vec<u8>],
     retention: std::time::Duration,
 ) -> StorageResult<OrderMapRow> {
@@ -96,8 +105,8 @@ pub async fn insert(
     let mut tx = storage.writer().begin().await?;
     sqlx::query(
         "INSERT INTO order_maps (id, calibration_id, created_at_ms, expires_at_ms, width, height, \
-         statistics_json, exposure_json, orders, residuals, margins, flags, band_rows) \
-         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $9, $9, $9, $10)",
+         statistics_json, exposure_json, orders, residuals, margins, flags, band_rows, mask_json) \
+         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $9, $9, $9, $10, $11)",
     )
     .bind(id.to_string())
     .bind(calibration_id.to_string())
@@ -109,6 +118,7 @@ pub async fn insert(
     .bind(serde_json::to_string(&map.exposure).unwrap_or_default())
     .bind(Vec::<u8>::new())
     .bind(i64::from(compact::BAND_ROWS))
+    .bind(serde_json::to_string(&mask).unwrap_or_default())
     .execute(&mut *tx)
     .await?;
     insert_bands(&mut tx, id, bands).await?;
@@ -120,6 +130,7 @@ pub async fn insert(
         height: map.height,
         statistics,
         exposure: map.exposure,
+        mask: Some(mask),
         created_at,
         expires_at,
     })

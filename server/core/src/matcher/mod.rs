@@ -41,7 +41,8 @@
 //!    a tenth of a fringe, and searches the table near that order elsewhere.
 //!
 //! Distances inside the search are ΔE\*ab with the lightness difference weighted by
-//! [`LIGHTNESS_WEIGHT`] (exposure drift moves L\* most); reported residuals are plain ΔE\*ab.
+//! [`LIGHTNESS_WEIGHT`] (exposure drift moves L\* most); the residuals of the finished map are
+//! CIEDE2000, computed last (`residuals_in_de2000`) for people and files.
 //! The preliminary pass that feeds the exposure fit weights lightness even less and has no
 //! *beyond range* label, so that a photo much darker than the calibration still finds its
 //! orders.
@@ -50,7 +51,9 @@ use palette::LinSrgb;
 use rayon::prelude::*;
 
 use crate::calibration::CalibrationTable;
-use crate::colour::{delta_e_ab, lab_from_linear, linear_from_lab, Lab, LabImage, Photo};
+use crate::colour::{
+    ciede2000, delta_e_ab, lab_from_linear, linear_from_lab, Lab, LabImage, Photo,
+};
 use crate::error::CoreResult;
 use crate::exposure::{radius_sq, ExposureCorrection};
 use crate::geometry::Mask;
@@ -467,6 +470,38 @@ fn last_fringes(
     (0..=steps).map(move |k| table.colour_at(max_order - k as f64 * table.order_step))
 }
 
+/// Replaces the search's ΔE\*ab residual of every valued pixel by the CIEDE2000 between its
+/// corrected colour (floored at the table's black, as in the search) and the table's colour at
+/// its order: the unit every figure for people is given in (`colour.rs`). Rows without a
+/// valued pixel are skipped.
+fn residuals_in_de2000(
+    pass: &mut Pass,
+    photo: &Photo,
+    exposure: &ExposureCorrection,
+    table: &CalibrationTable,
+    black: Lab,
+) {
+    let (width, height) = (photo.width(), photo.height());
+    let w = width as usize;
+    pass.residual
+        .par_chunks_mut(w)
+        .zip(pass.order.par_chunks(w))
+        .enumerate()
+        .for_each_init(Vec::new, |linear, (y, (residual, order))| {
+            if !order.iter().any(|o| o.is_finite()) {
+                return;
+            }
+            photo.linear_row(y as u32, linear);
+            for (x, (r, o)) in residual.iter_mut().zip(order).enumerate() {
+                if o.is_finite() {
+                    let c = exposure.apply(linear[x], x, y, width, height);
+                    let colour = floored_at_black(lab_from_linear(c), black);
+                    *r = ciede2000(colour, table.colour_at(f64::from(*o)));
+                }
+            }
+        });
+}
+
 /// Summary figures of a finished pass; `max_order` is the highest order it could read.
 fn statistics(pass: &Pass, max_order: f64) -> MapStatistics {
     /// Sums over some of the pixels.
@@ -772,11 +807,12 @@ pub(crate) fn solve(
     if ambiguous {
         flag_valued_unreliable(&mut pass);
     }
+    let uncertainty = order_uncertainty(&pass, table, max_order);
+    residuals_in_de2000(&mut pass, photo, &exposure, table, black);
     let statistics = MapStatistics {
         ambiguous_colour: ambiguous,
         ..statistics(&pass, max_order)
     };
-    let uncertainty = order_uncertainty(&pass, table, max_order);
     Ok(OrderMap {
         width: photo.width(),
         height: photo.height(),
