@@ -36,6 +36,9 @@ const LINE_PT: f32 = 13.0;
 /// Characters per wrapped line of body text (Helvetica averages about half an em a character).
 const WRAP_CHARS: usize = 100;
 
+/// Longest report title, characters.
+pub const MAX_TITLE_CHARS: usize = 200;
+
 /// What a report says besides the map: the optional inputs a person gives.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReportOptions {
@@ -61,8 +64,15 @@ impl ReportOptions {
                 positive(field, v)?;
             }
         }
-        if self.title.as_ref().is_some_and(|t| t.chars().count() > 200) {
-            return Err(CoreError::invalid("title", "is longer than 200 characters"));
+        if self
+            .title
+            .as_ref()
+            .is_some_and(|t| t.chars().count() > MAX_TITLE_CHARS)
+        {
+            return Err(CoreError::invalid(
+                "title",
+                format!("is longer than {MAX_TITLE_CHARS} characters"),
+            ));
         }
         Ok(())
     }

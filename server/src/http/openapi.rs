@@ -9,6 +9,7 @@ use axum::{Json, Router};
 use isotint_core::calibration::{MAX_NOTES_CHARS, ORDER_STEP_RANGE};
 use isotint_core::export::FileKind;
 use isotint_core::order_map::MAX_HINTS;
+use isotint_core::report::MAX_TITLE_CHARS;
 use isotint_core::series::MAX_SERIES_PHOTOS;
 use isotint_core::stress::SpecimenKind;
 use serde_json::json;
@@ -217,6 +218,24 @@ pub fn map_file_kind() -> Schema {
 pub fn specimen_kind() -> Schema {
     let names: Vec<&str> = SpecimenKind::ALL.iter().map(|k| k.name()).collect();
     schema(json!({"type": "string", "enum": names}))
+}
+
+/// A specimen kind's name or null.
+pub fn optional_specimen_kind() -> Schema {
+    let mut names: Vec<serde_json::Value> =
+        SpecimenKind::ALL.iter().map(|k| json!(k.name())).collect();
+    names.push(serde_json::Value::Null);
+    schema(json!({"type": ["string", "null"], "enum": names}))
+}
+
+/// Poisson's ratio ν in [0, 0.5), or null.
+pub fn optional_poisson_ratio() -> Schema {
+    schema(json!({"type": ["number", "null"], "minimum": 0, "exclusiveMaximum": 0.5}))
+}
+
+/// A report's title (at most [`MAX_TITLE_CHARS`] characters), or null.
+pub fn optional_title() -> Schema {
+    schema(json!({"type": ["string", "null"], "maxLength": MAX_TITLE_CHARS}))
 }
 
 /// Which pixels a map without a mask covers: `find` (the default) or `whole_photo`.

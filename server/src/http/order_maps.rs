@@ -71,6 +71,7 @@ pub struct BoundaryRequest {
     #[schema(schema_with = openapi::optional_polyline)]
     pub polyline: Option<Vec<PixelPoint>>,
     /// The photo's scale, mm per pixel (positive): adds `mm_per_px`, `x_mm`, `y_mm`.
+    #[schema(schema_with = openapi::optional_positive)]
     pub mm_per_px: Option<f64>,
     /// Also answer every edge point, in order along the edge, as `edge`: [{x, y, normal_x,
     /// normal_y, order, stress_mpa, beyond_range, contour, along_px}] (order and stress null

@@ -17,6 +17,7 @@ use utoipa_axum::routes;
 
 use super::error::{ApiError, ErrorBody};
 use super::form::{parse_json, Form};
+use super::openapi;
 use super::AppState;
 use crate::domain::CalibrationId;
 use crate::pipeline;
@@ -32,55 +33,65 @@ pub fn router() -> OpenApiRouter<AppState> {
 #[serde(deny_unknown_fields)]
 pub struct ReportRequest {
     /// `transmission` (default), `slice` or `coating`.
-    #[schema(value_type = Option<String>)]
+    #[schema(schema_with = openapi::optional_specimen_kind)]
     pub specimen: Option<SpecimenKind>,
     /// Material fringe value f_σ, N/mm per fringe (of a slice: at the critical temperature).
     #[serde(alias = "fringe_value")]
+    #[schema(schema_with = openapi::optional_positive)]
     pub fringe_value_n_per_mm: Option<f64>,
     /// Model thickness h, mm (of a slice: the slice's).
     #[serde(alias = "thickness")]
+    #[schema(schema_with = openapi::optional_positive)]
     pub thickness_mm: Option<f64>,
     /// Coating: strain fringe value f_ε, µm per fringe.
+    #[schema(schema_with = openapi::optional_positive)]
     pub strain_fringe_value_um: Option<f64>,
     /// Coating: thickness t_c, mm.
+    #[schema(schema_with = openapi::optional_positive)]
     pub coating_thickness_mm: Option<f64>,
     /// Coating: the part's Young's modulus E, MPa.
+    #[schema(schema_with = openapi::optional_positive)]
     pub youngs_modulus_mpa: Option<f64>,
     /// Coating: the part's Poisson's ratio ν (0 ≤ ν < 0.5).
+    #[schema(schema_with = openapi::optional_poisson_ratio)]
     pub poisson_ratio: Option<f64>,
     /// Nominal stress σ_nom, MPa (positive): adds K_t.
     #[serde(alias = "nominal_stress")]
+    #[schema(schema_with = openapi::optional_positive)]
     pub nominal_stress_mpa: Option<f64>,
     /// The load the photo was taken at, N (positive), as the report states it.
+    #[schema(schema_with = openapi::optional_positive)]
     pub load_n: Option<f64>,
     /// Image scale, mm per pixel (positive).
+    #[schema(schema_with = openapi::optional_positive)]
     pub mm_per_px: Option<f64>,
     /// Title of the first page.
+    #[schema(schema_with = openapi::optional_title)]
     pub title: Option<String>,
     /// A polyline [{x, y}, …] along part of the edge (pixel-edge coordinates); without it the
     /// mask's whole outline.
-    #[schema(value_type = Option<Vec<Object>>)]
+    #[schema(schema_with = openapi::optional_polyline)]
     pub polyline: Option<Vec<PixelPoint>>,
 }
 
-/// Multipart body of `POST /api/v1/reports`.
+/// Multipart body of `POST /api/v1/reports`: these parts, each at most once, and no other.
 #[derive(ToSchema)]
+#[serde(deny_unknown_fields)]
 pub struct ReportForm {
     /// Specimen photo (PNG, JPEG or TIFF).
     #[schema(value_type = String, format = Binary)]
     pub photo: Vec<u8>,
     /// Calibration id.
-    #[schema(value_type = String, format = Uuid)]
+    #[schema(schema_with = openapi::uuid)]
     pub calibration: String,
     /// Mask PNG of the photo's size; non-zero = specimen. Its outline is the edge sampled.
     #[schema(value_type = String, format = Binary)]
     pub mask: Vec<u8>,
     /// Optional JSON map options, as for `POST /api/v1/order-maps`.
-    #[schema(value_type = Option<Object>)]
+    #[schema(schema_with = openapi::map_options)]
     pub options: Option<MapOptions>,
     /// JSON: the specimen's fields, `nominal_stress_mpa`, `load_n`, `mm_per_px`, `title`,
     /// `polyline`.
-    #[schema(value_type = Object)]
     pub report: ReportRequest,
 }
 
@@ -91,7 +102,9 @@ pub struct ReportForm {
 /// every input, the map's figures, the flags and the caution. The text can be copied out of
 /// the PDF. Nothing is stored.
 #[utoipa::path(post, path = "/api/v1/reports", tag = "order-maps",
-    request_body(content = ReportForm, content_type = "multipart/form-data"),
+    request_body(content((ReportForm = "multipart/form-data",
+        encoding(("options" = (content_type = "application/json")),
+                 ("report" = (content_type = "application/json")))))),
     responses((status = 200, description = "The report", content((Vec<u8> = "application/pdf"))),
               (status = 400, body = ErrorBody), (status = 404, body = ErrorBody),
               (status = 408, body = ErrorBody), (status = 413, body = ErrorBody),
