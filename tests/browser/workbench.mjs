@@ -510,6 +510,8 @@ async function main(browser) {
     await an.getByLabel('1. Photo of the specimen').setInputFiles(discFile);
     await page.locator('#an-readout', { hasText: `Photo ${discSize.width} × ${discSize.height} px.` }).waitFor();
     await an.getByLabel('Millimetres per pixel').fill('');
+  });
+
   // The colour (r, g, b) of the analysis view at an image point.
   async function viewColour(point) {
     const view = page.locator('#an-view');
