@@ -29,6 +29,12 @@ fn ok(output: Output) -> String {
     text
 }
 
+/// The stderr of a command that must fail; `what` (a format string's result) says which.
+fn refused(output: &Output, what: impl std::fmt::Display) -> String {
+    assert!(!output.status.success(), "{what}");
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
 /// The demo directory, written once per test run.
 fn demo() -> &'static Path {
     static DIR: OnceLock<PathBuf> = OnceLock::new();
@@ -277,8 +283,7 @@ fn map_refuses_to_write_an_output_over_its_photo_and_names_the_flag() {
         ("--out", map_plate(photo, photo, &[])),
     ];
     for (flag, output) in cases {
-        assert!(!output.status.success(), "{flag} over the photo succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{flag} over the photo succeeded"));
         assert!(
             stderr.contains(flag) && stderr.contains("--photo"),
             "{flag}: {stderr}"
@@ -292,8 +297,7 @@ fn map_refuses_to_write_an_output_over_its_photo_and_names_the_flag() {
     assert!(!Path::new(elsewhere).exists(), "nothing was written");
 
     let output = map_plate(photo, elsewhere, &["--uncertainty-out", "sigma.png"]);
-    assert!(!output.status.success());
-    let stderr = String::from_utf8_lossy(&output.stderr);
+    let stderr = refused(&output, "the command succeeded");
     assert!(
         stderr.contains("--uncertainty-out") && stderr.contains(".npy"),
         "{stderr}"
@@ -317,8 +321,7 @@ fn calibrate_refuses_to_write_its_table_over_its_photo_and_names_both_flags() {
         "--out",
         photo,
     ]);
-    assert!(!output.status.success(), "--out over the photo succeeded");
-    let stderr = String::from_utf8_lossy(&output.stderr);
+    let stderr = refused(&output, "--out over the photo succeeded");
     assert!(
         stderr.contains("--out") && stderr.contains("--photo"),
         "{stderr}"
@@ -496,8 +499,7 @@ fn bad_command_line_input_fails_with_a_message_naming_it() {
     ];
     for (args, needle) in cases {
         let output = isotint(args);
-        assert!(!output.status.success(), "{args:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{args:?} succeeded"));
         assert!(stderr.contains(needle), "{args:?}: {stderr}");
     }
 }
@@ -582,8 +584,7 @@ fn map_without_a_mask_finds_the_specimen_from_the_photo_and_says_which_mask_it_u
         "--out",
         &path("never-both.npy"),
     ]);
-    assert!(!both.status.success());
-    let stderr = String::from_utf8_lossy(&both.stderr);
+    let stderr = refused(&both, "the command succeeded");
     assert!(
         stderr.contains("--mask") && stderr.contains("--whole-photo"),
         "{stderr}"
@@ -659,8 +660,7 @@ fn a_photo_that_cannot_be_decoded_is_refused_naming_the_photo_flag_in_every_comm
         ];
         for args in commands {
             let output = isotint(&args);
-            assert!(!output.status.success(), "{args:?} succeeded");
-            let stderr = String::from_utf8_lossy(&output.stderr);
+            let stderr = refused(&output, format_args!("{args:?} succeeded"));
             assert!(stderr.contains("--photo"), "{args:?}: {stderr}");
         }
     }
@@ -673,8 +673,7 @@ fn map_errors_from_the_core_name_the_flag() {
         &path("never.npy"),
         &["--max-gradient", "2"],
     );
-    assert!(!output.status.success());
-    let stderr = String::from_utf8_lossy(&output.stderr);
+    let stderr = refused(&output, "the command succeeded");
     assert!(
         stderr.contains("invalid --max-gradient: must lie in (0, 1] fringe per pixel, got 2"),
         "{stderr}"
@@ -873,8 +872,7 @@ fn out_of_range_numbers_are_refused_naming_their_flag() {
     ];
     for (extra, flag) in cases {
         let output = map_plate(&plate, out, extra);
-        assert!(!output.status.success(), "{extra:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(flag), "{extra:?}: {stderr}");
         assert!(!Path::new(out).exists(), "{extra:?} wrote a map");
     }
@@ -887,8 +885,7 @@ fn out_of_range_numbers_are_refused_naming_their_flag() {
         ("--upload-limit-mib", "0"),
     ] {
         let output = isotint(&["serve", flag, value, "--database", "sqlite://unused"]);
-        assert!(!output.status.success(), "{flag} {value} started");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{flag} {value} started"));
         assert!(stderr.contains(flag), "{flag} {value}: {stderr}");
     }
 }
@@ -1000,8 +997,7 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
         ),
     ] {
         let output = map_plate(&path("plate-hole.png"), &out, extra);
-        assert!(!output.status.success(), "{extra:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&out).exists(), "nothing was written");
@@ -1090,8 +1086,7 @@ fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
         ),
     ] {
         let output = map_plate(&path("plate-hole.png"), &path("never-coating.npy"), extra);
-        assert!(!output.status.success(), "{extra:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&path("never-coating.npy")).exists());
@@ -1264,8 +1259,7 @@ fn boundary_refuses_bad_numbers_naming_the_flag_and_writes_nothing() {
         let mut args = extra.to_vec();
         args.extend(["--out", &edge_file, "--json"]);
         let output = boundary_of_plate(&args);
-        assert!(!output.status.success(), "{extra:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&edge_file).exists(), "nothing was written");
@@ -1323,8 +1317,7 @@ fn boundary_samples_a_polyline_given_as_semicolon_separated_points() {
             "--polyline",
             bad,
         ]);
-        assert!(!output.status.success(), "{bad} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{bad} succeeded"));
         assert!(stderr.contains(needle), "{bad}: {stderr}");
     }
 }
@@ -1423,8 +1416,7 @@ fn report_refuses_missing_or_bad_inputs_naming_the_flag_and_writes_nothing() {
         let mut args = extra.to_vec();
         args.extend(["--out", &report]);
         let output = on_demo("report", "plate-hole.png", "plate-hole-mask.png", &args);
-        assert!(!output.status.success(), "{extra:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
     assert!(!Path::new(&report).exists(), "nothing was written");
@@ -1592,8 +1584,7 @@ fn bad_token_arguments_are_refused_naming_their_flag() {
         let mut all = vec!["token", "create", "--database", &database];
         all.extend_from_slice(args);
         let output = isotint(&all);
-        assert!(!output.status.success(), "{args:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{args:?} succeeded"));
         assert!(stderr.contains(flag), "{args:?}: {stderr}");
     }
 }
@@ -1708,8 +1699,7 @@ fn series_refuses_bad_input_naming_the_flag_and_writes_nothing() {
         (&[a, small][..], &["200", "300"][..], "invalid --photo"),
     ] {
         let output = series_of(&dir, photos, loads, &out);
-        assert!(!output.status.success(), "{photos:?} {loads:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{photos:?} {loads:?} succeeded"));
         assert!(stderr.contains(needle), "{loads:?}: {stderr}");
     }
     let output = series_of(
@@ -1815,8 +1805,7 @@ fn compare_refuses_bad_predictions_and_pairs_naming_the_flag_and_writes_nothing(
         ),
     ] {
         let output = compare_demo_disc(prediction, &pairs, &["--out", out, "--json"]);
-        assert!(!output.status.success(), "{pairs:?} succeeded");
-        let stderr = String::from_utf8_lossy(&output.stderr);
+        let stderr = refused(&output, format_args!("{pairs:?} succeeded"));
         assert!(stderr.contains(needle), "{pairs:?}: {stderr}");
     }
     assert!(!Path::new(out).exists(), "nothing was written");

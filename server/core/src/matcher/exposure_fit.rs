@@ -226,14 +226,13 @@ fn read_one_colour(
     labelled: f64,
     table: &CalibrationTable,
 ) -> Option<OneColourReading> {
+    let dot =
+        |a: LinSrgb<f32>, b: LinSrgb<f32>| a.red * b.red + a.green * b.green + a.blue * b.blue;
     let scored: Vec<(f64, f32, f32)> = table
         .entries
         .iter()
         .map(|entry| {
             let expected = linear_from_lab(entry.colour());
-            let dot = |a: LinSrgb<f32>, b: LinSrgb<f32>| {
-                a.red * b.red + a.green * b.green + a.blue * b.blue
-            };
             let gain = dot(expected, expected) / dot(colour, expected);
             let distance = if gain.is_finite() && gain > 0.0 {
                 ciede2000(lab_from_linear(colour * gain), entry.colour())
@@ -317,21 +316,23 @@ mod tests {
         // Hand-built: the table's stretch around 3.0 fringes replaced by the colours around
         // 1.0 at 80 % of their light, so the colour at 1.0 photographed at 90 % is the order
         // 1.0 at gain 1/0.9 and equally the order 3.0 at gain 0.8/0.9, both plausible.
-        let mut table = daylight_test_table("two readings");
-        for i in 290..=310 {
-            let copy = 1.0 + (i as f64 - 300.0) * 0.01;
-            let c = lab_from_linear(dimmed(&table, copy, 0.8));
-            table.entries[i].lab = [c.l, c.a, c.b];
-        }
+        let original = daylight_test_table("two readings");
+        // The table with the colours around 1.0 copied to 2.9–3.1 at `k` times their light.
+        let doubled = |k: f32| {
+            let mut table = original.clone();
+            for i in 290..=310 {
+                let copy = 1.0 + (i as f64 - 300.0) * 0.01;
+                let c = lab_from_linear(dimmed(&original, copy, k));
+                table.entries[i].lab = [c.l, c.a, c.b];
+            }
+            table
+        };
+        let table = doubled(0.8);
         let reading = read_one_colour(dimmed(&table, 1.0, 0.9), 1.0, &table).unwrap();
         assert!(reading.ambiguous, "{reading:?}");
         // The same double at an implausible exposure (the copy at 40 % of its light would need
         // a gain of 0.44) is no rival.
-        for i in 290..=310 {
-            let copy = 1.0 + (i as f64 - 300.0) * 0.01;
-            let c = lab_from_linear(dimmed(&daylight_test_table("x"), copy, 0.4));
-            table.entries[i].lab = [c.l, c.a, c.b];
-        }
+        let table = doubled(0.4);
         let reading = read_one_colour(dimmed(&table, 1.0, 0.9), 1.0, &table).unwrap();
         assert!(!reading.ambiguous, "{reading:?}");
         assert!((reading.gain - 1.0 / 0.9).abs() < 0.01, "{reading:?}");
