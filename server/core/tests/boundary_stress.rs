@@ -3,7 +3,7 @@
 
 mod common;
 
-use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath};
+use isotint_core::boundary::{boundary_stress, edge_csv, EdgePath, EdgeSample};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::order_map::MapStatistics;
 use isotint_core::render::{BendingBeamField, HoleField, OrderField};
@@ -54,6 +54,20 @@ fn rectangle_map() -> OrderMap {
     }
 }
 
+/// Every step from an edge point to the next is short: a pixel along a side, a corner's
+/// diagonal.
+fn assert_steps_short(samples: &[EdgeSample]) {
+    for pair in samples.windows(2) {
+        let step = (pair[1].x - pair[0].x).hypot(pair[1].y - pair[0].y);
+        assert!(
+            step <= 1.5,
+            "a jump of {step} px from {:?} to {:?}",
+            pair[0],
+            pair[1]
+        );
+    }
+}
+
 #[test]
 fn the_outline_of_a_hand_built_map_carries_a_linear_order_exactly_to_the_edge() {
     let map = rectangle_map();
@@ -83,15 +97,7 @@ fn the_outline_is_walked_in_order_so_its_points_follow_one_another_around_the_ed
     // One closed outline: every step to the next point is short (a pixel along a side, a
     // corner's diagonal) and the walk ends next to where it began.
     assert!(s.iter().all(|p| p.contour == 0));
-    for pair in s.windows(2) {
-        let step = (pair[1].x - pair[0].x).hypot(pair[1].y - pair[0].y);
-        assert!(
-            step <= 1.5,
-            "a jump of {step} px from {:?} to {:?}",
-            pair[0],
-            pair[1]
-        );
-    }
+    assert_steps_short(s);
     let (first, last) = (s[0], s[s.len() - 1]);
     assert!((last.x - first.x).hypot(last.y - first.y) <= 1.5);
     assert_eq!(s[0].along_px, 0.0);
@@ -282,15 +288,7 @@ fn a_specimen_cut_by_the_photo_border_is_one_open_stretch_walked_from_the_border
     let result = boundary_stress(&map, &law(), None, &EdgePath::Outline).unwrap();
     let s = &result.samples;
     assert!(s.iter().all(|p| p.contour == 0), "one stretch");
-    for pair in s.windows(2) {
-        let step = (pair[1].x - pair[0].x).hypot(pair[1].y - pair[0].y);
-        assert!(
-            step <= 1.5,
-            "a jump of {step} px from {:?} to {:?}",
-            pair[0],
-            pair[1]
-        );
-    }
+    assert_steps_short(s);
     // No edge where the specimen meets the border; the walk starts and ends there: along the top
     // from x = 0, round the right end, back along the bottom to x = 0. Hand-worked: 35 + 18 + 35
     // edge pixels.
