@@ -178,7 +178,12 @@ fn first_page(doc: &mut Document, map: &OrderMap, edge: &BoundaryStress, inputs:
         "calibration: {} (id {})",
         inputs.calibration_name, inputs.calibration_id
     ));
-    doc.paragraph(&format!("material: {}", inputs.material));
+    let material = if inputs.material.trim().is_empty() {
+        "not given"
+    } else {
+        inputs.material.as_str()
+    };
+    doc.paragraph(&format!("material: {material}"));
     for line in inputs.specimen.input_lines() {
         doc.paragraph(&line);
     }
@@ -264,7 +269,7 @@ fn first_page(doc: &mut Document, map: &OrderMap, edge: &BoundaryStress, inputs:
         ));
     }
     doc.paragraph(&format!(
-        "mean colour residual: {:.2} dE*ab",
+        "mean colour residual: {:.2} dE00 (CIEDE2000)",
         s.mean_residual
     ));
     if let Some(c) = s.caution() {
