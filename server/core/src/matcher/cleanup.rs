@@ -1052,18 +1052,27 @@ pub(super) fn flag_plateaus_at_beyond_range(
 /// pixels where the truth climbed from 4.4 to 6). So the valued pixels within
 /// [`NEAR_TABLE_TOP`] of the top `top` — where the map's caution already says values may be
 /// aliases — keep their value only where a path from the lower orders reaches them without
-/// ever falling more than [`FOLD_TOLERANCE`] below the highest order met on the way; those
-/// of a region touching *beyond range* that no such path reaches are flagged beyond range
-/// (the cautious reading). Regions of near-top pixels without lower orders beside them are
-/// left to [`flag_unanchored_high_regions`].
-pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize, height: usize) {
+/// ever falling below the highest order the path has surely met: every order is taken with
+/// its noise, `sigma` (1 σ, fringes, as [`super::uncertainty`] gives it), and a path may step
+/// on where the order plus [`FOLD_SIGMAS`] σ reaches the highest order minus its own
+/// [`FOLD_SIGMAS`] σ met on the way. Those of a region touching *beyond range* that no such
+/// path reaches are flagged beyond range (the cautious reading). Regions of near-top pixels
+/// without lower orders beside them are left to [`flag_unanchored_high_regions`].
+pub(super) fn flag_folds_at_beyond_range(
+    pass: &mut Pass,
+    sigma: &[f32],
+    top: f32,
+    width: usize,
+    height: usize,
+) {
     use std::cmp::Reverse;
     use std::collections::BinaryHeap;
     let near = top - NEAR_TABLE_TOP as f32;
     let valued = |p: usize| pass.flags[p].0 == 0 && pass.order[p].is_finite();
     let high = |p: usize| valued(p) && pass.order[p] >= near;
-    // Least running maximum (bits of a non-negative f32 order, which sort as the numbers do)
-    // with which each near-top pixel is reached from the lower orders.
+    let spread = |p: usize| FOLD_SIGMAS * if sigma[p].is_finite() { sigma[p] } else { 0.0 };
+    // Least running maximum of order − spread (bits of a non-negative f32 order, which sort as
+    // the numbers do) with which each near-top pixel is reached from the lower orders.
     let n = pass.order.len();
     let mut reached = vec![u32::MAX; n];
     let mut queue = BinaryHeap::new();
@@ -1071,7 +1080,7 @@ pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize
         let below = neighbours4(p % width, p / width, width, height)
             .any(|q| valued(q) && pass.order[q] < near);
         if below {
-            let key = pass.order[p].max(0.0).to_bits();
+            let key = (pass.order[p] - spread(p)).max(0.0).to_bits();
             reached[p] = key;
             queue.push(Reverse((key, p)));
         }
@@ -1082,11 +1091,10 @@ pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize
         }
         let running = f32::from_bits(key);
         for q in neighbours4(p % width, p / width, width, height) {
-            let running = running - FOLD_DECAY;
-            if !high(q) || pass.order[q] < running - FOLD_TOLERANCE {
+            if !high(q) || pass.order[q] + spread(q) < running {
                 continue;
             }
-            let next = running.max(pass.order[q]).max(0.0).to_bits();
+            let next = running.max(pass.order[q] - spread(q)).max(0.0).to_bits();
             if next < reached[q] {
                 reached[q] = next;
                 queue.push(Reverse((next, q)));
@@ -1094,7 +1102,26 @@ pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize
         }
     }
     // Unreached near-top pixels, grouped into 4-connected regions; those touching beyond
-    // range and joined to a reached pixel (so lower orders lie beside the region) are folds.
+    // range that fall from a reached pixel within FOLD_REACH faster than FOLD_RATE (beyond
+    // both readings' noise) are folds. A slower fall is a field sinking past a rise.
+    let reached_at = |p: usize| high(p) && reached[p] != u32::MAX;
+    let steep_below = |p: usize| {
+        let (x, y) = ((p % width) as i64, (p / width) as i64);
+        let r = FOLD_REACH as i64;
+        (-r..=r).any(|dy| {
+            (-r..=r).any(|dx| {
+                let (qx, qy) = (x + dx, y + dy);
+                if qx < 0 || qy < 0 || qx >= width as i64 || qy >= height as i64 {
+                    return false;
+                }
+                let q = qy as usize * width + qx as usize;
+                let distance = ((dx * dx + dy * dy) as f32).sqrt();
+                reached_at(q)
+                    && (pass.order[q] - spread(q)) - (pass.order[p] + spread(p))
+                        > FOLD_RATE * distance
+            })
+        })
+    };
     let mut seen = vec![false; n];
     let mut stack = Vec::new();
     let mut folded = Vec::new();
@@ -1104,19 +1131,19 @@ pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize
         }
         seen[start] = true;
         stack.push(start);
-        let (mut region, mut beyond, mut anchored) = (Vec::new(), false, false);
+        let (mut region, mut beyond, mut steep) = (Vec::new(), false, false);
         while let Some(p) = stack.pop() {
             region.push(p);
+            steep = steep || steep_below(p);
             for q in neighbours4(p % width, p / width, width, height) {
                 beyond |= pass.flags[q].has(PixelFlags::BEYOND_RANGE);
-                anchored |= high(q) && reached[q] != u32::MAX;
                 if !seen[q] && high(q) && reached[q] == u32::MAX {
                     seen[q] = true;
                     stack.push(q);
                 }
             }
         }
-        if beyond && anchored {
+        if beyond && steep {
             folded.extend(region);
         }
     }
@@ -1125,12 +1152,15 @@ pub(super) fn flag_folds_at_beyond_range(pass: &mut Pass, top: f32, width: usize
     }
 }
 
-/// See [`flag_folds_at_beyond_range`]: how far (fringes) read orders may fall below the
-/// highest order on a path from the lower orders, for noise.
-pub(super) const FOLD_TOLERANCE: f32 = 0.05;
-/// See [`flag_folds_at_beyond_range`]: how fast (fringes per pixel) the highest order met is
-/// forgotten, so that noise over a long flat stretch does not build up.
-pub(super) const FOLD_DECAY: f32 = 0.01;
+/// See [`flag_folds_at_beyond_range`]: how many standard uncertainties an order may lie
+/// either side of its reading.
+pub(super) const FOLD_SIGMAS: f32 = 2.0;
+/// See [`flag_folds_at_beyond_range`]: the fastest fall (fringes per pixel) a field sinking
+/// past a rise near the table's top shows; folds fall about as fast as the orders rose.
+pub(super) const FOLD_RATE: f32 = 0.05;
+/// See [`flag_folds_at_beyond_range`]: how far (pixels) from a reached pixel a fall is
+/// measured.
+pub(super) const FOLD_REACH: usize = 4;
 
 /// See [`flag_plateaus_at_beyond_range`], fringes.
 pub(super) const PLATEAU_BELOW_TOP: f32 = 0.3;
@@ -1458,8 +1488,9 @@ mod tests {
     }
 
     #[test]
-    fn near_top_orders_that_fall_back_before_beyond_range_are_flagged_as_a_fold() {
-        // One row each, table top 4.4 (near-top band from 3.4), beyond range at the right end.
+    fn near_top_orders_that_fall_back_fast_before_beyond_range_are_flagged_as_a_fold() {
+        // One row each, table top 4.4 (near-top band from 3.4), beyond range at the right end,
+        // every reading with σ = 0.015 fringe.
         // source: common practice, no source (orders climb continuously towards a zone past
         // the table; colours past it repeat the table's upper fringes in paler form).
         let run = |orders: &[f32]| {
@@ -1467,23 +1498,32 @@ mod tests {
             let mut pass = Pass::empty(width);
             pass.order[..orders.len()].copy_from_slice(orders);
             pass.flags[width - 1].0 = PixelFlags::BEYOND_RANGE;
-            flag_folds_at_beyond_range(&mut pass, 4.4, width, 1);
+            flag_folds_at_beyond_range(&mut pass, &vec![0.015; width], 4.4, width, 1);
             (0..orders.len())
                 .filter(|&p| pass.flags[p].has(PixelFlags::BEYOND_RANGE))
                 .collect::<Vec<_>>()
         };
-        // A climb to a ridge at 4.2 that falls back and wanders before beyond range: from
-        // x = 7, 0.1 below the ridge (past the tolerance), the stretch is a fold.
-        let fold = [3.0, 3.2, 3.4, 3.6, 3.8, 4.0, 4.2, 4.1, 4.0, 3.9, 3.95];
+        // A climb to a ridge at 4.2 that falls back 0.15 fringe per pixel and wanders before
+        // beyond range: from x = 7, below the ridge beyond both readings' noise, the stretch is
+        // a fold.
+        let fold = [3.0, 3.2, 3.4, 3.6, 3.8, 4.0, 4.2, 4.05, 3.9, 3.8, 3.85];
         assert_eq!(run(&fold), vec![7, 8, 9, 10]);
         // A climb straight into beyond range keeps every value.
         let ramp = [3.0, 3.2, 3.4, 3.6, 3.8, 4.0, 4.2, 4.3];
         assert!(run(&ramp).is_empty());
-        // So does a flat stretch whose noise stays within the tolerance.
+        // So does a flat stretch whose noise stays within 2 σ.
         let flat = [
             3.0, 3.5, 3.9, 3.96, 3.92, 3.96, 3.92, 3.96, 3.92, 3.96, 3.92,
         ];
         assert!(run(&flat).is_empty());
+        // And a field that sinks slowly past a rise (0.01 fringe per pixel, as a plate's
+        // remote field does beyond the ridge around a hole) before climbing into beyond range.
+        let sink: Vec<f32> = [3.0, 3.4, 3.8, 4.2]
+            .into_iter()
+            .chain((1..=20).map(|k| 4.2 - 0.01 * k as f32))
+            .chain([4.1, 4.2, 4.3])
+            .collect();
+        assert!(run(&sink).is_empty());
     }
 
     #[test]

@@ -23,8 +23,9 @@
 //!    subsampled chroma; a window fit (`window_fit`) grows values further into steep flanks
 //!    by fitting a plane of orders to each 5 × 5 window against the table blurred as a
 //!    camera blurs steep fringes; flat plateaus against a beyond-range region confirmed by a
-//!    near-top rim, and near-top stretches that fold back before it (`flag_folds_at_beyond_range`),
-//!    are flagged beyond range, then valued regions joined to neither the
+//!    near-top rim, and near-top stretches that fall back from the orders below faster than
+//!    a field does, beyond each reading's uncertainty, before it
+//!    (`flag_folds_at_beyond_range`), are flagged beyond range, then valued regions joined to neither the
 //!    specimen's edge nor a hint without a jump (`flag_cut_off_regions`); *beyond range* that
 //!    no climb at the maximum gradient from a valued pixel can reach is a field too steep to
 //!    resolve, flagged *unreliable* instead (`ClimbBound`, applied last at full resolution);
@@ -381,7 +382,8 @@ fn solve_pass(
             height,
         );
         flag_plateaus_at_beyond_range(&mut pass, top, width, height);
-        flag_folds_at_beyond_range(&mut pass, top, width, height);
+        let sigma = order_uncertainty(&pass, table, max_order);
+        flag_folds_at_beyond_range(&mut pass, &sigma, top, width, height);
         flag_cut_off_regions(&mut pass, &hinted, width, height, 1.5 * gradient);
     }
     smooth(&mut pass, width, height, gradient, None);
