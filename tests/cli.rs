@@ -9,6 +9,7 @@ use std::sync::OnceLock;
 use clap::Parser;
 use isotint::cli::{self, Cli, LogFormat};
 use isotint_core::export::read_npy_f32;
+use isotint_core::render::{CameraModel, LightSource};
 use isotint_core::{DecodeLimits, Mask};
 use serde_json::Value;
 
@@ -90,6 +91,37 @@ fn reported<'a>(printed: &'a str, label: &str) -> (f64, &'a str) {
 
 fn path(name: &str) -> String {
     demo().join(name).to_str().unwrap().to_string()
+}
+
+#[test]
+fn the_demo_names_its_light_and_camera_in_words_in_every_file_it_writes() {
+    let calibration: Value =
+        serde_json::from_slice(&std::fs::read(demo().join("calibration.json")).unwrap()).unwrap();
+    let words = [
+        (&calibration["metadata"]["camera"], "calibration camera"),
+        (
+            &calibration["metadata"]["light_source"],
+            "calibration light",
+        ),
+        (&scenario()["setup"]["camera"], "scenario camera"),
+        (&scenario()["setup"]["light"], "scenario light"),
+    ];
+    for (value, what) in words {
+        let text = value.as_str().unwrap_or_else(|| panic!("{what}: {value}"));
+        // Words, not a code: at least two of them and no hyphenated short name.
+        assert!(
+            text.split_whitespace().count() >= 2 && !text.contains("gaussian-"),
+            "{what}: {text}"
+        );
+    }
+    // They still read as the renderer's choices the demo drew with (render/demo.rs).
+    let camera = calibration["metadata"]["camera"].as_str().unwrap();
+    assert_eq!(CameraModel::from_name(camera).unwrap(), CameraModel::Sensor);
+    let light = scenario()["setup"]["light"].as_str().unwrap().to_string();
+    assert_eq!(
+        LightSource::from_name(&light).unwrap(),
+        LightSource::Halogen
+    );
 }
 
 #[test]

@@ -1230,8 +1230,8 @@ pub fn report_text(r: &BeamReport) -> String {
              {:.2}, channel gains {red:.2} {green:.2} {blue:.2}\n",
             e.edge_order,
             e.confidence.name(),
-            e.light.name(),
-            e.camera.name(),
+            e.light.description(),
+            e.camera.description(),
             e.cost_de_ab
         );
         match (e.runner_up, e.cost_ratio) {
@@ -1800,7 +1800,7 @@ fn demo(args: &DemoArgs) -> anyhow::Result<()> {
         material: d.material.clone(),
         thickness_mm: Some(d.thickness_mm),
         light_source: d.setup.light.description().into(),
-        camera: d.setup.camera.name().into(),
+        camera: d.setup.camera.description().into(),
         notes: format!("Measured by `isotint demo` on {}.", d.beam.photos[0]),
     };
     let spec = beam_spec(region, load, false, None, metadata)?;

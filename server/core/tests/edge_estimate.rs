@@ -97,8 +97,8 @@ fn relative_error(name: &str, truth: f64, e: &EdgeOrderEstimate) -> f64 {
         e.edge_order - truth,
         e.cost_de_ab,
         e.cost_ratio.unwrap_or(f64::INFINITY),
-        e.light.name(),
-        e.camera.name(),
+        e.light.description(),
+        e.camera.description(),
         e.confidence.name()
     );
     error.abs()
@@ -184,7 +184,7 @@ fn a_light_unlike_every_reference_with_more_exposure_and_a_white_balance_error_s
             let (photo, region) = beam_photo(shot, truth);
             let estimate = estimate_edge_order(&photo, &region, &references).unwrap();
             assert_ne!(estimate.light, light);
-            let name = format!("{} held out, +15 %, white balance off", light.name());
+            let name = format!("{} held out, +15 %, white balance off", light.description());
             worst = worst.max(relative_error(&name, truth, &estimate));
         }
     }

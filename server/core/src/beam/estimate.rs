@@ -182,8 +182,8 @@ impl EdgeOrderEstimate {
             "Edge order {:.3} estimated from the beam's colour sequence by isotint \
              (best reference {} / {}, confidence {}); not measured from a load.",
             self.edge_order,
-            self.light.name(),
-            self.camera.name(),
+            self.light.description(),
+            self.camera.description(),
             self.confidence.name()
         );
         let note_chars = note.chars().count();
