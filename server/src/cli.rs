@@ -1228,19 +1228,19 @@ pub fn report_text(r: &BeamReport) -> String {
     if let Some(e) = &r.edge_order_estimate {
         let [red, green, blue] = e.channel_gains;
         out += &format!(
-            "  edge-order estimate {:.3} fringes, confidence {}; best match {} / {}, mean ΔE*ab \
+            "  edge-order estimate {:.3} fringes, confidence {}; best match {} / {}, mean ΔE00 \
              {:.2}, channel gains {red:.2} {green:.2} {blue:.2}\n",
             e.edge_order,
             e.confidence.name(),
             e.light.description(),
             e.camera.description(),
-            e.cost_de_ab
+            e.residual_de2000
         );
         match (e.runner_up, e.cost_ratio) {
             (Some(alt), Some(ratio)) => {
                 out += &format!(
-                    "  runner-up           {:.3} fringes, mean ΔE*ab {:.2} ({ratio:.1} × the estimate's)\n",
-                    alt.edge_order, alt.cost_de_ab
+                    "  runner-up           {:.3} fringes, mean ΔE00 {:.2} (cost {ratio:.1} × the estimate's)\n",
+                    alt.edge_order, alt.residual_de2000
                 )
             }
             _ => out += "  runner-up           none (no separate minimum)\n",
