@@ -5,6 +5,7 @@ mod common;
 
 use axum::http::StatusCode;
 use common::{get, import, import_id, post, service, table};
+use isotint_core::render::{CameraModel, LightSource};
 
 #[tokio::test]
 async fn health_reports_the_version_and_the_sqlite_database_as_reachable() {
@@ -66,6 +67,29 @@ async fn an_imported_calibration_is_listed_read_and_exported_byte_for_byte() {
     assert_eq!(String::from_utf8(export.body).unwrap(), file);
     let disposition = export.headers["content-disposition"].to_str().unwrap();
     assert!(disposition.starts_with("attachment;"), "{disposition}");
+}
+
+#[tokio::test]
+async fn a_table_written_with_the_renderers_older_short_names_lists_its_light_and_camera_in_words()
+{
+    let svc = service().await;
+    let mut old = table("Strip written before plain names");
+    old.metadata.light_source = "halogen".into();
+    old.metadata.camera = "gaussian-sensor".into();
+    let id = import_id(&svc.app, &old).await;
+    let detail = get(&svc.app, &format!("/api/v1/calibrations/{id}"))
+        .await
+        .json();
+    assert_eq!(detail["light_source"], LightSource::Halogen.description());
+    assert_eq!(detail["camera"], CameraModel::Sensor.description());
+    // The lab's own words are shown unchanged.
+    let mut own = table("Strip with the lab's own words");
+    own.metadata.camera = "bench camera, 50 mm lens".into();
+    let id = import_id(&svc.app, &own).await;
+    let detail = get(&svc.app, &format!("/api/v1/calibrations/{id}"))
+        .await
+        .json();
+    assert_eq!(detail["camera"], "bench camera, 50 mm lens");
 }
 
 #[tokio::test]

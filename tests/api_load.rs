@@ -110,6 +110,7 @@ async fn store_map(svc: &common::TestService, map: &OrderMap) -> String {
         &svc.storage,
         calibration.parse().unwrap(),
         (map, MaskUsed::of(MaskSource::WholePhoto, None)),
+        None,
         &bands,
         Duration::from_secs(3600),
     )

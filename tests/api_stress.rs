@@ -334,10 +334,15 @@ async fn the_boundary_with_a_scale_and_its_edge_answers_millimetres_and_every_po
 /// The multipart form of a load series of the test disc photographed at `loads` (N) and
 /// reported at `given` (N), with the calibration `id`.
 fn series_form(id: &str, loads: &[f64], given: &serde_json::Value) -> Form {
+    series_form_with(id, loads, given, true)
+}
+
+/// [`series_form`], with the disc's mask or without one (`with_mask`).
+fn series_form_with(id: &str, loads: &[f64], given: &serde_json::Value, with_mask: bool) -> Form {
     let mut form = Form::new().text("calibration", id);
     for (i, load) in loads.iter().enumerate() {
         let disc = disc_photo_at(*load, 360);
-        if i == 0 {
+        if i == 0 && with_mask {
             form = form.file("mask", "mask.png", "image/png", disc.mask_png);
         }
         form = form.file("photo", &format!("disc-{i}.png"), "image/png", disc.png);
@@ -375,6 +380,45 @@ async fn a_load_series_in_one_request_answers_the_fringe_value_of_a_rendered_dis
         slope.iter().filter(|s| s.is_finite()).count() as u64,
         v["fitted_pixels"].as_u64().unwrap()
     );
+    assert_eq!(stored_maps(&svc).await, 0);
+}
+
+#[tokio::test]
+async fn a_load_series_without_a_mask_is_fitted_on_the_disc_found_and_one_of_dark_photos_names_the_mask(
+) {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    // Centre orders 1 and 2.5: P = N·π·D·f_σ/8 = N · 172.8 N.
+    let loads = [172.8, 432.0];
+    let given = serde_json::json!({"loads_n": loads, "disc_diameter_mm": 40});
+    let reply = series_form_with(&id, &loads, &given, false)
+        .post(&svc.app, "/api/v1/series")
+        .await;
+    answered(&reply, StatusCode::OK);
+    let v = reply.json();
+    assert_eq!(v["mask"]["source"], "found", "{v}");
+    // source: Timoshenko & Goodier, Theory of Elasticity §41: σ1 − σ2 = 8P/(πDh) at the centre.
+    let f = v["fringe_value"].as_f64().unwrap();
+    assert!(
+        (f - common::DISC_FRINGE_VALUE).abs() <= 0.02 * common::DISC_FRINGE_VALUE,
+        "{v}"
+    );
+    // Photos dark everywhere (an unloaded model, or the light off) hold no specimen to find.
+    let mut dark = Vec::new();
+    image::RgbImage::new(360, 360)
+        .write_to(
+            &mut std::io::Cursor::new(&mut dark),
+            image::ImageFormat::Png,
+        )
+        .unwrap();
+    let reply = Form::new()
+        .text("calibration", &id)
+        .file("photo", "dark-0.png", "image/png", dark.clone())
+        .file("photo", "dark-1.png", "image/png", dark)
+        .json("series", &serde_json::json!({"loads_n": [100, 200]}))
+        .post(&svc.app, "/api/v1/series")
+        .await;
+    refused_naming(&reply, "mask");
     assert_eq!(stored_maps(&svc).await, 0);
 }
 

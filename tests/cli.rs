@@ -9,6 +9,7 @@ use std::sync::OnceLock;
 use clap::Parser;
 use isotint::cli::{self, Cli, LogFormat};
 use isotint_core::export::read_npy_f32;
+use isotint_core::render::{CameraModel, LightSource};
 use isotint_core::{DecodeLimits, Mask};
 use serde_json::Value;
 
@@ -90,6 +91,37 @@ fn reported<'a>(printed: &'a str, label: &str) -> (f64, &'a str) {
 
 fn path(name: &str) -> String {
     demo().join(name).to_str().unwrap().to_string()
+}
+
+#[test]
+fn the_demo_names_its_light_and_camera_in_words_in_every_file_it_writes() {
+    let calibration: Value =
+        serde_json::from_slice(&std::fs::read(demo().join("calibration.json")).unwrap()).unwrap();
+    let words = [
+        (&calibration["metadata"]["camera"], "calibration camera"),
+        (
+            &calibration["metadata"]["light_source"],
+            "calibration light",
+        ),
+        (&scenario()["setup"]["camera"], "scenario camera"),
+        (&scenario()["setup"]["light"], "scenario light"),
+    ];
+    for (value, what) in words {
+        let text = value.as_str().unwrap_or_else(|| panic!("{what}: {value}"));
+        // Words, not a code: at least two of them and no hyphenated short name.
+        assert!(
+            text.split_whitespace().count() >= 2 && !text.contains("gaussian-"),
+            "{what}: {text}"
+        );
+    }
+    // They still read as the renderer's choices the demo drew with (render/demo.rs).
+    let camera = calibration["metadata"]["camera"].as_str().unwrap();
+    assert_eq!(CameraModel::from_name(camera).unwrap(), CameraModel::Sensor);
+    let light = scenario()["setup"]["light"].as_str().unwrap().to_string();
+    assert_eq!(
+        LightSource::from_name(&light).unwrap(),
+        LightSource::Halogen
+    );
 }
 
 #[test]
@@ -1809,4 +1841,101 @@ fn compare_refuses_bad_predictions_and_pairs_naming_the_flag_and_writes_nothing(
         assert!(stderr.contains(needle), "{pairs:?}: {stderr}");
     }
     assert!(!Path::new(out).exists(), "nothing was written");
+}
+
+/// `isotint COMMAND` with the demo calibration and the demo's `photo` but no mask, and `extra`
+/// arguments.
+fn on_demo_without_mask(command: &str, photo: &str, extra: &[&str]) -> Output {
+    let (calibration, photo) = (path("calibration.json"), path(photo));
+    let mut args = vec![command, "--calibration", &calibration, "--photo", &photo];
+    args.extend_from_slice(extra);
+    isotint(&args)
+}
+
+#[test]
+fn boundary_without_a_mask_samples_the_outline_of_the_specimen_found_and_says_so() {
+    let s = scenario();
+    let remote = s["plate"]["remote_order"].as_f64().unwrap() * 10.5 / 6.0;
+    let material = ["--fringe-value-n-per-mm", "10.5", "--thickness-mm", "6"];
+    let nominal = ["--nominal-stress-mpa", &remote.to_string()];
+    let args: Vec<&str> = material.iter().chain(&nominal).copied().collect();
+    let json: Vec<&str> = args.iter().copied().chain(["--json"]).collect();
+    let printed = ok(on_demo_without_mask("boundary", "plate-hole.png", &json));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    assert_eq!(v["mask"]["source"], "found", "{v}");
+    let kt = v["kt"].as_f64().unwrap();
+    println!("demo hole, found mask: K_t {kt:.3}, {v}");
+    // source: Kirsch (1898), K_t = 3 beside the hole; 5 % as with the given mask.
+    assert!((kt - 3.0).abs() <= 0.05 * 3.0, "{v}");
+    let printed = ok(on_demo_without_mask("boundary", "plate-hole.png", &args));
+    assert!(
+        printed.contains("mask                found from the photo")
+            && printed.contains("give --mask FILE to keep them"),
+        "{printed}"
+    );
+}
+
+#[test]
+fn compare_without_a_mask_compares_the_specimen_found_and_says_so() {
+    let prediction = path("disc-prediction.csv");
+    let mut args = vec![
+        "--fringe-value-n-per-mm".to_string(),
+        "10.5".into(),
+        "--thickness-mm".into(),
+        "6".into(),
+        "--prediction".into(),
+        prediction,
+    ];
+    for pair in demo_pairs(0.0) {
+        args.extend(["--pair".to_string(), pair]);
+    }
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let json: Vec<&str> = args.iter().copied().chain(["--json"]).collect();
+    let printed = ok(on_demo_without_mask("compare", "disc.png", &json));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    assert_eq!(v["mask"]["source"], "found", "{v}");
+    let mean = v["mean_abs_difference_mpa"].as_f64().unwrap();
+    println!("demo disc, found mask: mean |Δ| {mean:.4} MPa, {v}");
+    // source: the prediction is Timoshenko & Goodier's closed form for the disc (§41); the
+    // same bound as with the given mask.
+    assert!(mean < 0.25, "{v}");
+    let printed = ok(on_demo_without_mask("compare", "disc.png", &args));
+    assert!(
+        printed.contains("mask                found from the photo"),
+        "{printed}"
+    );
+}
+
+#[test]
+fn series_without_a_mask_finds_the_disc_in_the_photo_of_the_largest_load_and_says_so() {
+    // Centre orders 1, 2 and 3: P = N·π·D·f_σ/8 = N · 172.8 N.
+    let loads = [172.8, 345.6, 518.4];
+    let (dir, photos) = disc_series_files(&loads);
+    let table = dir.join("table.json").to_str().unwrap().to_string();
+    let load_text: Vec<String> = loads.iter().map(|l| l.to_string()).collect();
+    let mut args = vec![
+        "series",
+        "--calibration",
+        &table,
+        "--disc-diameter-mm",
+        "40",
+    ];
+    for (photo, load) in photos.iter().zip(&load_text) {
+        args.extend(["--photo", photo, "--load-n", load]);
+    }
+    let printed = ok(isotint(&[&args[..], &["--json"]].concat()));
+    let v: Value = serde_json::from_str(printed.trim()).expect("one JSON object");
+    assert_eq!(v["mask"]["source"], "found", "{v}");
+    let f = v["fringe_value"].as_f64().unwrap();
+    println!("rendered disc series, found mask: {v}");
+    // source: Timoshenko & Goodier, Theory of Elasticity §41: σ1 − σ2 = 8P/(πDh) at the centre.
+    assert!(
+        (f - common::DISC_FRINGE_VALUE).abs() <= 0.02 * common::DISC_FRINGE_VALUE,
+        "{v}"
+    );
+    let printed = ok(isotint(&args));
+    assert!(
+        printed.contains("mask                found from the photo"),
+        "{printed}"
+    );
 }

@@ -472,6 +472,43 @@ async fn a_maps_residuals_are_ciede2000_in_its_figures_and_its_csv() {
     assert!(mean > 0.0 && mean < 2.0, "mean residual {mean}");
 }
 
+/// The file name a download's Content-Disposition gives.
+fn saved_as(reply: &Reply) -> String {
+    assert_eq!(reply.status, StatusCode::OK);
+    reply.headers["content-disposition"]
+        .to_str()
+        .unwrap()
+        .to_string()
+}
+
+#[tokio::test]
+async fn downloads_that_ask_for_no_name_are_named_after_the_photo_stored_or_answered_at_once() {
+    let (svc, v) = stored_disc_map().await;
+    // disc_form uploads the photo as disc.png.
+    let stored = get(&svc.app, v["links"]["npy"].as_str().unwrap()).await;
+    assert_eq!(
+        saved_as(&stored),
+        "attachment; filename=\"disc-orders.npy\""
+    );
+    let stored = get(&svc.app, v["links"]["uncertainty"].as_str().unwrap()).await;
+    assert_eq!(
+        saved_as(&stored),
+        "attachment; filename=\"disc-orders-uncertainty.npy\""
+    );
+    // Answered at once: a photo whose name holds folders and characters unsafe in a header.
+    let disc = disc_photo();
+    let direct = Form::new()
+        .file("photo", "bay 4/Bracket #2.png", "image/png", disc.png)
+        .text("calibration", v["calibration_id"].as_str().unwrap())
+        .file("mask", "disc-mask.png", "image/png", disc.mask_png)
+        .post(&svc.app, "/api/v1/order-maps?format=uncertainty")
+        .await;
+    assert_eq!(
+        saved_as(&direct),
+        "attachment; filename=\"Bracket_2-orders-uncertainty.npy\""
+    );
+}
+
 #[tokio::test]
 async fn a_stored_maps_file_is_saved_under_the_name_asked_for_and_an_unsafe_name_is_refused() {
     let (svc, v) = stored_disc_map().await;

@@ -8,7 +8,7 @@ use std::time::Duration;
 
 use isotint::access::{Actor, Origin};
 use isotint::calibration_sets::{import_built_in, import_dir, BUILT_IN};
-use isotint::domain::{CalibrationId, OrderMapId};
+use isotint::domain::{CalibrationId, FileStem, OrderMapId};
 use isotint::storage::audit::AuditAction;
 use isotint::storage::calibrations::{self, ListFilter};
 use isotint::storage::{order_maps, Storage, StorageError};
@@ -299,12 +299,24 @@ async fn an_order_map_round_trips_through_the_database_and_is_purged_after_expir
         let map = small_map();
         let bands = compact::encode_map(&map).unwrap();
         let hour = Duration::from_secs(3600);
-        let row = order_maps::insert(&storage, cal.row.id, (&map, found_mask()), &bands, hour)
-            .await
-            .unwrap();
+        let stem = FileStem::of_photo("disc-03.png");
+        let row = order_maps::insert(
+            &storage,
+            cal.row.id,
+            (&map, found_mask()),
+            stem.as_ref(),
+            &bands,
+            hour,
+        )
+        .await
+        .unwrap();
         let (meta, back) = order_maps::load(&storage, row.id).await.unwrap();
         assert_eq!(meta.calibration_id, cal.row.id);
         assert_eq!(meta.mask, Some(found_mask()), "the mask used reads back");
+        assert_eq!(
+            meta.file_stem, stem,
+            "the stem its files are named by reads back"
+        );
         assert_eq!((back.width, back.height), (3, 2));
         assert_eq!(back.order[1], 1.25);
         assert!(back.order[2].is_nan());
@@ -470,7 +482,7 @@ async fn concurrent_imports_corrections_and_stored_maps_succeed_or_conflict_on_e
                 let bands = compact::encode_map(&map).unwrap();
                 let minute = Duration::from_secs(60);
                 let stored =
-                    order_maps::insert(&storage, own, (&map, found_mask()), &bands, minute)
+                    order_maps::insert(&storage, own, (&map, found_mask()), None, &bands, minute)
                         .await
                         .map(|_| ());
                 (imported, corrected, rival, stored)

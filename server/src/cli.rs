@@ -23,7 +23,7 @@ use isotint_core::stress::{
 };
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
-    OrderHint, PixelRect,
+    OrderHint, OrderMap, PixelRect,
 };
 use time::OffsetDateTime;
 
@@ -655,9 +655,9 @@ pub struct BoundaryArgs {
     #[arg(long)]
     pub photo: PathBuf,
     /// Mask image of the photo's size; non-zero = specimen. Its outline is the edge sampled
-    /// (not where it meets the photo's border).
+    /// (not where it meets the photo's border). Without it the specimen is found from the photo.
     #[arg(long)]
-    pub mask: PathBuf,
+    pub mask: Option<PathBuf>,
     /// The material fringe value and thickness.
     #[command(flatten)]
     pub material: MaterialArgs,
@@ -707,8 +707,9 @@ pub struct SeriesArgs {
 #[derive(Debug, Clone, Args)]
 pub struct SeriesPhotos {
     /// Mask image of the photos' size; non-zero = specimen (for a disc: the disc alone).
+    /// Without it the specimen is found from the photo of the largest load.
     #[arg(long)]
-    pub mask: PathBuf,
+    pub mask: Option<PathBuf>,
     /// A photo of the series (repeat, at least twice; all of one size, one view).
     #[arg(long = "photo", required = true)]
     pub photos: Vec<PathBuf>,
@@ -738,7 +739,7 @@ impl SeriesPhotos {
 
     /// The input files, each with its flag.
     fn inputs(&self) -> Vec<(&'static str, Option<&PathBuf>)> {
-        let mut inputs = vec![("--mask", Some(&self.mask))];
+        let mut inputs = vec![("--mask", self.mask.as_ref())];
         inputs.extend(self.photos.iter().map(|p| ("--photo", Some(p))));
         inputs
     }
@@ -754,9 +755,10 @@ pub struct CompareArgs {
     /// Specimen photo (PNG, JPEG or TIFF).
     #[arg(long)]
     pub photo: PathBuf,
-    /// Mask image of the photo's size; non-zero = specimen.
+    /// Mask image of the photo's size; non-zero = specimen. Without it the specimen is found
+    /// from the photo (the whole photo when none is found).
     #[arg(long)]
-    pub mask: PathBuf,
+    pub mask: Option<PathBuf>,
     /// The material fringe value and thickness.
     #[command(flatten)]
     pub material: MaterialArgs,
@@ -1226,19 +1228,19 @@ pub fn report_text(r: &BeamReport) -> String {
     if let Some(e) = &r.edge_order_estimate {
         let [red, green, blue] = e.channel_gains;
         out += &format!(
-            "  edge-order estimate {:.3} fringes, confidence {}; best match {} / {}, mean ΔE*ab \
+            "  edge-order estimate {:.3} fringes, confidence {}; best match {} / {}, mean ΔE00 \
              {:.2}, channel gains {red:.2} {green:.2} {blue:.2}\n",
             e.edge_order,
             e.confidence.name(),
-            e.light.name(),
-            e.camera.name(),
-            e.cost_de_ab
+            e.light.description(),
+            e.camera.description(),
+            e.residual_de2000
         );
         match (e.runner_up, e.cost_ratio) {
             (Some(alt), Some(ratio)) => {
                 out += &format!(
-                    "  runner-up           {:.3} fringes, mean ΔE*ab {:.2} ({ratio:.1} × the estimate's)\n",
-                    alt.edge_order, alt.cost_de_ab
+                    "  runner-up           {:.3} fringes, mean ΔE00 {:.2} (cost {ratio:.1} × the estimate's)\n",
+                    alt.edge_order, alt.residual_de2000
                 )
             }
             _ => out += "  runner-up           none (no separate minimum)\n",
@@ -1291,7 +1293,7 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
     if let Some(out) = &args.out {
         let inputs = [
             ("--photo", Some(&args.photo)),
-            ("--mask", Some(&args.mask)),
+            ("--mask", args.mask.as_ref()),
             ("--calibration", Some(&args.calibration)),
         ];
         refuse_overwriting(&inputs, "--out", out)?;
@@ -1300,16 +1302,13 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
     let scale = args.mm_per_px.map(Scale::new).transpose().in_flags()?;
     let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
-    let mask = read(&args.mask, "mask")?;
-    let options = MapOptions::default();
-    let (map, _) = pipeline::map(
-        &photo,
-        MaskChoice::Given(&mask),
-        &table,
-        &options,
-        &DecodeLimits::default(),
-    )
-    .in_flags()?;
+    let (map, used) = map_with_mask(&photo, args.mask.as_deref(), &table)?;
+    if used.source == MaskSource::WholePhoto && args.polyline.is_none() {
+        anyhow::bail!(
+            "--mask is needed: no specimen was found in the photo, so it has no outline to \
+             sample (or give --polyline)"
+        );
+    }
     let path = args
         .polyline
         .clone()
@@ -1323,9 +1322,10 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         write(out, &edge_csv(&result))?;
     }
     if args.json {
-        println!("{}", serde_json::to_string(&result)?);
+        println!("{}", with_mask(&result, used)?);
         return Ok(());
     }
+    print!("{}", mask_text(&used, MASK_FLAG));
     let in_mm = match (result.x_mm, result.y_mm) {
         (Some(x), Some(y)) => format!(" px = ({x:.2}, {y:.2}) mm"),
         _ => String::new(),
@@ -1365,21 +1365,22 @@ fn series(args: &SeriesArgs) -> anyhow::Result<()> {
     }
     let spec = photos.spec()?;
     let table = read_table(&args.calibration)?;
-    let mask = read(&photos.mask, "mask")?;
+    let mask = photos.mask.as_ref().map(|m| read(m, "mask")).transpose()?;
     let photos = photos
         .photos
         .iter()
         .map(|p| read(p, "photo"))
         .collect::<anyhow::Result<Vec<_>>>()?;
-    let result =
-        pipeline::series(&spec, &photos, &mask, &table, &DecodeLimits::default()).in_flags()?;
+    let limits = DecodeLimits::default();
+    let (result, used) =
+        pipeline::series(&spec, &photos, mask.as_deref(), &table, &limits).in_flags()?;
     if let Some(out) = &args.out {
         write(out, &pipeline::slope_npy(&result))?;
     }
     if args.json {
-        println!("{}", serde_json::to_string(&result)?);
+        println!("{}", with_mask(&result, used)?);
     } else {
-        print!("{}", series_text(&result));
+        print!("{}{}", series_text(&result), mask_text(&used, MASK_FLAG));
     }
     Ok(())
 }
@@ -1429,7 +1430,7 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
     if let Some(out) = &args.out {
         let inputs = [
             ("--photo", Some(&args.photo)),
-            ("--mask", Some(&args.mask)),
+            ("--mask", args.mask.as_ref()),
             ("--calibration", Some(&args.calibration)),
             ("--prediction", Some(&args.prediction)),
         ];
@@ -1456,15 +1457,7 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
     let prediction = Prediction::from_csv(&text).in_flags()?;
     let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
-    let mask = read(&args.mask, "mask")?;
-    let (map, _) = pipeline::map(
-        &photo,
-        MaskChoice::Given(&mask),
-        &table,
-        &MapOptions::default(),
-        &DecodeLimits::default(),
-    )
-    .in_flags()?;
+    let (map, used) = map_with_mask(&photo, args.mask.as_deref(), &table)?;
     let result = compare(&map, &law, &prediction, &registration).in_flags()?;
     if let (Some(out), Some(format)) = (&args.out, format) {
         let bytes = match format {
@@ -1478,9 +1471,10 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
         write(out, &bytes)?;
     }
     if args.json {
-        println!("{}", serde_json::to_string(&result)?);
+        println!("{}", with_mask(&result, used)?);
         return Ok(());
     }
+    print!("{}", mask_text(&used, MASK_FLAG));
     println!(
         "  compared pixels     {} of {} specimen pixels ({:.1} % inside the model)
            measured − predicted mean {:+.3}, mean |Δ| {:.3}, rms {:.3} MPa
@@ -1708,7 +1702,7 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             path.display()
         );
     }
-    print!("{}", mask_text(&mask_used));
+    print!("{}", mask_text(&mask_used, "--mask FILE or --whole-photo"));
     print!(
         "{}",
         statistics_text(&map.statistics, outputs.specimen.as_ref())
@@ -1716,16 +1710,48 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// The line `isotint map` prints about the mask it used, with a note on how to change a
-/// found one.
-pub fn mask_text(used: &MaskUsed) -> String {
+/// How `boundary`, `compare` and `series` let a user keep what a found mask leaves out.
+const MASK_FLAG: &str = "--mask FILE";
+
+/// The line a command prints about the mask it used, with a note on how to change a found one
+/// (`keep`: the flags that do).
+pub fn mask_text(used: &MaskUsed, keep: &str) -> String {
     let mut out = format!("  mask                {}\n", used.describe());
     if used.source == MaskSource::Found {
-        out += "  mask note           the dark background and large holes are left out, and so \
-                are zero-order zones on the specimen's edge; give --mask FILE or \
-                --whole-photo to keep them\n";
+        out += &format!(
+            "  mask note           the dark background and large holes are left out, and so \
+             are zero-order zones on the specimen's edge; give {keep} to keep them\n"
+        );
     }
     out
+}
+
+/// `result` as one JSON object with the mask used added as `mask` ({source, specimen_share}).
+fn with_mask(result: &impl serde::Serialize, used: MaskUsed) -> anyhow::Result<String> {
+    let mut value = serde_json::to_value(result)?;
+    if let Some(object) = value.as_object_mut() {
+        object.insert("mask".into(), serde_json::to_value(used)?);
+    }
+    Ok(value.to_string())
+}
+
+/// Maps `photo` with `table` and default options over the mask given, or else the specimen
+/// found from the photo (the whole photo when none is found); errors name the flags.
+fn map_with_mask(
+    photo: &[u8],
+    mask: Option<&Path>,
+    table: &CalibrationTable,
+) -> anyhow::Result<(OrderMap, MaskUsed)> {
+    let mask = mask.map(|m| read(m, "mask")).transpose()?;
+    let choice = mask.as_deref().map_or(MaskChoice::Find, MaskChoice::Given);
+    pipeline::map(
+        photo,
+        choice,
+        table,
+        &MapOptions::default(),
+        &DecodeLimits::default(),
+    )
+    .in_flags()
 }
 
 /// The lines `isotint map` prints about a map: its figures, the σ1 − σ2 figures (and a
@@ -1800,7 +1826,7 @@ fn demo(args: &DemoArgs) -> anyhow::Result<()> {
         material: d.material.clone(),
         thickness_mm: Some(d.thickness_mm),
         light_source: d.setup.light.description().into(),
-        camera: d.setup.camera.name().into(),
+        camera: d.setup.camera.description().into(),
         notes: format!("Measured by `isotint demo` on {}.", d.beam.photos[0]),
     };
     let spec = beam_spec(region, load, false, None, metadata)?;

@@ -407,7 +407,7 @@ async fn series(args: ClientSeriesArgs) -> anyhow::Result<()> {
         .parse::<CalibrationId>()
         .map_err(|e| anyhow::anyhow!("--calibration: {e}"))?;
     if let Some(out) = &args.out {
-        let inputs = photos.photos.iter().chain([&photos.mask]);
+        let inputs = photos.photos.iter().chain(photos.mask.iter());
         if inputs.into_iter().any(|input| same_file(input, out)) {
             anyhow::bail!(
                 "--out {} is an input file; refusing to overwrite it",
@@ -422,7 +422,10 @@ async fn series(args: ClientSeriesArgs) -> anyhow::Result<()> {
     })
     .to_string();
     let service = Service::new(&args.service)?;
-    let mask = read_input(&photos.mask, "--mask").await?;
+    let mask = match &photos.mask {
+        Some(path) => Some((read_input(path, "--mask").await?, path)),
+        None => None,
+    };
     let mut files = Vec::with_capacity(photos.photos.len());
     for path in &photos.photos {
         files.push((read_input(path, "--photo").await?, path));
@@ -430,8 +433,11 @@ async fn series(args: ClientSeriesArgs) -> anyhow::Result<()> {
     let form = || {
         let form = Form::new()
             .text("calibration", args.calibration.clone())
-            .part("mask", file_part(&mask, &photos.mask))
             .part("series", json_part(&series_json));
+        let form = match &mask {
+            Some((bytes, path)) => form.part("mask", file_part(bytes, path)),
+            None => form,
+        };
         files.iter().fold(form, |form, (bytes, path)| {
             form.part("photo", file_part(bytes, path))
         })

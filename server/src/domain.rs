@@ -123,6 +123,71 @@ pub fn shorten(text: &str, max: usize) -> String {
     }
 }
 
+/// The stem of a downloaded map file's name (`disc-03-orders` in `disc-03-orders-stress.npy`):
+/// 1–100 ASCII letters, digits, `.`, `_` or `-`, not starting with `.`, so that it is safe in a
+/// file name and in a Content-Disposition header.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct FileStem(String);
+
+impl FileStem {
+    /// Longest stem, characters.
+    pub const MAX_CHARS: usize = 100;
+    /// Longest part of a photo's name kept in [`FileStem::of_photo`], characters.
+    const PHOTO_CHARS: usize = 80;
+
+    /// Checks a stem as a client gave it; the error names `name`.
+    pub fn parse(text: &str) -> CoreResult<FileStem> {
+        if text.is_empty()
+            || text.len() > Self::MAX_CHARS
+            || text.starts_with('.')
+            || !text.chars().all(Self::allowed)
+        {
+            return Err(CoreError::invalid(
+                "name",
+                format!(
+                    "{:?}; use 1–{} letters, digits, '.', '_' or '-', not starting with '.'",
+                    shorten(text, 40),
+                    Self::MAX_CHARS
+                ),
+            ));
+        }
+        Ok(FileStem(text.to_string()))
+    }
+
+    /// The stem of a map of the photo uploaded as `file_name`: the name without its folders
+    /// and extension, each run of other characters replaced by `_`, without leading dots or
+    /// `_`, at most 80 characters, then `-orders` (`disc 03.png` → `disc_03-orders`); `None`
+    /// when nothing is left.
+    pub fn of_photo(file_name: &str) -> Option<FileStem> {
+        let base = file_name.rsplit(['/', '\\']).next().unwrap_or_default();
+        let bare = base.rsplit_once('.').map_or(base, |(stem, _)| stem);
+        let mut stem = String::new();
+        for c in bare.chars() {
+            if Self::allowed(c) {
+                stem.push(c);
+            } else if !stem.ends_with('_') {
+                stem.push('_');
+            }
+        }
+        let kept: String = stem
+            .trim_start_matches(['.', '_'])
+            .chars()
+            .take(Self::PHOTO_CHARS)
+            .collect();
+        let kept = kept.trim_end_matches('_');
+        (!kept.is_empty()).then(|| FileStem(format!("{kept}-orders")))
+    }
+
+    fn allowed(c: char) -> bool {
+        c.is_ascii_alphanumeric() || matches!(c, '.' | '_' | '-')
+    }
+
+    /// The stem as text.
+    pub fn as_str(&self) -> &str {
+        &self.0
+    }
+}
+
 /// Unix time in milliseconds.
 pub fn unix_ms(t: OffsetDateTime) -> i64 {
     (t.unix_timestamp_nanos() / 1_000_000) as i64
@@ -282,6 +347,37 @@ mod tests {
             format!(" {id}"),
         ] {
             assert!(other.parse::<CalibrationId>().is_err(), "{other}");
+        }
+    }
+
+    #[test]
+    fn a_photos_file_name_becomes_a_stem_safe_in_a_header_and_one_with_nothing_safe_gives_none() {
+        let stem = |name: &str| FileStem::of_photo(name).map(|s| s.as_str().to_string());
+        assert_eq!(stem("disc-03.png").as_deref(), Some("disc-03-orders"));
+        // Folders (either separator) are dropped, runs of other characters become one `_`.
+        assert_eq!(
+            stem("C:\\bay 4\\Bracket  #2 (after).jpeg").as_deref(),
+            Some("Bracket_2_after-orders")
+        );
+        assert_eq!(stem("../../.hidden.tif").as_deref(), Some("hidden-orders"));
+        for nothing in ["", ".png", "€€€.png", "../"] {
+            assert_eq!(stem(nothing), None, "{nothing}");
+        }
+        // A long name is cut, and every stem made passes the check a client's name must.
+        let long = stem(&format!("{}.png", "x".repeat(300))).unwrap();
+        assert_eq!(long.len(), FileStem::PHOTO_CHARS + "-orders".len());
+        for made in ["disc-03.png", "Ünïcode photo.png", &long] {
+            let made = stem(made).unwrap();
+            assert_eq!(FileStem::parse(&made).unwrap().as_str(), made);
+        }
+        for bad in ["", ".hidden", "a\"b", "../etc", &"x".repeat(101)] {
+            assert!(
+                FileStem::parse(bad)
+                    .unwrap_err()
+                    .to_string()
+                    .contains("name"),
+                "{bad}"
+            );
         }
     }
 

@@ -7,7 +7,9 @@ use isotint_core::export;
 use isotint_core::report::{report_pdf, ReportInputs};
 use isotint_core::series::{map_series, LoadSeries, SeriesSpec};
 use isotint_core::specimen::{find_specimen, MaskSource, MaskUsed};
-use isotint_core::{CalibrationTable, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo};
+use isotint_core::{
+    CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo,
+};
 
 /// Decodes a beam photo and builds a calibration table from it.
 pub fn calibrate(
@@ -31,6 +33,23 @@ pub enum MaskChoice<'a> {
     WholePhoto,
 }
 
+/// The specimen of `photo` as `choice` says: the decoded mask given, the specimen found from the
+/// photo, or the whole photo (`None`; also when nothing is found).
+pub fn choose_mask(
+    photo: &Photo,
+    choice: MaskChoice<'_>,
+    limits: &DecodeLimits,
+) -> CoreResult<(MaskSource, Option<Mask>)> {
+    Ok(match choice {
+        MaskChoice::Given(bytes) => (MaskSource::Given, Some(Mask::decode(bytes, limits)?)),
+        MaskChoice::Find => match find_specimen(photo) {
+            Some(found) => (MaskSource::Found, Some(found)),
+            None => (MaskSource::WholePhoto, None),
+        },
+        MaskChoice::WholePhoto => (MaskSource::WholePhoto, None),
+    })
+}
+
 /// Decodes a specimen photo (and mask, if given), chooses its specimen and maps its fringe
 /// orders with `table`; answers the map and the mask it used.
 pub fn map(
@@ -41,14 +60,7 @@ pub fn map(
     limits: &DecodeLimits,
 ) -> CoreResult<(OrderMap, MaskUsed)> {
     let photo = Photo::decode(photo, limits)?;
-    let (source, mask) = match mask {
-        MaskChoice::Given(bytes) => (MaskSource::Given, Some(Mask::decode(bytes, limits)?)),
-        MaskChoice::Find => match find_specimen(&photo) {
-            Some(found) => (MaskSource::Found, Some(found)),
-            None => (MaskSource::WholePhoto, None),
-        },
-        MaskChoice::WholePhoto => (MaskSource::WholePhoto, None),
-    };
+    let (source, mask) = choose_mask(&photo, mask, limits)?;
     let map = isotint_core::map_orders(&photo, table, mask.as_ref(), options)?;
     Ok((map, MaskUsed::of(source, mask.as_ref())))
 }
@@ -71,18 +83,42 @@ pub fn report(
     report_pdf(&photo, &map, inputs)
 }
 
-/// Decodes the mask and maps the photos of a load series with `table` (one photo decoded at a
-/// time), then fits it (`series::map_series`).
+/// Chooses the specimen and maps the photos of a load series with `table` (one photo decoded at
+/// a time), then fits it (`series::map_series`); answers the fit and the mask it used. Without
+/// a mask the specimen is found from the photo of the largest load (the most fringes, so the
+/// clearest edges); when nothing is found there the series is refused naming `mask`, since a
+/// series over the whole photo would fit its dark background.
 pub fn series<P: AsRef<[u8]>>(
     spec: &SeriesSpec,
     photos: &[P],
-    mask: &[u8],
+    mask: Option<&[u8]>,
     table: &CalibrationTable,
     limits: &DecodeLimits,
-) -> CoreResult<LoadSeries> {
-    let mask = Mask::decode(mask, limits)?;
+) -> CoreResult<(LoadSeries, MaskUsed)> {
+    let (source, mask) = match mask {
+        Some(bytes) => (MaskSource::Given, Mask::decode(bytes, limits)?),
+        None => {
+            let (_, heaviest) = spec
+                .loads_n()
+                .iter()
+                .zip(photos)
+                .max_by(|a, b| a.0.total_cmp(b.0))
+                .ok_or_else(|| CoreError::invalid("photo", "a series needs photos"))?;
+            let photo = Photo::decode(heaviest.as_ref(), limits)?;
+            let found = find_specimen(&photo).ok_or_else(|| {
+                CoreError::invalid(
+                    "mask",
+                    "is needed: no specimen was found in the photo of the largest load (it is \
+                     dark everywhere or the specimen fills it)",
+                )
+            })?;
+            (MaskSource::Found, found)
+        }
+    };
+    let used = MaskUsed::of(source, Some(&mask));
     let photos = photos.iter().map(|p| Photo::decode(p.as_ref(), limits));
-    map_series(spec, photos, &mask, table, &MapOptions::default())
+    let series = map_series(spec, photos, &mask, table, &MapOptions::default())?;
+    Ok((series, used))
 }
 
 /// A load series' slope map, fringes per N, as NPY float32 of shape (height, width), NaN where a

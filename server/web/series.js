@@ -86,15 +86,12 @@ export class SeriesPage {
         throw new Error('Choose a calibration.');
       }
       const mask = $('se-mask').files[0];
-      if (!mask) {
-        $('se-mask').focus();
-        throw new Error('Choose the mask (for a disc: the disc alone).');
-      }
       const rows = [...$('se-rows').children];
       if (rows.length < 2) throw new Error(`A series needs at least two photos; there ${rows.length === 1 ? 'is one' : 'are none'}.`);
       form = new FormData();
       form.append('calibration', calibration);
-      form.append('mask', mask, mask.name);
+      // Without a mask the service finds the specimen in the photo of the largest load.
+      if (mask) form.append('mask', mask, mask.name);
       const loads = [];
       rows.forEach((li, i) => {
         const input = li.querySelector('.se-photo');

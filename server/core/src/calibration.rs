@@ -72,9 +72,11 @@ pub enum TableSource {
     },
     /// Computed by the spectral renderer for a light source and camera.
     Rendered {
-        /// Light source name as the renderer knows it.
+        /// Light source in the renderer's words (`LightSource::description`); tables written
+        /// before hold its short name (`halogen`, …), which `LightSource::from_name` still reads.
         light: String,
-        /// Camera model name as the renderer knows it.
+        /// Camera model in the renderer's words (`CameraModel::description`); tables written
+        /// before hold its short name (`gaussian-sensor`, …).
         camera: String,
         /// Wavelength (nm) at which the quarter-wave plates are exact; absent for ideal plates
         /// (exact at every wavelength). Tables written before this field was optional say 0

@@ -214,11 +214,11 @@ fn estimate_beams(seeds: impl Iterator<Item = u64>) -> Vec<(u64, Option<f64>)> {
             let error = result.as_ref().ok().map(|e| (e.edge_order - TRUTH) / TRUTH);
             match &result {
                 Ok(e) => println!(
-                    "{}\n      edge order {:.3} ({:+.2} %), cost {:.2}, {}",
+                    "{}\n      edge order {:.3} ({:+.2} %), residual {:.2} ΔE00, {}",
                     scenario.summary(),
                     e.edge_order,
                     100.0 * (e.edge_order - TRUTH) / TRUTH,
-                    e.cost_de_ab,
+                    e.residual_de2000,
                     e.confidence.name()
                 ),
                 Err(refused) => println!("{}\n      refused: {refused}", scenario.summary()),

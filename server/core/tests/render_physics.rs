@@ -40,10 +40,13 @@ fn illuminant_a_lands_on_its_white_point() {
 #[test]
 fn light_names_round_trip_and_unknown_names_are_refused() {
     for light in LightSource::ALL {
-        assert_eq!(LightSource::from_name(light.name()).unwrap(), light);
+        assert_eq!(LightSource::from_name(light.description()).unwrap(), light);
     }
     for camera in CameraModel::ALL {
-        assert_eq!(CameraModel::from_name(camera.name()).unwrap(), camera);
+        assert_eq!(
+            CameraModel::from_name(camera.description()).unwrap(),
+            camera
+        );
     }
     assert_eq!(LightSource::from_name("F11").unwrap(), LightSource::TriBand);
     assert!(LightSource::from_name("sodium")

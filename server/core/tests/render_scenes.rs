@@ -186,8 +186,8 @@ fn a_rendered_table_is_valid_starts_black_and_names_its_setup() {
     assert_eq!(
         table.source,
         TableSource::Rendered {
-            light: "tri-band".into(),
-            camera: "gaussian-sensor".into(),
+            light: "narrow tri-band fluorescent tube (CIE F11)".into(),
+            camera: "typical colour sensor (Gaussian RGB channels)".into(),
             plate_design_nm: Some(560.0)
         }
     );
@@ -395,7 +395,9 @@ fn the_demo_scenario_ships_photos_masks_true_orders_and_a_description() {
     assert_eq!(mask.as_slice().iter().filter(|m| **m).count(), 920 * 240);
     let json: serde_json::Value = serde_json::from_slice(file("scenario.json")).unwrap();
     assert_eq!(json["beam"]["field"]["edge_order"], 4.5);
-    assert_eq!(json["setup"]["light"], "halogen");
+    // The scenario file names its light and camera in words, which read back as what drew it.
+    assert_eq!(json["setup"]["light"], LightSource::Halogen.description());
+    assert_eq!(json["setup"]["camera"], CameraModel::Sensor.description());
     let centre = demo.description.disc.centre_order;
     assert_relative_eq!(
         centre,

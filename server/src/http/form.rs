@@ -16,6 +16,8 @@ use crate::domain::{shorten, Id, IdKind};
 #[derive(Debug)]
 pub struct Form {
     parts: Vec<(String, Bytes)>,
+    /// The file name each file part came with, by part name (the first of a repeated part).
+    file_names: Vec<(String, String)>,
     expected: &'static [&'static str],
 }
 
@@ -37,6 +39,7 @@ impl Form {
     ) -> Result<Form, ApiError> {
         let mut multipart = multipart?;
         let mut parts: Vec<(String, Bytes)> = Vec::new();
+        let mut file_names: Vec<(String, String)> = Vec::new();
         while let Some(field) = multipart.next_field().await? {
             let name = field.name().unwrap_or_default().to_string();
             if !expected.contains(&name.as_str()) {
@@ -55,10 +58,19 @@ impl Form {
                     format!("multipart field {name:?} appears more than once"),
                 ));
             }
+            if let Some(file_name) = field.file_name() {
+                if !file_names.iter().any(|(n, _)| *n == name) {
+                    file_names.push((name.clone(), file_name.to_string()));
+                }
+            }
             let bytes = field.bytes().await?;
             parts.push((name, bytes));
         }
-        Ok(Form { parts, expected })
+        Ok(Form {
+            parts,
+            file_names,
+            expected,
+        })
     }
 
     /// What a job on `photo` (taken from this form) needs: its memory estimate from the photo's
@@ -69,6 +81,14 @@ impl Form {
             memory_bytes: crate::pipeline::job_memory(photo, held, limits)?,
             waiting_bytes: held as u64,
         })
+    }
+
+    /// The file name the part `name` came with (its `filename`), if it had one.
+    pub fn file_name(&self, name: &str) -> Option<&str> {
+        self.file_names
+            .iter()
+            .find(|(n, _)| n == name)
+            .map(|(_, f)| f.as_str())
     }
 
     /// Removes and returns the part `name`, if present; the other parts keep their order (a

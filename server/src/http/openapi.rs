@@ -18,6 +18,7 @@ use utoipa::OpenApi;
 
 use super::error::{ErrorBody, ErrorDetail};
 use super::AppState;
+use crate::domain::FileStem;
 
 /// Top-level OpenAPI document; paths are added by each module's `router()`.
 #[derive(OpenApi)]
@@ -236,6 +237,15 @@ pub fn optional_poisson_ratio() -> Schema {
 /// A report's title (at most [`MAX_TITLE_CHARS`] characters), or null.
 pub fn optional_title() -> Schema {
     schema(json!({"type": ["string", "null"], "maxLength": MAX_TITLE_CHARS}))
+}
+
+/// The stem of a downloaded file's name (`domain::FileStem`): 1–100 ASCII letters, digits, `.`,
+/// `_` or `-`, not starting with `.`.
+pub fn file_stem() -> Schema {
+    schema(json!({
+        "type": "string",
+        "pattern": format!("^[A-Za-z0-9_-][A-Za-z0-9._-]{{0,{}}}$", FileStem::MAX_CHARS - 1),
+    }))
 }
 
 /// Which pixels a map without a mask covers: `find` (the default) or `whole_photo`.

@@ -34,7 +34,7 @@ use super::form::{parse_json, path_id, Form};
 use super::jobs::{Admission, JobSize};
 use super::openapi;
 use super::AppState;
-use crate::domain::{rfc3339, CalibrationId, OrderMapId};
+use crate::domain::{rfc3339, CalibrationId, FileStem, OrderMapId};
 use crate::pipeline::{self, MaskChoice};
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
@@ -130,7 +130,9 @@ pub struct CreateQuery {
     /// NaN = no value), `flags`, or σ1 − σ2 in MPa as `stress-npy` (float32, NaN = no value),
     /// `stress-preview` or `stress-csv` (these need a specimen: `fringe_value_n_per_mm` and
     /// `thickness_mm`, or a coating's fields), or a coating's ε1 − ε2 in µε as `strain-npy`,
-    /// `strain-preview` or `strain-csv`: answer with that file instead of storing the map.
+    /// `strain-preview` or `strain-csv`: answer with that file instead of storing the map,
+    /// named after the photo's file name as a stored map's file is (`disc-03.png` gives
+    /// `disc-03-orders.npy`; `order-map.npy` without a file name).
     #[param(schema_with = openapi::map_file_kind)]
     pub format: Option<String>,
 }
@@ -218,37 +220,19 @@ pub struct FilePath {
 #[derive(Debug, Deserialize, IntoParams)]
 #[into_params(parameter_in = Query)]
 pub struct FileNameQuery {
-    /// Stem of the saved file's name (Content-Disposition), e.g. the photo's: `disc-03-orders`
-    /// gives `disc-03-orders.npy`; 1–100 letters, digits, `.`, `_` or `-`, not starting with
-    /// `.`. Default `order-map-ID`.
+    /// Stem of the saved file's name (Content-Disposition): `disc-03-orders` gives
+    /// `disc-03-orders.npy`, `disc-03-orders-stress.npy`, …; 1–100 letters, digits, `.`, `_` or
+    /// `-`, not starting with `.`. Default: the photo's file name without its extension, other
+    /// characters as `_`, then `-orders` (`disc-03.png` gives `disc-03-orders`), or
+    /// `order-map-ID` when the photo came without a file name.
+    #[param(schema_with = openapi::file_stem)]
     pub name: Option<String>,
 }
 
-/// Longest accepted file-name stem, characters.
-const MAX_NAME_CHARS: usize = 100;
-
 impl FileNameQuery {
-    /// The stem to name the file by: the given one if it is safe in a file name and a
-    /// header, 422 naming `name` otherwise; `order-map-ID` without one.
-    fn stem(&self, id: OrderMapId) -> Result<String, ApiError> {
-        let Some(name) = &self.name else {
-            return Ok(format!("order-map-{id}"));
-        };
-        let safe = |c: char| c.is_ascii_alphanumeric() || matches!(c, '.' | '_' | '-');
-        if name.is_empty()
-            || name.len() > MAX_NAME_CHARS
-            || name.starts_with('.')
-            || !name.chars().all(safe)
-        {
-            return Err(ApiError::unprocessable(
-                "invalid_input",
-                format!(
-                    "invalid name: {name:?}; use 1–{MAX_NAME_CHARS} letters, digits, '.', '_' \
-                     or '-', not starting with '.'"
-                ),
-            ));
-        }
-        Ok(name.clone())
+    /// The stem asked for, checked (422 naming `name`), if any.
+    fn stem(&self) -> Result<Option<FileStem>, ApiError> {
+        Ok(self.name.as_deref().map(FileStem::parse).transpose()?)
     }
 }
 
@@ -256,7 +240,8 @@ impl FileNameQuery {
 #[derive(ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct MapForm {
-    /// Specimen photo (PNG, JPEG or TIFF).
+    /// Specimen photo (PNG, JPEG or TIFF); its file name, if the part has one, names the map's
+    /// files.
     #[schema(value_type = String, format = Binary)]
     pub photo: Vec<u8>,
     /// Calibration id.
@@ -471,8 +456,8 @@ fn refuse_expired(row: &OrderMapRow) -> Result<(), ApiError> {
 }
 
 /// Maps a specimen photo's fringe orders with a stored calibration. With `?format=` the
-/// response is that file and nothing is stored; otherwise the map is stored for the retention
-/// time and described as JSON.
+/// response is that file, named after the photo, and nothing is stored; otherwise the map is
+/// stored for the retention time (its files named after the photo) and described as JSON.
 #[utoipa::path(post, path = "/api/v1/order-maps", tag = "order-maps", params(CreateQuery, StressQuery),
     request_body(content((MapForm = "multipart/form-data",
         encoding(("options" = (content_type = "application/json")))))),
@@ -514,6 +499,7 @@ async fn create_order_map(
         Some(bytes) => parse_json("options", &bytes)?,
         None => MapOptions::default(),
     };
+    let file_stem = form.file_name("photo").and_then(FileStem::of_photo);
     let photo = form.require("photo")?;
     let mask = form.take("mask");
     let mask_source =
@@ -544,15 +530,17 @@ async fn create_order_map(
         };
         drop(map);
         let bands = Bands::Made(std::sync::Arc::new(bands));
+        let stem = file_stem.as_ref().map_or("order-map", FileStem::as_str);
         return state
             .downloads
-            .stream(slot, kind, shape, bands, "order-map", cut.map(|c| c.0));
+            .stream(slot, kind, shape, bands, stem, cut.map(|c| c.0));
     }
     let retention = state.config.retention;
     let row = store::insert(
         &state.storage,
         calibration_id,
         (&map, mask_used),
+        file_stem.as_ref(),
         &bands,
         retention,
     )
@@ -605,7 +593,7 @@ async fn get_order_map_file(
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
     let specimen = stress?.0.specimen()?;
-    let stem = name?.0.stem(id)?;
+    let asked = name?.0.stem()?;
     let kind = FileKind::from_name(&file, specimen).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
@@ -621,6 +609,9 @@ async fn get_order_map_file(
         statistics: statistics_from_json(&row.statistics),
     };
     let bands = Bands::Stored(state.storage.clone(), id);
+    let stem = asked
+        .or(row.file_stem)
+        .map_or_else(|| format!("order-map-{id}"), |s| s.as_str().to_string());
     state
         .downloads
         .stream(slot, kind, shape, bands, &stem, cut.map(|c| c.0))

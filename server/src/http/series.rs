@@ -8,8 +8,9 @@ use axum::extract::{Multipart, Query, State};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
 use isotint_core::series::{LoadSeries, SeriesSpec};
+use isotint_core::specimen::MaskUsed;
 use isotint_core::CoreResult;
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 use utoipa_axum::router::OpenApiRouter;
 use utoipa_axum::routes;
@@ -56,15 +57,25 @@ pub struct SeriesForm {
     /// Calibration id.
     #[schema(schema_with = openapi::uuid)]
     pub calibration: String,
-    /// Mask PNG of the photos' size; non-zero = specimen (for a disc, the disc alone).
-    #[schema(value_type = String, format = Binary)]
-    pub mask: Vec<u8>,
+    /// Optional mask PNG of the photos' size; non-zero = specimen (for a disc, the disc
+    /// alone). Without it the specimen is found from the photo of the largest load (dark
+    /// background and large holes left out); 422 naming `mask` when none is found there.
+    #[schema(value_type = Option<String>, format = Binary)]
+    pub mask: Option<Vec<u8>>,
     /// The photos (PNG, JPEG or TIFF), one part each, two to twelve, all of one size.
     #[schema(schema_with = openapi::series_photos)]
     pub photo: Vec<Vec<u8>>,
     /// JSON (a part of type application/json): `loads_n` (one per photo, N),
     /// `disc_diameter_mm`, `thickness_mm`.
     pub series: SeriesRequest,
+}
+
+/// JSON answer of `POST /api/v1/series`: the fit and the mask it used.
+#[derive(Debug, Serialize)]
+struct SeriesAnswer {
+    #[serde(flatten)]
+    series: LoadSeries,
+    mask: MaskUsed,
 }
 
 /// Query of `POST /api/v1/series`.
@@ -77,12 +88,12 @@ pub struct SeriesQuery {
     pub format: Option<String>,
 }
 
-/// Fits a load series: every photo is mapped with the calibration and the mask, then each
-/// specimen pixel's order is fitted against the load through the origin. Answers
-/// `slope_fringes_per_n` (at the mask's centroid), `linearity_rms` (fringes),
-/// `nonlinear_share` (pixels whose residual rms exceeds 0.1 fringe) and, with
-/// `disc_diameter_mm`, `fringe_value` (N/mm per fringe) from the disc's centre. Nothing is
-/// stored.
+/// Fits a load series: every photo is mapped with the calibration and the mask (given or
+/// found), then each specimen pixel's order is fitted against the load through the origin.
+/// Answers `slope_fringes_per_n` (at the mask's centroid), `linearity_rms` (fringes),
+/// `nonlinear_share` (pixels whose residual rms exceeds 0.1 fringe), `mask` (`source`: given
+/// or found, `specimen_share`: 0–1) and, with `disc_diameter_mm`, `fringe_value` (N/mm per
+/// fringe) from the disc's centre. Nothing is stored.
 #[utoipa::path(post, path = "/api/v1/series", tag = "order-maps", params(SeriesQuery),
     request_body(content((SeriesForm = "multipart/form-data",
         encoding(("series" = (content_type = "application/json")))))),
@@ -114,10 +125,10 @@ async fn create_series(
         request.thickness_mm,
     )?;
     let calibration_id: CalibrationId = form.require_id("calibration")?;
-    let mask = form.require("mask")?;
+    let mask = form.take("mask");
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     let limits = state.config.decode_limits;
-    let held = photos.iter().chain([&mask]).map(|p| p.len()).sum::<usize>();
+    let held = photos.iter().chain(&mask).map(|p| p.len()).sum::<usize>();
     let first = photos.first().map_or(&[][..], |p| &p[..]);
     let admission = state
         .jobs
@@ -126,15 +137,18 @@ async fn create_series(
             waiting_bytes: held as u64,
         })
         .await?;
-    let (series, file) = admission
-        .run(move || -> CoreResult<(LoadSeries, Option<Vec<u8>>)> {
-            let series = pipeline::series(&spec, &photos, &mask, &table, &limits)?;
-            let file = slope_file.then(|| pipeline::slope_npy(&series));
-            Ok((series, file))
-        })
+    let (series, mask, file) = admission
+        .run(
+            move || -> CoreResult<(LoadSeries, MaskUsed, Option<Vec<u8>>)> {
+                let (series, used) =
+                    pipeline::series(&spec, &photos, mask.as_deref(), &table, &limits)?;
+                let file = slope_file.then(|| pipeline::slope_npy(&series));
+                Ok((series, used, file))
+            },
+        )
         .await??;
     if let Some(bytes) = file {
         return Ok(npy_attachment(bytes, "series-slope.npy"));
     }
-    Ok(Json(series).into_response())
+    Ok(Json(SeriesAnswer { series, mask }).into_response())
 }

@@ -14,7 +14,7 @@ use sqlx::Row;
 use time::OffsetDateTime;
 
 use super::{json_column, Storage, StorageError, StorageResult};
-use crate::domain::{from_unix_ms, unix_ms, CalibrationId, OrderMapId};
+use crate::domain::{from_unix_ms, unix_ms, CalibrationId, FileStem, OrderMapId};
 
 /// Everything about a stored order map except its pixel arrays.
 #[derive(Debug, Clone)]
@@ -33,6 +33,9 @@ pub struct OrderMapRow {
     pub exposure: ExposureCorrection,
     /// The mask it used (`None` for maps stored before it was recorded).
     pub mask: Option<MaskUsed>,
+    /// The stem its files are named by when a download asks for no name (from the photo's
+    /// file name; `None` without one and for maps stored before it was recorded).
+    pub file_stem: Option<FileStem>,
     /// When it was made.
     pub created_at: OffsetDateTime,
     /// When it stops being served.
@@ -40,8 +43,8 @@ pub struct OrderMapRow {
 }
 
 const META_COLUMNS: &str =
-    "id, calibration_id, width, height, statistics_json, exposure_json, mask_json, created_at_ms, \
-     expires_at_ms";
+    "id, calibration_id, width, height, statistics_json, exposure_json, mask_json, file_stem, \
+     created_at_ms, expires_at_ms";
 
 fn f32_values(column: &str, bytes: &[u8], pixels: usize) -> StorageResult<Vec<f32>> {
     if bytes.len() != pixels * 4 {
@@ -56,7 +59,7 @@ fn f32_values(column: &str, bytes: &[u8], pixels: usize) -> StorageResult<Vec<f3
         .collect())
 }
 
-fn corrupt_id(column: &str) -> impl Fn(isotint_core::CoreError) -> StorageError + '_ {
+fn corrupt_column(column: &str) -> impl Fn(isotint_core::CoreError) -> StorageError + '_ {
     move |e| StorageError::Corrupt(format!("{column}: {e}"))
 }
 
@@ -69,11 +72,11 @@ fn meta_from_row(row: &AnyRow) -> StorageResult<OrderMapRow> {
         id: row
             .try_get::<String, _>("id")?
             .parse()
-            .map_err(corrupt_id("id"))?,
+            .map_err(corrupt_column("id"))?,
         calibration_id: row
             .try_get::<String, _>("calibration_id")?
             .parse()
-            .map_err(corrupt_id("calibration_id"))?,
+            .map_err(corrupt_column("calibration_id"))?,
         width: dimension("width")?,
         height: dimension("height")?,
         statistics: json_column(row, "statistics_json")?,
@@ -83,17 +86,24 @@ fn meta_from_row(row: &AnyRow) -> StorageResult<OrderMapRow> {
             .map(|text| serde_json::from_str(&text))
             .transpose()
             .map_err(|e| StorageError::Corrupt(format!("mask_json: {e}")))?,
+        file_stem: row
+            .try_get::<Option<String>, _>("file_stem")?
+            .map(|text| FileStem::parse(&text))
+            .transpose()
+            .map_err(corrupt_column("file_stem"))?,
         created_at: from_unix_ms(row.try_get("created_at_ms")?),
         expires_at: from_unix_ms(row.try_get("expires_at_ms")?),
     })
 }
 
-/// Stores a finished map and the mask it used, the map given in compact form as `bands` (from
-/// `compact::encode_map`), in one transaction, so never half-written; returns its row.
+/// Stores a finished map, the mask it used and the stem its files are named by, the map given
+/// in compact form as `bands` (from `compact::encode_map`), in one transaction, so never
+/// half-written; returns its row.
 pub async fn insert(
     storage: &Storage,
     calibration_id: CalibrationId,
     (map, mask): (&OrderMap, MaskUsed),
+    file_stem: Option<&FileStem>,
     bands: &[Vec<u8>],
     retention: std::time::Duration,
 ) -> StorageResult<OrderMapRow> {
@@ -105,8 +115,8 @@ pub async fn insert(
     let mut tx = storage.writer().begin().await?;
     sqlx::query(
         "INSERT INTO order_maps (id, calibration_id, created_at_ms, expires_at_ms, width, height, \
-         statistics_json, exposure_json, orders, residuals, margins, flags, band_rows, mask_json) \
-         VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $9, $9, $9, $10, $11)",
+         statistics_json, exposure_json, orders, residuals, margins, flags, band_rows, mask_json, \
+         file_stem) VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $9, $9, $9, $10, $11, $12)",
     )
     .bind(id.to_string())
     .bind(calibration_id.to_string())
@@ -119,6 +129,7 @@ pub async fn insert(
     .bind(Vec::<u8>::new())
     .bind(i64::from(compact::BAND_ROWS))
     .bind(serde_json::to_string(&mask).unwrap_or_default())
+    .bind(file_stem.map(FileStem::as_str))
     .execute(&mut *tx)
     .await?;
     insert_bands(&mut tx, id, bands).await?;
@@ -131,6 +142,7 @@ pub async fn insert(
         statistics,
         exposure: map.exposure,
         mask: Some(mask),
+        file_stem: file_stem.cloned(),
         created_at,
         expires_at,
     })
@@ -271,7 +283,7 @@ pub async fn convert_legacy(storage: &Storage) -> StorageResult<u64> {
         .map(|row| row.try_get("id"))
         .collect::<Result<_, _>>()?;
     for id in &ids {
-        let id: OrderMapId = id.parse().map_err(corrupt_id("id"))?;
+        let id: OrderMapId = id.parse().map_err(corrupt_column("id"))?;
         let map = load_legacy(storage, id).await?;
         let bands = tokio::task::spawn_blocking(move || compact::encode_map(&map))
             .await

@@ -143,8 +143,8 @@ pub fn rendered_table(
         metadata,
         order_step,
         TableSource::Rendered {
-            light: light.name().to_string(),
-            camera: camera.name().to_string(),
+            light: light.description().to_string(),
+            camera: camera.description().to_string(),
             plate_design_nm: plates.design_nm(),
         },
         entries,

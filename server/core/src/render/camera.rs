@@ -43,7 +43,7 @@ impl CameraModel {
     /// Every camera model, in a fixed order.
     pub const ALL: [CameraModel; 2] = [CameraModel::Colorimetric, CameraModel::Sensor];
 
-    /// A few words for people.
+    /// A few words for people; also how files and the API write the camera.
     pub fn description(self) -> &'static str {
         match self {
             CameraModel::Colorimetric => "ideal colorimetric camera (CIE 1931 observer)",
@@ -51,25 +51,28 @@ impl CameraModel {
         }
     }
 
-    /// Our short name, as stored in calibration tables: `cie1931` or `gaussian-sensor`.
-    pub fn name(self) -> &'static str {
-        match self {
-            CameraModel::Colorimetric => "cie1931",
-            CameraModel::Sensor => "gaussian-sensor",
-        }
-    }
-
-    /// Parses a name (case-insensitive): `cie1931` (or `colorimetric`), `gaussian-sensor`
+    /// Parses a camera (case-insensitive): its [`description`](Self::description), or the
+    /// short names files written before held: `cie1931` (or `colorimetric`), `gaussian-sensor`
     /// (or `sensor`).
     pub fn from_name(name: &str) -> CoreResult<CameraModel> {
-        match name.trim().to_ascii_lowercase().as_str() {
-            "cie1931" | "colorimetric" => Ok(CameraModel::Colorimetric),
-            "gaussian-sensor" | "sensor" => Ok(CameraModel::Sensor),
-            _ => Err(CoreError::invalid(
+        let lower = name.trim().to_ascii_lowercase();
+        let by_description = CameraModel::ALL
+            .into_iter()
+            .find(|c| c.description().eq_ignore_ascii_case(&lower));
+        let found = by_description.or(match lower.as_str() {
+            "cie1931" | "colorimetric" => Some(CameraModel::Colorimetric),
+            "gaussian-sensor" | "sensor" => Some(CameraModel::Sensor),
+            _ => None,
+        });
+        found.ok_or_else(|| {
+            CoreError::invalid(
                 "camera",
-                format!("unknown camera {name:?}; known: cie1931, gaussian-sensor"),
-            )),
-        }
+                format!(
+                    "unknown camera {name:?}; known: {}",
+                    CameraModel::ALL.map(CameraModel::description).join("; ")
+                ),
+            )
+        })
     }
 
     /// Linear-sRGB response weights per wavelength (380, 381, …, 780 nm), before white

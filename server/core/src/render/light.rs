@@ -32,36 +32,33 @@ impl LightSource {
         LightSource::CoolWhite,
     ];
 
-    /// Our short name, as stored in calibration tables: `d65`, `halogen`, `tri-band`, `cool-white`.
-    pub fn name(self) -> &'static str {
-        match self {
-            LightSource::Daylight => "d65",
-            LightSource::Halogen => "halogen",
-            LightSource::TriBand => "tri-band",
-            LightSource::CoolWhite => "cool-white",
-        }
-    }
-
-    /// Parses a name (case-insensitive): our names, or the CIE codes `a`, `f11`, `f2`, or
-    /// `daylight`.
+    /// Parses a light source (case-insensitive): its [`description`](Self::description), or
+    /// the short names files written before held (`d65`, `halogen`, `tri-band`, `cool-white`),
+    /// the CIE codes `a`, `f11`, `f2`, or `daylight`.
     pub fn from_name(name: &str) -> CoreResult<LightSource> {
         let lower = name.trim().to_ascii_lowercase();
-        let found = match lower.as_str() {
+        let by_description = LightSource::ALL
+            .into_iter()
+            .find(|l| l.description().eq_ignore_ascii_case(&lower));
+        let found = by_description.or(match lower.as_str() {
             "d65" | "daylight" => Some(LightSource::Daylight),
             "halogen" | "a" => Some(LightSource::Halogen),
             "tri-band" | "f11" => Some(LightSource::TriBand),
             "cool-white" | "f2" => Some(LightSource::CoolWhite),
             _ => None,
-        };
+        });
         found.ok_or_else(|| {
             CoreError::invalid(
                 "light",
-                format!("unknown light source {name:?}; known: d65, halogen, tri-band, cool-white"),
+                format!(
+                    "unknown light source {name:?}; known: {}",
+                    LightSource::ALL.map(LightSource::description).join("; ")
+                ),
             )
         })
     }
 
-    /// One-line description for people.
+    /// A few words for people; also how files and the API write the light source.
     pub fn description(self) -> &'static str {
         match self {
             LightSource::Daylight => "daylight (CIE D65)",

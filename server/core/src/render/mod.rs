@@ -14,13 +14,14 @@
 //! Angles are radians from +x towards +y (down) in pixel coordinates; pixel (x, y) covers
 //! [x, x+1) × [y, y+1).
 
-/// Serialisation of a named renderer choice through its `name()` and `from_name()`: one
-/// spelling everywhere (calibration tables, scenario files, requests), older ones still read.
+/// Serialisation of a named renderer choice through its `description()` and `from_name()`:
+/// plain words everywhere people see it (calibration tables, scenario files, API answers),
+/// older short names still read.
 macro_rules! serde_by_name {
     ($t:ty) => {
         impl From<$t> for String {
             fn from(value: $t) -> String {
-                value.name().to_string()
+                value.description().to_string()
             }
         }
 
@@ -92,27 +93,32 @@ mod tests {
     use super::*;
 
     #[test]
-    fn light_sources_and_cameras_are_written_by_their_short_names_and_read_by_any_known_one() {
+    fn light_sources_and_cameras_are_written_in_plain_words_and_read_by_any_known_name() {
         for light in LightSource::ALL {
             let json = serde_json::to_value(light).unwrap();
-            assert_eq!(json, light.name());
+            assert_eq!(json, light.description());
             assert_eq!(serde_json::from_value::<LightSource>(json).unwrap(), light);
         }
         for camera in CameraModel::ALL {
             let json = serde_json::to_value(camera).unwrap();
-            assert_eq!(json, camera.name());
+            assert_eq!(json, camera.description());
             assert_eq!(serde_json::from_value::<CameraModel>(json).unwrap(), camera);
         }
-        // Older spellings still read.
+        // The short names files written before held still read, as do other spellings.
         let read = |s: &str| serde_json::from_value::<LightSource>(s.into());
+        assert_eq!(read("d65").unwrap(), LightSource::Daylight);
         assert_eq!(read("daylight").unwrap(), LightSource::Daylight);
         assert_eq!(read("F11").unwrap(), LightSource::TriBand);
-        assert_eq!(
-            serde_json::from_value::<CameraModel>("sensor".into()).unwrap(),
-            CameraModel::Sensor
-        );
-        // An unknown name is refused with a message naming the known ones.
+        assert_eq!(read("cool-white").unwrap(), LightSource::CoolWhite);
+        let camera = |s: &str| serde_json::from_value::<CameraModel>(s.into()).unwrap();
+        assert_eq!(camera("gaussian-sensor"), CameraModel::Sensor);
+        assert_eq!(camera("sensor"), CameraModel::Sensor);
+        assert_eq!(camera("CIE1931"), CameraModel::Colorimetric);
+        // An unknown name is refused with a message naming the known ones in words.
         let refused = read("sodium").unwrap_err().to_string();
-        assert!(refused.contains("d65, halogen"), "{refused}");
+        assert!(
+            refused.contains("daylight (CIE D65); incandescent"),
+            "{refused}"
+        );
     }
 }
