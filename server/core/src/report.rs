@@ -20,7 +20,7 @@ use crate::colour::{source_index, thumbnail_size};
 use crate::error::{CoreError, CoreResult};
 use crate::export::{bar_top, colour_bar_labels, FileKind, FileWriter, OutputFormat, Rows};
 use crate::order_map::OrderMap;
-use crate::stress::{maximum_text, positive, Specimen, STRESS_CAUTION};
+use crate::stress::{maximum_text, positive, InputOrigins, Specimen, STRESS_CAUTION};
 use crate::Photo;
 
 /// Longest side of the report's pictures (photo and maps), pixels.
@@ -91,6 +91,8 @@ pub struct ReportInputs {
     pub material: String,
     /// How orders become stresses.
     pub specimen: Specimen,
+    /// Which of the specimen's inputs were taken from the calibration.
+    pub origins: InputOrigins,
     /// The edge sampled for the free-edge stress.
     pub edge: EdgePath,
     /// The optional inputs.
@@ -185,6 +187,9 @@ fn first_page(doc: &mut Document, map: &OrderMap, edge: &BoundaryStress, inputs:
     };
     doc.paragraph(&format!("material: {material}"));
     for line in inputs.specimen.input_lines() {
+        doc.paragraph(&line);
+    }
+    for line in inputs.origins.lines() {
         doc.paragraph(&line);
     }
     doc.paragraph(&format!("load: {}", given(o.load_n, "N")));

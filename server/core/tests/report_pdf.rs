@@ -10,7 +10,7 @@ use isotint_core::boundary::{boundary_stress, EdgePath};
 use isotint_core::colour::thumbnail_size;
 use isotint_core::render::HoleField;
 use isotint_core::report::{report_pdf, ReportInputs, ReportOptions, PICTURE_SIDE_PX};
-use isotint_core::stress::{maximum_text, PlateWithHole, Specimen, StressOpticLaw};
+use isotint_core::stress::{maximum_text, InputOrigins, PlateWithHole, Specimen, StressOpticLaw};
 use isotint_core::{map_orders, CoreError, MapOptions, OrderMap, Photo, PixelPoint};
 
 /// A rendered plate with a hole of 60 px radius, remote order 1 along y (f_σ 10.5 N/mm, h 6 mm:
@@ -37,6 +37,7 @@ fn inputs(specimen: Specimen, edge: EdgePath) -> ReportInputs {
         calibration_id: "test-table-1".into(),
         material: "BT-7 epoxy".into(),
         specimen,
+        origins: InputOrigins::default(),
         edge,
         options: ReportOptions {
             nominal_stress_mpa: Some(1.75),

@@ -120,7 +120,7 @@ async fn create_report(
     )
     .await?;
     let request: ReportRequest = parse_json("report", &form.require("report")?)?;
-    let specimen = SpecimenFields {
+    let fields = SpecimenFields {
         specimen: request.specimen,
         fringe_value_n_per_mm: request.fringe_value_n_per_mm,
         thickness_mm: request.thickness_mm,
@@ -128,14 +128,7 @@ async fn create_report(
         coating_thickness_mm: request.coating_thickness_mm,
         youngs_modulus_mpa: request.youngs_modulus_mpa,
         poisson_ratio: request.poisson_ratio,
-    }
-    .specimen()?
-    .ok_or_else(|| {
-        CoreError::invalid(
-            "fringe_value_n_per_mm",
-            "is required (with thickness_mm), or the coating's fields, for a report",
-        )
-    })?;
+    };
     let options = ReportOptions {
         nominal_stress_mpa: request.nominal_stress_mpa,
         load_n: request.load_n,
@@ -152,12 +145,21 @@ async fn create_report(
     let mask = form.require("mask")?;
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     map_options.validate(&table)?;
+    let (specimen, origins) = fields.specimen_with(table.stress_defaults())?;
+    let specimen = specimen.ok_or_else(|| {
+        CoreError::invalid(
+            "fringe_value_n_per_mm",
+            "is required (with thickness_mm, each defaulting to the calibration's), or the \
+             coating's fields, for a report",
+        )
+    })?;
     let inputs = ReportInputs {
         photo_name: "upload".to_string(),
         calibration_name: table.metadata.name.clone(),
         calibration_id: calibration_id.to_string(),
         material: table.metadata.material.clone(),
         specimen,
+        origins,
         edge: request
             .polyline
             .map_or(EdgePath::Outline, EdgePath::Polyline),
