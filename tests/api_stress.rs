@@ -813,3 +813,36 @@ async fn stress_requests_on_a_calibration_without_a_fringe_value_still_need_it_a
     let reply = post_json(&svc, &uri, serde_json::json!({})).await;
     refused_naming(&reply, "fringe_value_n_per_mm");
 }
+
+#[tokio::test]
+async fn a_stored_maps_report_answers_a_pdf_and_refuses_bad_input_naming_the_field() {
+    let svc = service().await;
+    let boundary = boundary_of_stored_disc(&svc).await;
+    let uri = boundary.replace("/boundary", "/report");
+    let reply = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "nominal_stress_mpa": 1.75, "title": "Birchfield disc D-2"}),
+    )
+    .await;
+    answered(&reply, StatusCode::OK);
+    assert_eq!(reply.headers["content-type"], "application/pdf");
+    assert!(reply.body.starts_with(b"%PDF-"), "not a PDF");
+    // The rendered strip knows no fringe value: a report without one names it.
+    let reply = post_json(&svc, &uri, serde_json::json!({"thickness_mm": 6})).await;
+    refused_naming(&reply, "fringe_value_n_per_mm");
+    let reply = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "mm_per_px": 0}),
+    )
+    .await;
+    refused_naming(&reply, "mm_per_px");
+    let reply = post_json(
+        &svc,
+        "/api/v1/order-maps/6f1c2f52-1b7e-4a5e-9d55-0f7c8b1a2e3d/report",
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await;
+    answered(&reply, StatusCode::NOT_FOUND);
+}

@@ -838,21 +838,18 @@ export class AnalysisPage {
     return form;
   }
 
-  // Asks the service for the PDF report of the mapped photo (the same photo, calibration, mask
-  // and options, with the stress fields) and saves it.
+  // Asks the service for the PDF report of the stored map (its stresses through the fringe value
+  // and thickness, its mask's outline as the edge) and saves it.
   async report() {
     const error = $('an-error');
     showError(error, null);
     const button = $('an-report');
     button.disabled = true;
     try {
-      const fringeValue = requiredNumber($('an-fringe-value'), { positive: true });
-      const thickness = requiredNumber($('an-thickness'), { positive: true });
-      const form = await this.mapForm($('an-calibration').value);
-      if (!form.has('mask')) throw new Error('The report needs the specimen’s outline or mask: its edge is where the free-edge stress is read.');
-      form.append('report', JSON.stringify({ fringe_value_n_per_mm: fringeValue, thickness_mm: thickness }));
+      if (!this.result) throw new Error('Make the fringe-order map first.');
+      const body = this.lawFields();
       $('an-progress-text').textContent = 'Writing the report…';
-      const blob = await api.report(form);
+      const blob = new Blob([await api.report(this.result.id, body)], { type: 'application/pdf' });
       const url = URL.createObjectURL(blob);
       const save = document.createElement('a');
       save.href = url;

@@ -99,11 +99,16 @@ pub struct ReportInputs {
     pub options: ReportOptions,
 }
 
-/// Writes the PDF report of `map`, mapped from `photo`: the free-edge stress along
+/// Writes the PDF report of `map`, mapped from `photo` (`None` for a stored map, whose photo
+/// is not kept: the report says so in the photo's place): the free-edge stress along
 /// `inputs.edge` is computed here (refused as [`boundary_stress`] refuses it).
-pub fn report_pdf(photo: &Photo, map: &OrderMap, inputs: &ReportInputs) -> CoreResult<Vec<u8>> {
+pub fn report_pdf(
+    photo: Option<&Photo>,
+    map: &OrderMap,
+    inputs: &ReportInputs,
+) -> CoreResult<Vec<u8>> {
     inputs.options.validate()?;
-    if (photo.width(), photo.height()) != (map.width, map.height) {
+    if let Some(photo) = photo.filter(|p| (p.width(), p.height()) != (map.width, map.height)) {
         return Err(CoreError::invalid(
             "photo",
             format!(
@@ -119,14 +124,22 @@ pub fn report_pdf(photo: &Photo, map: &OrderMap, inputs: &ReportInputs) -> CoreR
     let edge = boundary_stress(map, &law, inputs.options.nominal_stress_mpa, &inputs.edge)?;
     let mut doc = Document::default();
     first_page(&mut doc, map, &edge, inputs);
-    let (w, h, rgb) = photo.thumbnail_rgb8(PICTURE_SIDE_PX);
     doc.new_page();
     doc.heading("Photo");
-    doc.picture(
-        Picture::new(w, h, rgb)?,
-        &format!("{} ({} x {} px)", inputs.photo_name, map.width, map.height),
-        None,
-    );
+    match photo {
+        Some(photo) => {
+            let (w, h, rgb) = photo.thumbnail_rgb8(PICTURE_SIDE_PX);
+            doc.picture(
+                Picture::new(w, h, rgb)?,
+                &format!("{} ({} x {} px)", inputs.photo_name, map.width, map.height),
+                None,
+            );
+        }
+        None => doc.paragraph(&format!(
+            "{} ({} x {} px): the photo is not kept with a stored map, so it is not shown here.",
+            inputs.photo_name, map.width, map.height
+        )),
+    }
     doc.heading("Fringe orders");
     let orders = map_picture(map, FileKind::Orders(OutputFormat::Preview))?;
     doc.picture(

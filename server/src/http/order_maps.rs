@@ -720,7 +720,7 @@ async fn boundary(
 }
 
 /// The stored map `id`'s row; refused when it has expired.
-async fn stored_map(state: &AppState, id: OrderMapId) -> Result<OrderMapRow, ApiError> {
+pub(super) async fn stored_map(state: &AppState, id: OrderMapId) -> Result<OrderMapRow, ApiError> {
     let row = store::get(&state.storage, id).await?;
     refuse_expired(&row)?;
     Ok(row)
@@ -752,7 +752,7 @@ async fn stress_law(
 
 /// Admits a job on the stored map `row` and loads the map: the job's memory is a map job's
 /// for its pixels plus `extra_bytes`, with `waiting_bytes` of the request held while it waits.
-async fn admit_stored_map(
+pub(super) async fn admit_stored_map(
     state: &AppState,
     row: &OrderMapRow,
     extra_bytes: u64,
