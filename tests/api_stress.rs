@@ -846,3 +846,57 @@ async fn a_stored_maps_report_answers_a_pdf_and_refuses_bad_input_naming_the_fie
     .await;
     answered(&reply, StatusCode::NOT_FOUND);
 }
+
+#[tokio::test]
+async fn boundary_and_comparison_of_a_stored_map_take_a_slice_or_a_coating_as_map_and_report_do() {
+    let svc = service().await;
+    let uri = boundary_of_stored_disc(&svc).await;
+    let max = |v: &serde_json::Value| v["max_stress_mpa"].as_f64().unwrap();
+    let model = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await;
+    answered(&model, StatusCode::OK);
+    let slice = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"specimen": "slice", "fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await;
+    answered(&slice, StatusCode::OK);
+    // source: stress-optic law, a slice read like a thin model (common practice, no source).
+    assert_eq!(max(&model.json()), max(&slice.json()));
+    let coating = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"strain_fringe_value_um": 4, "coating_thickness_mm": 2,
+                           "youngs_modulus_mpa": 200000, "poisson_ratio": 0.3}),
+    )
+    .await;
+    answered(&coating, StatusCode::OK);
+    // source: ε1 − ε2 = N·f_ε/(2 t_c) and σ1 − σ2 = E/(1 + ν)·(ε1 − ε2) (Hooke's law, plane
+    // stress): 200000/1.3 · 4e-3/4 = 153.846… MPa per fringe against 10.5/6 = 1.75.
+    let ratio = max(&coating.json()) / max(&model.json());
+    assert!(
+        (ratio - 200000.0 / 1.3 * 1e-3 / 1.75).abs() < 1e-9 * ratio,
+        "{ratio}"
+    );
+    let misplaced = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"specimen": "coating", "fringe_value_n_per_mm": 10.5}),
+    )
+    .await;
+    refused_naming(&misplaced, "fringe_value_n_per_mm");
+    let comparison = uri.replace("/boundary", "/comparison");
+    let reply = post_json(
+        &svc,
+        &comparison,
+        serde_json::json!({"specimen": "slice", "thickness_mm": 6, "prediction": "0,0,1\n1,0,1\n0,1,1\n",
+                           "pairs": [{"x_px": 0, "y_px": 0, "x_mm": 0, "y_mm": 0}, {"x_px": 10, "y_px": 0, "x_mm": 1, "y_mm": 0}]}),
+    )
+    .await;
+    refused_naming(&reply, "fringe_value_n_per_mm");
+}

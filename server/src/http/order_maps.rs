@@ -39,6 +39,22 @@ use crate::domain::{rfc3339, CalibrationId, OrderMapId, WithOrigins};
 use crate::pipeline::{self, MaskChoice};
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
+/// The `SpecimenFields` of a boundary or comparison request (their fields are spelt out, not
+/// flattened: serde cannot refuse unknown fields beside a flattened part).
+macro_rules! specimen_fields {
+    ($r:expr) => {
+        SpecimenFields {
+            specimen: $r.specimen,
+            fringe_value_n_per_mm: $r.fringe_value_n_per_mm,
+            thickness_mm: $r.thickness_mm,
+            strain_fringe_value_um: $r.strain_fringe_value_um,
+            coating_thickness_mm: $r.coating_thickness_mm,
+            youngs_modulus_mpa: $r.youngs_modulus_mpa,
+            poisson_ratio: $r.poisson_ratio,
+        }
+    };
+}
+
 /// Routes of this module.
 pub fn router() -> OpenApiRouter<AppState> {
     OpenApiRouter::new()
@@ -62,6 +78,22 @@ pub struct BoundaryRequest {
     #[serde(alias = "thickness")]
     #[schema(schema_with = openapi::optional_positive)]
     pub thickness_mm: Option<f64>,
+    /// `transmission` (default), `slice` (f_σ at the critical temperature, h the slice's; no
+    /// default from the calibration) or `coating` (with the four coating fields).
+    #[schema(schema_with = openapi::optional_specimen_kind)]
+    pub specimen: Option<SpecimenKind>,
+    /// Coating: strain fringe value f_ε, µm per fringe.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating: thickness t_c, mm.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub coating_thickness_mm: Option<f64>,
+    /// Coating: the part's Young's modulus E, MPa.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Coating: the part's Poisson's ratio ν (0 ≤ ν < 0.5).
+    #[schema(schema_with = openapi::optional_poisson_ratio)]
+    pub poisson_ratio: Option<f64>,
     /// Nominal stress σ_nom, MPa (positive): adds K_t = σ_max / σ_nom.
     #[serde(alias = "nominal_stress")]
     #[schema(schema_with = openapi::optional_positive)]
@@ -106,6 +138,22 @@ pub struct ComparisonRequest {
     #[serde(alias = "thickness")]
     #[schema(schema_with = openapi::optional_positive)]
     pub thickness_mm: Option<f64>,
+    /// `transmission` (default), `slice` (f_σ at the critical temperature, h the slice's; no
+    /// default from the calibration) or `coating` (with the four coating fields).
+    #[schema(schema_with = openapi::optional_specimen_kind)]
+    pub specimen: Option<SpecimenKind>,
+    /// Coating: strain fringe value f_ε, µm per fringe.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating: thickness t_c, mm.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub coating_thickness_mm: Option<f64>,
+    /// Coating: the part's Young's modulus E, MPa.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Coating: the part's Poisson's ratio ν (0 ≤ ν < 0.5).
+    #[schema(schema_with = openapi::optional_poisson_ratio)]
+    pub poisson_ratio: Option<f64>,
     /// The predicted σ1 − σ2 as CSV text: rows x_mm,y_mm,stress_mpa (model coordinates in mm,
     /// MPa, ≥ 0), one header row allowed, at least three nodes not on one line.
     pub prediction: String,
@@ -696,13 +744,7 @@ async fn boundary(
         .polyline
         .map_or(EdgePath::Outline, EdgePath::Polyline);
     let row = stored_map(&state, id).await?;
-    let (law, inputs_from) = stress_law(
-        &state,
-        &row,
-        request.fringe_value_n_per_mm,
-        request.thickness_mm,
-    )
-    .await?;
+    let (law, inputs_from) = stress_law(&state, &row, specimen_fields!(request)).await?;
     let (admission, map) = admit_stored_map(&state, &row, 0, body.len() as u64).await?;
     let result = admission
         .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
@@ -726,25 +768,21 @@ pub(super) async fn stored_map(state: &AppState, id: OrderMapId) -> Result<Order
     Ok(row)
 }
 
-/// The stress-optic law of a request on stored map `row` from its f_σ and h, each defaulting
-/// to the map's calibration's, and where they came from; 422 naming a missing one.
+/// The stress-optic law of a request on stored map `row` from its specimen's `fields` (a
+/// transmission model's f_σ and h each defaulting to the map's calibration's), and where they
+/// came from; 422 naming a missing or misplaced field.
 async fn stress_law(
     state: &AppState,
     row: &OrderMapRow,
-    fringe_value_n_per_mm: Option<f64>,
-    thickness_mm: Option<f64>,
+    fields: SpecimenFields,
 ) -> Result<(StressOpticLaw, InputOrigins), ApiError> {
-    let fields = SpecimenFields {
-        fringe_value_n_per_mm,
-        thickness_mm,
-        ..SpecimenFields::default()
-    };
     let (specimen, origins) =
         fields.specimen_with(stress_defaults(state, row.calibration_id).await?)?;
     let specimen = specimen.ok_or_else(|| {
         CoreError::invalid(
             "fringe_value_n_per_mm",
-            "is required with thickness_mm: the map's calibration does not carry them",
+            "is required with thickness_mm (the map's calibration does not carry them), or \
+             the coating's fields",
         )
     })?;
     Ok((specimen.law(), origins))
@@ -797,13 +835,7 @@ async fn comparison(
     let request: ComparisonRequest = parse_json("comparison", &body?)?;
     let registration = Registration::fit(&request.pairs)?;
     let row = stored_map(&state, id).await?;
-    let (law, inputs_from) = stress_law(
-        &state,
-        &row,
-        request.fringe_value_n_per_mm,
-        request.thickness_mm,
-    )
-    .await?;
+    let (law, inputs_from) = stress_law(&state, &row, specimen_fields!(request)).await?;
     let prediction_bytes = request.prediction.len() as u64;
     // Besides the map, the prediction parsed and triangulated: a few dozen bytes a node, and
     // a node takes a dozen bytes or more of CSV.
