@@ -760,3 +760,187 @@ async fn bad_report_requests_are_refused_naming_the_field() {
         unknown.error_message()
     );
 }
+
+/// Calibrates the rendered beam with its edge order, a moment and a depth (so the fringe
+/// value is implied) and thickness 6 mm; the calibration's JSON answer.
+async fn beam_calibration_with_its_load(
+    svc: &TestService,
+    moment_n_mm: f64,
+    depth_mm: f64,
+) -> serde_json::Value {
+    let (beam, region) = common::beam_photo();
+    let spec = serde_json::json!({
+        "name": "Rendered beam with its load",
+        "region": common::region_json(&region),
+        "edge_order": common::BEAM_EDGE_ORDER,
+        "moment_n_mm": moment_n_mm,
+        "depth_mm": depth_mm,
+        "thickness_mm": 6.0,
+    });
+    let reply = Form::new()
+        .file("photo", "beam.png", "image/png", beam.png)
+        .json("spec", &spec)
+        .post(&svc.app, "/api/v1/calibrations")
+        .await;
+    answered(&reply, StatusCode::CREATED);
+    reply.json()
+}
+
+#[tokio::test]
+async fn a_beam_calibrations_implied_fringe_value_and_thickness_fill_in_stress_requests_that_leave_them_out(
+) {
+    let svc = service().await;
+    // source: pure bending, f_σ = 6M/(N_edge·d²) (beam theory; common practice, no source).
+    // M = 4536 N·mm, d = 24 mm, N_edge = 4.5 → 27216/2592 = 10.5 N/mm per fringe.
+    let (moment, depth) = (4536.0, 24.0);
+    let closed_form = 6.0 * moment / (common::BEAM_EDGE_ORDER * depth * depth);
+    assert!((closed_form - 10.5).abs() < 1e-12);
+    let cal = beam_calibration_with_its_load(&svc, moment, depth).await;
+    let id = cal["id"].as_str().unwrap();
+    assert!(
+        (cal["fringe_value_n_per_mm"].as_f64().unwrap() - closed_form).abs() < 1e-9,
+        "{cal}"
+    );
+    assert_eq!(cal["thickness_mm"], 6.0);
+    let listed = get(&svc.app, "/api/v1/calibrations?q=load").await.json();
+    assert_eq!(
+        listed["calibrations"][0]["fringe_value_n_per_mm"],
+        cal["fringe_value_n_per_mm"]
+    );
+
+    // A map without stress fields takes both; its figures say so.
+    let reply = disc_form(id).post(&svc.app, "/api/v1/order-maps").await;
+    answered(&reply, StatusCode::CREATED);
+    let map = reply.json();
+    let stress = &map["stress"];
+    assert_eq!(
+        stress["inputs_from"]["fringe_value_n_per_mm"], "calibration",
+        "{map}"
+    );
+    assert_eq!(stress["inputs_from"]["thickness_mm"], "calibration");
+    let per_fringe = stress["stress_per_fringe_mpa"].as_f64().unwrap();
+    assert!(
+        (per_fringe - f64::from(MPA_PER_FRINGE)).abs() < 1e-9,
+        "{per_fringe}"
+    );
+
+    // Boundary: h given, f_σ the calibration's; and both given agree.
+    let uri = format!(
+        "/api/v1/order-maps/{}/boundary",
+        map["id"].as_str().unwrap()
+    );
+    let defaulted = post_json(&svc, &uri, serde_json::json!({"thickness_mm": 6})).await;
+    answered(&defaulted, StatusCode::OK);
+    let defaulted = defaulted.json();
+    assert_eq!(
+        defaulted["inputs_from"]["fringe_value_n_per_mm"],
+        "calibration"
+    );
+    assert_eq!(defaulted["inputs_from"]["thickness_mm"], "given");
+    let given = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await
+    .json();
+    assert_eq!(given["inputs_from"]["fringe_value_n_per_mm"], "given");
+    assert_eq!(defaulted["max_stress_mpa"], given["max_stress_mpa"]);
+}
+
+#[tokio::test]
+async fn stress_requests_on_a_calibration_without_a_fringe_value_still_need_it_and_say_so() {
+    let svc = service().await;
+    let uri = boundary_of_stored_disc(&svc).await;
+    let reply = post_json(&svc, &uri, serde_json::json!({"thickness_mm": 6})).await;
+    refused_naming(&reply, "fringe_value_n_per_mm");
+    let reply = post_json(&svc, &uri, serde_json::json!({})).await;
+    refused_naming(&reply, "fringe_value_n_per_mm");
+}
+
+#[tokio::test]
+async fn a_stored_maps_report_answers_a_pdf_and_refuses_bad_input_naming_the_field() {
+    let svc = service().await;
+    let boundary = boundary_of_stored_disc(&svc).await;
+    let uri = boundary.replace("/boundary", "/report");
+    let reply = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "nominal_stress_mpa": 1.75, "title": "Birchfield disc D-2"}),
+    )
+    .await;
+    answered(&reply, StatusCode::OK);
+    assert_eq!(reply.headers["content-type"], "application/pdf");
+    assert!(reply.body.starts_with(b"%PDF-"), "not a PDF");
+    // The rendered strip knows no fringe value: a report without one names it.
+    let reply = post_json(&svc, &uri, serde_json::json!({"thickness_mm": 6})).await;
+    refused_naming(&reply, "fringe_value_n_per_mm");
+    let reply = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6, "mm_per_px": 0}),
+    )
+    .await;
+    refused_naming(&reply, "mm_per_px");
+    let reply = post_json(
+        &svc,
+        "/api/v1/order-maps/6f1c2f52-1b7e-4a5e-9d55-0f7c8b1a2e3d/report",
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await;
+    answered(&reply, StatusCode::NOT_FOUND);
+}
+
+#[tokio::test]
+async fn boundary_and_comparison_of_a_stored_map_take_a_slice_or_a_coating_as_map_and_report_do() {
+    let svc = service().await;
+    let uri = boundary_of_stored_disc(&svc).await;
+    let max = |v: &serde_json::Value| v["max_stress_mpa"].as_f64().unwrap();
+    let model = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await;
+    answered(&model, StatusCode::OK);
+    let slice = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"specimen": "slice", "fringe_value_n_per_mm": 10.5, "thickness_mm": 6}),
+    )
+    .await;
+    answered(&slice, StatusCode::OK);
+    // source: stress-optic law, a slice read like a thin model (common practice, no source).
+    assert_eq!(max(&model.json()), max(&slice.json()));
+    let coating = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"strain_fringe_value_um": 4, "coating_thickness_mm": 2,
+                           "youngs_modulus_mpa": 200000, "poisson_ratio": 0.3}),
+    )
+    .await;
+    answered(&coating, StatusCode::OK);
+    // source: ε1 − ε2 = N·f_ε/(2 t_c) and σ1 − σ2 = E/(1 + ν)·(ε1 − ε2) (Hooke's law, plane
+    // stress): 200000/1.3 · 4e-3/4 = 153.846… MPa per fringe against 10.5/6 = 1.75.
+    let ratio = max(&coating.json()) / max(&model.json());
+    assert!(
+        (ratio - 200000.0 / 1.3 * 1e-3 / 1.75).abs() < 1e-9 * ratio,
+        "{ratio}"
+    );
+    let misplaced = post_json(
+        &svc,
+        &uri,
+        serde_json::json!({"specimen": "coating", "fringe_value_n_per_mm": 10.5}),
+    )
+    .await;
+    refused_naming(&misplaced, "fringe_value_n_per_mm");
+    let comparison = uri.replace("/boundary", "/comparison");
+    let reply = post_json(
+        &svc,
+        &comparison,
+        serde_json::json!({"specimen": "slice", "thickness_mm": 6, "prediction": "0,0,1\n1,0,1\n0,1,1\n",
+                           "pairs": [{"x_px": 0, "y_px": 0, "x_mm": 0, "y_mm": 0}, {"x_px": 10, "y_px": 0, "x_mm": 1, "y_mm": 0}]}),
+    )
+    .await;
+    refused_naming(&reply, "fringe_value_n_per_mm");
+}

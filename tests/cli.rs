@@ -238,11 +238,29 @@ fn calibrate_estimates_the_edge_order_from_the_demo_beam_and_says_to_confirm_it(
 /// `isotint map` of the demo plate with a hole (its mask and a hint), the photo read from
 /// `photo`, the orders written to `out`, with `extra` arguments.
 fn map_plate(photo: &str, out: &str, extra: &[&str]) -> Output {
-    let (calibration, mask) = (path("calibration.json"), path("plate-hole-mask.png"));
+    map_plate_with(&path("calibration.json"), photo, out, extra)
+}
+
+/// A calibration of the demo beam from its edge order alone: it carries no fringe value, so
+/// stress commands need theirs (the demo's own calibration knows f_σ and h).
+fn calibration_without_stress_inputs() -> String {
+    static FILE: OnceLock<String> = OnceLock::new();
+    FILE.get_or_init(|| {
+        let file = path("calibration-edge-order-only.json");
+        let edge = scenario()["beam"]["field"]["edge_order"].to_string();
+        calibrate_demo_beam(&file, &["--edge-order", &edge]);
+        file
+    })
+    .clone()
+}
+
+/// `isotint map` of the plate photo `photo` with `calibration`, a hint and `extra` arguments.
+fn map_plate_with(calibration: &str, photo: &str, out: &str, extra: &[&str]) -> Output {
+    let mask = path("plate-hole-mask.png");
     let mut args = vec![
         "map",
         "--calibration",
-        &calibration,
+        calibration,
         "--photo",
         photo,
         "--mask",
@@ -1028,7 +1046,12 @@ fn stress_flags_are_refused_naming_the_flag_and_nothing_is_written() {
             "--stress-out",
         ),
     ] {
-        let output = map_plate(&path("plate-hole.png"), &out, extra);
+        let output = map_plate_with(
+            &calibration_without_stress_inputs(),
+            &path("plate-hole.png"),
+            &out,
+            extra,
+        );
         let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
@@ -1127,11 +1150,22 @@ fn map_of_a_coating_or_a_slice_reports_its_stress_and_strain_through_one_law() {
 /// `isotint COMMAND` with the demo calibration, the demo's `photo` and `mask` files, and `extra`
 /// arguments.
 fn on_demo(command: &str, photo: &str, mask: &str, extra: &[&str]) -> Output {
-    let (calibration, photo, mask) = (path("calibration.json"), path(photo), path(mask));
+    on_demo_with(&path("calibration.json"), command, photo, mask, extra)
+}
+
+/// `isotint COMMAND` with `calibration` on a demo photo and mask, with `extra` arguments.
+fn on_demo_with(
+    calibration: &str,
+    command: &str,
+    photo: &str,
+    mask: &str,
+    extra: &[&str],
+) -> Output {
+    let (photo, mask) = (path(photo), path(mask));
     let mut args = vec![
         command,
         "--calibration",
-        &calibration,
+        calibration,
         "--photo",
         &photo,
         "--mask",
@@ -1290,7 +1324,13 @@ fn boundary_refuses_bad_numbers_naming_the_flag_and_writes_nothing() {
     ] {
         let mut args = extra.to_vec();
         args.extend(["--out", &edge_file, "--json"]);
-        let output = boundary_of_plate(&args);
+        let output = on_demo_with(
+            &calibration_without_stress_inputs(),
+            "boundary",
+            "plate-hole.png",
+            "plate-hole-mask.png",
+            &args,
+        );
         let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
@@ -1447,7 +1487,13 @@ fn report_refuses_missing_or_bad_inputs_naming_the_flag_and_writes_nothing() {
     ] {
         let mut args = extra.to_vec();
         args.extend(["--out", &report]);
-        let output = on_demo("report", "plate-hole.png", "plate-hole-mask.png", &args);
+        let output = on_demo_with(
+            &calibration_without_stress_inputs(),
+            "report",
+            "plate-hole.png",
+            "plate-hole-mask.png",
+            &args,
+        );
         let stderr = refused(&output, format_args!("{extra:?} succeeded"));
         assert!(stderr.contains(needle), "{extra:?}: {stderr}");
     }
@@ -1938,4 +1984,105 @@ fn series_without_a_mask_finds_the_disc_in_the_photo_of_the_largest_load_and_say
         printed.contains("mask                found from the photo"),
         "{printed}"
     );
+}
+
+#[test]
+fn a_calibration_made_with_the_beams_load_fills_in_the_fringe_value_and_thickness_of_later_commands(
+) {
+    let s = scenario();
+    let (edge, moment, depth) = (
+        s["beam"]["field"]["edge_order"].as_f64().unwrap(),
+        s["beam"]["moment_n_mm"].as_f64().unwrap(),
+        s["beam"]["depth_mm"].as_f64().unwrap(),
+    );
+    let table_file = path("beam-with-law.json");
+    calibrate_demo_beam(
+        &table_file,
+        &[
+            "--edge-order",
+            &edge.to_string(),
+            "--moment-n-mm",
+            &moment.to_string(),
+            "--depth-mm",
+            &depth.to_string(),
+            "--thickness-mm",
+            "6",
+        ],
+    );
+    // source: pure bending, f_σ = 6M/(N_edge·d²) (beam theory; common practice, no source).
+    let closed_form = 6.0 * moment / (edge * depth * depth);
+    let table: Value = serde_json::from_slice(&std::fs::read(&table_file).unwrap()).unwrap();
+    let stored = table["source"]["fringe_value_n_per_mm"].as_f64().unwrap();
+    assert!(
+        (stored - closed_form).abs() < 1e-9 * closed_form,
+        "{stored}"
+    );
+    assert_eq!(table["metadata"]["thickness_mm"], 6.0);
+
+    let boundary = |extra: &[&str]| -> Value {
+        let (photo, mask) = (path("plate-hole.png"), path("plate-hole-mask.png"));
+        let mut args = vec![
+            "boundary",
+            "--calibration",
+            &table_file,
+            "--photo",
+            &photo,
+            "--mask",
+            &mask,
+            "--json",
+        ];
+        args.extend_from_slice(extra);
+        serde_json::from_str(ok(isotint(&args)).trim()).expect("one JSON object")
+    };
+    let defaulted = boundary(&[]);
+    assert_eq!(
+        defaulted["inputs_from"]["fringe_value_n_per_mm"],
+        "calibration"
+    );
+    assert_eq!(defaulted["inputs_from"]["thickness_mm"], "calibration");
+    let given = boundary(&[
+        "--fringe-value-n-per-mm",
+        &closed_form.to_string(),
+        "--thickness-mm",
+        "6",
+    ]);
+    assert_eq!(given["inputs_from"]["fringe_value_n_per_mm"], "given");
+    assert_eq!(defaulted["max_stress_mpa"], given["max_stress_mpa"]);
+    // Only h given: f_σ still the calibration's; σ scales as 1/h (stress-optic law).
+    let thinner = boundary(&["--thickness-mm", "3"]);
+    assert_eq!(
+        thinner["inputs_from"]["fringe_value_n_per_mm"],
+        "calibration"
+    );
+    assert_eq!(thinner["inputs_from"]["thickness_mm"], "given");
+    let ratio =
+        thinner["max_stress_mpa"].as_f64().unwrap() / given["max_stress_mpa"].as_f64().unwrap();
+    assert!((ratio - 2.0).abs() < 1e-9, "{ratio}");
+
+    let (photo, mask, out) = (
+        path("disc.png"),
+        path("disc-mask.png"),
+        path("disc-defaulted.npy"),
+    );
+    let printed = ok(isotint(&[
+        "map",
+        "--calibration",
+        &table_file,
+        "--photo",
+        &photo,
+        "--mask",
+        &mask,
+        "--out",
+        &out,
+    ]));
+    let from = printed
+        .lines()
+        .find(|l| l.contains("inputs from"))
+        .expect(&printed);
+    assert!(
+        from.contains("f_sigma") && from.contains("calibration"),
+        "{from}"
+    );
+    let per_fringe = format!("({:.4} MPa per fringe)", closed_form / 6.0);
+    assert!(printed.contains(&per_fringe), "{per_fringe} in {printed}");
 }

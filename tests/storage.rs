@@ -555,3 +555,31 @@ async fn a_write_refused_by_another_connections_lock_is_busy_not_a_database_faul
         StorageError::Database(_)
     ));
 }
+
+#[tokio::test]
+async fn calibrations_stored_before_the_stress_input_columns_get_them_from_their_tables_on_every_backend(
+) {
+    common::on_every_empty_database(|url, _| async move {
+        let storage = Storage::connect(&url).await.unwrap();
+        let mut table = common::table("Strip with a thickness");
+        table.metadata.thickness_mm = Some(6.0);
+        let stored =
+            calibrations::insert(&storage, &table, &table.to_json(), None, None, by_hand())
+                .await
+                .unwrap();
+        assert_eq!(stored.row.stress_defaults.thickness_mm, Some(6.0));
+        // As a row stored before migration 0007 looks: columns empty, not yet filled.
+        sqlx::query("UPDATE calibrations SET thickness_mm = NULL, stress_defaults_filled = 0")
+            .execute(storage.writer())
+            .await
+            .unwrap();
+        storage.close().await;
+        let storage = Storage::connect(&url).await.unwrap();
+        let row = calibrations::get(&storage, stored.row.id).await.unwrap();
+        assert_eq!(row.stress_defaults.thickness_mm, Some(6.0));
+        // A rendered table knows no fringe value.
+        assert_eq!(row.stress_defaults.fringe_value_n_per_mm, None);
+        storage.close().await;
+    })
+    .await;
+}

@@ -19,7 +19,7 @@ use isotint_core::report::{ReportInputs, ReportOptions};
 use isotint_core::series::{LoadSeries, SeriesSpec};
 use isotint_core::specimen::{MaskSource, MaskUsed};
 use isotint_core::stress::{
-    maximum_text, Specimen, SpecimenFields, SpecimenKind, StressOpticLaw, STRESS_CAUTION,
+    maximum_text, InputOrigins, Specimen, SpecimenFields, SpecimenKind, STRESS_CAUTION,
 };
 use isotint_core::{
     CalibrationMetadata, CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions,
@@ -31,6 +31,7 @@ use crate::access::{AccessMode, Actor, Origin, Role, Token, TokenName};
 use crate::backup::Restored;
 use crate::client::{ClientFormat, NotDone, EXIT_NOT_DONE};
 use crate::config::{machine_memory_budget, ServiceConfig};
+use crate::domain::WithOrigins;
 use crate::domain::{beam_spec, rfc3339, DEFAULT_ORDER_STEP};
 use crate::pipeline::{self, MaskChoice};
 use crate::storage::tokens::{self, TokenRow};
@@ -610,8 +611,13 @@ pub struct SpecimenArgs {
 }
 
 impl SpecimenArgs {
-    /// The specimen these flags describe (`None` when none is given); errors name the flag.
-    fn specimen(&self) -> anyhow::Result<Option<Specimen>> {
+    /// The specimen these flags describe (`None` when none is given), a transmission model's
+    /// missing --fringe-value-n-per-mm and --thickness-mm taken from the calibration `table`,
+    /// and where each came from; errors name the flag.
+    fn specimen(
+        &self,
+        table: &CalibrationTable,
+    ) -> anyhow::Result<(Option<Specimen>, InputOrigins)> {
         SpecimenFields {
             specimen: self.specimen,
             fringe_value_n_per_mm: self.fringe_value_n_per_mm,
@@ -621,26 +627,34 @@ impl SpecimenArgs {
             youngs_modulus_mpa: self.youngs_modulus_mpa,
             poisson_ratio: self.poisson_ratio,
         }
-        .specimen()
+        .specimen_with(table.stress_defaults())
         .in_flags()
+    }
+
+    /// As [`SpecimenArgs::specimen`], for a command that cannot go without one (`command`).
+    fn required(
+        &self,
+        table: &CalibrationTable,
+        command: &str,
+    ) -> anyhow::Result<(Specimen, InputOrigins)> {
+        let (specimen, origins) = self.specimen(table)?;
+        let specimen = specimen.ok_or_else(|| {
+            anyhow::anyhow!(
+                "{command} needs --fringe-value-n-per-mm and --thickness-mm (each defaults to \
+                 the calibration's value where it has one) or, for a coating, \
+                 --strain-fringe-value-um, --coating-thickness-mm, --youngs-modulus-mpa and \
+                 --poisson-ratio"
+            )
+        })?;
+        Ok((specimen, origins))
     }
 }
 
-/// The stress-optic law's inputs, for commands that need them.
-#[derive(Debug, Args)]
-pub struct MaterialArgs {
-    /// Material fringe value f_σ, N/mm per fringe.
-    #[arg(long, alias = "fringe-value")]
-    pub fringe_value_n_per_mm: f64,
-    /// Model thickness h, mm.
-    #[arg(long, alias = "thickness")]
-    pub thickness_mm: f64,
-}
-
-impl MaterialArgs {
-    /// σ1 − σ2 = N·f_σ/h from these flags; errors name the flag at fault.
-    fn law(&self) -> anyhow::Result<StressOpticLaw> {
-        StressOpticLaw::new(self.fringe_value_n_per_mm, self.thickness_mm).in_flags()
+/// The line printed about inputs taken from the calibration (empty when none was).
+fn origins_text(origins: &InputOrigins) -> String {
+    match origins.lines() {
+        lines if lines.is_empty() => String::new(),
+        lines => format!("  inputs from         {}\n", lines.join("; ")),
     }
 }
 
@@ -658,9 +672,10 @@ pub struct BoundaryArgs {
     /// (not where it meets the photo's border). Without it the specimen is found from the photo.
     #[arg(long)]
     pub mask: Option<PathBuf>,
-    /// The material fringe value and thickness.
+    /// How orders become stresses (a transmission model's --fringe-value-n-per-mm and
+    /// --thickness-mm default to the calibration's values; or a slice's, or a coating's flags).
     #[command(flatten)]
-    pub material: MaterialArgs,
+    pub specimen: SpecimenArgs,
     /// Nominal stress σ_nom, MPa: adds K_t = σ_max / σ_nom.
     #[arg(long, alias = "nominal-stress")]
     pub nominal_stress_mpa: Option<f64>,
@@ -759,9 +774,10 @@ pub struct CompareArgs {
     /// from the photo (the whole photo when none is found).
     #[arg(long)]
     pub mask: Option<PathBuf>,
-    /// The material fringe value and thickness.
+    /// How orders become stresses (a transmission model's --fringe-value-n-per-mm and
+    /// --thickness-mm default to the calibration's values; or a slice's, or a coating's flags).
     #[command(flatten)]
-    pub material: MaterialArgs,
+    pub specimen: SpecimenArgs,
     /// The predicted σ1 − σ2: CSV of nodes x_mm,y_mm,stress_mpa (model coordinates, mm; MPa);
     /// one header row allowed.
     #[arg(long)]
@@ -1298,9 +1314,9 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         ];
         refuse_overwriting(&inputs, "--out", out)?;
     }
-    let law = args.material.law()?;
     let scale = args.mm_per_px.map(Scale::new).transpose().in_flags()?;
     let table = read_table(&args.calibration)?;
+    let (specimen, origins) = args.specimen.required(&table, "boundary")?;
     let photo = read(&args.photo, "photo")?;
     let (map, used) = map_with_mask(&photo, args.mask.as_deref(), &table)?;
     if used.source == MaskSource::WholePhoto && args.polyline.is_none() {
@@ -1313,7 +1329,8 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         .polyline
         .clone()
         .map_or(EdgePath::Outline, |p| EdgePath::Polyline(p.0));
-    let result = boundary_stress(&map, &law, args.nominal_stress_mpa, &path).in_flags()?;
+    let result =
+        boundary_stress(&map, &specimen.law(), args.nominal_stress_mpa, &path).in_flags()?;
     let result = match scale {
         Some(scale) => result.with_scale(scale),
         None => result,
@@ -1322,10 +1339,15 @@ fn boundary(args: &BoundaryArgs) -> anyhow::Result<()> {
         write(out, &edge_csv(&result))?;
     }
     if args.json {
-        println!("{}", with_mask(&result, used)?);
+        let answer = WithOrigins {
+            result: &result,
+            inputs_from: origins,
+        };
+        println!("{}", with_mask(&answer, used)?);
         return Ok(());
     }
     print!("{}", mask_text(&used, MASK_FLAG));
+    print!("{}", origins_text(&origins));
     let in_mm = match (result.x_mm, result.y_mm) {
         (Some(x), Some(y)) => format!(" px = ({x:.2}, {y:.2}) mm"),
         _ => String::new(),
@@ -1446,7 +1468,8 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
             ),
         },
     };
-    let law = args.material.law()?;
+    let table = read_table(&args.calibration)?;
+    let (specimen, origins) = args.specimen.required(&table, "compare")?;
     let registration = Registration::fit(&args.pairs).in_flags()?;
     let text = String::from_utf8(read(&args.prediction, "prediction")?).map_err(|_| {
         anyhow::anyhow!(
@@ -1455,10 +1478,9 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
         )
     })?;
     let prediction = Prediction::from_csv(&text).in_flags()?;
-    let table = read_table(&args.calibration)?;
     let photo = read(&args.photo, "photo")?;
     let (map, used) = map_with_mask(&photo, args.mask.as_deref(), &table)?;
-    let result = compare(&map, &law, &prediction, &registration).in_flags()?;
+    let result = compare(&map, &specimen.law(), &prediction, &registration).in_flags()?;
     if let (Some(out), Some(format)) = (&args.out, format) {
         let bytes = match format {
             OutputFormat::Csv => difference_csv(&result),
@@ -1471,10 +1493,15 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
         write(out, &bytes)?;
     }
     if args.json {
-        println!("{}", with_mask(&result, used)?);
+        let answer = WithOrigins {
+            result: &result,
+            inputs_from: origins,
+        };
+        println!("{}", with_mask(&answer, used)?);
         return Ok(());
     }
     print!("{}", mask_text(&used, MASK_FLAG));
+    print!("{}", origins_text(&origins));
     println!(
         "  compared pixels     {} of {} specimen pixels ({:.1} % inside the model)
            measured − predicted mean {:+.3}, mean |Δ| {:.3}, rms {:.3} MPa
@@ -1515,13 +1542,8 @@ fn report(args: &ReportArgs) -> anyhow::Result<()> {
         ("--calibration", Some(&args.calibration)),
     ];
     refuse_overwriting(&inputs, "--out", &args.out)?;
-    let specimen = args.specimen.specimen()?.ok_or_else(|| {
-        anyhow::anyhow!(
-            "a report needs --fringe-value-n-per-mm and --thickness-mm (or, for a coating, \
-             --strain-fringe-value-um, --coating-thickness-mm, --youngs-modulus-mpa and \
-             --poisson-ratio)"
-        )
-    })?;
+    let (table, table_bytes) = read_table_file(&args.calibration)?;
+    let (specimen, origins) = args.specimen.required(&table, "a report")?;
     let options = ReportOptions {
         nominal_stress_mpa: args.nominal_stress_mpa,
         load_n: args.load_n,
@@ -1529,7 +1551,6 @@ fn report(args: &ReportArgs) -> anyhow::Result<()> {
         title: args.title.clone(),
     };
     options.validate().in_flags()?;
-    let (table, table_bytes) = read_table_file(&args.calibration)?;
     let file_name = |p: &Path| {
         p.file_name().map_or_else(
             || p.display().to_string(),
@@ -1546,6 +1567,7 @@ fn report(args: &ReportArgs) -> anyhow::Result<()> {
         ),
         material: table.metadata.material.clone(),
         specimen,
+        origins,
         edge: args
             .polyline
             .clone()
@@ -1572,7 +1594,9 @@ fn report(args: &ReportArgs) -> anyhow::Result<()> {
 /// given) and the stress and strain files (if asked for).
 struct MapOutputs {
     orders: OutputFormat,
+    table: CalibrationTable,
     specimen: Option<Specimen>,
+    origins: InputOrigins,
     scaled: Vec<(PathBuf, FileKind)>,
 }
 
@@ -1612,7 +1636,8 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
             );
         }
     }
-    let specimen = args.specimen.specimen()?;
+    let table = read_table(&args.calibration)?;
+    let (specimen, origins) = args.specimen.specimen(&table)?;
     let mut scaled = Vec::new();
     for (flag, path, prefix) in [
         ("--stress-out", &args.stress_out, "stress-"),
@@ -1642,14 +1667,16 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
     }
     Ok(MapOutputs {
         orders,
+        table,
         specimen,
+        origins,
         scaled,
     })
 }
 
 fn map(args: &MapArgs) -> anyhow::Result<()> {
     let outputs = map_outputs(args)?;
-    let table = read_table(&args.calibration)?;
+    let table = &outputs.table;
     let mut options = MapOptions {
         exposure_compensation: !args.no_exposure_compensation,
         max_order: args.max_order,
@@ -1659,7 +1686,7 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     if let Some(g) = args.max_gradient {
         options.max_gradient = g;
     }
-    options.validate(&table).in_flags()?;
+    options.validate(table).in_flags()?;
     let photo = read(&args.photo, "photo")?;
     let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
     let choice = match (&mask, args.whole_photo) {
@@ -1668,7 +1695,7 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         (None, false) => MaskChoice::Find,
     };
     let (map, mask_used) =
-        pipeline::map(&photo, choice, &table, &options, &DecodeLimits::default()).in_flags()?;
+        pipeline::map(&photo, choice, table, &options, &DecodeLimits::default()).in_flags()?;
     write(
         &args.out,
         &export::encode(&map, FileKind::Orders(outputs.orders)).in_flags()?,
@@ -1707,6 +1734,9 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
         "{}",
         statistics_text(&map.statistics, outputs.specimen.as_ref())
     );
+    if outputs.specimen.is_some() {
+        print!("{}", origins_text(&outputs.origins));
+    }
     Ok(())
 }
 

@@ -407,3 +407,14 @@ mod tests {
         assert_eq!(unix_ms(t), 1_700_000_000_123);
     }
 }
+
+/// One JSON object: `result`'s fields and `inputs_from`, where the stress inputs came from
+/// (`given` or `calibration`, per input); the answer of boundary and comparison.
+#[derive(Debug, Serialize)]
+pub struct WithOrigins<'a, T: Serialize> {
+    /// The figures.
+    #[serde(flatten)]
+    pub result: &'a T,
+    /// Where `fringe_value_n_per_mm` and `thickness_mm` came from.
+    pub inputs_from: isotint_core::stress::InputOrigins,
+}

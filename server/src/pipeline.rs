@@ -80,7 +80,7 @@ pub fn report(
     let mask = mask.map(|m| Mask::decode(m, limits)).transpose()?;
     let map = isotint_core::map_orders(&photo, table, mask.as_ref(), options)?;
     drop(mask);
-    report_pdf(&photo, &map, inputs)
+    report_pdf(Some(&photo), &map, inputs)
 }
 
 /// Chooses the specimen and maps the photos of a load series with `table` (one photo decoded at

@@ -16,6 +16,11 @@ import { CHANGED } from './calibrations.js';
 const UNRELIABLE = FLAGS.find((f) => f.bit === 4);
 // Colour of specimen pixels the prediction does not cover, on the difference layer.
 const NOT_COMPARED = [150, 150, 150];
+// The stress-optic law's inputs: field id, the calibration's key, label and unit.
+const MATERIAL_FIELDS = [
+  ['an-fringe-value', 'fringe_value_n_per_mm', 'Fringe value', 'N/mm per fringe'],
+  ['an-thickness', 'thickness_mm', 'Thickness', 'mm'],
+];
 
 const TOOL_HELP = {
   inspect: 'Point at the picture, or focus it and use the arrow keys, to read the fringe order.',
@@ -215,9 +220,10 @@ export class AnalysisPage {
     $('an-hint-order').addEventListener('keydown', (e) => {
       if (e.key === 'Enter') this.addHint();
     });
-    for (const id of ['an-fringe-value', 'an-thickness']) {
+    for (const [id] of MATERIAL_FIELDS) {
       $(id).addEventListener('input', () => {
-        if (id === 'an-thickness') $('an-material-source').textContent = '';
+        delete $(id).dataset.from;
+        this.materialNote();
         this.lawChanged();
       });
     }
@@ -294,22 +300,35 @@ export class AnalysisPage {
     }
   }
 
-  // Fills in the thickness stored with the chosen calibration, unless one was typed. (A
-  // calibration stores no fringe value: that comes from a load series or a known load.)
+  // Fills in the fringe value and thickness stored with the chosen calibration, each unless
+  // one was typed (a field filled from a calibration carries data-from="calibration").
   prefillMaterial() {
     const chosen = (this.calibrations || []).find((c) => c.id === $('an-calibration').value);
-    const thickness = $('an-thickness');
-    const source = $('an-material-source');
-    const typed = thickness.value !== '' && !source.textContent;
-    if (!chosen || typed) return;
-    if (chosen.thickness_mm > 0) {
-      thickness.value = String(chosen.thickness_mm);
-      source.textContent = `Thickness ${fmt(chosen.thickness_mm, 2)} mm from the calibration “${chosen.name}”. The fringe value is not stored with a calibration: type it (a load series gives it).`;
-    } else {
-      if (source.textContent) thickness.value = '';
-      source.textContent = '';
+    for (const [id, key] of MATERIAL_FIELDS) {
+      const input = $(id);
+      if (input.value !== '' && input.dataset.from !== 'calibration') continue;
+      const value = chosen ? chosen[key] : null;
+      if (value > 0) {
+        input.value = String(value);
+        input.dataset.from = 'calibration';
+      } else if (input.dataset.from === 'calibration') {
+        input.value = '';
+        delete input.dataset.from;
+      }
     }
+    this.materialNote(chosen);
     this.lawChanged();
+  }
+
+  // Says which of the fringe value and thickness came from the calibration, and which are
+  // still to be typed.
+  materialNote(chosen = (this.calibrations || []).find((c) => c.id === $('an-calibration').value)) {
+    const from = MATERIAL_FIELDS.filter(([id]) => $(id).dataset.from === 'calibration')
+      .map(([id, , label, unit]) => `${label} ${fmt($(id).valueAsNumber, 3)} ${unit}`);
+    const missing = MATERIAL_FIELDS.filter(([id]) => $(id).value === '').map(([, , label]) => label.toLowerCase());
+    let note = from.length && chosen ? `${from.join(' and ')} from the calibration “${chosen.name}”.` : '';
+    if (from.length && missing.length) note += ` Type the ${missing.join(' and ')} (a load series gives the fringe value).`;
+    $('an-material-source').textContent = note;
   }
 
   // The scale typed or set, mm per pixel, or null.
@@ -819,21 +838,18 @@ export class AnalysisPage {
     return form;
   }
 
-  // Asks the service for the PDF report of the mapped photo (the same photo, calibration, mask
-  // and options, with the stress fields) and saves it.
+  // Asks the service for the PDF report of the stored map (its stresses through the fringe value
+  // and thickness, its mask's outline as the edge) and saves it.
   async report() {
     const error = $('an-error');
     showError(error, null);
     const button = $('an-report');
     button.disabled = true;
     try {
-      const fringeValue = requiredNumber($('an-fringe-value'), { positive: true });
-      const thickness = requiredNumber($('an-thickness'), { positive: true });
-      const form = await this.mapForm($('an-calibration').value);
-      if (!form.has('mask')) throw new Error('The report needs the specimen’s outline or mask: its edge is where the free-edge stress is read.');
-      form.append('report', JSON.stringify({ fringe_value_n_per_mm: fringeValue, thickness_mm: thickness }));
+      if (!this.result) throw new Error('Make the fringe-order map first.');
+      const body = this.lawFields();
       $('an-progress-text').textContent = 'Writing the report…';
-      const blob = await api.report(form);
+      const blob = new Blob([await api.report(this.result.id, body)], { type: 'application/pdf' });
       const url = URL.createObjectURL(blob);
       const save = document.createElement('a');
       save.href = url;

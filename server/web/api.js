@@ -146,11 +146,6 @@ export function postForm(url, form, onProgress) {
   });
 }
 
-// POSTs multipart form data and answers the reply's body as a Blob (a file the service made).
-export async function postFormForBlob(url, form) {
-  return (await send(url, { method: 'POST', body: form })).blob();
-}
-
 // One page of calibrations ({calibrations, total, next}): the first page of a search, or the
 // page a previous page's `next` link names.
 function calibrationPage(q = '', includeArchived = false, next = null) {
@@ -203,7 +198,8 @@ export const api = {
   restore: (id) => postJson(`/api/v1/calibrations/${encodeURIComponent(id)}/restore`),
   createCalibration: (form, onProgress) => postForm('/api/v1/calibrations', form, onProgress),
   createOrderMap: (form, onProgress) => postForm('/api/v1/order-maps', form, onProgress),
-  report: (form) => postFormForBlob('/api/v1/reports', form),
+  // The PDF report of a stored map (`body`: the stress fields, options, `polyline`), as bytes.
+  report: (id, body) => postBody(`${mapUrl(id)}/report`, body, { bytes: true }),
   // A stored map's description with σ1 − σ2 figures and links through f_σ (N/mm) and h (mm).
   stressOf: (id, fringeValue, thickness) =>
     getJson(`${mapUrl(id)}?${new URLSearchParams({ fringe_value_n_per_mm: fringeValue, thickness_mm: thickness })}`),

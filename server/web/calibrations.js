@@ -34,7 +34,7 @@ function summaryPairs(c) {
     ['Fringe order at the beam edges', beam ? fmt(source.edge_order, 3) : ''],
     ['Material fringe value', beam
       ? (source.fringe_value_n_per_mm != null
-        ? `${fmt(source.fringe_value_n_per_mm, 2)} N/mm per fringe (from the beam's load)`
+        ? `${fmt(source.fringe_value_n_per_mm, 2)} N/mm per fringe (stored with the calibration: from the beam's load or given)`
         : 'not recorded (the beam was calibrated from its edge order alone)')
       : ''],
     ['Light source', c.light_source],
@@ -442,6 +442,9 @@ class NewCalibrationForm {
       spec.estimate_edge_order = true;
     } else {
       spec.edge_order = requiredNumber($('cf-edge-order'), { positive: true });
+      // Optional: stored with the table as the default fringe value of stress inputs.
+      const fringeValue = numberIn($('cf-edge-fringe-value'), { positive: true });
+      if (fringeValue !== null) spec.fringe_value_n_per_mm = fringeValue;
     }
     const thickness = numberIn($('cf-thickness'), { positive: true });
     if (thickness !== null) spec.thickness_mm = thickness;

@@ -130,6 +130,7 @@ async function main(browser) {
       check(Math.abs(typed - region[key]) <= scale + 1, `${label} is ${typed} after the drag, expected about ${region[key]}`);
     }
     await cal.getByLabel('Edge fringe order').fill(String(beam.field.edge_order));
+    await cal.getByLabel('Material fringe value, if known (N/mm per fringe)').fill(String(scenario.fringe_value_n_per_mm));
     await cal.getByLabel('Name', { exact: true }).fill(calibrationName);
     await cal.getByLabel('Material', { exact: true }).fill('demo model material');
     await cal.getByLabel('Thickness (mm)', { exact: true }).fill(String(scenario.thickness_mm));
@@ -207,11 +208,13 @@ async function main(browser) {
     await select.locator('option', { hasText: calibrationName }).waitFor({ state: 'attached' });
     const value = await select.locator('option', { hasText: calibrationName }).getAttribute('value');
     await select.selectOption(value);
-    // The thickness stored with the calibration is filled in; the fringe value is typed.
+    // The thickness and fringe value stored with the calibration are filled in, and say so.
     const thickness = await an.getByLabel('Thickness (mm)', { exact: true }).inputValue();
     check(Number(thickness) === scenario.thickness_mm, `thickness pre-filled as ${thickness}, the calibration has ${scenario.thickness_mm}`);
-    check(/from the calibration/.test(await page.locator('#an-material-source').textContent()), 'the pre-filled thickness does not say where it came from');
-    await an.getByLabel('Material fringe value (N/mm per fringe)').fill(String(scenario.fringe_value_n_per_mm));
+    const fringeValue = await an.getByLabel('Material fringe value (N/mm per fringe)').inputValue();
+    check(Number(fringeValue) === scenario.fringe_value_n_per_mm, `fringe value pre-filled as ${fringeValue}, the calibration has ${scenario.fringe_value_n_per_mm}`);
+    const note = await page.locator('#an-material-source').textContent();
+    check(/Fringe value .* and Thickness .* from the calibration/.test(note), `the pre-filled values do not say where they came from: ${note}`);
     // Outline: a 16-sided polygon just inside the disc's rim, closed on its first corner.
     await an.getByLabel('Draw an outline on the photo').check();
     const view = page.locator('#an-view');

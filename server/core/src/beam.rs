@@ -42,6 +42,14 @@ pub enum EdgeLoad {
         /// Beam depth, mm.
         depth_mm: f64,
     },
+    /// Edge order read off and the material fringe value given beside it (N/mm per fringe),
+    /// stored with the table for the stress inputs; it plays no part in the table itself.
+    EdgeOrderAndFringeValue {
+        /// Edge order, fringes.
+        edge_order: f64,
+        /// Material fringe value, N/mm per fringe.
+        fringe_value_n_per_mm: f64,
+    },
     /// Neither is known: the edge order is estimated from the beam's own colour sequence
     /// ([`estimate::estimate_edge_order`], default references). An estimate, to be confirmed
     /// against a known load where possible.
@@ -78,8 +86,8 @@ fn positive(field: &'static str, v: f64) -> CoreResult<f64> {
 
 impl EdgeLoad {
     /// Parses the caller's fields: an edge order, or moment + depth + fringe value, or an edge
-    /// order with moment + depth (then the fringe value is reported), or `estimate_edge_order`
-    /// alone.
+    /// order with moment + depth (then the fringe value is reported), or an edge order with the
+    /// fringe value (stored with the table), or `estimate_edge_order` alone.
     pub fn from_fields(f: EdgeLoadFields) -> CoreResult<EdgeLoad> {
         if f.estimate_edge_order {
             let given = [
@@ -116,10 +124,15 @@ impl EdgeLoad {
                 moment_n_mm: positive("moment_n_mm", m)?,
                 depth_mm: positive("depth_mm", d)?,
             }),
+            (Some(n), None, None, Some(fs)) => Ok(EdgeLoad::EdgeOrderAndFringeValue {
+                edge_order: positive("edge_order", n)?,
+                fringe_value_n_per_mm: positive("fringe_value_n_per_mm", fs)?,
+            }),
             _ => Err(CoreError::invalid(
                 "edge_order",
                 "give edge_order, or moment_n_mm + depth_mm + fringe_value_n_per_mm, \
-                 or edge_order + moment_n_mm + depth_mm, or estimate_edge_order",
+                 or edge_order + moment_n_mm + depth_mm, or edge_order + \
+                 fringe_value_n_per_mm, or estimate_edge_order",
             )),
         }
     }
@@ -128,7 +141,9 @@ impl EdgeLoad {
     /// (`None` for [`EdgeLoad::Estimate`]).
     pub fn edge_order(&self) -> Option<f64> {
         match *self {
-            EdgeLoad::EdgeOrder(n) | EdgeLoad::EdgeOrderAndLoad { edge_order: n, .. } => Some(n),
+            EdgeLoad::EdgeOrder(n)
+            | EdgeLoad::EdgeOrderAndLoad { edge_order: n, .. }
+            | EdgeLoad::EdgeOrderAndFringeValue { edge_order: n, .. } => Some(n),
             EdgeLoad::Load {
                 moment_n_mm,
                 depth_mm,
@@ -152,6 +167,23 @@ impl EdgeLoad {
                 depth_mm,
             } => Some(6.0 * moment_n_mm / (edge_order * depth_mm * depth_mm)),
             _ => None,
+        }
+    }
+
+    /// The material fringe value the calibration is made for, N/mm per fringe: given (with
+    /// the load or beside the edge order) or implied by edge order and load; `None` when
+    /// nothing says it.
+    pub fn fringe_value(&self) -> Option<f64> {
+        match *self {
+            EdgeLoad::Load {
+                fringe_value_n_per_mm,
+                ..
+            }
+            | EdgeLoad::EdgeOrderAndFringeValue {
+                fringe_value_n_per_mm,
+                ..
+            } => Some(fringe_value_n_per_mm),
+            _ => self.implied_fringe_value(),
         }
     }
 }
@@ -433,7 +465,7 @@ pub fn calibrate_beam(photo: &Photo, spec: &BeamSpec) -> CoreResult<BeamCalibrat
             region,
             edge_order,
             residual_de2000: 0.0,
-            fringe_value_n_per_mm: spec.load.implied_fringe_value(),
+            fringe_value_n_per_mm: spec.load.fringe_value(),
         },
         entries,
     )?;

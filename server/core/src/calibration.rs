@@ -10,6 +10,7 @@ use time::OffsetDateTime;
 use crate::colour::Lab;
 use crate::error::{CoreError, CoreResult};
 use crate::geometry::PixelRect;
+use crate::stress::StressDefaults;
 
 /// The `format_version` this build writes and reads.
 pub const FORMAT_VERSION: u32 = 1;
@@ -65,8 +66,10 @@ pub enum TableSource {
         edge_order: f64,
         /// Mean CIEDE2000 between row colours and the smoothed table.
         residual_de2000: f64,
-        /// Material fringe value f_σ implied by the beam's load, N/mm per fringe, when the
-        /// edge order came with a moment and depth (absent otherwise and in older tables).
+        /// Material fringe value f_σ the table was made for, N/mm per fringe: implied by the
+        /// beam's load (6M/(N_edge·d²)) when the edge order came with a moment and depth, or
+        /// given with the load or beside the edge order (absent otherwise and in older tables).
+        /// With `metadata.thickness_mm` it is the default of the stress inputs.
         #[serde(default, skip_serializing_if = "Option::is_none")]
         fringe_value_n_per_mm: Option<f64>,
     },
@@ -169,6 +172,22 @@ impl CalibrationTable {
     /// Pretty JSON of the table.
     pub fn to_json(&self) -> String {
         serde_json::to_string_pretty(self).expect("a calibration table always serialises")
+    }
+
+    /// The stress inputs this table was made for: its material fringe value (a beam table's
+    /// `source.fringe_value_n_per_mm`) and `metadata.thickness_mm`, each when known.
+    pub fn stress_defaults(&self) -> StressDefaults {
+        let fringe_value_n_per_mm = match self.source {
+            TableSource::BeamPhoto {
+                fringe_value_n_per_mm,
+                ..
+            } => fringe_value_n_per_mm,
+            TableSource::Rendered { .. } => None,
+        };
+        StressDefaults {
+            fringe_value_n_per_mm,
+            thickness_mm: self.metadata.thickness_mm,
+        }
     }
 
     /// Largest calibrated order, fringes.

@@ -20,7 +20,7 @@ use crate::colour::{source_index, thumbnail_size};
 use crate::error::{CoreError, CoreResult};
 use crate::export::{bar_top, colour_bar_labels, FileKind, FileWriter, OutputFormat, Rows};
 use crate::order_map::OrderMap;
-use crate::stress::{maximum_text, positive, Specimen, STRESS_CAUTION};
+use crate::stress::{maximum_text, positive, InputOrigins, Specimen, STRESS_CAUTION};
 use crate::Photo;
 
 /// Longest side of the report's pictures (photo and maps), pixels.
@@ -91,17 +91,24 @@ pub struct ReportInputs {
     pub material: String,
     /// How orders become stresses.
     pub specimen: Specimen,
+    /// Which of the specimen's inputs were taken from the calibration.
+    pub origins: InputOrigins,
     /// The edge sampled for the free-edge stress.
     pub edge: EdgePath,
     /// The optional inputs.
     pub options: ReportOptions,
 }
 
-/// Writes the PDF report of `map`, mapped from `photo`: the free-edge stress along
+/// Writes the PDF report of `map`, mapped from `photo` (`None` for a stored map, whose photo
+/// is not kept: the report says so in the photo's place): the free-edge stress along
 /// `inputs.edge` is computed here (refused as [`boundary_stress`] refuses it).
-pub fn report_pdf(photo: &Photo, map: &OrderMap, inputs: &ReportInputs) -> CoreResult<Vec<u8>> {
+pub fn report_pdf(
+    photo: Option<&Photo>,
+    map: &OrderMap,
+    inputs: &ReportInputs,
+) -> CoreResult<Vec<u8>> {
     inputs.options.validate()?;
-    if (photo.width(), photo.height()) != (map.width, map.height) {
+    if let Some(photo) = photo.filter(|p| (p.width(), p.height()) != (map.width, map.height)) {
         return Err(CoreError::invalid(
             "photo",
             format!(
@@ -117,14 +124,22 @@ pub fn report_pdf(photo: &Photo, map: &OrderMap, inputs: &ReportInputs) -> CoreR
     let edge = boundary_stress(map, &law, inputs.options.nominal_stress_mpa, &inputs.edge)?;
     let mut doc = Document::default();
     first_page(&mut doc, map, &edge, inputs);
-    let (w, h, rgb) = photo.thumbnail_rgb8(PICTURE_SIDE_PX);
     doc.new_page();
     doc.heading("Photo");
-    doc.picture(
-        Picture::new(w, h, rgb)?,
-        &format!("{} ({} x {} px)", inputs.photo_name, map.width, map.height),
-        None,
-    );
+    match photo {
+        Some(photo) => {
+            let (w, h, rgb) = photo.thumbnail_rgb8(PICTURE_SIDE_PX);
+            doc.picture(
+                Picture::new(w, h, rgb)?,
+                &format!("{} ({} x {} px)", inputs.photo_name, map.width, map.height),
+                None,
+            );
+        }
+        None => doc.paragraph(&format!(
+            "{} ({} x {} px): the photo is not kept with a stored map, so it is not shown here.",
+            inputs.photo_name, map.width, map.height
+        )),
+    }
     doc.heading("Fringe orders");
     let orders = map_picture(map, FileKind::Orders(OutputFormat::Preview))?;
     doc.picture(
@@ -185,6 +200,9 @@ fn first_page(doc: &mut Document, map: &OrderMap, edge: &BoundaryStress, inputs:
     };
     doc.paragraph(&format!("material: {material}"));
     for line in inputs.specimen.input_lines() {
+        doc.paragraph(&line);
+    }
+    for line in inputs.origins.lines() {
         doc.paragraph(&line);
     }
     doc.paragraph(&format!("load: {}", given(o.load_n, "N")));

@@ -361,6 +361,126 @@ impl SpecimenFields {
     }
 }
 
+/// The stress inputs a calibration was made for (see `CalibrationTable::stress_defaults`):
+/// material fringe value f_σ (N/mm per fringe) and thickness h (mm), each when known.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+pub struct StressDefaults {
+    /// Material fringe value f_σ, N/mm per fringe.
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Model thickness h, mm.
+    pub thickness_mm: Option<f64>,
+}
+
+/// Where a stress input came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum InputOrigin {
+    /// Given with the request or on the command line.
+    Given,
+    /// Not given: the value the calibration was made for.
+    Calibration,
+}
+
+impl InputOrigin {
+    /// `given` or `calibration`.
+    pub fn name(self) -> &'static str {
+        match self {
+            InputOrigin::Given => "given",
+            InputOrigin::Calibration => "calibration",
+        }
+    }
+}
+
+/// Where a transmission model's f_σ and h came from; `None` where the input is not used.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize)]
+pub struct InputOrigins {
+    /// Origin of `fringe_value_n_per_mm`.
+    pub fringe_value_n_per_mm: Option<InputOrigin>,
+    /// Origin of `thickness_mm`.
+    pub thickness_mm: Option<InputOrigin>,
+}
+
+impl InputOrigins {
+    /// True when some input was taken from the calibration.
+    pub fn any_from_calibration(&self) -> bool {
+        [self.fringe_value_n_per_mm, self.thickness_mm].contains(&Some(InputOrigin::Calibration))
+    }
+
+    /// One line per input taken from the calibration, as the CLI and the report print them.
+    pub fn lines(&self) -> Vec<String> {
+        let from = |origin: Option<InputOrigin>, what: &str| {
+            (origin == Some(InputOrigin::Calibration))
+                .then(|| format!("{what}: not given, the calibration's value"))
+        };
+        [
+            from(self.fringe_value_n_per_mm, "f_sigma"),
+            from(self.thickness_mm, "h"),
+        ]
+        .into_iter()
+        .flatten()
+        .collect()
+    }
+}
+
+impl SpecimenFields {
+    /// These fields with a transmission model's missing f_σ and h taken from `defaults` (the
+    /// calibration's), and where each came from. Nothing is filled for a slice (its f_σ is the
+    /// critical temperature's) or a coating; when neither f_σ nor h is given, both are filled
+    /// or neither, so a calibration that knows one of them alone does not ask for stresses.
+    pub fn with_defaults(self, defaults: StressDefaults) -> (SpecimenFields, InputOrigins) {
+        let coating = [
+            self.strain_fringe_value_um,
+            self.coating_thickness_mm,
+            self.youngs_modulus_mpa,
+            self.poisson_ratio,
+        ]
+        .iter()
+        .any(Option::is_some);
+        let transmission = match self.specimen {
+            Some(kind) => kind == SpecimenKind::Transmission,
+            None => !coating,
+        };
+        let given = |v: Option<f64>| v.map(|_| InputOrigin::Given);
+        let mut fields = self;
+        let mut origins = InputOrigins {
+            fringe_value_n_per_mm: given(self.fringe_value_n_per_mm),
+            thickness_mm: given(self.thickness_mm),
+        };
+        let none_given = self.fringe_value_n_per_mm.is_none() && self.thickness_mm.is_none();
+        let both_stored =
+            defaults.fringe_value_n_per_mm.is_some() && defaults.thickness_mm.is_some();
+        if transmission && (!none_given || both_stored) {
+            let fill = |value: &mut Option<f64>, stored: Option<f64>, origin: &mut _| {
+                if value.is_none() && stored.is_some() {
+                    *value = stored;
+                    *origin = Some(InputOrigin::Calibration);
+                }
+            };
+            fill(
+                &mut fields.fringe_value_n_per_mm,
+                defaults.fringe_value_n_per_mm,
+                &mut origins.fringe_value_n_per_mm,
+            );
+            fill(
+                &mut fields.thickness_mm,
+                defaults.thickness_mm,
+                &mut origins.thickness_mm,
+            );
+        }
+        (fields, origins)
+    }
+
+    /// The specimen these fields describe ([`SpecimenFields::specimen`]) once missing inputs
+    /// are taken from `defaults` ([`SpecimenFields::with_defaults`]), and where they came from.
+    pub fn specimen_with(
+        self,
+        defaults: StressDefaults,
+    ) -> CoreResult<(Option<Specimen>, InputOrigins)> {
+        let (fields, origins) = self.with_defaults(defaults);
+        Ok((fields.specimen()?, origins))
+    }
+}
+
 /// `error` with its field `from` named `to` instead (other errors unchanged).
 fn rename_field(error: CoreError, from: &str, to: &'static str) -> CoreError {
     match error {

@@ -158,3 +158,43 @@ fn a_region_outside_the_photo_is_refused() {
     .unwrap_err();
     assert!(err.to_string().contains("outside"), "{err}");
 }
+
+#[test]
+fn a_beam_table_carries_the_fringe_value_its_load_implies_as_the_stress_default() {
+    // source: pure bending, σ_edge = 6M/d² and N_edge = σ_edge·h/f_σ per unit thickness, so
+    // f_σ = 6M/(N_edge·d²) (beam theory; common practice, no source). Hand-worked: M = 2250
+    // N·mm, d = 10 mm, N_edge = 3 → f_σ = 13500/300 = 45 N/mm per fringe.
+    let photo = paint(W, H, &beam_truth(), 1.0);
+    let mut s = spec(PixelRect::new(60.0, TOP, 200.0, BOTTOM).unwrap(), false);
+    s.load = EdgeLoad::EdgeOrderAndLoad {
+        edge_order: EDGE,
+        moment_n_mm: 2250.0,
+        depth_mm: 10.0,
+    };
+    s.metadata.thickness_mm = Some(6.0);
+    let defaults = calibrate_beam(&photo, &s).unwrap().table.stress_defaults();
+    assert!((defaults.fringe_value_n_per_mm.unwrap() - 45.0).abs() < 1e-9);
+    assert_eq!(defaults.thickness_mm, Some(6.0));
+}
+
+#[test]
+fn a_fringe_value_given_beside_the_edge_order_is_stored_with_the_table() {
+    let load = EdgeLoad::from_fields(EdgeLoadFields {
+        edge_order: Some(EDGE),
+        fringe_value_n_per_mm: Some(10.5),
+        ..Default::default()
+    })
+    .unwrap();
+    assert_eq!(load.edge_order(), Some(EDGE));
+    let photo = paint(W, H, &beam_truth(), 1.0);
+    let mut s = spec(PixelRect::new(60.0, TOP, 200.0, BOTTOM).unwrap(), false);
+    s.load = load;
+    let cal = calibrate_beam(&photo, &s).unwrap();
+    assert_eq!(
+        cal.table.stress_defaults().fringe_value_n_per_mm,
+        Some(10.5)
+    );
+    assert_eq!(cal.table.stress_defaults().thickness_mm, None);
+    // The value was given, not implied by a load: the report's implied value stays empty.
+    assert_eq!(cal.report.fringe_value_n_per_mm, None);
+}

@@ -10,7 +10,7 @@ use isotint_core::boundary::{boundary_stress, EdgePath};
 use isotint_core::colour::thumbnail_size;
 use isotint_core::render::HoleField;
 use isotint_core::report::{report_pdf, ReportInputs, ReportOptions, PICTURE_SIDE_PX};
-use isotint_core::stress::{maximum_text, PlateWithHole, Specimen, StressOpticLaw};
+use isotint_core::stress::{maximum_text, InputOrigins, PlateWithHole, Specimen, StressOpticLaw};
 use isotint_core::{map_orders, CoreError, MapOptions, OrderMap, Photo, PixelPoint};
 
 /// A rendered plate with a hole of 60 px radius, remote order 1 along y (f_σ 10.5 N/mm, h 6 mm:
@@ -37,6 +37,7 @@ fn inputs(specimen: Specimen, edge: EdgePath) -> ReportInputs {
         calibration_id: "test-table-1".into(),
         material: "BT-7 epoxy".into(),
         specimen,
+        origins: InputOrigins::default(),
         edge,
         options: ReportOptions {
             nominal_stress_mpa: Some(1.75),
@@ -86,7 +87,7 @@ fn tempfile_dir() -> std::path::PathBuf {
 fn the_reports_text_states_the_maximum_edge_stress_kt_inputs_and_caution() {
     let (photo, map, law) = plate();
     let specimen = Specimen::Transmission(law);
-    let pdf = report_pdf(&photo, &map, &inputs(specimen, EdgePath::Outline)).unwrap();
+    let pdf = report_pdf(Some(&photo), &map, &inputs(specimen, EdgePath::Outline)).unwrap();
     assert!(pdf.starts_with(b"%PDF-"), "not a PDF");
     let edge = boundary_stress(&map, &law, Some(1.75), &EdgePath::Outline).unwrap();
     let Some(text) = pdf_text(&pdf) else { return };
@@ -128,7 +129,7 @@ fn a_coatings_report_gives_its_inputs_and_strains_in_microstrain() {
     .specimen()
     .unwrap()
     .unwrap();
-    let pdf = report_pdf(&photo, &map, &inputs(specimen, EdgePath::Outline)).unwrap();
+    let pdf = report_pdf(Some(&photo), &map, &inputs(specimen, EdgePath::Outline)).unwrap();
     let Some(text) = pdf_text(&pdf) else { return };
     for needed in [
         "strain fringe value f_eps: 4 um per fringe",
@@ -147,7 +148,7 @@ fn a_report_refuses_a_bad_option_or_an_edge_off_the_photo_by_name() {
     let mut bad = inputs(Specimen::Transmission(law), EdgePath::Outline);
     bad.options.mm_per_px = Some(-1.0);
     assert!(matches!(
-        report_pdf(&photo, &map, &bad),
+        report_pdf(Some(&photo), &map, &bad),
         Err(CoreError::Invalid {
             field: "mm_per_px",
             ..
@@ -161,7 +162,7 @@ fn a_report_refuses_a_bad_option_or_an_edge_off_the_photo_by_name() {
         ]),
     );
     assert!(matches!(
-        report_pdf(&photo, &map, &off),
+        report_pdf(Some(&photo), &map, &off),
         Err(CoreError::Invalid {
             field: "polyline",
             ..
@@ -185,4 +186,28 @@ fn the_reports_pictures_are_copies_no_longer_than_their_limit() {
     let (w, h, rgb) = photo.thumbnail_rgb8(2);
     assert_eq!((w, h), (2, 1));
     assert_eq!(rgb, vec![5, 5, 5, 7, 7, 7]);
+}
+
+#[test]
+fn a_stored_maps_report_without_its_photo_says_so_and_still_gives_the_edge_maximum() {
+    let (_, map, law) = plate();
+    let mut given = inputs(Specimen::Transmission(law), EdgePath::Outline);
+    given.photo_name = "stored order map".into();
+    given.origins = InputOrigins {
+        fringe_value_n_per_mm: Some(isotint_core::stress::InputOrigin::Calibration),
+        thickness_mm: Some(isotint_core::stress::InputOrigin::Given),
+    };
+    let pdf = report_pdf(None, &map, &given).unwrap();
+    assert!(pdf.starts_with(b"%PDF-"), "not a PDF");
+    let Some(text) = pdf_text(&pdf) else { return };
+    // source: Kirsch (1898), the same edge maximum as the report with its photo.
+    let edge = boundary_stress(&map, &law, Some(1.75), &EdgePath::Outline).unwrap();
+    let maximum = maximum_text(edge.max_stress_mpa, "MPa", edge.max_is_lower_bound);
+    assert!(text.contains(&maximum), "{maximum:?} missing from: {text}");
+    for needed in [
+        "the photo is not kept with a stored map",
+        "f_sigma: not given, the calibration's value",
+    ] {
+        assert!(text.contains(needed), "{needed:?} missing from: {text}");
+    }
 }

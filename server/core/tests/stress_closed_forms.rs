@@ -294,3 +294,69 @@ fn map_statistics(max_order: f64) -> MapStatistics {
         ambiguous_colour: false,
     }
 }
+
+#[test]
+fn missing_transmission_inputs_take_the_calibrations_values_and_say_so() {
+    use isotint_core::stress::{InputOrigin, StressDefaults};
+    // source: stress-optic law σ1 − σ2 = N·f_σ/h (common practice, no source). Hand-worked:
+    // N = 2, f_σ = 10.5 N/mm from the calibration, h = 6 mm given → 3.5 MPa.
+    let stored = StressDefaults {
+        fringe_value_n_per_mm: Some(10.5),
+        thickness_mm: Some(5.0),
+    };
+    let (fields, origins) = SpecimenFields {
+        thickness_mm: Some(6.0),
+        ..SpecimenFields::default()
+    }
+    .with_defaults(stored);
+    let law = fields.specimen().unwrap().unwrap().law();
+    assert_relative_eq!(law.stress_difference_mpa(2.0), 3.5, max_relative = 1e-12);
+    assert_eq!(
+        origins.fringe_value_n_per_mm,
+        Some(InputOrigin::Calibration)
+    );
+    assert_eq!(origins.thickness_mm, Some(InputOrigin::Given));
+    assert_eq!(origins.lines().len(), 1);
+
+    // Nothing given: both stored values, 2 · 10.5 / 5 = 4.2 MPa.
+    let (fields, origins) = SpecimenFields::default().with_defaults(stored);
+    let law = fields.specimen().unwrap().unwrap().law();
+    assert_relative_eq!(law.stress_difference_mpa(2.0), 4.2, max_relative = 1e-12);
+    assert!(origins.any_from_calibration());
+}
+
+#[test]
+fn a_calibration_that_knows_only_its_fringe_value_asks_for_no_stresses_by_itself() {
+    use isotint_core::stress::StressDefaults;
+    let stored = StressDefaults {
+        fringe_value_n_per_mm: Some(10.5),
+        thickness_mm: None,
+    };
+    let (fields, origins) = SpecimenFields::default().with_defaults(stored);
+    assert_eq!(fields.specimen().unwrap(), None);
+    assert!(!origins.any_from_calibration());
+}
+
+#[test]
+fn a_slice_or_a_coating_never_takes_the_calibrations_room_temperature_values() {
+    use isotint_core::stress::StressDefaults;
+    let stored = StressDefaults {
+        fringe_value_n_per_mm: Some(10.5),
+        thickness_mm: Some(6.0),
+    };
+    let (slice, origins) = SpecimenFields {
+        specimen: Some(SpecimenKind::Slice),
+        thickness_mm: Some(2.5),
+        ..SpecimenFields::default()
+    }
+    .with_defaults(stored);
+    assert_eq!(slice.fringe_value_n_per_mm, None);
+    assert!(!origins.any_from_calibration());
+    let (coating, _) = SpecimenFields {
+        strain_fringe_value_um: Some(4.0),
+        ..SpecimenFields::default()
+    }
+    .with_defaults(stored);
+    assert_eq!(coating.fringe_value_n_per_mm, None);
+    assert_eq!(coating.thickness_mm, None);
+}

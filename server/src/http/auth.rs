@@ -52,6 +52,7 @@ const POLICY: &[(Method, &str, Access)] = &[
     (Method::POST, "/api/v1/order-maps/{id}/comparison", READER),
     (Method::POST, "/api/v1/series", READER),
     (Method::POST, "/api/v1/reports", READER),
+    (Method::POST, "/api/v1/order-maps/{id}/report", READER),
     (Method::POST, "/api/v1/calibrations", WRITER),
     (Method::POST, "/api/v1/calibrations/import", WRITER),
     (Method::POST, "/api/v1/calibrations/{id}/archive", ADMIN),
@@ -283,6 +284,7 @@ mod tests {
             "/api/v1/series",
             "/api/v1/order-maps/{id}/comparison",
             "/api/v1/reports",
+            "/api/v1/order-maps/{id}/report",
         ] {
             assert!(doc.paths.paths.contains_key(route), "{route} undocumented");
         }
@@ -291,6 +293,7 @@ mod tests {
             "/api/v1/order-maps/{id}/comparison",
             "/api/v1/order-maps/{id}/boundary",
             "/api/v1/reports",
+            "/api/v1/order-maps/{id}/report",
         ] {
             assert_eq!(access(&Method::POST, route), READER, "{route}");
         }

@@ -49,8 +49,12 @@ pub struct CalibrationSummary {
     pub name: String,
     /// Model or coating material.
     pub material: String,
-    /// Specimen thickness, mm.
+    /// Specimen thickness h, mm; with `fringe_value_n_per_mm` the default of stress inputs.
     pub thickness_mm: Option<f64>,
+    /// Material fringe value f_σ the calibration was made for, N/mm per fringe: implied by a
+    /// beam's edge order and load (6M/(N_edge·d²)) or given at calibration; the default of
+    /// stress inputs that leave it out.
+    pub fringe_value_n_per_mm: Option<f64>,
     /// Light source, in words (the renderer's short names are written out).
     pub light_source: String,
     /// Camera and exposure settings, in words (the renderer's short names are written out).
@@ -84,6 +88,7 @@ impl From<CalibrationRow> for CalibrationSummary {
             name: r.metadata.name,
             material: r.metadata.material,
             thickness_mm: r.metadata.thickness_mm,
+            fringe_value_n_per_mm: r.stress_defaults.fringe_value_n_per_mm,
             light_source: light_in_words(r.metadata.light_source),
             camera: camera_in_words(r.metadata.camera),
             notes: r.metadata.notes,
@@ -191,6 +196,7 @@ pub struct ImportQuery {
 /// The `spec` part of a beam calibration: where the constant-moment zone is and what is known
 /// about the load. Give `edge_order`, or `moment_n_mm` + `depth_mm` + `fringe_value_n_per_mm`,
 /// or `edge_order` + `moment_n_mm` + `depth_mm` (then the fringe value is reported), or
+/// `edge_order` + `fringe_value_n_per_mm` (stored with the table), or
 /// `estimate_edge_order: true` alone (the edge order is estimated from the beam's colour
 /// sequence and reported in `report.edge_order_estimate`).
 ///
@@ -216,7 +222,9 @@ pub struct BeamRequest {
     /// Beam depth, mm (positive).
     #[schema(schema_with = openapi::optional_positive)]
     pub depth_mm: Option<f64>,
-    /// Material fringe value, N/mm per fringe (positive).
+    /// Material fringe value, N/mm per fringe (positive): with the moment and depth, or beside
+    /// the edge order alone; stored with the table as the default of stress inputs (as is the
+    /// fringe value that edge order, moment and depth imply).
     #[schema(schema_with = openapi::optional_positive)]
     pub fringe_value_n_per_mm: Option<f64>,
     /// Estimate the edge order (fringes) from the beam's own colour sequence instead of giving
@@ -234,7 +242,7 @@ pub struct BeamRequest {
     #[serde(default)]
     #[schema(schema_with = openapi::short_text)]
     pub material: String,
-    /// Specimen thickness, mm (positive).
+    /// Specimen thickness h, mm (positive): the default of stress inputs with this calibration.
     #[schema(schema_with = openapi::optional_positive)]
     pub thickness_mm: Option<f64>,
     /// Light source (at most 200 characters on one line).

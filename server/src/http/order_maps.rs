@@ -19,7 +19,8 @@ use isotint_core::export::{self, FileKind};
 use isotint_core::exposure::ExposureCorrection;
 use isotint_core::specimen::MaskUsed;
 use isotint_core::stress::{
-    Specimen, SpecimenFields, SpecimenKind, SpecimenStatistics, StressOpticLaw, STRESS_CAUTION,
+    InputOrigins, Specimen, SpecimenFields, SpecimenKind, SpecimenStatistics, StressDefaults,
+    StressOpticLaw, STRESS_CAUTION,
 };
 use isotint_core::{CoreError, CoreResult, MapOptions, OrderMap, PixelPoint, Scale};
 use serde::{Deserialize, Serialize};
@@ -34,9 +35,25 @@ use super::form::{parse_json, path_id, Form};
 use super::jobs::{Admission, JobSize};
 use super::openapi;
 use super::AppState;
-use crate::domain::{rfc3339, CalibrationId, FileStem, OrderMapId};
+use crate::domain::{rfc3339, CalibrationId, FileStem, OrderMapId, WithOrigins};
 use crate::pipeline::{self, MaskChoice};
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
+
+/// The `SpecimenFields` of a boundary or comparison request (their fields are spelt out, not
+/// flattened: serde cannot refuse unknown fields beside a flattened part).
+macro_rules! specimen_fields {
+    ($r:expr) => {
+        SpecimenFields {
+            specimen: $r.specimen,
+            fringe_value_n_per_mm: $r.fringe_value_n_per_mm,
+            thickness_mm: $r.thickness_mm,
+            strain_fringe_value_um: $r.strain_fringe_value_um,
+            coating_thickness_mm: $r.coating_thickness_mm,
+            youngs_modulus_mpa: $r.youngs_modulus_mpa,
+            poisson_ratio: $r.poisson_ratio,
+        }
+    };
+}
 
 /// Routes of this module.
 pub fn router() -> OpenApiRouter<AppState> {
@@ -53,14 +70,30 @@ pub fn router() -> OpenApiRouter<AppState> {
 #[derive(Debug, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BoundaryRequest {
-    /// Material fringe value f_σ, N/mm per fringe (positive).
+    /// Material fringe value f_σ, N/mm per fringe (positive); default the map's calibration's.
     #[serde(alias = "fringe_value")]
-    #[schema(exclusive_minimum = 0)]
-    pub fringe_value_n_per_mm: f64,
-    /// Model thickness h, mm (positive).
+    #[schema(schema_with = openapi::optional_positive)]
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Model thickness h, mm (positive); default the map's calibration's.
     #[serde(alias = "thickness")]
-    #[schema(exclusive_minimum = 0)]
-    pub thickness_mm: f64,
+    #[schema(schema_with = openapi::optional_positive)]
+    pub thickness_mm: Option<f64>,
+    /// `transmission` (default), `slice` (f_σ at the critical temperature, h the slice's; no
+    /// default from the calibration) or `coating` (with the four coating fields).
+    #[schema(schema_with = openapi::optional_specimen_kind)]
+    pub specimen: Option<SpecimenKind>,
+    /// Coating: strain fringe value f_ε, µm per fringe.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating: thickness t_c, mm.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub coating_thickness_mm: Option<f64>,
+    /// Coating: the part's Young's modulus E, MPa.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Coating: the part's Poisson's ratio ν (0 ≤ ν < 0.5).
+    #[schema(schema_with = openapi::optional_poisson_ratio)]
+    pub poisson_ratio: Option<f64>,
     /// Nominal stress σ_nom, MPa (positive): adds K_t = σ_max / σ_nom.
     #[serde(alias = "nominal_stress")]
     #[schema(schema_with = openapi::optional_positive)]
@@ -86,6 +119,8 @@ pub struct BoundaryAnswer {
     /// The figures (see `BoundaryStress`).
     #[serde(flatten)]
     pub result: BoundaryStress,
+    /// Where `fringe_value_n_per_mm` and `thickness_mm` came from: `given` or `calibration`.
+    pub inputs_from: InputOrigins,
     /// Every edge point, when the request set `include_edge`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub edge: Option<Vec<EdgeSample>>,
@@ -95,14 +130,30 @@ pub struct BoundaryAnswer {
 #[derive(Debug, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ComparisonRequest {
-    /// Material fringe value f_σ, N/mm per fringe (positive).
+    /// Material fringe value f_σ, N/mm per fringe (positive); default the map's calibration's.
     #[serde(alias = "fringe_value")]
-    #[schema(exclusive_minimum = 0)]
-    pub fringe_value_n_per_mm: f64,
-    /// Model thickness h, mm (positive).
+    #[schema(schema_with = openapi::optional_positive)]
+    pub fringe_value_n_per_mm: Option<f64>,
+    /// Model thickness h, mm (positive); default the map's calibration's.
     #[serde(alias = "thickness")]
-    #[schema(exclusive_minimum = 0)]
-    pub thickness_mm: f64,
+    #[schema(schema_with = openapi::optional_positive)]
+    pub thickness_mm: Option<f64>,
+    /// `transmission` (default), `slice` (f_σ at the critical temperature, h the slice's; no
+    /// default from the calibration) or `coating` (with the four coating fields).
+    #[schema(schema_with = openapi::optional_specimen_kind)]
+    pub specimen: Option<SpecimenKind>,
+    /// Coating: strain fringe value f_ε, µm per fringe.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub strain_fringe_value_um: Option<f64>,
+    /// Coating: thickness t_c, mm.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub coating_thickness_mm: Option<f64>,
+    /// Coating: the part's Young's modulus E, MPa.
+    #[schema(schema_with = openapi::optional_positive)]
+    pub youngs_modulus_mpa: Option<f64>,
+    /// Coating: the part's Poisson's ratio ν (0 ≤ ν < 0.5).
+    #[schema(schema_with = openapi::optional_poisson_ratio)]
+    pub poisson_ratio: Option<f64>,
     /// The predicted σ1 − σ2 as CSV text: rows x_mm,y_mm,stress_mpa (model coordinates in mm,
     /// MPa, ≥ 0), one header row allowed, at least three nodes not on one line.
     pub prediction: String,
@@ -165,8 +216,10 @@ pub struct StressQuery {
 }
 
 impl StressQuery {
-    /// The specimen these fields give; 422 naming the missing, misplaced or out-of-range field.
-    fn specimen(&self) -> CoreResult<Option<Specimen>> {
+    /// The specimen these fields give, a transmission model's missing f_σ and h taken from
+    /// `defaults` (the calibration's), and where they came from; 422 naming the missing,
+    /// misplaced or out-of-range field.
+    fn specimen(&self, defaults: StressDefaults) -> CoreResult<(Option<Specimen>, InputOrigins)> {
         SpecimenFields {
             specimen: self
                 .specimen
@@ -180,8 +233,26 @@ impl StressQuery {
             youngs_modulus_mpa: self.youngs_modulus_mpa,
             poisson_ratio: self.poisson_ratio,
         }
-        .specimen()
+        .specimen_with(defaults)
     }
+}
+
+/// Refuses, naming `format`, a file name no specimen would make known; before any other work
+/// (whether a stress or strain file can be made waits for the calibration's stress inputs).
+fn check_file_name(name: &str) -> CoreResult<()> {
+    match FileKind::from_name(name, None) {
+        Err(
+            e @ CoreError::Invalid {
+                field: "format", ..
+            },
+        ) => Err(e),
+        _ => Ok(()),
+    }
+}
+
+/// The stress inputs calibration `id` was made for.
+async fn stress_defaults(state: &AppState, id: CalibrationId) -> Result<StressDefaults, ApiError> {
+    Ok(crate::storage::calibrations::stress_defaults(&state.storage, id).await?)
 }
 
 /// The query that describes `specimen` again (for links).
@@ -312,6 +383,10 @@ pub struct StressResource {
     #[serde(flatten)]
     #[schema(value_type = Object)]
     pub statistics: SpecimenStatistics,
+    /// Where `fringe_value_n_per_mm` and `thickness_mm` came from: `given` or `calibration`
+    /// (the calibration's values, taken when the request left them out); null when not used.
+    #[schema(value_type = Object)]
+    pub inputs_from: InputOrigins,
     /// Results support, and do not replace, engineering judgement.
     pub caution: String,
     /// The map's stress files.
@@ -319,12 +394,17 @@ pub struct StressResource {
 }
 
 impl StressResource {
-    fn new(statistics: &serde_json::Value, specimen: Specimen, id: OrderMapId) -> Self {
+    fn new(
+        statistics: &serde_json::Value,
+        (specimen, inputs_from): (Specimen, InputOrigins),
+        id: OrderMapId,
+    ) -> Self {
         let query = specimen_query(&specimen);
         let link = |kind: &str| format!("/api/v1/order-maps/{id}/{kind}?{query}");
         let coating = specimen.kind() == SpecimenKind::Coating;
         StressResource {
             statistics: specimen.statistics(&statistics_from_json(statistics)),
+            inputs_from,
             caution: STRESS_CAUTION.to_string(),
             links: StressLinks {
                 npy: link("stress-npy"),
@@ -367,7 +447,7 @@ pub struct OrderMapResource {
     /// come within a fringe of the calibration's last order (possible aliases of higher orders).
     pub caution: Option<String>,
     /// σ1 − σ2 figures, when the request described a specimen (`fringe_value_n_per_mm` and
-    /// `thickness_mm`, or a coating's fields).
+    /// `thickness_mm`, or a coating's fields) or the calibration knows both f_σ and h.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub stress: Option<StressResource>,
     /// Exposure correction applied.
@@ -382,8 +462,9 @@ pub struct OrderMapResource {
 }
 
 impl OrderMapResource {
-    /// The description of stored map `r`, with σ1 − σ2 figures through `specimen` if given.
-    fn new(r: OrderMapRow, specimen: Option<Specimen>) -> Self {
+    /// The description of stored map `r`, with σ1 − σ2 figures through `specimen` if given
+    /// (with where its inputs came from).
+    fn new(r: OrderMapRow, specimen: (Option<Specimen>, InputOrigins)) -> Self {
         let statistics = statistics_from_json(&r.statistics);
         let base = format!("/api/v1/order-maps/{}", r.id);
         let link = |kind: &str| format!("{base}/{kind}");
@@ -403,7 +484,9 @@ impl OrderMapResource {
             calibration_id: r.calibration_id,
             max_is_lower_bound: statistics.max_is_lower_bound(),
             caution: statistics.caution(),
-            stress: specimen.map(|s| StressResource::new(&r.statistics, s, r.id)),
+            stress: specimen
+                .0
+                .map(|s| StressResource::new(&r.statistics, (s, specimen.1), r.id)),
             statistics: r.statistics,
             mask: r.mask,
             exposure: r.exposure,
@@ -481,14 +564,14 @@ async fn create_order_map(
     multipart: Result<Multipart, MultipartRejection>,
 ) -> Result<Response, ApiError> {
     let Query(query) = query?;
-    let specimen = stress?.0.specimen()?;
-    let format = query
-        .format
-        .as_deref()
-        .map(|name| FileKind::from_name(name, specimen))
-        .transpose()?;
+    let Query(stress) = stress?;
+    query.format.as_deref().map(check_file_name).transpose()?;
     // A file answer streams like a download: its place is taken before the upload is read.
-    let download = format.map(|_| state.downloads.start()).transpose()?;
+    let download = query
+        .format
+        .as_ref()
+        .map(|_| state.downloads.start())
+        .transpose()?;
     let mut form = Form::read(
         multipart,
         &["photo", "calibration", "mask", "mask_source", "options"],
@@ -506,6 +589,12 @@ async fn create_order_map(
         MaskSourceChoice::parse(form.text("mask_source")?.as_deref(), mask.is_some())?;
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     options.validate(&table)?;
+    let specimen = stress.specimen(table.stress_defaults())?;
+    let format = query
+        .format
+        .as_deref()
+        .map(|name| FileKind::from_name(name, specimen.0))
+        .transpose()?;
     let limits = state.config.decode_limits;
     let admission = state.jobs.admit(form.job_size(&photo, &limits)?).await?;
     // The job holds its admission until its results are stored.
@@ -567,9 +656,10 @@ async fn get_order_map(
     Path(id): Path<String>,
     stress: Result<Query<StressQuery>, QueryRejection>,
 ) -> Result<Json<OrderMapResource>, ApiError> {
-    let specimen = stress?.0.specimen()?;
+    let Query(stress) = stress?;
     let row = store::get(&state.storage, path_id(&id)?).await?;
     refuse_expired(&row)?;
+    let specimen = stress.specimen(stress_defaults(&state, row.calibration_id).await?)?;
     Ok(Json(OrderMapResource::new(row, specimen)))
 }
 
@@ -592,16 +682,18 @@ async fn get_order_map_file(
     name: Result<Query<FileNameQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     let id: OrderMapId = path_id(&id)?;
-    let specimen = stress?.0.specimen()?;
+    let Query(stress) = stress?;
     let asked = name?.0.stem()?;
+    check_file_name(&file).map_err(|e| ApiError::NotFound(e.to_string()))?;
+    let row = store::get(&state.storage, id).await?;
+    refuse_expired(&row)?;
+    let (specimen, _) = stress.specimen(stress_defaults(&state, row.calibration_id).await?)?;
     let kind = FileKind::from_name(&file, specimen).map_err(|e| match e {
         CoreError::Invalid {
             field: "format", ..
         } => ApiError::NotFound(e.to_string()),
         other => other.into(),
     })?;
-    let row = store::get(&state.storage, id).await?;
-    refuse_expired(&row)?;
     let slot = state.downloads.start()?;
     let shape = MapShape {
         width: row.width,
@@ -638,12 +730,13 @@ async fn boundary(
     let id: OrderMapId = path_id(&id)?;
     let body = body?;
     let request: BoundaryRequest = parse_json("boundary", &body)?;
-    let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
     let scale = request.mm_per_px.map(Scale::new).transpose()?;
     let path = request
         .polyline
         .map_or(EdgePath::Outline, EdgePath::Polyline);
-    let (admission, map) = admit_stored_map(&state, id, 0, body.len() as u64).await?;
+    let row = stored_map(&state, id).await?;
+    let (law, inputs_from) = stress_law(&state, &row, specimen_fields!(request)).await?;
+    let (admission, map) = admit_stored_map(&state, &row, 0, body.len() as u64).await?;
     let result = admission
         .run(move || boundary_stress(&map, &law, request.nominal_stress_mpa, &path))
         .await??;
@@ -652,20 +745,49 @@ async fn boundary(
         None => result,
     };
     let edge = request.include_edge.then(|| result.samples.clone());
-    Ok(Json(BoundaryAnswer { result, edge }))
+    Ok(Json(BoundaryAnswer {
+        result,
+        inputs_from,
+        edge,
+    }))
 }
 
-/// Admits a job on the stored map `id` (refused when it has expired) and loads the map: the
-/// job's memory is a map job's for its pixels plus `extra_bytes`, with `waiting_bytes` of the
-/// request held while it waits.
-async fn admit_stored_map(
+/// The stored map `id`'s row; refused when it has expired.
+pub(super) async fn stored_map(state: &AppState, id: OrderMapId) -> Result<OrderMapRow, ApiError> {
+    let row = store::get(&state.storage, id).await?;
+    refuse_expired(&row)?;
+    Ok(row)
+}
+
+/// The stress-optic law of a request on stored map `row` from its specimen's `fields` (a
+/// transmission model's f_σ and h each defaulting to the map's calibration's), and where they
+/// came from; 422 naming a missing or misplaced field.
+async fn stress_law(
     state: &AppState,
-    id: OrderMapId,
+    row: &OrderMapRow,
+    fields: SpecimenFields,
+) -> Result<(StressOpticLaw, InputOrigins), ApiError> {
+    let (specimen, origins) =
+        fields.specimen_with(stress_defaults(state, row.calibration_id).await?)?;
+    let specimen = specimen.ok_or_else(|| {
+        CoreError::invalid(
+            "fringe_value_n_per_mm",
+            "is required with thickness_mm (the map's calibration does not carry them), or \
+             the coating's fields",
+        )
+    })?;
+    Ok((specimen.law(), origins))
+}
+
+/// Admits a job on the stored map `row` and loads the map: the job's memory is a map job's
+/// for its pixels plus `extra_bytes`, with `waiting_bytes` of the request held while it waits.
+pub(super) async fn admit_stored_map(
+    state: &AppState,
+    row: &OrderMapRow,
     extra_bytes: u64,
     waiting_bytes: u64,
 ) -> Result<(Admission, OrderMap), ApiError> {
-    let row = store::get(&state.storage, id).await?;
-    refuse_expired(&row)?;
+    let id = row.id;
     let pixels = u64::from(row.width) * u64::from(row.height);
     let admission = state
         .jobs
@@ -702,13 +824,14 @@ async fn comparison(
     let Query(query) = query?;
     let difference_file = asks_for_file(query.format.as_deref(), "npy")?;
     let request: ComparisonRequest = parse_json("comparison", &body?)?;
-    let law = StressOpticLaw::new(request.fringe_value_n_per_mm, request.thickness_mm)?;
     let registration = Registration::fit(&request.pairs)?;
+    let row = stored_map(&state, id).await?;
+    let (law, inputs_from) = stress_law(&state, &row, specimen_fields!(request)).await?;
     let prediction_bytes = request.prediction.len() as u64;
     // Besides the map, the prediction parsed and triangulated: a few dozen bytes a node, and
     // a node takes a dozen bytes or more of CSV.
     let (admission, map) =
-        admit_stored_map(&state, id, 8 * prediction_bytes, prediction_bytes).await?;
+        admit_stored_map(&state, &row, 8 * prediction_bytes, prediction_bytes).await?;
     let result = admission
         .run(move || {
             let prediction = Prediction::from_csv(&request.prediction)?;
@@ -720,5 +843,9 @@ async fn comparison(
         let bytes = export::npy_f32(&result.difference, rows, cols);
         return Ok(npy_attachment(bytes, &format!("comparison-{id}.npy")));
     }
-    Ok(Json(result).into_response())
+    Ok(Json(WithOrigins {
+        result: &result,
+        inputs_from,
+    })
+    .into_response())
 }

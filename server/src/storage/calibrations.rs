@@ -2,6 +2,7 @@
 //! one; archiving hides a row from lists but never deletes it. Rows are unique by the SHA-256
 //! of their table file, so importing the same table twice stores it once.
 
+use isotint_core::stress::StressDefaults;
 use isotint_core::{CalibrationMetadata, CalibrationTable, TableSource};
 use sha2::{Digest, Sha256};
 use sqlx::any::AnyRow;
@@ -36,6 +37,8 @@ pub struct CalibrationRow {
     pub superseded_by: Option<CalibrationId>,
     /// Hidden from lists.
     pub archived: bool,
+    /// The stress inputs the calibration was made for (columns of migration 0007).
+    pub stress_defaults: StressDefaults,
 }
 
 /// A file of the calibration-sets directory being imported.
@@ -67,6 +70,7 @@ pub struct ListFilter {
 
 const SUMMARY_COLUMNS: &str = "c.id, c.metadata_json, c.source_kind, c.order_step, \
      c.max_order, c.residual_de2000, c.created_at_ms, c.supersedes, c.archived, \
+     c.fringe_value_n_per_mm, c.thickness_mm, \
      (SELECT s.id FROM calibrations s WHERE s.supersedes = c.id) AS superseded_by";
 
 /// SHA-256 (hex) of some bytes.
@@ -103,6 +107,10 @@ fn summary_from_row(row: &AnyRow) -> StorageResult<CalibrationRow> {
         supersedes: parse_id(row, "supersedes")?,
         superseded_by: parse_id(row, "superseded_by")?,
         archived: row.try_get::<i64, _>("archived")? != 0,
+        stress_defaults: StressDefaults {
+            fringe_value_n_per_mm: row.try_get("fringe_value_n_per_mm")?,
+            thickness_mm: row.try_get("thickness_mm")?,
+        },
     })
 }
 
@@ -206,16 +214,18 @@ pub(super) async fn insert_row<'c, E: Executor<'c, Database = Any>>(
     };
     let metadata_json = serde_json::to_string(&table.metadata)
         .map_err(|e| StorageError::Corrupt(format!("metadata: {e}")))?;
-    // The residual is bound as a number always, with $17 saying whether there is one: sqlx
+    let defaults = table.stress_defaults();
+    // The residual (and so the stress defaults) is bound as a number always, with $17 saying whether there is one: sqlx
     // 0.8's Any driver binds `None::<f64>` as a PostgreSQL float4 NULL, which types the
     // connection's prepared statement so that a later residual (float8) on that connection
     // fails with "incorrect binary data format in bind parameter 11".
     let result = sqlx::query(
         "INSERT INTO calibrations (id, name, material, light_source, camera, metadata_json, \
          table_json, source_kind, order_step, max_order, residual_de2000, created_at_ms, \
-         stored_at_ms, supersedes, archived, content_sha256) \
+         stored_at_ms, supersedes, archived, content_sha256, fringe_value_n_per_mm, \
+         thickness_mm, stress_defaults_filled) \
          VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, CASE WHEN $17 = 1 THEN $11 END, $12, \
-         $13, $14, $15, $16) \
+         $13, $14, $15, $16, CASE WHEN $19 = 1 THEN $18 END, CASE WHEN $21 = 1 THEN $20 END, 1) \
          ON CONFLICT (content_sha256) DO NOTHING",
     )
     .bind(row.id.to_string())
@@ -235,6 +245,10 @@ pub(super) async fn insert_row<'c, E: Executor<'c, Database = Any>>(
     .bind(i64::from(row.archived))
     .bind(row.content_sha256)
     .bind(i64::from(residual.is_some()))
+    .bind(defaults.fringe_value_n_per_mm.unwrap_or(0.0))
+    .bind(i64::from(defaults.fringe_value_n_per_mm.is_some()))
+    .bind(defaults.thickness_mm.unwrap_or(0.0))
+    .bind(i64::from(defaults.thickness_mm.is_some()))
     .execute(executor)
     .await?;
     Ok(result.rows_affected() == 1)
@@ -360,6 +374,56 @@ pub async fn table_json(storage: &Storage, id: CalibrationId) -> StorageResult<S
         .fetch_optional(storage.pool())
         .await?
         .ok_or_else(|| not_found(id))
+}
+
+/// Fills the stress-input columns of calibrations stored before migration 0007 from their
+/// tables (none for a table that cannot be read); how many rows it filled.
+pub(super) async fn fill_stress_defaults(storage: &Storage) -> StorageResult<u64> {
+    let rows: Vec<(String, String)> =
+        sqlx::query_as("SELECT id, table_json FROM calibrations WHERE stress_defaults_filled = 0")
+            .fetch_all(storage.pool())
+            .await?;
+    for (id, json) in &rows {
+        // A table that cannot be read (it would be refused wherever it is used) gives none.
+        let defaults = match CalibrationTable::from_json(json.as_bytes()) {
+            Ok(table) => table.stress_defaults(),
+            Err(e) => {
+                tracing::warn!(calibration = %id, error = %e, "stored table unreadable: no stress inputs");
+                StressDefaults::default()
+            }
+        };
+        // Numbers with 0/1 flags, as in `insert_row`.
+        sqlx::query(
+            "UPDATE calibrations SET fringe_value_n_per_mm = CASE WHEN $2 = 1 THEN $1 END, \
+             thickness_mm = CASE WHEN $4 = 1 THEN $3 END, stress_defaults_filled = 1 \
+             WHERE id = $5",
+        )
+        .bind(defaults.fringe_value_n_per_mm.unwrap_or(0.0))
+        .bind(i64::from(defaults.fringe_value_n_per_mm.is_some()))
+        .bind(defaults.thickness_mm.unwrap_or(0.0))
+        .bind(i64::from(defaults.thickness_mm.is_some()))
+        .bind(id)
+        .execute(storage.writer())
+        .await?;
+    }
+    Ok(rows.len() as u64)
+}
+
+/// The stress inputs calibration `id` was made for (the columns of migration 0007).
+pub async fn stress_defaults(
+    storage: &Storage,
+    id: CalibrationId,
+) -> StorageResult<StressDefaults> {
+    let row =
+        sqlx::query("SELECT fringe_value_n_per_mm, thickness_mm FROM calibrations WHERE id = $1")
+            .bind(id.to_string())
+            .fetch_optional(storage.pool())
+            .await?
+            .ok_or_else(|| not_found(id))?;
+    Ok(StressDefaults {
+        fringe_value_n_per_mm: row.try_get("fringe_value_n_per_mm")?,
+        thickness_mm: row.try_get("thickness_mm")?,
+    })
 }
 
 /// The stored table, parsed and validated.

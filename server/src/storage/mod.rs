@@ -177,8 +177,9 @@ async fn open_pool(url: &str, backend: Backend, connections: u32) -> StorageResu
 
 impl Storage {
     /// Connects (creating a missing SQLite file), switches SQLite to WAL mode, opens its single
-    /// write connection, applies pending migrations and converts order maps stored before bands
-    /// existed (`order_maps::convert_legacy`).
+    /// write connection, applies pending migrations, fills the stress inputs of calibrations stored
+    /// before they had columns (`calibrations::fill_stress_defaults`) and converts order maps
+    /// stored before bands existed (`order_maps::convert_legacy`).
     pub async fn connect(url: &str) -> StorageResult<Storage> {
         sqlx::any::install_default_drivers();
         let backend = Backend::from_url(url)?;
@@ -199,6 +200,13 @@ impl Storage {
             writer,
             backend,
         };
+        let filled = calibrations::fill_stress_defaults(&storage).await?;
+        if filled > 0 {
+            tracing::info!(
+                filled,
+                "stress inputs of calibrations stored before filled in"
+            );
+        }
         let converted = order_maps::convert_legacy(&storage).await?;
         if converted > 0 {
             tracing::info!(
