@@ -14,8 +14,8 @@ use std::time::Instant;
 
 use isotint_core::export::{npy_f32, read_npy_f32};
 use isotint_core::render::{
-    develop, effects::encode_mask_png, photographed_beam_table, render_scene, CameraModel, DiscField, LightSource,
-    PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
+    develop, effects::encode_mask_png, photographed_beam_table, render_scene, CameraModel,
+    DiscField, LightSource, PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
 };
 use isotint_core::stress::DiscInCompression;
 use isotint_core::{
@@ -47,7 +47,10 @@ fn main() {
         dir.join("disc-12mp-true-order.npy"),
         dir.join("disc-12mp-mask.png"),
     );
-    if [&photo, &calibration, &truth, &mask].iter().any(|f| !f.exists()) {
+    if [&photo, &calibration, &truth, &mask]
+        .iter()
+        .any(|f| !f.exists())
+    {
         prepare(&photo, &calibration, &truth, &mask);
     }
     let inputs = [&photo, &calibration, &truth].map(|f| f.to_str().unwrap());

@@ -470,33 +470,61 @@ fn last_fringes(
     (0..=steps).map(move |k| table.colour_at(max_order - k as f64 * table.order_step))
 }
 
-/// Replaces the search's ΔE\*ab residual of every valued pixel by the CIEDE2000 between its
-/// corrected colour (floored at the table's black, as in the search) and the table's colour at
-/// its order: the unit every figure for people is given in (`colour.rs`). Rows without a
-/// valued pixel are skipped.
-fn residuals_in_de2000(
-    pass: &mut Pass,
-    photo: &Photo,
-    exposure: &ExposureCorrection,
-    table: &CalibrationTable,
+/// How the solver sees a photo pixel: its linear-light colour after the exposure correction,
+/// in CIELAB (D65), floored at the table's black (`floored_at_black`).
+struct Corrected<'a> {
+    exposure: &'a ExposureCorrection,
     black: Lab,
+    width: u32,
+    height: u32,
+}
+
+impl<'a> Corrected<'a> {
+    /// The view of a `width` × `height` image's pixels under `exposure`.
+    fn new(exposure: &'a ExposureCorrection, black: Lab, width: u32, height: u32) -> Self {
+        Corrected {
+            exposure,
+            black,
+            width,
+            height,
+        }
+    }
+
+    /// The corrected CIELAB colour of linear-light `c` at pixel (x, y).
+    #[inline(always)]
+    fn lab(&self, c: LinSrgb<f32>, x: usize, y: usize) -> Lab {
+        let corrected = self.exposure.apply(c, x, y, self.width, self.height);
+        floored_at_black(lab_from_linear(corrected), self.black)
+    }
+}
+
+/// CIEDE2000 between a pixel's corrected colour and the table's colour at its order: the
+/// residual the finished map gives, in the unit of every figure for people (`colour.rs`).
+#[inline]
+fn residual_de2000(colour: Lab, order: f32, table: &CalibrationTable) -> f32 {
+    ciede2000(colour, table.colour_at(f64::from(order)))
+}
+
+/// Writes [`residual_de2000`] into `residual` for every pixel of `photo` whose `order` has a
+/// value and, if `selected` is given, where it holds; other pixels are left alone.
+fn residuals_in_de2000(
+    residual: &mut [f32],
+    order: &[f32],
+    selected: Option<&[bool]>,
+    photo: &Photo,
+    corrected: &Corrected,
+    table: &CalibrationTable,
 ) {
-    let (width, height) = (photo.width(), photo.height());
-    let w = width as usize;
-    pass.residual
+    let w = photo.width() as usize;
+    residual
         .par_chunks_mut(w)
-        .zip(pass.order.par_chunks(w))
+        .zip(order.par_chunks(w))
         .enumerate()
-        .for_each_init(Vec::new, |linear, (y, (residual, order))| {
-            if !order.iter().any(|o| o.is_finite()) {
-                return;
-            }
-            photo.linear_row(y as u32, linear);
+        .for_each(|(y, (residual, order))| {
             for (x, (r, o)) in residual.iter_mut().zip(order).enumerate() {
-                if o.is_finite() {
-                    let c = exposure.apply(linear[x], x, y, width, height);
-                    let colour = floored_at_black(lab_from_linear(c), black);
-                    *r = ciede2000(colour, table.colour_at(f64::from(*o)));
+                let i = y * w + x;
+                if o.is_finite() && selected.is_none_or(|s| s[i]) {
+                    *r = residual_de2000(corrected.lab(photo.linear(i), x, y), *o, table);
                 }
             }
         });
@@ -695,14 +723,12 @@ impl Working {
     /// CIELAB (D65) of every working pixel after `correction`, floored at `black`.
     fn lab(&self, correction: &ExposureCorrection, black: Lab) -> LabImage {
         let w = self.width as usize;
+        let corrected = Corrected::new(correction, black, self.width, self.height);
         let data = self
             .linear
             .par_iter()
             .enumerate()
-            .map(|(i, c)| {
-                let corrected = correction.apply(*c, i % w, i / w, self.width, self.height);
-                floored_at_black(lab_from_linear(corrected), black)
-            })
+            .map(|(i, c)| corrected.lab(*c, i % w, i / w))
             .collect();
         LabImage {
             width: self.width,
@@ -779,11 +805,13 @@ pub(crate) fn solve(
         working.height as usize,
         working.stride as usize,
     );
-    let mut pass = if working.stride == 1 {
-        pass
+    // CIEDE2000 residuals at the finished orders: on block means they come with the
+    // full-resolution pass (`None` here), at full resolution they are computed below.
+    let (mut pass, de2000) = if working.stride == 1 {
+        (pass, None)
     } else {
         drop(working.linear);
-        refine_full_resolution(
+        let (pass, de2000) = refine_full_resolution(
             photo,
             mask,
             working.stride,
@@ -793,7 +821,8 @@ pub(crate) fn solve(
             max_order,
             options.max_gradient as f32,
             black,
-        )
+        );
+        (pass, Some(de2000))
     };
     flag_edge_band_near_beyond_range(
         &mut pass,
@@ -808,7 +837,26 @@ pub(crate) fn solve(
         flag_valued_unreliable(&mut pass);
     }
     let uncertainty = order_uncertainty(&pass, table, max_order);
-    residuals_in_de2000(&mut pass, photo, &exposure, table, black);
+    // The search's ΔE*ab residuals, which the uncertainty is built on, give way to CIEDE2000
+    // wherever a value is left.
+    let corrected = Corrected::new(&exposure, black, photo.width(), photo.height());
+    match de2000 {
+        Some(de2000) => pass
+            .residual
+            .par_iter_mut()
+            .zip(pass.order.par_iter())
+            .zip(de2000.par_iter())
+            .filter(|((_, o), _)| o.is_finite())
+            .for_each(|((r, _), d)| *r = *d),
+        None => residuals_in_de2000(
+            &mut pass.residual,
+            &pass.order,
+            None,
+            photo,
+            &corrected,
+            table,
+        ),
+    }
     let statistics = MapStatistics {
         ambiguous_colour: ambiguous,
         ..statistics(&pass, max_order)
@@ -830,6 +878,9 @@ pub(crate) fn solve(
 /// of the valued block centres around it; where those blocks differ by more than
 /// [`GENTLE_BLOCK_SPREAD`], or some of them have no value, it searches the table near that
 /// order, within the change the blocks show. Blocks without a value pass their flags on.
+/// Returns the pass, with the search's ΔE\*ab residuals, and the [`residual_de2000`] of each
+/// valued pixel (NaN elsewhere): computed on the colour at hand here, once more only where
+/// the smoothing may have moved the order.
 #[allow(clippy::too_many_arguments)]
 fn refine_full_resolution(
     photo: &Photo,
@@ -841,7 +892,7 @@ fn refine_full_resolution(
     max_order: f64,
     gradient: f32,
     black: Lab,
-) -> Pass {
+) -> (Pass, Vec<f32>) {
     let (w, h) = (photo.width() as usize, photo.height() as usize);
     let s = stride as usize;
     let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
@@ -871,28 +922,31 @@ fn refine_full_resolution(
     // Pixels that searched the table: only they are smoothed afterwards, the interpolated
     // ones being as smooth as the blocks.
     let mut searched = par_filled(n, false);
+    let mut de2000 = par_filled(n, f32::NAN);
     let rows = pass
         .order
         .par_chunks_mut(w)
         .zip(pass.residual.par_chunks_mut(w))
+        .zip(de2000.par_chunks_mut(w))
         .zip(pass.margin.par_chunks_mut(w))
         .zip(pass.flags.par_chunks_mut(w))
         .zip(searched.par_chunks_mut(w))
         .enumerate();
-    let (width, height) = (photo.width(), photo.height());
+    let corrected = Corrected::new(exposure, black, photo.width(), photo.height());
     let scratch = || (Vec::new(), Vec::new(), Vec::new());
     rows.for_each_init(
         scratch,
-        |(linear, colours, distances), (y, ((((order, residual), margin), flags), searched))| {
+        |(linear, colours, distances),
+         (y, (((((order, residual), de2000), margin), flags), searched))| {
             photo.linear_row(y as u32, linear);
             // The whole row first, in one simple loop the compiler can vectorise.
             colours.clear();
-            colours.extend(linear.iter().enumerate().map(|(x, c)| {
-                floored_at_black(
-                    lab_from_linear(exposure.apply(*c, x, y, width, height)),
-                    black,
-                )
-            }));
+            colours.extend(
+                linear
+                    .iter()
+                    .enumerate()
+                    .map(|(x, c)| corrected.lab(*c, x, y)),
+            );
             let (y0, y1, ty) = rows_at[y];
             for x in 0..w {
                 let i = y * w + x;
@@ -941,6 +995,8 @@ fn refine_full_resolution(
                 let predicted = sum / weight;
                 let colour = colours[x];
                 let value = if !partial && hi - lo <= GENTLE_BLOCK_SPREAD {
+                    // Only searched pixels are smoothed: this order is final.
+                    de2000[x] = residual_de2000(colour, predicted, table);
                     predicted
                 } else {
                     let reach = 0.05 + (hi - lo) + if partial { PARTIAL_REACH } else { 0.0 };
@@ -958,6 +1014,75 @@ fn refine_full_resolution(
         },
     );
     smooth(&mut pass, w, h, gradient, Some(&searched));
+    residuals_in_de2000(
+        &mut de2000,
+        &pass.order,
+        Some(&searched),
+        photo,
+        &corrected,
+        table,
+    );
     clear_flagged(&mut pass);
-    pass
+    (pass, de2000)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::{
+        develop, render_scene, DiscField, PhotoEffects, PhotoEncoding, RenderSetup, Renderer,
+    };
+    use crate::stress::DiscInCompression;
+
+    /// A photographed disc (JPEG q90) larger than [`FULL_RESOLUTION_LIMIT`], so that it is
+    /// labelled on block means and refined at full resolution, and its mask.
+    fn large_disc_photo() -> (Photo, Mask) {
+        let (width, height) = (1100, 1000);
+        let renderer = Renderer::new(RenderSetup::default()).unwrap();
+        let field = DiscField::new(
+            PixelPoint { x: 550.0, y: 500.0 },
+            470.0,
+            DiscInCompression::new(40.0, 6.0, 600.0).unwrap(),
+            11.0,
+        )
+        .unwrap();
+        let scene = render_scene(&field, &renderer, width, height, 1).unwrap();
+        let effects = PhotoEffects {
+            blur_sigma_px: 0.8,
+            noise_sigma_codes: 1.0,
+            ..PhotoEffects::default()
+        };
+        let jpeg = develop(&scene.image, &effects, PhotoEncoding::Jpeg { quality: 90 }).unwrap();
+        let photo = Photo::decode(&jpeg, &crate::DecodeLimits::default()).unwrap();
+        (photo, scene.mask)
+    }
+
+    #[test]
+    fn a_large_photos_residuals_are_the_ciede2000_of_each_valued_pixel_at_its_final_order() {
+        let (photo, mask) = large_disc_photo();
+        assert!(u64::from(photo.width()) * u64::from(photo.height()) > FULL_RESOLUTION_LIMIT);
+        let table = daylight_test_table("residual reference");
+        let black = table_black(&table);
+        for mask in [None, Some(&mask)] {
+            let map = solve(&photo, &table, mask, &MapOptions::default()).unwrap();
+            let w = photo.width() as usize;
+            let mut valued = 0;
+            for (i, (o, r)) in map.order.iter().zip(&map.residual).enumerate() {
+                if o.is_nan() {
+                    continue;
+                }
+                valued += 1;
+                // Reference: the definition, straight from the photo's pixel, pixel by pixel
+                // (CIEDE2000 after CIE 142-2001, through palette; the solver's colour view).
+                let (x, y) = (i % w, i / w);
+                let c = map
+                    .exposure
+                    .apply(photo.linear(i), x, y, photo.width(), photo.height());
+                let colour = floored_at_black(lab_from_linear(c), black);
+                let reference = ciede2000(colour, table.colour_at(f64::from(*o)));
+                assert_eq!(r.to_bits(), reference.to_bits(), "pixel ({x}, {y})");
+            }
+            assert!(valued > 500_000, "only {valued} pixels valued");
+        }
+    }
 }
