@@ -939,13 +939,17 @@ fn refine_full_resolution(
         |(linear, colours, distances),
          (y, (((((order, residual), de2000), margin), flags), searched))| {
             photo.linear_row(y as u32, linear);
-            // The whole row first, in one simple loop the compiler can vectorise.
+            // The colours of the row's stretch from its first to its last specimen pixel
+            // first, in one simple loop the compiler can vectorise.
+            let inside = mask.map(|m| &m.as_slice()[y * w..(y + 1) * w]);
+            let start = inside.map_or(0, |m| m.iter().position(|v| *v).unwrap_or(w));
+            let end = inside.map_or(w, |m| m.iter().rposition(|v| *v).map_or(start, |p| p + 1));
             colours.clear();
             colours.extend(
-                linear
+                linear[start..end]
                     .iter()
-                    .enumerate()
-                    .map(|(x, c)| corrected.lab(*c, x, y)),
+                    .zip(start..)
+                    .map(|(c, x)| corrected.lab(*c, x, y)),
             );
             let (y0, y1, ty) = rows_at[y];
             for x in 0..w {
@@ -993,7 +997,7 @@ fn refine_full_resolution(
                     continue;
                 }
                 let predicted = sum / weight;
-                let colour = colours[x];
+                let colour = colours[x - start];
                 let value = if !partial && hi - lo <= GENTLE_BLOCK_SPREAD {
                     // Only searched pixels are smoothed: this order is final.
                     de2000[x] = residual_de2000(colour, predicted, table);
