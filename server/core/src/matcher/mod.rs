@@ -506,11 +506,12 @@ fn residual_de2000(colour: Lab, order: f32, table: &CalibrationTable) -> f32 {
 }
 
 /// Writes [`residual_de2000`] into `residual` for every pixel of `photo` whose `order` has a
-/// value and, if `selected` is given, where it holds; other pixels are left alone.
+/// value; other pixels are left alone. Rows without a valued pixel are skipped. (Computing it
+/// in the full-resolution pass on the colour at hand there was no faster on the 12-MP
+/// benchmark — the formula dominates — and cost a float per pixel more at the peak.)
 fn residuals_in_de2000(
     residual: &mut [f32],
     order: &[f32],
-    selected: Option<&[bool]>,
     photo: &Photo,
     corrected: &Corrected,
     table: &CalibrationTable,
@@ -520,11 +521,14 @@ fn residuals_in_de2000(
         .par_chunks_mut(w)
         .zip(order.par_chunks(w))
         .enumerate()
-        .for_each(|(y, (residual, order))| {
+        .for_each_init(Vec::new, |linear, (y, (residual, order))| {
+            if !order.iter().any(|o| o.is_finite()) {
+                return;
+            }
+            photo.linear_row(y as u32, linear);
             for (x, (r, o)) in residual.iter_mut().zip(order).enumerate() {
-                let i = y * w + x;
-                if o.is_finite() && selected.is_none_or(|s| s[i]) {
-                    *r = residual_de2000(corrected.lab(photo.linear(i), x, y), *o, table);
+                if o.is_finite() {
+                    *r = residual_de2000(corrected.lab(linear[x], x, y), *o, table);
                 }
             }
         });
@@ -805,13 +809,11 @@ pub(crate) fn solve(
         working.height as usize,
         working.stride as usize,
     );
-    // CIEDE2000 residuals at the finished orders: on block means they come with the
-    // full-resolution pass (`None` here), at full resolution they are computed below.
-    let (mut pass, de2000) = if working.stride == 1 {
-        (pass, None)
+    let mut pass = if working.stride == 1 {
+        pass
     } else {
         drop(working.linear);
-        let (pass, de2000) = refine_full_resolution(
+        refine_full_resolution(
             photo,
             mask,
             working.stride,
@@ -821,8 +823,7 @@ pub(crate) fn solve(
             max_order,
             options.max_gradient as f32,
             black,
-        );
-        (pass, Some(de2000))
+        )
     };
     flag_edge_band_near_beyond_range(
         &mut pass,
@@ -840,23 +841,7 @@ pub(crate) fn solve(
     // The search's ΔE*ab residuals, which the uncertainty is built on, give way to CIEDE2000
     // wherever a value is left.
     let corrected = Corrected::new(&exposure, black, photo.width(), photo.height());
-    match de2000 {
-        Some(de2000) => pass
-            .residual
-            .par_iter_mut()
-            .zip(pass.order.par_iter())
-            .zip(de2000.par_iter())
-            .filter(|((_, o), _)| o.is_finite())
-            .for_each(|((r, _), d)| *r = *d),
-        None => residuals_in_de2000(
-            &mut pass.residual,
-            &pass.order,
-            None,
-            photo,
-            &corrected,
-            table,
-        ),
-    }
+    residuals_in_de2000(&mut pass.residual, &pass.order, photo, &corrected, table);
     let statistics = MapStatistics {
         ambiguous_colour: ambiguous,
         ..statistics(&pass, max_order)
@@ -878,9 +863,6 @@ pub(crate) fn solve(
 /// of the valued block centres around it; where those blocks differ by more than
 /// [`GENTLE_BLOCK_SPREAD`], or some of them have no value, it searches the table near that
 /// order, within the change the blocks show. Blocks without a value pass their flags on.
-/// Returns the pass, with the search's ΔE\*ab residuals, and the [`residual_de2000`] of each
-/// valued pixel (NaN elsewhere): computed on the colour at hand here, once more only where
-/// the smoothing may have moved the order.
 #[allow(clippy::too_many_arguments)]
 fn refine_full_resolution(
     photo: &Photo,
@@ -892,7 +874,7 @@ fn refine_full_resolution(
     max_order: f64,
     gradient: f32,
     black: Lab,
-) -> (Pass, Vec<f32>) {
+) -> Pass {
     let (w, h) = (photo.width() as usize, photo.height() as usize);
     let s = stride as usize;
     let (cw, ch) = (w.div_ceil(s), h.div_ceil(s));
@@ -922,12 +904,10 @@ fn refine_full_resolution(
     // Pixels that searched the table: only they are smoothed afterwards, the interpolated
     // ones being as smooth as the blocks.
     let mut searched = par_filled(n, false);
-    let mut de2000 = par_filled(n, f32::NAN);
     let rows = pass
         .order
         .par_chunks_mut(w)
         .zip(pass.residual.par_chunks_mut(w))
-        .zip(de2000.par_chunks_mut(w))
         .zip(pass.margin.par_chunks_mut(w))
         .zip(pass.flags.par_chunks_mut(w))
         .zip(searched.par_chunks_mut(w))
@@ -936,8 +916,7 @@ fn refine_full_resolution(
     let scratch = || (Vec::new(), Vec::new(), Vec::new());
     rows.for_each_init(
         scratch,
-        |(linear, colours, distances),
-         (y, (((((order, residual), de2000), margin), flags), searched))| {
+        |(linear, colours, distances), (y, ((((order, residual), margin), flags), searched))| {
             photo.linear_row(y as u32, linear);
             // The colours of the row's stretch from its first to its last specimen pixel
             // first, in one simple loop the compiler can vectorise.
@@ -999,8 +978,6 @@ fn refine_full_resolution(
                 let predicted = sum / weight;
                 let colour = colours[x - start];
                 let value = if !partial && hi - lo <= GENTLE_BLOCK_SPREAD {
-                    // Only searched pixels are smoothed: this order is final.
-                    de2000[x] = residual_de2000(colour, predicted, table);
                     predicted
                 } else {
                     let reach = 0.05 + (hi - lo) + if partial { PARTIAL_REACH } else { 0.0 };
@@ -1018,16 +995,8 @@ fn refine_full_resolution(
         },
     );
     smooth(&mut pass, w, h, gradient, Some(&searched));
-    residuals_in_de2000(
-        &mut de2000,
-        &pass.order,
-        Some(&searched),
-        photo,
-        &corrected,
-        table,
-    );
     clear_flagged(&mut pass);
-    (pass, de2000)
+    pass
 }
 
 #[cfg(test)]
