@@ -504,10 +504,10 @@ pub fn delta_e_ab(a: Lab, b: Lab) -> f32 {
 /// angles themselves: the hue difference ΔH' from the chroma vectors' dot and cross
 /// products, the mean hue's cosine and sine from the bisector of their directions, and the
 /// four cosines of T from those by multiple-angle identities — at most one arctangent
-/// instead of palette's two and one sine instead of its four cosines. Agrees with palette's formula to
-/// 1e-4, or 1e-5 of the difference above 10 (a test compares them); where the two hues are
-/// within 6° of opposite, where the mean hue is nearly a matter of convention, palette's
-/// formula is used.
+/// instead of palette's two and one sine instead of its four cosines. Agrees with palette's
+/// formula to 1e-4, or 1e-5 of the difference above 10 (a test compares them); within 6° of
+/// opposite hues, where the mean hue is nearly a matter of convention, palette's formula is
+/// used.
 pub fn ciede2000(a: Lab, b: Lab) -> f32 {
     const TWENTY_FIVE_POW_SEVEN: f32 = 6_103_515_625.0;
     let (l1, a1, b1) = (a.l, a.a, a.b);
@@ -558,10 +558,7 @@ pub fn ciede2000(a: Lab, b: Lab) -> f32 {
     let delta_theta = if from_blue_cos < 85f32.to_radians().cos() {
         0.0
     } else {
-        let off = (from_blue_sin as f32)
-            .atan2(from_blue_cos as f32)
-            .to_degrees()
-            / 25.0;
+        let off = from_blue_sin.atan2(from_blue_cos).to_degrees() / 25.0;
         30.0 * (-off * off).exp()
     };
     // cos and sin of 2h̄', 3h̄' and 4h̄'.
@@ -591,7 +588,7 @@ pub fn ciede2000(a: Lab, b: Lab) -> f32 {
     let (dl, dc, dh) = ((l2 - l1) / s_l, (c2 - c1) / s_c, delta_h / s_h);
     (dl * dl + dc * dc + dh * dh + r_t * dc * dh)
         .max(0.0)
-        .sqrt() as f32
+        .sqrt()
 }
 
 #[cfg(test)]
