@@ -2,9 +2,11 @@
 //! README quotes. Run with `cargo bench -p isotint-core --bench order_map_speed`.
 //!
 //! The first stage renders the photos (a 4000 × 3000 disc photographed as JPEG quality 90,
-//! and a calibration beam) into `target/bench-data/`; the measurement then runs in a child
-//! process limited to two rayon threads, so that its peak resident memory (VmHWM) counts
-//! nothing but reading the JPEG and mapping it.
+//! the disc's mask as a PNG, and a calibration beam) into `target/bench-data/`; each
+//! measurement then runs in a child process limited to two rayon threads, so that its peak
+//! resident memory (VmHWM) counts nothing but reading the inputs and mapping them. Two lines
+//! are printed: the photo mapped whole (no mask), then with the mask of the disc, decoded
+//! from its PNG inside the timed run, as a user would give it.
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -12,8 +14,8 @@ use std::time::Instant;
 
 use isotint_core::export::{npy_f32, read_npy_f32};
 use isotint_core::render::{
-    develop, photographed_beam_table, render_scene, CameraModel, DiscField, LightSource,
-    PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
+    develop, effects::encode_mask_png, photographed_beam_table, render_scene, CameraModel,
+    DiscField, LightSource, PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
 };
 use isotint_core::stress::DiscInCompression;
 use isotint_core::{
@@ -28,37 +30,43 @@ const RUNS: usize = 3;
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--measure") {
+        let mask = args.get(i + 4).map(Path::new);
         measure(
             Path::new(&args[i + 1]),
             Path::new(&args[i + 2]),
             Path::new(&args[i + 3]),
+            mask,
         );
         return;
     }
     let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../target/bench-data");
     std::fs::create_dir_all(&dir).expect("bench-data folder");
-    let (photo, calibration, truth) = (
+    let (photo, calibration, truth, mask) = (
         dir.join("disc-12mp.jpg"),
         dir.join("bench-calibration.json"),
         dir.join("disc-12mp-true-order.npy"),
+        dir.join("disc-12mp-mask.png"),
     );
-    if !photo.exists() || !calibration.exists() || !truth.exists() {
-        prepare(&photo, &calibration, &truth);
+    if [&photo, &calibration, &truth, &mask]
+        .iter()
+        .any(|f| !f.exists())
+    {
+        prepare(&photo, &calibration, &truth, &mask);
     }
-    let status = Command::new(std::env::current_exe().expect("own path"))
-        .args([
-            "--measure",
-            photo.to_str().unwrap(),
-            calibration.to_str().unwrap(),
-            truth.to_str().unwrap(),
-        ])
-        .env("RAYON_NUM_THREADS", "2")
-        .status()
-        .expect("child run");
-    assert!(status.success());
+    let inputs = [&photo, &calibration, &truth].map(|f| f.to_str().unwrap());
+    for masked in [None, Some(mask.to_str().unwrap())] {
+        let status = Command::new(std::env::current_exe().expect("own path"))
+            .arg("--measure")
+            .args(inputs)
+            .args(masked)
+            .env("RAYON_NUM_THREADS", "2")
+            .status()
+            .expect("child run");
+        assert!(status.success());
+    }
 }
 
-fn prepare(photo: &Path, calibration: &Path, truth: &Path) {
+fn prepare(photo: &Path, calibration: &Path, truth: &Path, mask: &Path) {
     let setup = RenderSetup {
         light: LightSource::Halogen,
         camera: CameraModel::Sensor,
@@ -105,10 +113,14 @@ fn prepare(photo: &Path, calibration: &Path, truth: &Path) {
         npy_f32(&scene.true_order, HEIGHT as usize, WIDTH as usize),
     )
     .unwrap();
+    std::fs::write(mask, encode_mask_png(&scene.mask).unwrap()).unwrap();
 }
 
-fn measure(photo: &Path, calibration: &Path, truth: &Path) {
+/// Times `RUNS` maps of `photo` (with the mask PNG at `mask`, if given, decoded in each run)
+/// and prints one line of figures.
+fn measure(photo: &Path, calibration: &Path, truth: &Path, mask: Option<&Path>) {
     let bytes = std::fs::read(photo).unwrap();
+    let mask_bytes = mask.map(|m| std::fs::read(m).unwrap());
     let table = CalibrationTable::from_json(&std::fs::read(calibration).unwrap()).unwrap();
     let mut times = Vec::new();
     let mut last = None;
@@ -116,7 +128,10 @@ fn measure(photo: &Path, calibration: &Path, truth: &Path) {
         drop(last.take());
         let start = Instant::now();
         let decoded = Photo::decode(&bytes, &DecodeLimits::default()).unwrap();
-        let map = map_orders(&decoded, &table, None, &MapOptions::default()).unwrap();
+        let mask = mask_bytes
+            .as_ref()
+            .map(|m| Mask::decode(m, &DecodeLimits::default()).unwrap());
+        let map = map_orders(&decoded, &table, mask.as_ref(), &MapOptions::default()).unwrap();
         times.push(start.elapsed().as_secs_f64());
         last = Some(map);
     }
@@ -128,8 +143,8 @@ fn measure(photo: &Path, calibration: &Path, truth: &Path) {
                 .map(|l| l.split_whitespace().nth(1).unwrap().parse().unwrap())
         })
         .unwrap_or(f64::NAN);
-    // Accuracy of the last run inside the disc, where the true order is ≤ 4 (no mask is given
-    // to the solver: the black background is mapped too, and left out of the score here).
+    // Accuracy of the last run inside the disc, where the true order is ≤ 4 (without a mask
+    // the black background is mapped too, and left out of the score here).
     let map = last.expect("at least one run");
     let (_, _, true_order) = read_npy_f32(&std::fs::read(truth).unwrap()).unwrap();
     // Scored ≥ 3 px inside the disc, as in the accuracy suite.
@@ -163,8 +178,13 @@ fn measure(photo: &Path, calibration: &Path, truth: &Path) {
     let pixels = f64::from(WIDTH) * f64::from(HEIGHT);
 
     println!(
-        "order map of a {WIDTH}×{HEIGHT} JPEG ({:.1} MB), {} rayon threads: best {:.2} s, median {:.2} s over {RUNS} runs; peak RSS {:.0} MiB = {:.1} bytes/pixel; where N ≤ 4: MAE {:.4}, off > 0.5 {:.3} %, coverage {:.2} %; more than 0.5 past the table: {:.2} % of {past} px valued",
+        "order map of a {WIDTH}×{HEIGHT} JPEG ({:.1} MB), {}, {} rayon threads: best {:.2} s, median {:.2} s over {RUNS} runs; peak RSS {:.0} MiB = {:.1} bytes/pixel; where N ≤ 4: MAE {:.4}, off > 0.5 {:.3} %, coverage {:.2} %; more than 0.5 past the table: {:.2} % of {past} px valued",
         bytes.len() as f64 / 1e6,
+        if mask.is_some() {
+            "with the disc's mask"
+        } else {
+            "no mask"
+        },
         rayon::current_num_threads(),
         times[0],
         times[RUNS / 2],
