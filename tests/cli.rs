@@ -1950,6 +1950,14 @@ fn compare_without_a_mask_compares_the_specimen_found_and_says_so() {
         printed.contains("mask                found from the photo"),
         "{printed}"
     );
+    // The text gives the largest difference's place in the model's millimetres too, as the
+    // JSON does.
+    let in_model = format!(
+        "= ({:.2}, {:.2}) mm in the model",
+        v["max_x_mm"].as_f64().unwrap(),
+        v["max_y_mm"].as_f64().unwrap()
+    );
+    assert!(printed.contains(&in_model), "{in_model} in {printed}");
 }
 
 #[test]

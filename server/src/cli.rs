@@ -1505,7 +1505,7 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
     println!(
         "  compared pixels     {} of {} specimen pixels ({:.1} % inside the model)
            measured − predicted mean {:+.3}, mean |Δ| {:.3}, rms {:.3} MPa
-           max |Δ|             {} at ({:.1}, {:.1})
+           max |Δ|             {} at ({:.1}, {:.1}) px = ({:.2}, {:.2}) mm in the model
            registration        {:?} from {} pairs, rms {:.3} mm, {:.4} mm/px{}
            stress caution      {}",
         result.compared_pixels,
@@ -1521,6 +1521,8 @@ fn compare_prediction(args: &CompareArgs) -> anyhow::Result<()> {
         ),
         result.max_x,
         result.max_y,
+        result.max_x_mm,
+        result.max_y_mm,
         result.registration.kind,
         result.registration.pairs,
         result.registration.rms_mm,

@@ -1093,13 +1093,12 @@ export class AnalysisPage {
       if (this.result?.id !== id) return;
       const npy = parseNpy(bytes);
       const reg = c.registration;
-      const mm = this.mmPerPx();
       fillDl($('an-compare-stats'), [
         ['Pixels compared', `${c.compared_pixels.toLocaleString()} (${fmt(100 * c.model_coverage, 1)} % of the specimen inside the model)`],
         ['Mean |measured − predicted|', `${fmt(c.mean_abs_difference_mpa, 3)} MPa`],
         ['Rms difference', `${fmt(c.rms_difference_mpa, 3)} MPa`],
         ['Mean difference (bias)', `${fmt(c.mean_difference_mpa, 3)} MPa`],
-        ['Largest |difference|', `${maximum(c.max_abs_difference_mpa, 3, 'MPa', c.max_is_lower_bound)} at (${fmt(c.max_x, 1)}, ${fmt(c.max_y, 1)}) px${mm ? ` = (${fmt(c.max_x * mm, 2)}, ${fmt(c.max_y * mm, 2)}) mm` : ''}`],
+        ['Largest |difference|', `${maximum(c.max_abs_difference_mpa, 3, 'MPa', c.max_is_lower_bound)} at (${fmt(c.max_x, 1)}, ${fmt(c.max_y, 1)}) px = (${fmt(c.max_x_mm, 2)}, ${fmt(c.max_y_mm, 2)}) mm in the model`],
         ['Difference layer', 'blue: the photo reads lower than the prediction, red: higher; grey: outside the model'],
         ['Registration', `${reg.kind} from ${reg.pairs} pairs, rms ${fmt(reg.rms_mm, 3)} mm, ${fmt(reg.mm_per_px, 5)} mm per pixel${reg.mirrored ? ', mirrored (model y up)' : ''}`],
         ['Caution', `${c.caution}.`],

@@ -407,6 +407,8 @@ async function main(browser) {
     const centreStress = (8 * disc.field.disc.load_n) / (Math.PI * diameterMm * scenario.thickness_mm);
     check(meanAbs < 0.02 * centreStress, `mean |Δ| ${meanAbs} MPa against a centre stress of ${centreStress}`);
     check(/^affine from 3 pairs/.test(registration) && /mirrored/.test(registration), `registration: ${registration}`);
+    const largest = await described(page, '#an-compare-stats', 'Largest |difference|');
+    check(/px = \(−?[\d.]+, −?[\d.]+\) mm in the model$/.test(largest), `largest difference: ${largest}`);
     await page.locator('#an-legend-caption', { hasText: 'Measured − predicted (MPa)' }).waitFor();
     check(await an.locator('input[name="an-layer"][value="difference"]').isChecked(), 'the difference layer is not shown');
     await shot(page, '7-comparison');

@@ -487,10 +487,12 @@ pub const SERIES_FIELDS: [&str; 4] = [
 ];
 
 /// The fields a comparison answers at least (the contract).
-pub const COMPARISON_FIELDS: [&str; 4] = [
+pub const COMPARISON_FIELDS: [&str; 6] = [
     "mean_abs_difference_mpa",
     "rms_difference_mpa",
     "max_abs_difference_mpa",
+    "max_x_mm",
+    "max_y_mm",
     "compared_pixels",
 ];
 

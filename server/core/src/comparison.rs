@@ -383,6 +383,11 @@ pub struct Comparison {
     pub max_x: f64,
     /// See `max_x`.
     pub max_y: f64,
+    /// The model point shown there, mm, in the prediction's coordinates (through the
+    /// registration).
+    pub max_x_mm: f64,
+    /// See `max_x_mm`.
+    pub max_y_mm: f64,
     /// Mean measured − predicted (positive: the photo reads higher), MPa.
     pub mean_difference_mpa: f64,
     /// Specimen pixels with a measured value inside the model: those compared.
@@ -518,12 +523,15 @@ pub fn compare(
         ));
     }
     let n = sums.compared as f64;
+    let [max_x_mm, max_y_mm] = registration.model_of(sums.max.1, sums.max.2);
     Ok(Comparison {
         mean_abs_difference_mpa: sums.abs / n,
         rms_difference_mpa: (sums.sq / n).sqrt(),
         max_abs_difference_mpa: sums.max.0,
         max_x: sums.max.1,
         max_y: sums.max.2,
+        max_x_mm,
+        max_y_mm,
         mean_difference_mpa: sums.signed / n,
         compared_pixels: sums.compared,
         specimen_pixels: sums.specimen,

@@ -171,6 +171,18 @@ fn a_deliberately_shifted_registration_gives_a_clearly_larger_difference() {
     );
     let npx = good.difference.iter().filter(|d| d.is_finite()).count();
     assert_eq!(npx, good.compared_pixels);
+    // The largest difference is also placed in the model: the pairs put the disc's centre at
+    // the model's origin with its y axis up, radius_mm / radius_px mm per pixel.
+    let mm_per_px = 0.5 * field.disc.diameter_mm / field.radius_px;
+    let expected = (
+        (good.max_x - field.centre.x) * mm_per_px,
+        (field.centre.y - good.max_y) * mm_per_px,
+    );
+    assert!(
+        (good.max_x_mm - expected.0).abs() < 1e-6 && (good.max_y_mm - expected.1).abs() < 1e-6,
+        "{:?} against {expected:?}",
+        (good.max_x_mm, good.max_y_mm)
+    );
 
     // A registration that puts the model far from the specimen is refused naming the pairs.
     match compare(
