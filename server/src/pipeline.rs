@@ -6,7 +6,7 @@ use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
 use isotint_core::export;
 use isotint_core::report::{report_pdf, ReportInputs};
 use isotint_core::series::{map_series, LoadSeries, SeriesSpec};
-use isotint_core::specimen::{find_specimen, MaskSource, MaskUsed};
+use isotint_core::specimen::{find_specimen, find_specimen_with_light_field, MaskSource, MaskUsed};
 use isotint_core::{
     CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo,
 };
@@ -29,6 +29,10 @@ pub enum MaskChoice<'a> {
     /// The specimen found from the photo (`specimen::find_specimen`); the whole photo when
     /// nothing is found.
     Find,
+    /// The specimen found from the photo helped by this light-field photo of the same set-up
+    /// (`specimen::find_specimen_with_light_field`; any format the photo decoder reads, the
+    /// photo's size); the whole photo when nothing is found.
+    FindWithLightField(&'a [u8]),
     /// Every pixel.
     WholePhoto,
 }
@@ -46,6 +50,19 @@ pub fn choose_mask(
             Some(found) => (MaskSource::Found, Some(found)),
             None => (MaskSource::WholePhoto, None),
         },
+        MaskChoice::FindWithLightField(bytes) => {
+            let light = Photo::decode(bytes, limits).map_err(|e| match e {
+                CoreError::Decode(message) => CoreError::invalid(
+                    "light_field_photo",
+                    format!("could not be decoded: {message}"),
+                ),
+                other => other,
+            })?;
+            match find_specimen_with_light_field(photo, &light)? {
+                Some(found) => (MaskSource::FoundWithLightField, Some(found)),
+                None => (MaskSource::WholePhoto, None),
+            }
+        }
         MaskChoice::WholePhoto => (MaskSource::WholePhoto, None),
     })
 }

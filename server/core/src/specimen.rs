@@ -43,6 +43,8 @@ pub enum MaskSource {
     Given,
     /// Found from the photo by [`find_specimen`].
     Found,
+    /// Found from the photo helped by a light-field photo ([`find_specimen_with_light_field`]).
+    FoundWithLightField,
     /// The whole photo: asked for, or nothing was found (a photo dark everywhere).
     WholePhoto,
 }
@@ -53,6 +55,7 @@ impl MaskSource {
         match self {
             MaskSource::Given => "given",
             MaskSource::Found => "found from the photo",
+            MaskSource::FoundWithLightField => "found from the photo and its light-field photo",
             MaskSource::WholePhoto => "whole photo",
         }
     }
