@@ -154,7 +154,19 @@ pub const JOB_BYTES_PER_PIXEL: u64 = 32;
 /// is decoded), bytes: [`JOB_BYTES_PER_PIXEL`] per pixel plus the request's `request_bytes`.
 /// A header that cannot be read, or a size past `limits`, is refused as the decoder would.
 pub fn job_memory(photo: &[u8], request_bytes: usize, limits: &DecodeLimits) -> CoreResult<u64> {
-    Ok(photo_pixels(photo, limits)? * JOB_BYTES_PER_PIXEL + request_bytes as u64)
+    Ok(photo_pixels(photo, limits, "photo")? * JOB_BYTES_PER_PIXEL + request_bytes as u64)
+}
+
+/// What a light-field photo adds to a map job, bytes a pixel: its decoded samples (up to 6)
+/// and `specimen::find_specimen_with_light_field`'s flags and work queue (7 + 4), rounded up;
+/// counted, not measured.
+pub const LIGHT_FIELD_BYTES_PER_PIXEL: u64 = 24;
+
+/// The memory a light-field photo adds to a map job, bytes ([`LIGHT_FIELD_BYTES_PER_PIXEL`] a
+/// pixel), from its header alone; a header that cannot be read, or a size past `limits`, is
+/// refused naming `light_field_photo`.
+pub fn light_field_memory(light: &[u8], limits: &DecodeLimits) -> CoreResult<u64> {
+    Ok(photo_pixels(light, limits, "light_field_photo")? * LIGHT_FIELD_BYTES_PER_PIXEL)
 }
 
 /// The memory a load series of `photos` photos the size of `first` will take, bytes: the
@@ -168,11 +180,11 @@ pub fn series_memory(
     limits: &DecodeLimits,
 ) -> CoreResult<u64> {
     let per_pixel = JOB_BYTES_PER_PIXEL + (photos * std::mem::size_of::<f32>()) as u64;
-    Ok(photo_pixels(first, limits)? * per_pixel + request_bytes as u64)
+    Ok(photo_pixels(first, limits, "photo")? * per_pixel + request_bytes as u64)
 }
 
-/// Pixels of `photo`, from its header alone.
-fn photo_pixels(photo: &[u8], limits: &DecodeLimits) -> CoreResult<u64> {
-    let (width, height) = isotint_core::colour::image_size(photo, limits, "photo")?;
+/// Pixels of `photo`, from its header alone; errors name `field`.
+fn photo_pixels(photo: &[u8], limits: &DecodeLimits, field: &'static str) -> CoreResult<u64> {
+    let (width, height) = isotint_core::colour::image_size(photo, limits, field)?;
     Ok(u64::from(width) * u64::from(height))
 }
