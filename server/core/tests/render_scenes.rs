@@ -423,6 +423,7 @@ fn the_demo_scenario_ships_photos_masks_true_orders_and_a_description() {
         "disc.png",
         "disc-mask.png",
         "disc-prediction.csv",
+        "disc-light-field.png",
         "plate-hole.png",
         "plate-hole-mask.png",
         "scenario.json",
@@ -442,6 +443,9 @@ fn the_demo_scenario_ships_photos_masks_true_orders_and_a_description() {
             .bit_depth(),
         16
     );
+    // The light-field photo is taken from the same place: the disc photo's size.
+    let light = Photo::decode(file("disc-light-field.png"), &limits).unwrap();
+    assert_eq!((light.width(), light.height()), (600, 600));
     let zone = demo.description.beam.constant_moment_zone;
     assert_eq!((zone.width(), zone.height()), (440.0, 240.0));
     assert_eq!(demo.description.beam.field.edge_order, 4.5);
