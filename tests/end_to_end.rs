@@ -494,6 +494,18 @@ async fn a_light_field_photo_brings_back_the_discs_stress_free_rim_and_the_map_s
     );
     let stored = get(&svc.app, helped["links"]["self"].as_str().unwrap()).await;
     assert_eq!(stored.json()["mask"], helped["mask"]);
+    // The description lists the part: an optional file beside the photo.
+    let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
+    let schema = &doc["components"]["schemas"]["MapForm"];
+    let part = &schema["properties"]["light_field_photo"];
+    assert_eq!(part["format"], "binary", "{part}");
+    assert!(
+        !schema["required"]
+            .as_array()
+            .unwrap()
+            .contains(&json!("light_field_photo")),
+        "{schema}"
+    );
 
     // Beside a mask or the whole photo it is refused, naming it; so is another size.
     let other_size = disc_photo_at(700.0, 340).png;
