@@ -150,7 +150,8 @@ pub const LIT_SHARE: f32 = 0.5;
 /// the light-field background's level, the median over those border pixels) stay background,
 /// the rest lies inside the outline. The dark-field specimen is grown into those pixels that
 /// touch it (all of them when the dark-field photo shows no specimen: an unloaded model).
-/// Pixel conventions as [`find_specimen`]; the light-field photo's brightness is read in
+/// A light-field photo whose background is no brighter than [`BACKGROUND_CEILING_CODES`] is
+/// refused (field `light_field_photo`). Pixel conventions as [`find_specimen`]; the light-field photo's brightness is read in
 /// linear light.
 pub fn find_specimen_with_light_field(dark: &Photo, light: &Photo) -> CoreResult<Option<Mask>> {
     if (light.width(), light.height()) != (dark.width(), dark.height()) {
@@ -186,7 +187,21 @@ pub fn find_specimen_with_light_field(dark: &Photo, light: &Photo) -> CoreResult
         return Ok(found);
     }
     levels.sort_by(f32::total_cmp);
-    let lit_limit = LIT_SHARE * levels[levels.len() / 2];
+    let level = levels[levels.len() / 2];
+    // A dark background is no light field (a second dark-field photo, say): its noise would
+    // pass for an outline.
+    if encoded_codes(level) < BACKGROUND_CEILING_CODES {
+        return Err(CoreError::invalid(
+            "light_field_photo",
+            format!(
+                "its background is dark (8-bit code {:.0} of the brightest channel, below {}): \
+                 take it with the analyser turned 90° from the dark-field photo's",
+                encoded_codes(level),
+                BACKGROUND_CEILING_CODES
+            ),
+        ));
+    }
+    let lit_limit = LIT_SHARE * level;
     let mut open = vec![false; w * h];
     let mut row = Vec::new();
     for y in 0..h {
@@ -581,6 +596,24 @@ mod tests {
         let inside = mask.as_slice().iter().filter(|v| **v).count();
         assert_eq!(inside, 10 * 8);
         assert!(mask.contains(5, 4) && mask.contains(14, 11) && !mask.contains(4, 4));
+    }
+
+    #[test]
+    fn a_second_dark_field_photo_given_as_the_light_field_one_is_refused() {
+        let dark = drawn(30, 17, |x, y| {
+            if within(x, y, (11, 5, 19, 12)) {
+                'o'
+            } else {
+                '.'
+            }
+        });
+        let refused = find_specimen_with_light_field(&dark, &dark)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            refused.contains("light_field_photo") && refused.contains("background is dark"),
+            "{refused}"
+        );
     }
 
     #[test]
