@@ -2094,3 +2094,143 @@ fn a_calibration_made_with_the_beams_load_fills_in_the_fringe_value_and_thicknes
     let per_fringe = format!("({:.4} MPa per fringe)", closed_form / 6.0);
     assert!(printed.contains(&per_fringe), "{per_fringe} in {printed}");
 }
+
+/// A beam in four-point bending (x 20–280, y 30–90 of a 300 × 120 photo; supports at x = 60
+/// and 240, so its ends are zero order), photographed in dark field and in light field, with
+/// the calibration of the same light and camera; written to `dir`. Answers the three paths.
+fn beam_in_both_fields(dir: &Path) -> (PathBuf, PathBuf, PathBuf) {
+    use isotint_core::calibration::CalibrationMetadata;
+    use isotint_core::geometry::PixelRect;
+    use isotint_core::render::{
+        develop, render_light_field, render_scene, rendered_table, BendingBeamField, PhotoEffects,
+        PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
+    };
+    let beam = BendingBeamField::new(
+        PixelRect::new(20.0, 30.0, 280.0, 90.0).unwrap(),
+        (60.0, 240.0),
+        (120.0, 180.0),
+        1.5,
+    )
+    .unwrap();
+    let renderer = Renderer::new(RenderSetup::default()).unwrap();
+    let fx = PhotoEffects {
+        blur_sigma_px: 0.7,
+        ..PhotoEffects::default()
+    };
+    let dark = render_scene(&beam, &renderer, 300, 120, 2).unwrap().image;
+    let light = render_light_field(&beam, &renderer, 300, 120, 2).unwrap();
+    let paths = (
+        dir.join("beam-dark.png"),
+        dir.join("beam-light.png"),
+        dir.join("beam-calibration.json"),
+    );
+    std::fs::write(&paths.0, develop(&dark, &fx, PhotoEncoding::Png8).unwrap()).unwrap();
+    std::fs::write(&paths.1, develop(&light, &fx, PhotoEncoding::Png8).unwrap()).unwrap();
+    let table = rendered_table(
+        LightSource::Daylight,
+        CameraModel::Colorimetric,
+        QuarterWavePlates::Ideal,
+        3.0,
+        0.01,
+        CalibrationMetadata {
+            name: "bench beam, daylight".into(),
+            ..CalibrationMetadata::default()
+        },
+    )
+    .unwrap();
+    std::fs::write(&paths.2, table.to_json()).unwrap();
+    paths
+}
+
+#[test]
+fn map_with_a_light_field_photo_keeps_the_beams_zero_order_ends_and_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    let (dark, light, calibration) = beam_in_both_fields(dir.path());
+    let (dark, light, calibration) = (
+        dark.to_str().unwrap(),
+        light.to_str().unwrap(),
+        calibration.to_str().unwrap(),
+    );
+    let out = dir.path().join("orders.npy");
+    let out = out.to_str().unwrap();
+    let map = |extra: &[&str]| {
+        let mut args = vec![
+            "map",
+            "--calibration",
+            calibration,
+            "--photo",
+            dark,
+            "--out",
+            out,
+        ];
+        args.extend_from_slice(extra);
+        isotint(&args)
+    };
+    // Pixel (40, 60): the middle of the left end, 20 px from the beam's end and its support.
+    let value_at_left_end = || {
+        let (_, cols, orders) = read_npy_f32(&std::fs::read(out).unwrap()).unwrap();
+        orders[60 * cols + 40]
+    };
+
+    let printed = ok(map(&[]));
+    let (alone, line) = mask_line(&printed);
+    assert!(line.contains("found from the photo,"), "{line}");
+    assert!(printed.contains("--light-field-photo FILE"), "{printed}");
+    assert!(
+        value_at_left_end().is_nan(),
+        "the dark field alone cuts the end away"
+    );
+
+    let printed = ok(map(&["--light-field-photo", light]));
+    let (helped, line) = mask_line(&printed);
+    assert!(
+        line.contains("found from the photo and its light-field photo"),
+        "{line}"
+    );
+    // The beam is 260 × 60 px of 300 × 120: 43.3 % of the photo (its geometry above).
+    assert!((helped - 260.0 * 60.0 / 36_000.0).abs() < 0.01, "{line}");
+    assert!(helped > alone + 0.05, "{helped} against {alone}");
+    // common practice, no source: an unloaded zone reads as order 0.
+    let end = value_at_left_end();
+    assert!(end.abs() < 0.1, "the left end reads {end}");
+
+    for (flag, value) in [("--mask", light), ("--whole-photo", "")] {
+        let mut extra = vec!["--light-field-photo", light, flag];
+        if !value.is_empty() {
+            extra.push(value);
+        }
+        let stderr = refused(&map(&extra), format!("{flag} was taken"));
+        assert!(
+            stderr.contains("--light-field-photo") && stderr.contains(flag),
+            "{stderr}"
+        );
+    }
+    // Never written over, and never of another size than the photo.
+    let stderr = refused(
+        &isotint(&[
+            "map",
+            "--calibration",
+            calibration,
+            "--photo",
+            dark,
+            "--light-field-photo",
+            light,
+            "--out",
+            light,
+        ]),
+        "the light-field photo was overwritten",
+    );
+    assert!(
+        stderr.contains("--light-field-photo file; refusing to overwrite"),
+        "{stderr}"
+    );
+    let other_size = path("plate-hole.png");
+    let stderr = refused(
+        &map(&["--light-field-photo", &other_size]),
+        "a light-field photo of another size was taken",
+    );
+    assert!(
+        stderr.contains("--light-field-photo") && stderr.contains("pixels, the photo 300×120"),
+        "{stderr}"
+    );
+}

@@ -7,8 +7,8 @@ use std::time::Duration;
 
 use axum::http::StatusCode;
 use common::{
-    beam_photo, disc_photo, get, import_id, region_json, service, service_with, table, Form,
-    RenderedPhoto, Reply, BEAM_EDGE_ORDER,
+    beam_photo, disc_light_field_png, disc_photo, disc_photo_at, get, import_id, region_json,
+    service, service_with, table, Form, RenderedPhoto, Reply, BEAM_EDGE_ORDER,
 };
 use isotint::config::ServiceConfig;
 use isotint_core::export::read_npy_f32;
@@ -444,6 +444,85 @@ async fn without_a_mask_the_service_maps_the_specimen_found_from_the_photo_and_s
         assert_eq!(refused.status, StatusCode::UNPROCESSABLE_ENTITY);
         assert!(
             refused.error_message().contains("mask_source"),
+            "{}",
+            refused.error_message()
+        );
+    }
+}
+
+#[tokio::test]
+async fn a_light_field_photo_brings_back_the_discs_stress_free_rim_and_the_map_says_so() {
+    let svc = service().await;
+    let id = import_id(&svc.app, &table("Rendered strip")).await;
+    let disc = disc_photo();
+    let light = disc_light_field_png();
+    let form = || {
+        Form::new()
+            .file("photo", "disc.png", "image/png", disc.png.clone())
+            .text("calibration", &id)
+    };
+    // source: the renderer's own mask of the disc (its true specimen).
+    let truth = Mask::decode(&disc.mask_png, &Default::default()).unwrap();
+    let inside = truth.as_slice().iter().filter(|v| **v).count();
+    let true_share = inside as f64 / truth.as_slice().len() as f64;
+    let alone = created(&form().post(&svc.app, "/api/v1/order-maps").await);
+    let helped = created(
+        &form()
+            .file(
+                "light_field_photo",
+                "disc-light.png",
+                "image/png",
+                light.clone(),
+            )
+            .post(&svc.app, "/api/v1/order-maps")
+            .await,
+    );
+    assert_eq!(
+        helped["mask"]["source"], "found_with_light_field",
+        "{helped}"
+    );
+    let (before, after) = (
+        alone["mask"]["specimen_share"].as_f64().unwrap(),
+        helped["mask"]["specimen_share"].as_f64().unwrap(),
+    );
+    // The disc's rim is zero order (stress-free): the photo alone loses it, the outline in
+    // light field keeps it; within a pixel's ring of the true disc (2π·160 px ≈ 1000 px).
+    assert!(before < after, "{before} then {after}");
+    assert!(
+        (after - true_share).abs() * f64::from(disc.width * disc.height) < 1100.0,
+        "found {after}, the disc covers {true_share}"
+    );
+    let stored = get(&svc.app, helped["links"]["self"].as_str().unwrap()).await;
+    assert_eq!(stored.json()["mask"], helped["mask"]);
+    // The description lists the part: an optional file beside the photo.
+    let doc = get(&svc.app, "/api/v1/openapi.json").await.json();
+    let schema = &doc["components"]["schemas"]["MapForm"];
+    let part = &schema["properties"]["light_field_photo"];
+    assert_eq!(part["format"], "binary", "{part}");
+    assert!(
+        !schema["required"]
+            .as_array()
+            .unwrap()
+            .contains(&json!("light_field_photo")),
+        "{schema}"
+    );
+
+    // Beside a mask or the whole photo it is refused, naming it; so is another size.
+    let other_size = disc_photo_at(700.0, 340).png;
+    for refused_form in [
+        disc_form(&id, &disc).file("light_field_photo", "l.png", "image/png", light.clone()),
+        form().text("mask_source", "whole_photo").file(
+            "light_field_photo",
+            "l.png",
+            "image/png",
+            light.clone(),
+        ),
+        form().file("light_field_photo", "l.png", "image/png", other_size),
+    ] {
+        let refused = refused_form.post(&svc.app, "/api/v1/order-maps").await;
+        assert_eq!(refused.status, StatusCode::UNPROCESSABLE_ENTITY);
+        assert!(
+            refused.error_message().contains("light_field_photo"),
             "{}",
             refused.error_message()
         );

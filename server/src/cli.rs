@@ -544,6 +544,11 @@ pub struct MapArgs {
     /// Map every pixel of the photo instead of the specimen found from it.
     #[arg(long)]
     pub whole_photo: bool,
+    /// A light-field photo of the same set-up (analyser turned 90°, nothing else moved; same
+    /// size): the model's outline in it brings back zero-order zones on the specimen's edge
+    /// that the dark-field photo alone leaves out.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["mask", "whole_photo"])]
+    pub light_field_photo: Option<PathBuf>,
     /// Do not fit an exposure / white-balance / vignetting correction.
     #[arg(long)]
     pub no_exposure_compensation: bool,
@@ -937,6 +942,7 @@ const FIELD_FLAGS: &[(&str, &str)] = &[
     ("notes", "--notes"),
     ("photo", "--photo"),
     ("mask", "--mask"),
+    ("light_field_photo", "--light-field-photo"),
     ("calibration", "--calibration"),
     ("max_order", "--max-order"),
     ("max_gradient", "--max-gradient"),
@@ -1609,6 +1615,7 @@ fn map_outputs(args: &MapArgs) -> anyhow::Result<MapOutputs> {
     let inputs = [
         ("--photo", Some(&args.photo)),
         ("--mask", args.mask.as_ref()),
+        ("--light-field-photo", args.light_field_photo.as_ref()),
         ("--calibration", Some(&args.calibration)),
     ];
     let outputs = [
@@ -1691,10 +1698,14 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
     options.validate(table).in_flags()?;
     let photo = read(&args.photo, "photo")?;
     let mask = args.mask.as_deref().map(|m| read(m, "mask")).transpose()?;
-    let choice = match (&mask, args.whole_photo) {
-        (Some(bytes), _) => MaskChoice::Given(bytes),
-        (None, true) => MaskChoice::WholePhoto,
-        (None, false) => MaskChoice::Find,
+    let light_field = (args.light_field_photo.as_deref())
+        .map(|p| read(p, "--light-field-photo"))
+        .transpose()?;
+    let choice = match (&mask, &light_field, args.whole_photo) {
+        (Some(bytes), _, _) => MaskChoice::Given(bytes),
+        (None, _, true) => MaskChoice::WholePhoto,
+        (None, Some(bytes), false) => MaskChoice::FindWithLightField(bytes),
+        (None, None, false) => MaskChoice::Find,
     };
     let (map, mask_used) =
         pipeline::map(&photo, choice, table, &options, &DecodeLimits::default()).in_flags()?;
@@ -1731,7 +1742,13 @@ fn map(args: &MapArgs) -> anyhow::Result<()> {
             path.display()
         );
     }
-    print!("{}", mask_text(&mask_used, "--mask FILE or --whole-photo"));
+    print!(
+        "{}",
+        mask_text(
+            &mask_used,
+            "--light-field-photo FILE, --mask FILE or --whole-photo"
+        )
+    );
     print!(
         "{}",
         statistics_text(&map.statistics, outputs.specimen.as_ref())
@@ -1754,6 +1771,11 @@ pub fn mask_text(used: &MaskUsed, keep: &str) -> String {
             "  mask note           the dark background and large holes are left out, and so \
              are zero-order zones on the specimen's edge; give {keep} to keep them\n"
         );
+    }
+    if used.source == MaskSource::FoundWithLightField {
+        out += "  mask note           the dark background and large holes are left out; \
+                zero-order zones on the edge are kept where the light-field photo's outline \
+                closes around them\n";
     }
     out
 }

@@ -6,7 +6,7 @@ use isotint_core::beam::{calibrate_beam, BeamCalibration, BeamSpec};
 use isotint_core::export;
 use isotint_core::report::{report_pdf, ReportInputs};
 use isotint_core::series::{map_series, LoadSeries, SeriesSpec};
-use isotint_core::specimen::{find_specimen, MaskSource, MaskUsed};
+use isotint_core::specimen::{find_specimen, find_specimen_with_light_field, MaskSource, MaskUsed};
 use isotint_core::{
     CalibrationTable, CoreError, CoreResult, DecodeLimits, MapOptions, Mask, OrderMap, Photo,
 };
@@ -29,6 +29,10 @@ pub enum MaskChoice<'a> {
     /// The specimen found from the photo (`specimen::find_specimen`); the whole photo when
     /// nothing is found.
     Find,
+    /// The specimen found from the photo helped by this light-field photo of the same set-up
+    /// (`specimen::find_specimen_with_light_field`; any format the photo decoder reads, the
+    /// photo's size); the whole photo when nothing is found.
+    FindWithLightField(&'a [u8]),
     /// Every pixel.
     WholePhoto,
 }
@@ -46,6 +50,19 @@ pub fn choose_mask(
             Some(found) => (MaskSource::Found, Some(found)),
             None => (MaskSource::WholePhoto, None),
         },
+        MaskChoice::FindWithLightField(bytes) => {
+            let light = Photo::decode(bytes, limits).map_err(|e| match e {
+                CoreError::Decode(message) => CoreError::invalid(
+                    "light_field_photo",
+                    format!("could not be decoded: {message}"),
+                ),
+                other => other,
+            })?;
+            match find_specimen_with_light_field(photo, &light)? {
+                Some(found) => (MaskSource::FoundWithLightField, Some(found)),
+                None => (MaskSource::WholePhoto, None),
+            }
+        }
         MaskChoice::WholePhoto => (MaskSource::WholePhoto, None),
     })
 }
@@ -137,7 +154,19 @@ pub const JOB_BYTES_PER_PIXEL: u64 = 32;
 /// is decoded), bytes: [`JOB_BYTES_PER_PIXEL`] per pixel plus the request's `request_bytes`.
 /// A header that cannot be read, or a size past `limits`, is refused as the decoder would.
 pub fn job_memory(photo: &[u8], request_bytes: usize, limits: &DecodeLimits) -> CoreResult<u64> {
-    Ok(photo_pixels(photo, limits)? * JOB_BYTES_PER_PIXEL + request_bytes as u64)
+    Ok(photo_pixels(photo, limits, "photo")? * JOB_BYTES_PER_PIXEL + request_bytes as u64)
+}
+
+/// What a light-field photo adds to a map job, bytes a pixel: its decoded samples (up to 6)
+/// and `specimen::find_specimen_with_light_field`'s flags and work queue (7 + 4), rounded up;
+/// counted, not measured.
+pub const LIGHT_FIELD_BYTES_PER_PIXEL: u64 = 24;
+
+/// The memory a light-field photo adds to a map job, bytes ([`LIGHT_FIELD_BYTES_PER_PIXEL`] a
+/// pixel), from its header alone; a header that cannot be read, or a size past `limits`, is
+/// refused naming `light_field_photo`.
+pub fn light_field_memory(light: &[u8], limits: &DecodeLimits) -> CoreResult<u64> {
+    Ok(photo_pixels(light, limits, "light_field_photo")? * LIGHT_FIELD_BYTES_PER_PIXEL)
 }
 
 /// The memory a load series of `photos` photos the size of `first` will take, bytes: the
@@ -151,11 +180,11 @@ pub fn series_memory(
     limits: &DecodeLimits,
 ) -> CoreResult<u64> {
     let per_pixel = JOB_BYTES_PER_PIXEL + (photos * std::mem::size_of::<f32>()) as u64;
-    Ok(photo_pixels(first, limits)? * per_pixel + request_bytes as u64)
+    Ok(photo_pixels(first, limits, "photo")? * per_pixel + request_bytes as u64)
 }
 
-/// Pixels of `photo`, from its header alone.
-fn photo_pixels(photo: &[u8], limits: &DecodeLimits) -> CoreResult<u64> {
-    let (width, height) = isotint_core::colour::image_size(photo, limits, "photo")?;
+/// Pixels of `photo`, from its header alone; errors name `field`.
+fn photo_pixels(photo: &[u8], limits: &DecodeLimits, field: &'static str) -> CoreResult<u64> {
+    let (width, height) = isotint_core::colour::image_size(photo, limits, field)?;
     Ok(u64::from(width) * u64::from(height))
 }

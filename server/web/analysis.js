@@ -98,19 +98,29 @@ export function photoStem(name) {
 // How the specimen of a map was chosen, in words.
 function maskText(mask) {
   const share = `${fmt(mask.specimen_share * 100, 1)} % of the photo`;
-  const source = { given: 'your mask', found: 'found from the photo', whole_photo: 'the whole photo' }[mask.source] ?? mask.source;
+  const source = {
+    given: 'your mask',
+    found: 'found from the photo',
+    found_with_light_field: 'found from the photo and its light-field photo',
+    whole_photo: 'the whole photo',
+  }[mask.source] ?? mask.source;
   return `${source}, ${share}`;
 }
 
 // The note under a map whose specimen was found from the photo, or none.
 function showMaskNote(mask) {
-  const found = mask?.source === 'found';
+  const helped = mask?.source === 'found_with_light_field';
+  const found = helped || mask?.source === 'found';
   $('an-mask-note').hidden = !found;
   if (!found) return;
   $('an-mask-note-text').textContent =
-    `The specimen was found from the photo: ${fmt(mask.specimen_share * 100, 1)} % of its pixels, ` +
+    `The specimen was found from the photo${helped ? ' and its light-field photo' : ''}: ` +
+    `${fmt(mask.specimen_share * 100, 1)} % of its pixels, ` +
     'outlined in yellow on the photo, what was left out shaded blue. Shares and figures count the specimen only. ' +
-    'Zero-order zones on the specimen’s edge (an unloaded end, a stress-free rim) look like the background and are left out too; ' +
+    (helped
+      ? 'Zero-order zones on the specimen’s edge are kept where the light-field photo’s outline closes around them; '
+      : 'Zero-order zones on the specimen’s edge (an unloaded end, a stress-free rim) look like the background and are left out too ' +
+        '(a light-field photo of the same set-up keeps them); ') +
     'if that is wrong, draw an outline, give a mask file, or use the whole photo.';
 }
 
@@ -520,6 +530,7 @@ export class AnalysisPage {
   maskModeChanged() {
     const mode = document.querySelector('input[name="an-mask"]:checked').value;
     $('an-mask-file-field').hidden = mode !== 'file';
+    $('an-light-field-field').hidden = mode !== 'find';
     if (mode === 'polygon') {
       document.querySelector('input[name="an-tool"][value="outline"]').checked = true;
       this.toolChanged();
@@ -822,7 +833,7 @@ export class AnalysisPage {
     );
   }
 
-  // The multipart form that maps the photo with `calibration`: photo, mask (if any), options.
+  // The multipart form that maps the photo with `calibration`: photo, mask or light-field photo (if any), options.
   async mapForm(calibration) {
     const form = new FormData();
     form.append('photo', this.photo.file, this.photo.file.name);
@@ -831,6 +842,8 @@ export class AnalysisPage {
     if (mask) form.append('mask', mask, 'mask.png');
     const mode = document.querySelector('input[name="an-mask"]:checked').value;
     if (!mask && mode === 'none') form.append('mask_source', 'whole_photo');
+    const lightField = $('an-light-field').files[0];
+    if (!mask && mode === 'find' && lightField) form.append('light_field_photo', lightField, lightField.name);
     form.append(
       'options',
       JSON.stringify({ hints: this.hints, exposure_compensation: $('an-exposure').checked, max_order: null }),

@@ -10,7 +10,7 @@
 // with K_t; the comparison with the disc's closed-form prediction and its difference layer; the
 // demo beam's edge stress against beam theory, 6M/(t·d²); and the load-series page, whose
 // fringe value must match the disc's. Back on the disc, map it again with the specimen found
-// from the photo (note, outline, share near the disc's) and then the whole photo; see a failed run clear
+// from the photo (note, outline, share near the disc's), then with its light-field photo (rim kept), then the whole photo; see a failed run clear
 // the old map; read the built-in calibration's edge order, light and camera in words; and check
 // the layout at 360 px wide (no sideways scroll) and at 1366 × 768 (every input reachable).
 //
@@ -554,6 +554,26 @@ async function main(browser) {
     check(await an.getByLabel('Whole photo').isChecked(), 'the whole-photo choice is not selected');
     const residual = await described(page, '#an-stats', 'Mean colour residual');
     check(/ΔE00 \(CIEDE2000/.test(residual), `the residual is not named CIEDE2000: ${residual}`);
+  });
+
+  await step('a light-field photo of the same set-up keeps the disc’s stress-free rim in the specimen found', async () => {
+    await an.getByLabel('Find it in the photo (dark background left out)').check();
+    await an.getByLabel(/^Light-field photo/).setInputFiles(path.join(demoDir, disc.light_field_photo));
+    await an.getByRole('button', { name: 'Make the fringe-order map' }).click();
+    await page.locator('#an-stats dd', { hasText: 'and its light-field photo' }).waitFor();
+    const note = (await page.locator('#an-mask-note-text').textContent()).replace(/\s+/g, ' ');
+    check(/found from the photo and its light-field photo: [\d.]+ % of its pixels/.test(note), `note: ${note}`);
+    const specimen = await described(page, '#an-stats', 'Specimen');
+    const share = Number(/light-field photo, ([\d.]+) % of the photo/.exec(specimen)?.[1]) / 100;
+    // source: the demo disc's rendered radius; with its outline the rim is kept, so the share
+    // is the disc's area within a pixel's ring.
+    const { radius_px: radius } = disc.field;
+    const area = (Math.PI * radius * radius) / (discSize.width * discSize.height);
+    const ring = (2 * Math.PI * radius) / (discSize.width * discSize.height);
+    console.log(`# found with the light-field photo ${specimen}; the disc covers ${(100 * area).toFixed(1)} %`);
+    check(Math.abs(share - area) <= 2 * ring, `found ${specimen}, the disc covers ${(100 * area).toFixed(1)} %`);
+    await an.getByLabel(/^Light-field photo/).setInputFiles([]);
+    await an.getByLabel('Whole photo').check();
   });
 
   await step('a failed run clears the earlier result', async () => {

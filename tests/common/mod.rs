@@ -17,7 +17,7 @@ use isotint_core::render::effects::{develop, encode_mask_png, PhotoEffects, Phot
 use isotint_core::render::fields::{BendingBeamField, DiscField, OrderField};
 use isotint_core::render::light::LightSource;
 use isotint_core::render::polariscope::QuarterWavePlates;
-use isotint_core::render::scene::render_scene;
+use isotint_core::render::scene::{render_light_field, render_scene};
 use isotint_core::render::{rendered_table, RenderSetup, Renderer};
 use isotint_core::stress::DiscInCompression;
 use isotint_core::{CalibrationMetadata, CalibrationTable, PixelPoint, PixelRect};
@@ -412,8 +412,26 @@ pub fn disc_photo() -> RenderedPhoto {
 /// The test disc (radius 160 px, 6 mm thick) under `load_n` N, centred in a `size` × `size`
 /// photo.
 pub fn disc_photo_at(load_n: f64, size: u32) -> RenderedPhoto {
+    render(&test_disc(load_n, size), size, size, 2)
+}
+
+/// The light-field photo of [`disc_photo`] (same set-up, analyser turned 90°), an 8-bit PNG
+/// with the same lens blur and its own noise seed.
+pub fn disc_light_field_png() -> Vec<u8> {
+    let image = render_light_field(&test_disc(700.0, 360), &renderer(), 360, 360, 3).unwrap();
+    let fx = PhotoEffects {
+        blur_sigma_px: 0.6,
+        seed: 3,
+        ..PhotoEffects::default()
+    };
+    develop(&image, &fx, PhotoEncoding::Png8).unwrap()
+}
+
+/// The test disc (radius 160 px, 6 mm thick) under `load_n` N, centred in a `size` × `size`
+/// photo.
+fn test_disc(load_n: f64, size: u32) -> DiscField {
     let centre = f64::from(size) / 2.0;
-    let disc = DiscField::new(
+    DiscField::new(
         PixelPoint {
             x: centre,
             y: centre,
@@ -422,8 +440,7 @@ pub fn disc_photo_at(load_n: f64, size: u32) -> RenderedPhoto {
         DiscInCompression::new(DISC_DIAMETER_MM, 6.0, load_n).unwrap(),
         DISC_FRINGE_VALUE,
     )
-    .unwrap();
-    render(&disc, size, size, 2)
+    .unwrap()
 }
 
 /// The region as the API's JSON object.

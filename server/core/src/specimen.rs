@@ -19,6 +19,7 @@
 use palette::{LinSrgb, Srgb};
 
 use crate::colour::Photo;
+use crate::error::{CoreError, CoreResult};
 use crate::geometry::Mask;
 
 /// Half-width of the window that must be wholly dark for a pixel to count as calm, pixels.
@@ -42,6 +43,8 @@ pub enum MaskSource {
     Given,
     /// Found from the photo by [`find_specimen`].
     Found,
+    /// Found from the photo helped by a light-field photo ([`find_specimen_with_light_field`]).
+    FoundWithLightField,
     /// The whole photo: asked for, or nothing was found (a photo dark everywhere).
     WholePhoto,
 }
@@ -52,6 +55,7 @@ impl MaskSource {
         match self {
             MaskSource::Given => "given",
             MaskSource::Found => "found from the photo",
+            MaskSource::FoundWithLightField => "found from the photo and its light-field photo",
             MaskSource::WholePhoto => "whole photo",
         }
     }
@@ -104,10 +108,7 @@ pub fn find_specimen(photo: &Photo) -> Option<Mask> {
     let mut background = vec![false; w * h];
     // Calm regions joined to the border, then enclosed ones large enough to be holes.
     let mut region = Vec::new();
-    let border = (0..w)
-        .flat_map(|x| [x, (h - 1) * w + x])
-        .chain((0..h).flat_map(|y| [y * w, y * w + w - 1]));
-    for p in border {
+    for p in border_pixels(w, h) {
         flood(p, &calm, &mut background, w, h, &mut region);
         region.clear();
     }
@@ -133,16 +134,119 @@ pub fn find_specimen(photo: &Photo) -> Option<Mask> {
     Some(Mask::new(photo.width(), photo.height(), inside).expect("one flag per pixel"))
 }
 
+/// A pixel of a light-field photo is lit when its brightest channel passes at least this share
+/// of the light-field background's level (linear light): enough below 1 for vignetting, well
+/// above a dark outline blurred by the lens (common practice, no source).
+pub const LIT_SHARE: f32 = 0.5;
+
+/// The specimen of a dark-field photo helped by a light-field photo of the same set-up
+/// (analyser turned 90°, same camera position, same size), or `None` when neither shows one.
+///
+/// The dark-field specimen ([`find_specimen`]) loses zero-order zones on its edge to the
+/// background. In light field the background is bright, and so are those zones, but the model's
+/// outline shows as a dark line between them. The outer background (the dark-field background
+/// joined to the photo's border; holes are left alone) is split in the light-field photo: its
+/// pixels joined to the border through lit pixels (brightest channel at least [`LIT_SHARE`] of
+/// the light-field background's level, the median over those border pixels) stay background,
+/// the rest lies inside the outline. The dark-field specimen is grown into those pixels that
+/// touch it (all of them when the dark-field photo shows no specimen: an unloaded model).
+/// A light-field photo whose background is no brighter than [`BACKGROUND_CEILING_CODES`] is
+/// refused (field `light_field_photo`). Pixel conventions as [`find_specimen`]; the light-field photo's brightness is read in
+/// linear light.
+pub fn find_specimen_with_light_field(dark: &Photo, light: &Photo) -> CoreResult<Option<Mask>> {
+    if (light.width(), light.height()) != (dark.width(), dark.height()) {
+        return Err(CoreError::invalid(
+            "light_field_photo",
+            format!(
+                "is {}×{} pixels, the photo {}×{}: both must be taken from the same place",
+                light.width(),
+                light.height(),
+                dark.width(),
+                dark.height()
+            ),
+        ));
+    }
+    let (w, h) = (dark.width() as usize, dark.height() as usize);
+    let found = find_specimen(dark);
+    let specimen: Vec<bool> = found
+        .as_ref()
+        .map_or_else(|| vec![false; w * h], |m| m.as_slice().to_vec());
+    // The outer background: the dark-field background joined to the border.
+    let background: Vec<bool> = specimen.iter().map(|v| !v).collect();
+    let mut outer = vec![false; w * h];
+    let mut region = Vec::new();
+    for p in border_pixels(w, h) {
+        flood(p, &background, &mut outer, w, h, &mut region);
+    }
+    let brightest = |c: LinSrgb<f32>| c.red.max(c.green).max(c.blue);
+    let mut levels: Vec<f32> = border_pixels(w, h)
+        .filter(|p| outer[*p])
+        .map(|p| brightest(light.linear(p)))
+        .collect();
+    if levels.is_empty() {
+        return Ok(found);
+    }
+    levels.sort_by(f32::total_cmp);
+    let level = levels[levels.len() / 2];
+    // A dark background is no light field (a second dark-field photo, say): its noise would
+    // pass for an outline.
+    if encoded_codes(level) < BACKGROUND_CEILING_CODES {
+        return Err(CoreError::invalid(
+            "light_field_photo",
+            format!(
+                "its background is dark (8-bit code {:.0} of the brightest channel, below {}): \
+                 take it with the analyser turned 90° from the dark-field photo's",
+                encoded_codes(level),
+                BACKGROUND_CEILING_CODES
+            ),
+        ));
+    }
+    let lit_limit = LIT_SHARE * level;
+    let mut open = vec![false; w * h];
+    let mut row = Vec::new();
+    for y in 0..h {
+        light.linear_row(y as u32, &mut row);
+        for (x, c) in row.iter().enumerate() {
+            let p = y * w + x;
+            open[p] = outer[p] && brightest(*c) >= lit_limit;
+        }
+    }
+    let mut outside = vec![false; w * h];
+    region.clear();
+    for p in border_pixels(w, h) {
+        flood(p, &open, &mut outside, w, h, &mut region);
+    }
+    // The specimen and the outer background's pixels inside the outline (holes stay out).
+    let within_outline: Vec<bool> = (0..w * h)
+        .map(|p| specimen[p] || (outer[p] && !outside[p]))
+        .collect();
+    let mut inside = vec![false; w * h];
+    region.clear();
+    // Grown from the dark-field specimen, or, with none, from every pixel in the outline.
+    let seeds = (0..w * h).filter(|p| specimen[*p] || found.is_none());
+    for p in seeds {
+        flood(p, &within_outline, &mut inside, w, h, &mut region);
+    }
+    if !inside.contains(&true) {
+        return Ok(None);
+    }
+    Ok(Some(Mask::new(dark.width(), dark.height(), inside)?))
+}
+
+/// The photo's border pixels (corners twice).
+fn border_pixels(w: usize, h: usize) -> impl Iterator<Item = usize> {
+    (0..w)
+        .flat_map(move |x| [x, (h - 1) * w + x])
+        .chain((0..h).flat_map(move |y| [y * w, y * w + w - 1]))
+}
+
 /// Pixels no brighter than the background's level plus [`DARK_MARGIN_CODES`]. The level is the
 /// median brightness of the border pixels darker than [`BACKGROUND_CEILING_CODES`] (0 if none
 /// is: the specimen fills the border). Brightness is the brightest channel.
 fn dark_pixels(photo: &Photo) -> Vec<bool> {
     let (w, h) = (photo.width() as usize, photo.height() as usize);
     let brightest = |c: LinSrgb<f32>| c.red.max(c.green).max(c.blue);
-    let frame = (0..w)
-        .flat_map(|x| [x, (h - 1) * w + x])
-        .chain((0..h).flat_map(|y| [y * w, y * w + w - 1]));
-    let mut codes: Vec<f32> = frame
+    let mut codes: Vec<f32> = border_pixels(w, h)
         .map(|p| encoded_codes(brightest(photo.linear(p))))
         .filter(|b| *b < BACKGROUND_CEILING_CODES)
         .collect();
@@ -271,6 +375,8 @@ mod tests {
             .map(|c| match c {
                 '.' => Srgb::new(0, 0, 0),
                 'o' => Srgb::new(200, 120, 40),
+                'w' => Srgb::new(235, 235, 235),
+                'd' => Srgb::new(25, 25, 25),
                 _ => panic!("unknown pixel {c:?}"),
             })
             .collect();
@@ -394,5 +500,131 @@ mod tests {
         let inside: usize = mask.as_slice().iter().filter(|v| **v).count();
         assert_eq!(inside, 6 * 4);
         assert!(mask.contains(5, 4) && mask.contains(10, 7) && !mask.contains(4, 4));
+    }
+
+    /// A `w` × `h` picture: `paint(x, y)` gives each pixel's character (see [`photo`]).
+    fn drawn(w: usize, h: usize, paint: impl Fn(usize, usize) -> char) -> Photo {
+        let rows: Vec<String> = (0..h)
+            .map(|y| (0..w).map(|x| paint(x, y)).collect())
+            .collect();
+        let refs: Vec<&str> = rows.iter().map(String::as_str).collect();
+        photo(&refs)
+    }
+
+    /// Whether (x, y) lies in the half-open box [x0, x1) × [y0, y1).
+    fn within(x: usize, y: usize, (x0, y0, x1, y1): (usize, usize, usize, usize)) -> bool {
+        (x0..x1).contains(&x) && (y0..y1).contains(&y)
+    }
+
+    /// Whether (x, y) is on the outermost ring of pixels of the box.
+    fn on_ring(x: usize, y: usize, b: (usize, usize, usize, usize)) -> bool {
+        within(x, y, b) && !within(x, y, (b.0 + 1, b.1 + 1, b.2 - 1, b.3 - 1))
+    }
+
+    #[test]
+    fn a_light_field_outline_brings_back_a_beams_dark_ends() {
+        // A 20 × 7 px beam (x 5–25, y 5–12) whose ends x < 11 and x ≥ 19 are zero order: black
+        // like the background in dark field; in light field white inside a dark outline.
+        let (beam, loaded) = ((5, 5, 25, 12), (11, 5, 19, 12));
+        let dark = drawn(30, 17, |x, y| if within(x, y, loaded) { 'o' } else { '.' });
+        let light = drawn(30, 17, |x, y| {
+            if on_ring(x, y, beam) {
+                'd'
+            } else if within(x, y, loaded) {
+                'o'
+            } else {
+                'w'
+            }
+        });
+        let alone = find_specimen(&dark).expect("a specimen");
+        assert!(!alone.contains(6, 8) && !alone.contains(23, 8) && alone.contains(15, 8));
+        let both = find_specimen_with_light_field(&dark, &light)
+            .unwrap()
+            .expect("a specimen");
+        for y in 0..17 {
+            for x in 0..30 {
+                assert_eq!(
+                    both.contains(x, y),
+                    within(x as usize, y as usize, beam),
+                    "({x}, {y})"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn a_hole_inside_its_light_field_outline_stays_a_hole() {
+        // A 22 × 22 plate on a 30 × 30 photo with a 6 × 6 hole; the hole is white in light
+        // field and ringed by the plate's dark edge, like the zero-order ends above, but it is
+        // no part of the outer background.
+        let (plate, hole) = ((4, 4, 26, 26), (12, 12, 18, 18));
+        let dark = drawn(30, 30, |x, y| {
+            if within(x, y, plate) && !within(x, y, hole) {
+                'o'
+            } else {
+                '.'
+            }
+        });
+        let rim = (hole.0 - 1, hole.1 - 1, hole.2 + 1, hole.3 + 1);
+        let light = drawn(30, 30, |x, y| {
+            if on_ring(x, y, plate) || on_ring(x, y, rim) {
+                'd'
+            } else if within(x, y, plate) && !within(x, y, hole) {
+                'o'
+            } else {
+                'w'
+            }
+        });
+        let alone = find_specimen(&dark).expect("a specimen");
+        assert!(
+            !alone.contains(14, 14),
+            "the dark-field finding takes the hole out"
+        );
+        let both = find_specimen_with_light_field(&dark, &light).unwrap();
+        assert_eq!(both, Some(alone));
+    }
+
+    #[test]
+    fn an_unloaded_model_dark_everywhere_is_found_from_its_light_field_outline() {
+        let model = (5, 4, 15, 12);
+        let dark = photo(&["...................."; 16]);
+        let light = drawn(20, 16, |x, y| if on_ring(x, y, model) { 'd' } else { 'w' });
+        assert_eq!(find_specimen(&dark), None);
+        let mask = find_specimen_with_light_field(&dark, &light)
+            .unwrap()
+            .expect("a specimen");
+        let inside = mask.as_slice().iter().filter(|v| **v).count();
+        assert_eq!(inside, 10 * 8);
+        assert!(mask.contains(5, 4) && mask.contains(14, 11) && !mask.contains(4, 4));
+    }
+
+    #[test]
+    fn a_second_dark_field_photo_given_as_the_light_field_one_is_refused() {
+        let dark = drawn(30, 17, |x, y| {
+            if within(x, y, (11, 5, 19, 12)) {
+                'o'
+            } else {
+                '.'
+            }
+        });
+        let refused = find_specimen_with_light_field(&dark, &dark)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            refused.contains("light_field_photo") && refused.contains("background is dark"),
+            "{refused}"
+        );
+    }
+
+    #[test]
+    fn a_light_field_photo_of_another_size_is_refused_naming_it() {
+        let dark = photo(&["......"; 6]);
+        let light = photo(&["wwwww"; 6]);
+        let refused = find_specimen_with_light_field(&dark, &light).unwrap_err();
+        assert!(
+            refused.to_string().contains("light_field_photo")
+                && refused.to_string().contains("5×6 pixels, the photo 6×6"),
+            "{refused}"
+        );
     }
 }

@@ -124,6 +124,45 @@ fn ideal_plates_and_jones_calculus_agree_when_the_design_wavelength_is_the_wavel
 }
 
 #[test]
+fn with_ideal_plates_the_light_field_transmits_cos_squared_of_half_the_retardance() {
+    // source: circular polariscope theory (Dally & Riley, from memory): with the analyser
+    // parallel to the polariser and exact quarter-wave plates the light field transmits
+    // cos²(δ/2), δ = 2πR/λ, whatever the isoclinic angle.
+    for light in LightSource::ALL {
+        for camera in CameraModel::ALL {
+            let r = Renderer::new(RenderSetup {
+                light,
+                camera,
+                exposure: 0.8,
+                ..Default::default()
+            })
+            .unwrap();
+            for order in [0.0, 0.3, 0.5, 1.0, 1.7, 3.2] {
+                let retardation = retardation_nm(order);
+                let expected = camera.balanced_response(light, |lambda| {
+                    (std::f64::consts::PI * retardation / lambda).cos().powi(2)
+                });
+                for theta in [0.0, 0.7] {
+                    let got = r.linear_light_field(order, theta);
+                    for (g, e) in [
+                        (got.red, expected.red),
+                        (got.green, expected.green),
+                        (got.blue, expected.blue),
+                    ] {
+                        // The table is linear between 2 nm steps: a few thousandths.
+                        assert!(
+                            (f64::from(g) - 0.8 * e).abs() < 3e-3,
+                            "{light:?} {camera:?} N {order}: {g} against {}",
+                            0.8 * e
+                        );
+                    }
+                }
+            }
+        }
+    }
+}
+
+#[test]
 fn tabulated_terms_reproduce_the_jones_product_for_mismatched_plates() {
     // Consistency of our own decomposition (no outside source): six terms per wavelength give
     // the same intensity as multiplying the Jones matrices.

@@ -10,9 +10,10 @@ use isotint_core::geometry::{Mask, PixelPoint, PixelRect};
 use isotint_core::render::demo::DemoScenario;
 use isotint_core::render::effects::{apply_optics, encode_mask_png};
 use isotint_core::render::{
-    check_order_limit, develop, develop_srgb8, load_preview, render_scene, rendered_table,
-    BendingBeamField, CameraModel, DiscField, HoleField, LightSource, LinearImage, OrderField,
-    PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
+    check_order_limit, develop, develop_srgb8, load_preview, render_light_field, render_scene,
+    rendered_table, BendingBeamField, CameraModel, DiscField, HoleField, LightSource, LinearImage,
+    OrderField, PhotoEffects, PhotoEncoding, QuarterWavePlates, RenderSetup, Renderer,
+    UniformField, LIGHT_FIELD_RIM_PX, LIGHT_FIELD_RIM_TRANSMISSION,
 };
 use isotint_core::stress::{DiscInCompression, PlateWithHole, StressOpticLaw};
 use palette::LinSrgb;
@@ -66,6 +67,66 @@ fn the_background_is_black_outside_the_mask_and_not_zero_order() {
     assert!(scene.mask.contains(2, 1) && scene.mask.contains(17, 8));
     let specimen = scene.mask.as_slice().iter().filter(|m| **m).count();
     assert_eq!(specimen, 16 * 8);
+}
+
+#[test]
+fn in_light_field_the_background_is_white_and_the_outline_a_dark_rim_around_an_unloaded_end() {
+    // Beam 40 px long and 16 deep (x 5–45, y 7–23) in a 50 × 30 photo; supports at x = 15 and
+    // 35, so its ends x < 15 carry no moment: zero order.
+    let beam = BendingBeamField::new(
+        PixelRect::new(5.0, 7.0, 45.0, 23.0).unwrap(),
+        (15.0, 35.0),
+        (20.0, 30.0),
+        2.0,
+    )
+    .unwrap();
+    let renderer = Renderer::new(RenderSetup {
+        exposure: 0.9,
+        ..Default::default()
+    })
+    .unwrap();
+    let dark = render_scene(&beam, &renderer, 50, 30, 1).unwrap();
+    let light = render_light_field(&beam, &renderer, 50, 30, 1).unwrap();
+    let at = |x: u32, y: u32| light.pixels[(y * 50 + x) as usize];
+    let white = LinSrgb::new(0.9f32, 0.9, 0.9);
+    // common practice, no source: with no specimen nothing is retarded, and the light field
+    // passes everything the polariser passes.
+    assert_eq!(at(0, 0), white);
+    assert_eq!(at(49, 29), white);
+    // The unloaded end, more than the rim (LIGHT_FIELD_RIM_PX = 3) inside the edge: zero
+    // order, as white as the background, and black in dark field.
+    assert_eq!(at(10, 15), white);
+    assert_eq!(dark.image.pixels[15 * 50 + 10], LinSrgb::new(0.0, 0.0, 0.0));
+    // The rim: specimen pixels within LIGHT_FIELD_RIM_PX of the edge pass the set share of
+    // their light-field colour; the first pixel past it does not.
+    for (x, y) in [(5u32, 15u32), (7, 15), (10, 7), (10, 9), (25, 22)] {
+        let s = beam.sample(f64::from(x) + 0.5, f64::from(y) + 0.5).unwrap();
+        let own = renderer.linear_light_field(s.order, s.fast_axis_rad());
+        assert_relative_eq!(at(x, y).red, LIGHT_FIELD_RIM_TRANSMISSION * own.red);
+        assert_relative_eq!(at(x, y).blue, LIGHT_FIELD_RIM_TRANSMISSION * own.blue);
+    }
+    assert_eq!(at(5 + LIGHT_FIELD_RIM_PX as u32, 15), white);
+    assert_eq!(at(10, 7 + LIGHT_FIELD_RIM_PX as u32), white);
+}
+
+#[test]
+fn a_specimen_filling_the_light_field_photo_has_no_rim_along_the_photo_border() {
+    let field = UniformField {
+        area: PixelRect::new(0.0, 0.0, 12.0, 9.0).unwrap(),
+        order: 0.8,
+        isoclinic_rad: 0.4,
+    };
+    let renderer = Renderer::new(RenderSetup::default()).unwrap();
+    let light = render_light_field(&field, &renderer, 12, 9, 2).unwrap();
+    let own = renderer.linear_light_field(0.8, 0.4);
+    // Its light-field colour is the complement of its dark-field one (common practice, no
+    // source), and no pixel is darkened.
+    let dark = renderer.linear(0.8, 0.4);
+    assert_relative_eq!(own.green + dark.green, 1.0, epsilon = 1e-6);
+    for p in &light.pixels {
+        assert_relative_eq!(p.red, own.red, epsilon = 1e-6);
+        assert_relative_eq!(p.green, own.green, epsilon = 1e-6);
+    }
 }
 
 #[test]
@@ -362,6 +423,7 @@ fn the_demo_scenario_ships_photos_masks_true_orders_and_a_description() {
         "disc.png",
         "disc-mask.png",
         "disc-prediction.csv",
+        "disc-light-field.png",
         "plate-hole.png",
         "plate-hole-mask.png",
         "scenario.json",
@@ -381,6 +443,9 @@ fn the_demo_scenario_ships_photos_masks_true_orders_and_a_description() {
             .bit_depth(),
         16
     );
+    // The light-field photo is taken from the same place: the disc photo's size.
+    let light = Photo::decode(file("disc-light-field.png"), &limits).unwrap();
+    assert_eq!((light.width(), light.height()), (600, 600));
     let zone = demo.description.beam.constant_moment_zone;
     assert_eq!((zone.width(), zone.height()), (440.0, 240.0));
     assert_eq!(demo.description.beam.field.edge_order, 4.5);

@@ -325,6 +325,12 @@ pub struct MapForm {
     /// featureless background and large holes left out), `whole_photo` every pixel.
     #[schema(schema_with = openapi::mask_source)]
     pub mask_source: Option<String>,
+    /// Optional light-field photo of the same set-up (analyser turned 90°, nothing else moved;
+    /// the photo's size): with `find`, the model's outline in it brings back zero-order zones
+    /// on the specimen's edge that the photo alone leaves out (`mask.source`
+    /// `found_with_light_field`). Refused beside a mask or `whole_photo`.
+    #[schema(value_type = Option<String>, format = Binary)]
+    pub light_field_photo: Option<Vec<u8>>,
     /// Optional JSON (a part of type application/json): `hints` [{x, y, order}] inside the
     /// photo and at most the calibration's last order (or `max_order`), `exposure_compensation`,
     /// `max_order`, `max_gradient`.
@@ -434,7 +440,8 @@ pub struct OrderMapResource {
     /// Summary figures over the specimen's pixels (NaN figures are null).
     #[schema(value_type = Object)]
     pub statistics: serde_json::Value,
-    /// The mask used: `source` (`given`, `found` from the photo, or `whole_photo`) and
+    /// The mask used: `source` (`given`, `found` from the photo, `found_with_light_field` with
+    /// a light-field photo, or `whole_photo`) and
     /// `specimen_share`, its share of the photo's pixels (0–1); null for maps stored before it
     /// was recorded. A found mask is worth a look: the `flags` file marks the pixels it left
     /// out (bit 1).
@@ -574,7 +581,14 @@ async fn create_order_map(
         .transpose()?;
     let mut form = Form::read(
         multipart,
-        &["photo", "calibration", "mask", "mask_source", "options"],
+        &[
+            "photo",
+            "calibration",
+            "mask",
+            "mask_source",
+            "light_field_photo",
+            "options",
+        ],
     )
     .await?;
     let calibration_id: CalibrationId = form.require_id("calibration")?;
@@ -587,6 +601,14 @@ async fn create_order_map(
     let mask = form.take("mask");
     let mask_source =
         MaskSourceChoice::parse(form.text("mask_source")?.as_deref(), mask.is_some())?;
+    let light_field = form.take("light_field_photo");
+    if light_field.is_some() && (mask.is_some() || mask_source == MaskSourceChoice::WholePhoto) {
+        return Err(ApiError::unprocessable(
+            "invalid_input",
+            "invalid light_field_photo: it outlines a specimen to be found; give it without \
+             mask and without mask_source=whole_photo",
+        ));
+    }
     let table = crate::storage::calibrations::table(&state.storage, calibration_id).await?;
     options.validate(&table)?;
     let specimen = stress.specimen(table.stress_defaults())?;
@@ -596,14 +618,22 @@ async fn create_order_map(
         .map(|name| FileKind::from_name(name, specimen.0))
         .transpose()?;
     let limits = state.config.decode_limits;
-    let admission = state.jobs.admit(form.job_size(&photo, &limits)?).await?;
+    let mut size = form.job_size(&photo, &limits)?;
+    if let Some(light) = &light_field {
+        size.memory_bytes += pipeline::light_field_memory(light, &limits)? + light.len() as u64;
+        size.waiting_bytes += light.len() as u64;
+    }
+    let admission = state.jobs.admit(size).await?;
     // The job holds its admission until its results are stored.
     let (map, mask_used, bands) = admission
         .run(move || -> CoreResult<(OrderMap, MaskUsed, Vec<Vec<u8>>)> {
-            let choice = match (&mask, mask_source) {
-                (Some(bytes), _) => MaskChoice::Given(bytes),
-                (None, MaskSourceChoice::WholePhoto) => MaskChoice::WholePhoto,
-                (None, MaskSourceChoice::Find) => MaskChoice::Find,
+            let choice = match (&mask, &light_field, mask_source) {
+                (Some(bytes), _, _) => MaskChoice::Given(bytes),
+                (None, _, MaskSourceChoice::WholePhoto) => MaskChoice::WholePhoto,
+                (None, Some(light), MaskSourceChoice::Find) => {
+                    MaskChoice::FindWithLightField(light)
+                }
+                (None, None, MaskSourceChoice::Find) => MaskChoice::Find,
             };
             let (map, used) = pipeline::map(&photo, choice, &table, &options, &limits)?;
             let bands = compact::encode_map(&map)?;

@@ -7,7 +7,7 @@ use serde::Serialize;
 
 use super::effects::{develop, encode_mask_png, PhotoEffects, PhotoEncoding};
 use super::fields::{BendingBeamField, DiscField, HoleField, OrderField};
-use super::scene::render_scene;
+use super::scene::{render_light_field, render_scene};
 use super::{CameraModel, LightSource, QuarterWavePlates, RenderSetup, Renderer};
 use crate::comparison::PointPair;
 use crate::error::CoreResult;
@@ -95,6 +95,9 @@ pub struct DiscDescription {
     pub mask: String,
     /// True order per pixel, NPY float32.
     pub true_order: String,
+    /// The same disc in light field (analyser turned 90°; PNG 16-bit, same effects), whose
+    /// outline keeps the disc's stress-free rim when the specimen is found from the photo.
+    pub light_field_photo: String,
     /// Photo size, pixels.
     pub width: u32,
     /// Photo size, pixels.
@@ -332,6 +335,7 @@ impl DemoScenario {
                 photo: "disc.png".into(),
                 mask: "disc-mask.png".into(),
                 true_order: "disc-true-order.npy".into(),
+                light_field_photo: "disc-light-field.png".into(),
                 width: 600,
                 height: 600,
                 field: disc,
@@ -362,6 +366,14 @@ impl DemoScenario {
                           finite-element prediction (mm, MPa, y up)"
                 .into(),
             bytes: disc_prediction_csv(&disc.disc).into_bytes(),
+        });
+        let light_field = render_light_field(&disc, &renderer, 600, 600, SUPERSAMPLING)?;
+        files.push(DemoFile {
+            name: description.disc.light_field_photo.clone(),
+            description: "disc in diametral compression: light-field photo (analyser turned 90°), \
+                          16-bit sRGB PNG"
+                .into(),
+            bytes: develop(&light_field, &photo_fx, PhotoEncoding::Png16)?,
         });
         files.push(DemoFile {
             name: "scenario.json".into(),

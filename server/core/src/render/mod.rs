@@ -59,7 +59,10 @@ pub use fields::{
 pub use light::LightSource;
 pub use polariscope::QuarterWavePlates;
 pub use renderer::{RenderSetup, Renderer, SpectralSetup, MAX_RENDERED_ORDER};
-pub use scene::{render_scene, LinearImage, RenderedScene};
+pub use scene::{
+    render_light_field, render_scene, LinearImage, RenderedScene, LIGHT_FIELD_RIM_PX,
+    LIGHT_FIELD_RIM_TRANSMISSION,
+};
 
 /// Wavelength at which one fringe order equals one wavelength of retardation, nm.
 ///

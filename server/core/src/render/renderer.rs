@@ -192,6 +192,17 @@ impl Renderer {
         LinSrgb::new(c[0] * e, c[1] * e, c[2] * e)
     }
 
+    /// Linear-sRGB colour (exposure applied, not clipped) of the same polariscope in light
+    /// field (analyser turned 90°, parallel to the polariser): at each wavelength the
+    /// transmission is 1 − the dark-field one (common practice, no source), so with the
+    /// white-balanced weights summing to 1 the colour is exposure × (1, 1, 1) − the dark-field
+    /// colour. Order 0 (and no specimen at all) is full-exposure white.
+    pub fn linear_light_field(&self, order: f64, fast_axis_rad: f64) -> LinSrgb<f32> {
+        let dark = self.linear(order, fast_axis_rad);
+        let e = self.exposure as f32;
+        LinSrgb::new(e - dark.red, e - dark.green, e - dark.blue)
+    }
+
     /// Linear-sRGB colour of `order` averaged over all fast-axis angles (exposure applied).
     /// Equal to [`Renderer::linear`] for ideal plates.
     pub fn linear_isoclinic_mean(&self, order: f64) -> LinSrgb<f32> {

@@ -29,7 +29,7 @@ use super::fields::{
 };
 use super::polariscope::QuarterWavePlates;
 use super::renderer::{Renderer, SpectralSetup};
-use super::scene::render_scene;
+use super::scene::{render_light_field, render_scene, LinearImage};
 use super::{photographed_beam, photographed_beam_table, SPECTRUM_SAMPLES};
 use crate::calibration::{CalibrationMetadata, CalibrationTable};
 use crate::colour::{DecodeLimits, Photo};
@@ -438,23 +438,46 @@ impl Scenario {
             self.height,
             SUPERSAMPLING,
         )?;
-        let fx = PhotoEffects {
-            blur_sigma_px: self.specimen_blur_px,
-            corner_brightness: self.corner_brightness,
-            exposure: self.specimen_exposure,
-            noise_sigma_codes: self.noise_codes,
-            seed: self.seed.wrapping_mul(2) + 1,
-        };
-        let photo = Photo::decode(
-            &develop(&scene.image, &fx, self.encoding)?,
-            &DecodeLimits::default(),
-        )?;
+        let photo = self.specimen_photo(&scene.image, self.seed.wrapping_mul(2) + 1)?;
         Ok(RenderedScenario {
             table,
             photo,
             true_order: scene.true_order,
             mask: scene.mask,
         })
+    }
+}
+
+impl Scenario {
+    /// The specimen photographed in light field ([`super::render_light_field`]: analyser turned
+    /// 90°, bright background, dark rim along the outline) with the same light, camera, plates,
+    /// material, exposure, vignetting, blur, noise level and file format as [`Scenario::render`]'s
+    /// dark-field photo, and its own noise. Same size as that photo.
+    pub fn light_field_photo(&self) -> CoreResult<Photo> {
+        let image = render_light_field(
+            &self.specimen,
+            &self.renderer()?,
+            self.width,
+            self.height,
+            SUPERSAMPLING,
+        )?;
+        self.specimen_photo(&image, self.seed.wrapping_mul(2) + 2)
+    }
+
+    /// The specimen's camera effects and file format applied to `image`, decoded; `noise_seed`
+    /// draws the sensor noise.
+    fn specimen_photo(&self, image: &LinearImage, noise_seed: u64) -> CoreResult<Photo> {
+        let fx = PhotoEffects {
+            blur_sigma_px: self.specimen_blur_px,
+            corner_brightness: self.corner_brightness,
+            exposure: self.specimen_exposure,
+            noise_sigma_codes: self.noise_codes,
+            seed: noise_seed,
+        };
+        Photo::decode(
+            &develop(image, &fx, self.encoding)?,
+            &DecodeLimits::default(),
+        )
     }
 }
 
