@@ -1,6 +1,23 @@
 //! The HTTP layer (axum 0.8): one [`AppState`], one error type ([`error::ApiError`]), one
 //! `router()` per resource module, merged in [`app`].
 
+/// The `isotint_core::stress::SpecimenFields` of a JSON request that spells out the specimen's
+/// fields (boundary, comparison, report): spelt out, not flattened, because serde cannot refuse
+/// unknown fields beside a flattened part.
+macro_rules! specimen_fields {
+    ($r:expr) => {
+        isotint_core::stress::SpecimenFields {
+            specimen: $r.specimen,
+            fringe_value_n_per_mm: $r.fringe_value_n_per_mm,
+            thickness_mm: $r.thickness_mm,
+            strain_fringe_value_um: $r.strain_fringe_value_um,
+            coating_thickness_mm: $r.coating_thickness_mm,
+            youngs_modulus_mpa: $r.youngs_modulus_mpa,
+            poisson_ratio: $r.poisson_ratio,
+        }
+    };
+}
+
 pub mod audit;
 pub mod auth;
 pub mod calibrations;

@@ -39,22 +39,6 @@ use crate::domain::{rfc3339, CalibrationId, FileStem, OrderMapId, WithOrigins};
 use crate::pipeline::{self, MaskChoice};
 use crate::storage::order_maps::{self as store, statistics_from_json, OrderMapRow};
 
-/// The `SpecimenFields` of a boundary or comparison request (their fields are spelt out, not
-/// flattened: serde cannot refuse unknown fields beside a flattened part).
-macro_rules! specimen_fields {
-    ($r:expr) => {
-        SpecimenFields {
-            specimen: $r.specimen,
-            fringe_value_n_per_mm: $r.fringe_value_n_per_mm,
-            thickness_mm: $r.thickness_mm,
-            strain_fringe_value_um: $r.strain_fringe_value_um,
-            coating_thickness_mm: $r.coating_thickness_mm,
-            youngs_modulus_mpa: $r.youngs_modulus_mpa,
-            poisson_ratio: $r.poisson_ratio,
-        }
-    };
-}
-
 /// Routes of this module.
 pub fn router() -> OpenApiRouter<AppState> {
     OpenApiRouter::new()

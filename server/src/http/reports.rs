@@ -11,7 +11,7 @@ use axum::http::header;
 use axum::response::{IntoResponse, Response};
 use isotint_core::boundary::EdgePath;
 use isotint_core::report::{report_pdf, ReportInputs, ReportOptions};
-use isotint_core::stress::{SpecimenFields, SpecimenKind};
+use isotint_core::stress::SpecimenKind;
 use isotint_core::{CalibrationTable, CoreError, MapOptions, PixelPoint};
 use serde::Deserialize;
 use utoipa::ToSchema;
@@ -97,16 +97,7 @@ impl ReportRequest {
             title: self.title,
         };
         options.validate()?;
-        let (specimen, origins) = SpecimenFields {
-            specimen: self.specimen,
-            fringe_value_n_per_mm: self.fringe_value_n_per_mm,
-            thickness_mm: self.thickness_mm,
-            strain_fringe_value_um: self.strain_fringe_value_um,
-            coating_thickness_mm: self.coating_thickness_mm,
-            youngs_modulus_mpa: self.youngs_modulus_mpa,
-            poisson_ratio: self.poisson_ratio,
-        }
-        .specimen_with(table.stress_defaults())?;
+        let (specimen, origins) = specimen_fields!(self).specimen_with(table.stress_defaults())?;
         let specimen = specimen.ok_or_else(|| {
             CoreError::invalid(
                 "fringe_value_n_per_mm",
