@@ -1830,7 +1830,7 @@ pub fn statistics_text(s: &MapStatistics, specimen: Option<&Specimen>) -> String
         let figures = specimen.statistics(s);
         let t = figures.stress;
         out += &format!(
-            "  specimen            {}\n  σ1−σ2               min {:.3}, mean {:.3}, max {} \
+            "  stress inputs       {}\n  σ1−σ2               min {:.3}, mean {:.3}, max {} \
              ({:.4} MPa per fringe)\n",
             specimen.input_lines().join("; "),
             t.min_stress_mpa,
